@@ -1,0 +1,146 @@
+// Online testing rules: each gives the next test its level before its p-value is seen, records the
+// outcome, and keeps its alpha-wealth. Pure math: no I/O, no logging, no clock, no globals.
+//
+// Rules (docs/rules.md says when to use each, its guarantee and its conditions):
+//   alpha-spending   level alpha*gamma_t; FWER <= alpha under any dependence
+//   alpha-investing  Foster & Stine (2008); mFDR <= alpha
+//   lond             Javanmard & Montanari (2018); FDR <= alpha under independence or PRDS
+//   lord++           Ramdas et al. (2017); FDR <= alpha under independence
+//   saffron          Ramdas et al. (2018); FDR <= alpha under independence
+//   addis            Tian & Ramdas (2019); FDR <= alpha under independence, uniformly conservative nulls
+//
+// Example (methods.md section 14.3, LORD++ with the defaults):
+//   auto config = resolve_config(RuleSpec{.rule = "lord++"});
+//   Rule rule(*config);
+//   rule.next_level();          // 0.001370386057...
+//   Outcome o = rule.record(0.0004);   // o.rejected == true
+//
+// Thread-safety: a Rule is a value; distinct Rules may be used from distinct threads. Copying a
+// Rule is cheap (the spending sequence and its mixture are shared, immutable).
+#pragma once
+
+#include <cstdint>
+#include <memory>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "alphaledger/result.hpp"
+#include "alphaledger/spending.hpp"
+
+namespace alphaledger {
+
+// Stored on disk inside stream configurations: do not change the numbers.
+enum class RuleKind : std::uint8_t {
+  kAlphaSpending = 1,
+  kAlphaInvesting = 2,
+  kLond = 3,
+  kLordPlusPlus = 4,
+  kSaffron = 5,
+  kAddis = 6,
+};
+
+// Stored on disk: do not change the numbers.
+enum class Evaluation : std::uint8_t { kExact = 1, kFast = 2 };
+
+std::string_view rule_name(RuleKind kind);          // "lord++", ...
+Result<RuleKind> parse_rule_name(std::string_view name);  // refuses unknown names, listing the known
+std::string_view evaluation_name(Evaluation e);     // "exact" / "fast"
+Result<Evaluation> parse_evaluation(std::string_view name);
+
+// What a user asks for: every parameter optional. resolve_config() fills defaults and validates.
+struct RuleSpec {
+  std::string rule = {};                         // a rule name
+  std::optional<double> alpha = {};              // Default: 0.05
+  std::optional<double> initial_wealth = {};     // Default: alpha/2 (alpha*(1-alpha) for alpha-investing)
+  std::optional<double> candidate_threshold = {};  // lambda. Default: 1/2 (saffron), 1/4 (addis)
+  std::optional<double> discard_threshold = {};  // tau. Default: 1/2 (addis)
+  std::optional<double> payout = {};             // omega. Default: alpha (alpha-investing)
+  std::optional<std::string> spending = {};      // Default: per rule, see default_spending()
+  std::optional<std::string> evaluation = {};    // Default: "exact"
+};
+
+// A complete, validated configuration. Parameters a rule does not use are 0 / empty.
+struct RuleConfig {
+  RuleKind kind = RuleKind::kLordPlusPlus;
+  double alpha = 0.05;
+  double initial_wealth = 0;
+  double candidate_threshold = 0;
+  double discard_threshold = 0;
+  double payout = 0;
+  std::string spending;  // canonical spec, empty for alpha-investing
+  Evaluation evaluation = Evaluation::kExact;
+
+  friend bool operator==(const RuleConfig&, const RuleConfig&) = default;
+};
+
+std::string default_spending(RuleKind kind);  // "power:1.6", "jm", "power-shift:1.6", or ""
+
+// Fills defaults and checks every condition of the rule. A parameter the rule does not take
+// (e.g. --payout for lord++) is refused. Errors are kInvalidInput and name the broken condition,
+// e.g. "initial_wealth must satisfy 0 <= W0 <= alpha = 0.05 for lord++, got 0.2".
+Result<RuleConfig> resolve_config(const RuleSpec& spec);
+
+// Which parameters a rule takes (used to refuse flags that no listed rule takes).
+bool rule_takes(RuleKind kind, std::string_view parameter);  // "initial_wealth", "payout", ...
+
+// The result of recording one test.
+struct Outcome {
+  std::uint64_t step = 0;  // 1-based position in the stream
+  double level = 0;        // the level granted, fixed before the p-value was read
+  bool rejected = false;   // p <= level
+  double wealth = 0;       // alpha-wealth after the test (docs/rules.md defines it per rule)
+};
+
+class Rule {
+ public:
+  // REQUIRES: config came from resolve_config().
+  explicit Rule(const RuleConfig& config);
+
+  const RuleConfig& config() const { return config_; }
+
+  // The level the next test will get. Does not change the state.
+  double next_level() const;
+
+  // Decides a test with p-value p and advances the state.
+  // REQUIRES: 0 <= p <= 1 (callers validate input; see validate_p_value()).
+  Outcome record(double p);
+
+  std::uint64_t tests() const { return step_; }
+  std::uint64_t rejections() const { return rejections_; }
+  double wealth() const { return wealth_; }
+
+  // The compact state: every counter and accumulator, little-endian, versioned. Restoring the
+  // encoded state into a Rule of the same configuration continues bit-identically.
+  std::string encode_state() const;
+  // On failure (truncated, wrong version, wrong shape for this configuration) returns
+  // kStorage and leaves this Rule unchanged.
+  Status restore_state(std::string_view bytes);
+
+  // The spending sequence in use (exact mode) or its mixture (fast mode). Null for
+  // alpha-investing.
+  const SpendingSequence* sequence() const { return sequence_.get(); }
+
+ private:
+  double deposit_sum() const;    // sum_d c_d gamma(index_d), exact or fast
+  void advance(bool tick, bool rejected);
+
+  RuleConfig config_;
+  std::shared_ptr<const SpendingSequence> sequence_;
+  const GeometricMixture* mixture_ = nullptr;  // fast mode only; owned by sequence_
+
+  std::uint64_t step_ = 0;
+  std::uint64_t rejections_ = 0;
+  double wealth_ = 0;
+  std::uint64_t last_rejection_ = 0;   // alpha-investing: k*
+  std::uint64_t clock_ = 0;            // deposit rules: ticks so far
+  std::vector<std::uint64_t> deposit_clock_;  // exact mode: clock at each deposit (index 0: W0)
+  std::vector<double> head_;           // fast mode: coefficient at each head index 1..L
+  std::vector<double> accumulator_;    // fast mode: A_k
+};
+
+// Checks a p-value: finite and in [0, 1]. The message names the field and the value.
+Status validate_p_value(double p);
+
+}  // namespace alphaledger

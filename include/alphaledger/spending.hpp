@@ -1,0 +1,96 @@
+// Spending sequences gamma_1, gamma_2, ...: how each deposit of alpha-wealth is spread over the
+// tests that follow it. Pure math: no I/O, no logging, no globals.
+//
+// Accepted specifications (docs/rules.md):
+//   "jm"            C * log(max(j,2)) / (j * exp(sqrt(log j))), C = kJmConstant (sums to 1)
+//   "jm:C"          the same shape with a user constant C; refused if the sum would pass 1
+//   "power:S"       j^-S / zeta(S), S > 1
+//   "power-shift:S" (j+1)^-S / (zeta(S) - 1), S > 1
+//
+// Every sequence here is nonnegative, nonincreasing and sums to at most 1.
+// Thread-safety: a constructed SpendingSequence is immutable and safe to share between threads.
+//
+// Example:
+//   auto seq = SpendingSequence::parse("power:1.6");
+//   seq->gamma(1);   // 0.4374901658... (= 1 / zeta(1.6))
+#pragma once
+
+#include <cstdint>
+#include <memory>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "alphaledger/result.hpp"
+
+namespace alphaledger {
+
+// Javanmard–Montanari normalising constant: C * sum_j log(max(j,2))/(j e^sqrt(ln j)) = 1 to about
+// 1e-12 (methods.md section 13, recomputed by jm_shape_sum() and checked in tests/core).
+inline constexpr double kJmConstant = 0.079081966722;
+
+// The kind of a sequence. Stored on disk inside stream configurations: do not change the numbers.
+enum class SpendingKind : std::uint8_t { kJm = 1, kPower = 2, kPowerShift = 3 };
+
+// A geometric mixture (methods.md section 15): gamma_m = head[m-1] for m <= head.size(), and
+// sum_k weight[k] * (1 - r_k) * r_k^(m-1) for larger m, with r_k = exp(-rate[k]).
+// It is itself a valid sequence: nonnegative, nonincreasing, total mass <= 1 - 1e-9.
+struct GeometricMixture {
+  std::vector<double> head;    // exact published values for the first lags (JM hybrid), or empty
+  std::vector<double> weight;  // w_k >= 0
+  std::vector<double> rate;    // x_k = -ln r_k > 0
+  std::vector<double> one_minus_r;  // 1 - r_k = -expm1(-x_k), precomputed
+  std::vector<double> ratio;        // r_k = exp(-x_k)
+  std::vector<double> ratio_head;   // r_k^L, L = head.size(): a deposit leaving the head
+  std::vector<double> coefficient;  // w_k * (1 - r_k): the level's weight on accumulator k
+
+  void finish();                         // fills the derived vectors from head, weight and rate
+
+  double gamma(std::uint64_t m) const;   // gamma_m; 0 for m == 0
+  double total_mass() const;             // sum over all m >= 1, in closed form
+};
+
+class SpendingSequence {
+ public:
+  // Parses and validates a specification. On failure returns kInvalidInput naming the broken
+  // condition, e.g. "power:S needs S > 1, got 0.9".
+  static Result<SpendingSequence> parse(std::string_view spec);
+
+  // gamma_j for j >= 1 (the published closed form); 0 for j == 0.
+  double gamma(std::uint64_t j) const;
+
+  SpendingKind kind() const { return kind_; }
+  double parameter() const { return parameter_; }  // C for jm, S for power and power-shift
+  const std::string& spec() const { return spec_; }  // canonical text, e.g. "power:1.6"
+  double normaliser() const { return normaliser_; }  // the factor in front of the shape
+
+  // The geometric-mixture version used by --evaluation fast (methods.md section 15.4): a
+  // trapezoid fit of the Laplace integral for power laws, exact head of 16 lags plus a
+  // nonnegative least-squares tail for jm. Deterministic: same spec, same numbers, bit for bit.
+  const GeometricMixture& mixture() const;
+
+ private:
+  SpendingKind kind_ = SpendingKind::kPower;
+  double parameter_ = 0;
+  double normaliser_ = 0;
+  std::string spec_;
+  std::vector<double> table_;  // gamma_j for j <= table_.size(), precomputed
+  std::shared_ptr<const GeometricMixture> mixture_;
+};
+
+// sum_{j>=1} log(max(j,2)) / (j e^sqrt(ln j)): exact summation to 10^6 plus an Euler–Maclaurin
+// tail (methods.md section 13). About 12.645107872872.
+double jm_shape_sum();
+
+// Default spending specification of each rule (methods.md "alphaledger's choices" 2).
+// Fits a power-law mixture (exposed for tests): trapezoid rule in u = ln x, step h, range
+// [u_lo, u_hi]; weights renormalised so the mass is exactly `mass`.
+GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi,
+                                   double mass);
+
+// Nonnegative least squares min ||A w - b||, w >= 0 (Lawson–Hanson active set, Householder QR on
+// the passive columns). A is row-major rows x cols. Deterministic. Exposed for tests.
+std::vector<double> nonnegative_least_squares(const std::vector<double>& a, std::size_t rows,
+                                              std::size_t cols, const std::vector<double>& b);
+
+}  // namespace alphaledger

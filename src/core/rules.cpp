@@ -1,0 +1,395 @@
+// The online rules (methods.md sections 1, 2, 4, 5.2, 6, 7 and 15; docs/rules.md).
+#include "alphaledger/rules.hpp"
+
+#include <algorithm>
+#include <array>
+#include <bit>
+#include <charconv>
+#include <cmath>
+#include <cstring>
+
+namespace alphaledger {
+namespace {
+
+constexpr std::uint8_t kStateVersion = 1;  // stored on disk: bump when the layout changes
+
+struct RuleNameEntry {
+  RuleKind kind;
+  std::string_view name;
+};
+constexpr std::array<RuleNameEntry, 6> kRuleNames = {{
+    {RuleKind::kAlphaSpending, "alpha-spending"},
+    {RuleKind::kAlphaInvesting, "alpha-investing"},
+    {RuleKind::kLond, "lond"},
+    {RuleKind::kLordPlusPlus, "lord++"},
+    {RuleKind::kSaffron, "saffron"},
+    {RuleKind::kAddis, "addis"},
+}};
+
+std::string num(double v) {
+  char buf[64];
+  auto [ptr, ec] = std::to_chars(buf, buf + sizeof buf, v);
+  return std::string(buf, ptr);
+}
+
+bool is_deposit_rule(RuleKind k) {
+  return k == RuleKind::kLordPlusPlus || k == RuleKind::kSaffron || k == RuleKind::kAddis;
+}
+
+// Little-endian encoding helpers.
+void put_u64(std::string& out, std::uint64_t v) {
+  for (int i = 0; i < 8; ++i) out.push_back(static_cast<char>((v >> (8 * i)) & 0xff));
+}
+void put_f64(std::string& out, double v) { put_u64(out, std::bit_cast<std::uint64_t>(v)); }
+
+struct Reader {
+  std::string_view in;
+  bool ok = true;
+  std::uint8_t u8() {
+    if (in.empty()) { ok = false; return 0; }
+    const auto v = static_cast<std::uint8_t>(in[0]);
+    in.remove_prefix(1);
+    return v;
+  }
+  std::uint64_t u64() {
+    if (in.size() < 8) { ok = false; in = {}; return 0; }
+    std::uint64_t v = 0;
+    for (int i = 0; i < 8; ++i) v |= static_cast<std::uint64_t>(static_cast<std::uint8_t>(in[i])) << (8 * i);
+    in.remove_prefix(8);
+    return v;
+  }
+  double f64() { return std::bit_cast<double>(u64()); }
+};
+
+}  // namespace
+
+std::string_view rule_name(RuleKind kind) {
+  for (const auto& e : kRuleNames) if (e.kind == kind) return e.name;
+  return "unknown";
+}
+
+Result<RuleKind> parse_rule_name(std::string_view name) {
+  for (const auto& e : kRuleNames) if (e.name == name) return e.kind;
+  return invalid_input("unknown rule '" + std::string(name) +
+                       "'; accepted: alpha-spending, alpha-investing, lond, lord++, saffron, addis");
+}
+
+std::string_view evaluation_name(Evaluation e) { return e == Evaluation::kFast ? "fast" : "exact"; }
+
+Result<Evaluation> parse_evaluation(std::string_view name) {
+  if (name == "exact") return Evaluation::kExact;
+  if (name == "fast") return Evaluation::kFast;
+  return invalid_input("evaluation must be exact or fast, got '" + std::string(name) + "'");
+}
+
+std::string default_spending(RuleKind kind) {
+  switch (kind) {
+    case RuleKind::kAlphaSpending: return "power:1.6";
+    case RuleKind::kLond: return "jm";
+    case RuleKind::kLordPlusPlus: return "jm";
+    case RuleKind::kSaffron: return "power:1.6";
+    case RuleKind::kAddis: return "power-shift:1.6";
+    case RuleKind::kAlphaInvesting: return "";
+  }
+  return "";
+}
+
+bool rule_takes(RuleKind kind, std::string_view parameter) {
+  if (parameter == "alpha") return true;
+  if (parameter == "initial_wealth") return is_deposit_rule(kind) || kind == RuleKind::kAlphaInvesting;
+  if (parameter == "candidate_threshold") return kind == RuleKind::kSaffron || kind == RuleKind::kAddis;
+  if (parameter == "discard_threshold") return kind == RuleKind::kAddis;
+  if (parameter == "payout") return kind == RuleKind::kAlphaInvesting;
+  if (parameter == "spending") return kind != RuleKind::kAlphaInvesting;
+  if (parameter == "evaluation") return is_deposit_rule(kind);
+  return false;
+}
+
+Result<RuleConfig> resolve_config(const RuleSpec& spec) {
+  auto kind = parse_rule_name(spec.rule);
+  if (!kind) return kind.error();
+  RuleConfig c;
+  c.kind = *kind;
+  const std::string rn(spec.rule);
+  auto refuse_unused = [&](bool given, std::string_view param) -> Status {
+    if (given && !rule_takes(c.kind, param)) {
+      return invalid_input(std::string(param) + " does not apply to " + rn);
+    }
+    return {};
+  };
+  for (auto [given, param] : std::array<std::pair<bool, std::string_view>, 6>{{
+           {spec.initial_wealth.has_value(), "initial_wealth"},
+           {spec.candidate_threshold.has_value(), "candidate_threshold"},
+           {spec.discard_threshold.has_value(), "discard_threshold"},
+           {spec.payout.has_value(), "payout"},
+           {spec.spending.has_value(), "spending"},
+           {spec.evaluation.has_value(), "evaluation"}}}) {
+    if (auto s = refuse_unused(given, param); !s) return s.error();
+  }
+
+  c.alpha = spec.alpha.value_or(0.05);
+  if (!(c.alpha > 0 && c.alpha < 1)) {
+    return invalid_input("alpha must satisfy 0 < alpha < 1, got " + num(c.alpha));
+  }
+  if (c.kind == RuleKind::kAlphaInvesting) {
+    c.initial_wealth = spec.initial_wealth.value_or(c.alpha * (1 - c.alpha));
+    c.payout = spec.payout.value_or(c.alpha);
+    if (!(c.initial_wealth > 0 && c.initial_wealth <= c.alpha)) {
+      return invalid_input("initial_wealth must satisfy 0 < W0 <= alpha = " + num(c.alpha) +
+                           " for alpha-investing, got " + num(c.initial_wealth));
+    }
+    if (!(c.payout >= 0 && c.payout <= c.alpha)) {
+      return invalid_input("payout must satisfy 0 <= payout <= alpha = " + num(c.alpha) +
+                           " for alpha-investing, got " + num(c.payout));
+    }
+  }
+  if (is_deposit_rule(c.kind)) {
+    c.initial_wealth = spec.initial_wealth.value_or(c.alpha / 2);
+    if (!(c.initial_wealth >= 0 && c.initial_wealth <= c.alpha)) {
+      return invalid_input("initial_wealth must satisfy 0 <= W0 <= alpha = " + num(c.alpha) +
+                           " for " + rn + ", got " + num(c.initial_wealth));
+    }
+    auto e = parse_evaluation(spec.evaluation.value_or("exact"));
+    if (!e) return e.error();
+    c.evaluation = *e;
+  }
+  if (c.kind == RuleKind::kSaffron) {
+    c.candidate_threshold = spec.candidate_threshold.value_or(0.5);
+    if (!(c.candidate_threshold > 0 && c.candidate_threshold < 1)) {
+      return invalid_input("candidate_threshold must satisfy 0 < lambda < 1 for saffron, got " +
+                           num(c.candidate_threshold));
+    }
+  }
+  if (c.kind == RuleKind::kAddis) {
+    c.candidate_threshold = spec.candidate_threshold.value_or(0.25);
+    c.discard_threshold = spec.discard_threshold.value_or(0.5);
+    if (!(c.discard_threshold > 0 && c.discard_threshold <= 1)) {
+      return invalid_input("discard_threshold must satisfy 0 < tau <= 1 for addis, got " +
+                           num(c.discard_threshold));
+    }
+    if (!(c.candidate_threshold > 0 && c.candidate_threshold < c.discard_threshold)) {
+      return invalid_input("candidate_threshold must satisfy 0 < lambda < tau = " +
+                           num(c.discard_threshold) + " for addis, got " + num(c.candidate_threshold));
+    }
+  }
+  if (c.kind != RuleKind::kAlphaInvesting) {
+    auto seq = SpendingSequence::parse(spec.spending.value_or(default_spending(c.kind)));
+    if (!seq) return seq.error();
+    c.spending = seq->spec();
+  }
+  return c;
+}
+
+Status validate_p_value(double p) {
+  if (!(p >= 0.0 && p <= 1.0)) {
+    return invalid_input("p_value must be a number in [0, 1], got " + num(p));
+  }
+  return {};
+}
+
+Rule::Rule(const RuleConfig& config) : config_(config) {
+  if (config_.kind != RuleKind::kAlphaInvesting) {
+    auto seq = SpendingSequence::parse(config_.spending);
+    // resolve_config() validated the spec; a failure here is a programming error.
+    sequence_ = std::make_shared<const SpendingSequence>(std::move(seq).value());
+    if (is_deposit_rule(config_.kind) && config_.evaluation == Evaluation::kFast) {
+      mixture_ = &sequence_->mixture();
+    }
+  }
+  switch (config_.kind) {
+    case RuleKind::kAlphaSpending:
+    case RuleKind::kLond:
+      wealth_ = config_.alpha;
+      break;
+    case RuleKind::kAlphaInvesting:
+      wealth_ = config_.initial_wealth;
+      break;
+    default:
+      wealth_ = config_.initial_wealth;
+      if (mixture_ != nullptr) {
+        head_.assign(mixture_->head.size(), 0.0);
+        accumulator_.assign(mixture_->weight.size(), 0.0);
+        if (head_.empty()) {
+          std::fill(accumulator_.begin(), accumulator_.end(), config_.initial_wealth);
+        } else {
+          head_[0] = config_.initial_wealth;
+        }
+      } else {
+        deposit_clock_.push_back(0);
+      }
+  }
+}
+
+double Rule::deposit_sum() const {
+  const double w0 = config_.initial_wealth;
+  const double a = config_.alpha;
+  if (mixture_ != nullptr) {
+    double s = 0;
+    for (std::size_t i = 0; i < head_.size(); ++i) s += head_[i] * mixture_->head[i];
+    for (std::size_t k = 0; k < accumulator_.size(); ++k)
+      s += mixture_->coefficient[k] * accumulator_[k];
+    return s;
+  }
+  double s = 0;
+  for (std::size_t d = 0; d < deposit_clock_.size(); ++d) {
+    const double c = d == 0 ? w0 : (d == 1 ? a - w0 : a);
+    s += c * sequence_->gamma(1 + clock_ - deposit_clock_[d]);
+  }
+  return s;
+}
+
+double Rule::next_level() const {
+  const std::uint64_t t = step_ + 1;
+  const double a = config_.alpha;
+  switch (config_.kind) {
+    case RuleKind::kAlphaSpending:
+      return a * sequence_->gamma(t);
+    case RuleKind::kLond:
+      return a * sequence_->gamma(t) * static_cast<double>(rejections_ + 1);
+    case RuleKind::kAlphaInvesting: {
+      const double w = std::max(wealth_, 0.0);
+      const double policy = w / static_cast<double>(1 + t - last_rejection_);
+      return std::min(policy, w / (1 + w));
+    }
+    case RuleKind::kLordPlusPlus:
+      return deposit_sum();
+    case RuleKind::kSaffron: {
+      const double lambda = config_.candidate_threshold;
+      return std::min(lambda, (1 - lambda) * deposit_sum());
+    }
+    case RuleKind::kAddis: {
+      const double lambda = config_.candidate_threshold;
+      return std::min(lambda, (config_.discard_threshold - lambda) * deposit_sum());
+    }
+  }
+  return 0.0;
+}
+
+void Rule::advance(bool tick, bool rejected) {
+  const double c_new = rejections_ == 0 ? config_.alpha - config_.initial_wealth : config_.alpha;
+  if (mixture_ != nullptr) {
+    if (tick) {
+      const std::size_t l = head_.size();
+      const double leaving = l > 0 ? head_[l - 1] : 0.0;
+      for (std::size_t k = 0; k < accumulator_.size(); ++k) {
+        accumulator_[k] = accumulator_[k] * mixture_->ratio[k] + leaving * mixture_->ratio_head[k];
+      }
+      for (std::size_t i = l; i-- > 1;) head_[i] = head_[i - 1];
+      if (l > 0) head_[0] = 0.0;
+    }
+    if (rejected) {
+      if (head_.empty()) {
+        for (double& acc : accumulator_) acc += c_new;
+      } else {
+        head_[0] += c_new;
+      }
+    }
+  } else {
+    if (tick) ++clock_;
+    if (rejected) deposit_clock_.push_back(clock_);
+  }
+  if (rejected) wealth_ += c_new;
+}
+
+Outcome Rule::record(double p) {
+  Outcome o;
+  o.level = next_level();
+  o.rejected = p <= o.level;
+  o.step = ++step_;
+  const double a = config_.alpha;
+  switch (config_.kind) {
+    case RuleKind::kAlphaSpending:
+    case RuleKind::kLond:
+      wealth_ -= a * sequence_->gamma(o.step);
+      break;
+    case RuleKind::kAlphaInvesting:
+      if (o.rejected) {
+        wealth_ += config_.payout;
+        last_rejection_ = o.step;
+      } else {
+        wealth_ = std::max(0.0, wealth_ - o.level / (1 - o.level));
+      }
+      break;
+    case RuleKind::kLordPlusPlus:
+      wealth_ -= o.level;
+      advance(true, o.rejected);
+      break;
+    case RuleKind::kSaffron: {
+      const double lambda = config_.candidate_threshold;
+      const bool tick = p > lambda;
+      if (tick) wealth_ -= o.level / (1 - lambda);
+      advance(tick, o.rejected);
+      break;
+    }
+    case RuleKind::kAddis: {
+      const double lambda = config_.candidate_threshold;
+      const double tau = config_.discard_threshold;
+      const bool tick = p > lambda && p <= tau;
+      if (tick) wealth_ -= o.level / (tau - lambda);
+      advance(tick, o.rejected);
+      break;
+    }
+  }
+  if (o.rejected) ++rejections_;
+  o.wealth = wealth_;
+  return o;
+}
+
+std::string Rule::encode_state() const {
+  std::string out;
+  out.push_back(static_cast<char>(kStateVersion));
+  out.push_back(static_cast<char>(config_.kind));
+  out.push_back(static_cast<char>(config_.evaluation));
+  put_u64(out, step_);
+  put_u64(out, rejections_);
+  put_f64(out, wealth_);
+  put_u64(out, last_rejection_);
+  put_u64(out, clock_);
+  put_u64(out, deposit_clock_.size());
+  for (auto c : deposit_clock_) put_u64(out, c);
+  put_u64(out, head_.size());
+  for (double h : head_) put_f64(out, h);
+  put_u64(out, accumulator_.size());
+  for (double a : accumulator_) put_f64(out, a);
+  return out;
+}
+
+Status Rule::restore_state(std::string_view bytes) {
+  Reader r{bytes};
+  const auto version = r.u8();
+  const auto kind = r.u8();
+  const auto evaluation = r.u8();
+  if (!r.ok || version != kStateVersion) {
+    return storage_error("rule state has format version " + std::to_string(version) +
+                         ", this build reads version " + std::to_string(kStateVersion));
+  }
+  if (kind != static_cast<std::uint8_t>(config_.kind) ||
+      evaluation != static_cast<std::uint8_t>(config_.evaluation)) {
+    return storage_error("rule state belongs to another rule or evaluation mode");
+  }
+  Rule next = *this;
+  next.step_ = r.u64();
+  next.rejections_ = r.u64();
+  next.wealth_ = r.f64();
+  next.last_rejection_ = r.u64();
+  next.clock_ = r.u64();
+  const std::uint64_t nd = r.u64();
+  if (!r.ok || nd > r.in.size() / 8) return storage_error("rule state is truncated (deposits)");
+  next.deposit_clock_.assign(nd, 0);
+  for (auto& c : next.deposit_clock_) c = r.u64();
+  const std::uint64_t nh = r.u64();
+  if (!r.ok || nh != head_.size()) return storage_error("rule state has the wrong head size");
+  for (auto& h : next.head_) h = r.f64();
+  const std::uint64_t na = r.u64();
+  if (!r.ok || na != accumulator_.size()) return storage_error("rule state has the wrong accumulator count");
+  for (auto& a : next.accumulator_) a = r.f64();
+  if (!r.ok || !r.in.empty()) return storage_error("rule state is truncated or has trailing bytes");
+  const bool exact_deposits = is_deposit_rule(config_.kind) && mixture_ == nullptr;
+  if (exact_deposits && (nd != next.rejections_ + 1)) {
+    return storage_error("rule state is inconsistent: deposit count does not match rejections");
+  }
+  *this = std::move(next);
+  return {};
+}
+
+}  // namespace alphaledger

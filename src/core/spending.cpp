@@ -1,0 +1,329 @@
+// Spending sequences and their geometric-mixture versions (methods.md sections 13 and 15).
+#include "alphaledger/spending.hpp"
+
+#include <algorithm>
+#include <charconv>
+#include <cmath>
+#include <limits>
+#include <numeric>
+
+#include "core/math_policy.hpp"
+
+namespace alphaledger {
+namespace {
+
+constexpr std::size_t kTableSize = 4096;       // gamma_j precomputed for j <= 4096
+constexpr std::size_t kJmHeadLags = 16;        // methods.md 15.4(b) hybrid: exact head L = 16
+constexpr double kMixtureMass = 1.0 - 1e-9;    // methods.md 15.6: strict validity margin
+
+double jm_shape(double j) {
+  const double l = std::log(j);
+  return std::log(std::max(j, 2.0)) / (j * std::exp(std::sqrt(l)));
+}
+
+Result<double> parse_number(std::string_view text, std::string_view spec) {
+  double v = 0;
+  const char* first = text.data();
+  const char* last = text.data() + text.size();
+  auto [ptr, ec] = std::from_chars(first, last, v);
+  if (text.empty() || ec != std::errc() || ptr != last || !std::isfinite(v)) {
+    return invalid_input("spending sequence '" + std::string(spec) +
+                         "': '" + std::string(text) + "' is not a number");
+  }
+  return v;
+}
+
+std::string shortest(double v) {
+  char buf[64];
+  auto [ptr, ec] = std::to_chars(buf, buf + sizeof buf, v);
+  return std::string(buf, ptr);
+}
+
+// Least squares on the columns `cols` of A (row-major, rows x ncols) by Householder QR.
+std::vector<double> least_squares_subset(const std::vector<double>& a, std::size_t rows,
+                                         std::size_t ncols, const std::vector<std::size_t>& cols,
+                                         const std::vector<double>& b) {
+  const std::size_t n = cols.size();
+  std::vector<double> q(rows * n);  // column-major copy of the chosen columns
+  for (std::size_t c = 0; c < n; ++c)
+    for (std::size_t r = 0; r < rows; ++r) q[c * rows + r] = a[r * ncols + cols[c]];
+  std::vector<double> y = b;
+  for (std::size_t c = 0; c < n && c < rows; ++c) {
+    double* col = &q[c * rows];
+    double norm = 0;
+    for (std::size_t r = c; r < rows; ++r) norm = std::hypot(norm, col[r]);
+    if (norm == 0) continue;
+    const double alpha = col[c] > 0 ? -norm : norm;
+    std::vector<double> v(rows - c);
+    for (std::size_t r = c; r < rows; ++r) v[r - c] = col[r];
+    v[0] -= alpha;
+    double vnorm2 = 0;
+    for (double x : v) vnorm2 += x * x;
+    if (vnorm2 == 0) continue;
+    auto reflect = [&](double* target) {
+      double dot = 0;
+      for (std::size_t r = c; r < rows; ++r) dot += v[r - c] * target[r];
+      const double f = 2 * dot / vnorm2;
+      for (std::size_t r = c; r < rows; ++r) target[r] -= f * v[r - c];
+    };
+    for (std::size_t c2 = c; c2 < n; ++c2) reflect(&q[c2 * rows]);
+    reflect(y.data());
+  }
+  std::vector<double> z(n, 0.0);
+  for (std::size_t i = n; i-- > 0;) {
+    if (i >= rows) continue;
+    double s = y[i];
+    for (std::size_t c = i + 1; c < n; ++c) s -= q[c * rows + i] * z[c];
+    const double d = q[i * rows + i];
+    z[i] = d != 0 ? s / d : 0;
+  }
+  return z;
+}
+
+}  // namespace
+
+std::vector<double> nonnegative_least_squares(const std::vector<double>& a, std::size_t rows,
+                                              std::size_t cols, const std::vector<double>& b) {
+  std::vector<double> w(cols, 0.0);
+  std::vector<bool> passive(cols, false);
+  double scale = 0;
+  for (double x : a) scale = std::max(scale, std::abs(x));
+  const double tol = 1e-12 * std::max(scale, 1.0) * static_cast<double>(rows);
+  for (std::size_t outer = 0; outer < 3 * cols + 10; ++outer) {
+    std::vector<double> resid = b;
+    for (std::size_t r = 0; r < rows; ++r)
+      for (std::size_t c = 0; c < cols; ++c) resid[r] -= a[r * cols + c] * w[c];
+    std::size_t best = cols;
+    double best_grad = tol;
+    for (std::size_t c = 0; c < cols; ++c) {
+      if (passive[c]) continue;
+      double g = 0;
+      for (std::size_t r = 0; r < rows; ++r) g += a[r * cols + c] * resid[r];
+      if (g > best_grad) { best_grad = g; best = c; }
+    }
+    if (best == cols) break;
+    passive[best] = true;
+    for (std::size_t inner = 0; inner < 3 * cols + 10; ++inner) {
+      std::vector<std::size_t> idx;
+      for (std::size_t c = 0; c < cols; ++c) if (passive[c]) idx.push_back(c);
+      std::vector<double> z = least_squares_subset(a, rows, cols, idx, b);
+      bool all_positive = true;
+      for (double v : z) all_positive = all_positive && v > 0;
+      if (all_positive) {
+        std::fill(w.begin(), w.end(), 0.0);
+        for (std::size_t i = 0; i < idx.size(); ++i) w[idx[i]] = z[i];
+        break;
+      }
+      double step = 1.0;
+      std::size_t blocking = idx.size();
+      for (std::size_t i = 0; i < idx.size(); ++i) {
+        if (z[i] <= 0) {
+          const double wi = w[idx[i]];
+          const double s = wi - z[i] > 0 ? wi / (wi - z[i]) : 0.0;
+          if (s < step || blocking == idx.size()) { step = std::min(step, s); blocking = i; }
+        }
+      }
+      for (std::size_t i = 0; i < idx.size(); ++i) {
+        const std::size_t c = idx[i];
+        w[c] += step * (z[i] - w[c]);
+        if (i == blocking || w[c] <= 0) { w[c] = 0; passive[c] = false; }
+      }
+    }
+  }
+  return w;
+}
+
+double GeometricMixture::gamma(std::uint64_t m) const {
+  if (m == 0) return 0.0;
+  if (m <= head.size()) return head[m - 1];
+  const double lag = static_cast<double>(m - 1);
+  double s = 0;
+  for (std::size_t k = 0; k < weight.size(); ++k) s += coefficient[k] * std::exp(-lag * rate[k]);
+  return s;
+}
+
+void GeometricMixture::finish() {
+  one_minus_r.clear(); ratio.clear(); ratio_head.clear(); coefficient.clear();
+  const double l = static_cast<double>(head.size());
+  for (std::size_t k = 0; k < weight.size(); ++k) {
+    one_minus_r.push_back(-std::expm1(-rate[k]));
+    ratio.push_back(std::exp(-rate[k]));
+    ratio_head.push_back(std::exp(-l * rate[k]));
+    coefficient.push_back(weight[k] * one_minus_r[k]);
+  }
+}
+
+double GeometricMixture::total_mass() const {
+  double s = 0;
+  for (double h : head) s += h;
+  const double lag = static_cast<double>(head.size());
+  for (std::size_t k = 0; k < weight.size(); ++k) s += weight[k] * std::exp(-lag * rate[k]);
+  return s;
+}
+
+GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi,
+                                   double mass) {
+  GeometricMixture m;
+  const double z = shifted ? detail::zeta(s) - 1.0 : detail::zeta(s);
+  const double g = detail::tgamma(s);
+  const auto count = static_cast<std::size_t>(std::llround((u_hi - u_lo) / h)) + 1;
+  double total = 0;
+  for (std::size_t k = 0; k < count; ++k) {
+    const double u = u_lo + static_cast<double>(k) * h;
+    const double x = std::exp(u);
+    double a = h * std::exp(s * u) / (g * z);
+    if (shifted) a *= std::exp(-x);
+    const double w = a / std::expm1(x);
+    m.weight.push_back(w);
+    m.rate.push_back(x);
+    total += w;
+  }
+  for (double& w : m.weight) w *= mass / total;
+  m.finish();
+  return m;
+}
+
+namespace {
+
+// methods.md 15.4(b): exact head of L lags, tail fitted by NNLS on log-spaced timescales.
+GeometricMixture fit_hybrid_mixture(const SpendingSequence& seq) {
+  GeometricMixture m;
+  for (std::size_t j = 1; j <= kJmHeadLags; ++j) m.head.push_back(seq.gamma(j));
+  std::vector<double> rates;
+  for (int k = 0; k <= 34; ++k) rates.push_back(1.0 / (0.25 * std::pow(10.0, k / 3.0)));
+  std::vector<std::uint64_t> grid;
+  for (std::uint64_t j = kJmHeadLags + 1; j <= 60; ++j) grid.push_back(j);
+  for (int i = 0; i <= 9 * 25; ++i) {
+    const auto j = static_cast<std::uint64_t>(std::llround(std::pow(10.0, i / 25.0)));
+    if (j > 60 && j != grid.back()) grid.push_back(j);
+  }
+  const std::size_t rows = grid.size();
+  const std::size_t cols = rates.size();
+  std::vector<double> a(rows * cols);
+  std::vector<double> b(rows, 1.0);
+  for (std::size_t r = 0; r < rows; ++r) {
+    const double y = seq.gamma(grid[r]);
+    const double lag = static_cast<double>(grid[r] - 1);
+    for (std::size_t c = 0; c < cols; ++c)
+      a[r * cols + c] = -std::expm1(-rates[c]) * std::exp(-lag * rates[c]) / y;
+  }
+  const std::vector<double> w = nonnegative_least_squares(a, rows, cols, b);
+  for (std::size_t c = 0; c < cols; ++c) {
+    if (w[c] <= 0) continue;
+    m.weight.push_back(w[c]);
+    m.rate.push_back(rates[c]);
+  }
+  m.finish();
+  // Keep the sequence nonincreasing across the seam, and its mass below 1.
+  const double seam_tail = m.gamma(kJmHeadLags + 1);
+  if (seam_tail > m.head.back()) {
+    for (double& x : m.weight) x *= m.head.back() / seam_tail;
+  }
+  const double mass = m.total_mass();
+  if (mass > kMixtureMass) {
+    double head_sum = 0;
+    for (double x : m.head) head_sum += x;
+    const double f = (kMixtureMass - head_sum) / (mass - head_sum);
+    for (double& x : m.weight) x *= f;
+  }
+  m.finish();
+  return m;
+}
+
+}  // namespace
+
+double jm_shape_sum() {
+  constexpr std::uint64_t kN = 100000;
+  // Neumaier summation of the exact terms j < N.
+  double sum = 0, comp = 0;
+  for (std::uint64_t j = 1; j < kN; ++j) {
+    const double t = jm_shape(static_cast<double>(j));
+    const double s = sum + t;
+    comp += std::abs(sum) >= std::abs(t) ? (sum - s) + t : (t - s) + sum;
+    sum = s;
+  }
+  // Euler–Maclaurin tail from N: integral + f(N)/2 - f'(N)/12.
+  const double n = static_cast<double>(kN);
+  const double l = std::log(n);
+  const double a = std::sqrt(l);
+  const double integral = 2 * std::exp(-a) * (a * a * a + 3 * a * a + 6 * a + 6);
+  const double deriv = std::exp(-a) / (n * n) * (1 - a / 2 - l);
+  return sum + comp + integral + jm_shape(n) / 2 - deriv / 12;
+}
+
+Result<SpendingSequence> SpendingSequence::parse(std::string_view spec) {
+  SpendingSequence seq;
+  const auto colon = spec.find(':');
+  const std::string_view name = spec.substr(0, colon);
+  const bool has_param = colon != std::string_view::npos;
+  const std::string_view param_text = has_param ? spec.substr(colon + 1) : std::string_view{};
+  constexpr const char* kAccepted = "accepted: jm, jm:C, power:S, power-shift:S";
+  if (name == "jm") {
+    seq.kind_ = SpendingKind::kJm;
+    seq.parameter_ = kJmConstant;
+    if (has_param) {
+      auto c = parse_number(param_text, spec);
+      if (!c) return c.error();
+      if (*c <= 0) return invalid_input("spending sequence '" + std::string(spec) + "': jm:C needs C > 0, got " + shortest(*c));
+      const double total = *c * jm_shape_sum();
+      if (total > 1.0) {
+        return invalid_input("spending sequence '" + std::string(spec) +
+                             "': the sequence must sum to at most 1, but C = " + shortest(*c) +
+                             " gives " + shortest(total) + "; jm:C needs C <= " +
+                             shortest(1.0 / jm_shape_sum()));
+      }
+      seq.parameter_ = *c;
+    }
+    seq.normaliser_ = seq.parameter_;
+    seq.spec_ = has_param ? "jm:" + shortest(seq.parameter_) : "jm";
+  } else if (name == "power" || name == "power-shift") {
+    if (!has_param) return invalid_input("spending sequence '" + std::string(spec) + "' needs an exponent, e.g. " + std::string(name) + ":1.6; " + kAccepted);
+    auto s = parse_number(param_text, spec);
+    if (!s) return s.error();
+    if (!(*s > 1.0) || *s > 50) {
+      return invalid_input("spending sequence '" + std::string(spec) + "': " + std::string(name) +
+                           ":S needs 1 < S <= 50 (the sum must be finite), got " + shortest(*s));
+    }
+    seq.kind_ = name == "power" ? SpendingKind::kPower : SpendingKind::kPowerShift;
+    seq.parameter_ = *s;
+    const double z = detail::zeta(*s);
+    seq.normaliser_ = 1.0 / (seq.kind_ == SpendingKind::kPower ? z : z - 1.0);
+    seq.spec_ = std::string(name) + ":" + shortest(*s);
+  } else {
+    return invalid_input("unknown spending sequence '" + std::string(spec) + "'; " + kAccepted);
+  }
+  seq.table_.reserve(kTableSize);
+  for (std::uint64_t j = 1; j <= kTableSize; ++j) {
+    const double x = static_cast<double>(j);
+    double v = 0;
+    switch (seq.kind_) {
+      case SpendingKind::kJm: v = seq.normaliser_ * jm_shape(x); break;
+      case SpendingKind::kPower: v = seq.normaliser_ * std::pow(x, -seq.parameter_); break;
+      case SpendingKind::kPowerShift: v = seq.normaliser_ * std::pow(x + 1.0, -seq.parameter_); break;
+    }
+    seq.table_.push_back(v);
+  }
+  if (seq.kind_ == SpendingKind::kJm) {
+    seq.mixture_ = std::make_shared<GeometricMixture>(fit_hybrid_mixture(seq));
+  } else {
+    seq.mixture_ = std::make_shared<GeometricMixture>(fit_power_mixture(
+        seq.parameter_, seq.kind_ == SpendingKind::kPowerShift, 0.5, -28.0, 4.0, kMixtureMass));
+  }
+  return seq;
+}
+
+double SpendingSequence::gamma(std::uint64_t j) const {
+  if (j == 0) return 0.0;
+  if (j <= table_.size()) return table_[j - 1];
+  const double x = static_cast<double>(j);
+  switch (kind_) {
+    case SpendingKind::kJm: return normaliser_ * jm_shape(x);
+    case SpendingKind::kPower: return normaliser_ * std::pow(x, -parameter_);
+    case SpendingKind::kPowerShift: return normaliser_ * std::pow(x + 1.0, -parameter_);
+  }
+  return 0.0;
+}
+
+const GeometricMixture& SpendingSequence::mixture() const { return *mixture_; }
+
+}  // namespace alphaledger
