@@ -1,0 +1,73 @@
+// Replay: decide a whole log of finished tests with one or more rules, in order, touching no
+// ledger; plus the hindsight baselines bh and storey-bh. Pure computation over in-memory data.
+//
+// Example (replay_data/ demo, see README):
+//   auto procs = resolve_procedures({"lord++", "bh"}, RuleSpec{});
+//   auto log = read_test_log_file("replay_data/product_experiments.csv", std::nullopt);
+//   ReplayResult r = replay(*log, *procs);
+//   summarize(r, *log)[0].rejections;   // LORD++'s discoveries
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <variant>
+#include <vector>
+
+#include "alphaledger/result.hpp"
+#include "alphaledger/rules.hpp"
+#include "alphaledger/test_log.hpp"
+
+namespace alphaledger {
+
+// Stored nowhere; names are the CLI's.
+enum class OfflineMethod { kBh, kStoreyBh };
+
+struct OfflineConfig {
+  OfflineMethod method = OfflineMethod::kBh;
+  double alpha = 0.05;
+  double candidate_threshold = 0.5;  // storey-bh only. Default: 1/2
+};
+
+struct Procedure {
+  std::string name;                                 // "lord++", "bh", ...
+  std::variant<RuleConfig, OfflineConfig> config;
+  bool online() const { return std::holds_alternative<RuleConfig>(config); }
+};
+
+// Resolves rule names with one set of flags (the `rule` field of `flags` is ignored). A flag
+// applies to every listed procedure that takes it; a flag that no listed procedure takes is an
+// error; a rule whose conditions the flags break is an error naming the condition.
+// `allow_offline`: whether bh / storey-bh are accepted (replay and simulate only).
+Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>& names,
+                                                  const RuleSpec& flags, bool allow_offline);
+
+// Splits "lord++,saffron" into names; refuses empty names and repeats.
+Result<std::vector<std::string>> split_rule_list(std::string_view list);
+
+struct Decision {
+  std::uint64_t step = 0;
+  double level = 0;
+  bool rejected = false;
+  std::optional<double> wealth;  // empty for the offline baselines
+};
+
+struct ReplayResult {
+  std::vector<Procedure> procedures;
+  std::vector<std::vector<Decision>> decisions;  // [procedure][record], records in log order
+};
+
+ReplayResult replay(const TestLog& log, const std::vector<Procedure>& procedures);
+
+struct ReplaySummary {
+  std::string rule;
+  std::uint64_t tests = 0;
+  std::uint64_t rejections = 0;
+  std::optional<std::uint64_t> false_discoveries;  // only when the log has is_null
+  std::optional<double> fdp;
+  std::optional<double> power;                     // empty also when there is no non-null
+};
+
+std::vector<ReplaySummary> summarize(const ReplayResult& result, const TestLog& log);
+
+}  // namespace alphaledger

@@ -1,0 +1,84 @@
+// alphaledger replay FILE [--rules R1,R2,...] [rule flags] [--summary]
+#include <iostream>
+#include <nlohmann/json.hpp>
+
+#include "alphaledger/replay.hpp"
+#include "cli/command.hpp"
+#include "harness/format.hpp"
+
+namespace alphaledger::cli {
+namespace {
+
+struct ReplayOptions {
+  std::string file;
+  std::string rules = "lord++";
+  std::optional<std::string> format;
+  bool summary = false;
+  RuleFlags flags;
+};
+
+std::string opt_text(const std::optional<double>& v) { return v ? format_number(*v) : ""; }
+
+Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& out) {
+  auto names = split_rule_list(o.rules);
+  if (!names) return names.error();
+  auto procs = resolve_procedures(*names, o.flags.to_spec(), /*allow_offline=*/true);
+  if (!procs) return procs.error();
+  std::optional<std::string_view> forced;
+  if (o.format) forced = *o.format;
+  auto log = read_test_log_file(o.file, forced);
+  if (!log) return log.error();
+  const ReplayResult result = replay(*log, *procs);
+  if (o.summary) {
+    const auto rows = summarize(result, *log);
+    if (!g.json) out << "rule,tests,rejections,false_discoveries,fdp,power\n";
+    for (const auto& s : rows) {
+      if (g.json) {
+        nlohmann::ordered_json j = {{"rule", s.rule}, {"tests", s.tests}, {"rejections", s.rejections}};
+        j["false_discoveries"] = s.false_discoveries ? nlohmann::ordered_json(*s.false_discoveries) : nlohmann::ordered_json(nullptr);
+        j["fdp"] = s.fdp ? nlohmann::ordered_json(*s.fdp) : nlohmann::ordered_json(nullptr);
+        j["power"] = s.power ? nlohmann::ordered_json(*s.power) : nlohmann::ordered_json(nullptr);
+        out << j.dump() << '\n';
+      } else {
+        out << s.rule << ',' << s.tests << ',' << s.rejections << ','
+            << (s.false_discoveries ? std::to_string(*s.false_discoveries) : "") << ','
+            << opt_text(s.fdp) << ',' << opt_text(s.power) << '\n';
+      }
+    }
+    return {};
+  }
+  if (!g.json) out << "rule,step,id,p_value,level,rejected,wealth\n";
+  for (std::size_t i = 0; i < result.procedures.size(); ++i) {
+    const std::string& name = result.procedures[i].name;
+    for (std::size_t k = 0; k < log->records.size(); ++k) {
+      const Decision& d = result.decisions[i][k];
+      const TestRecord& r = log->records[k];
+      if (g.json) {
+        nlohmann::ordered_json j = {{"rule", name}, {"step", d.step}, {"id", r.id}, {"p_value", r.p_value},
+                            {"level", d.level}, {"rejected", d.rejected ? 1 : 0}};
+        j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
+        out << j.dump() << '\n';
+      } else {
+        out << name << ',' << d.step << ',' << csv_field(r.id) << ',' << format_number(r.p_value) << ','
+            << format_number(d.level) << ',' << (d.rejected ? '1' : '0') << ',' << opt_text(d.wealth) << '\n';
+      }
+    }
+  }
+  return {};
+}
+
+}  // namespace
+
+void add_replay_command(CLI::App& app, CommandContext& ctx) {
+  auto opts = std::make_shared<ReplayOptions>();
+  CLI::App* sub = app.add_subcommand(
+      "replay", "decide a whole log of finished tests with one or more rules, touching no ledger");
+  sub->add_option("file", opts->file, "log of tests: CSV with a header, or JSON Lines (docs/formats.md)")->required();
+  sub->add_option("--rules", opts->rules, "comma-separated rules: alpha-spending, alpha-investing, lond, lord++, saffron, addis, bh, storey-bh; default lord++");
+  sub->add_option("--format", opts->format, "csv or jsonl; default from the file extension")->check(CLI::IsMember({"csv", "jsonl"}));
+  sub->add_flag("--summary", opts->summary, "one row per rule: tests, rejections, false discoveries, fdp, power");
+  add_rule_flags(sub, opts->flags);
+  sub->callback([&ctx, opts] { ctx.run = [&ctx, opts] { return run_replay(*opts, ctx.global, std::cout); }; });
+}
+
+}  // namespace alphaledger::cli
