@@ -17,6 +17,7 @@
 
 #include <cstdint>
 #include <memory>
+#include <mutex>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -75,7 +76,8 @@ class SpendingSequence {
   double normaliser_ = 0;
   std::string spec_;
   std::vector<double> table_;  // gamma_j for j <= table_.size(), precomputed
-  std::shared_ptr<const GeometricMixture> mixture_;
+  struct LazyMixture;          // fitted on first use, once, thread-safe
+  std::shared_ptr<LazyMixture> mixture_;
 };
 
 // sum_{j>=1} log(max(j,2)) / (j e^sqrt(ln j)): exact summation to 10^6 plus an Euler–Maclaurin

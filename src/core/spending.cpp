@@ -303,12 +303,7 @@ Result<SpendingSequence> SpendingSequence::parse(std::string_view spec) {
     }
     seq.table_.push_back(v);
   }
-  if (seq.kind_ == SpendingKind::kJm) {
-    seq.mixture_ = std::make_shared<GeometricMixture>(fit_hybrid_mixture(seq));
-  } else {
-    seq.mixture_ = std::make_shared<GeometricMixture>(fit_power_mixture(
-        seq.parameter_, seq.kind_ == SpendingKind::kPowerShift, 0.5, -28.0, 4.0, kMixtureMass));
-  }
+  seq.mixture_ = std::make_shared<LazyMixture>();
   return seq;
 }
 
@@ -324,6 +319,21 @@ double SpendingSequence::gamma(std::uint64_t j) const {
   return 0.0;
 }
 
-const GeometricMixture& SpendingSequence::mixture() const { return *mixture_; }
+struct SpendingSequence::LazyMixture {
+  std::once_flag once;
+  GeometricMixture value;
+};
+
+const GeometricMixture& SpendingSequence::mixture() const {
+  std::call_once(mixture_->once, [this] {
+    if (kind_ == SpendingKind::kJm) {
+      mixture_->value = fit_hybrid_mixture(*this);
+    } else {
+      mixture_->value = fit_power_mixture(parameter_, kind_ == SpendingKind::kPowerShift, 0.5, -28.0,
+                                          4.0, kMixtureMass);
+    }
+  });
+  return mixture_->value;
+}
 
 }  // namespace alphaledger
