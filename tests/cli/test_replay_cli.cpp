@@ -1,0 +1,128 @@
+// alphaledger replay, end to end through the executable (CONTRACT.md "Replay").
+#include <doctest/doctest.h>
+
+#include <algorithm>
+#include <fstream>
+#include <string>
+
+#include "cli/run_command.hpp"
+
+using alphaledger::testing::run_alphaledger;
+
+namespace {
+const std::string kDemo = std::string(ALPHALEDGER_SOURCE_DIR) + "/replay_data/larkspur_experiments.csv";
+const std::string kSimulated = std::string(ALPHALEDGER_SOURCE_DIR) + "/replay_data/simulated_stream.csv";
+
+std::string write_temp(const std::string& name, const std::string& text) {
+  const std::string path = "/tmp/alphaledger-replay-test-" + std::to_string(getpid()) + "-" + name;
+  std::ofstream(path, std::ios::binary) << text;
+  return path;
+}
+}  // namespace
+
+TEST_CASE("Replay: two runs give byte-identical output") {
+  const std::vector<std::string> args = {"replay", kDemo, "--rules", "lord++,saffron,addis,lond,alpha-investing,alpha-spending,bh,storey-bh"};
+  const auto a = run_alphaledger(args);
+  const auto b = run_alphaledger(args);
+  REQUIRE(a.exit_code == 0);
+  CHECK(a.out == b.out);
+  CHECK(a.out.rfind("rule,step,id,p_value,level,rejected,wealth\n", 0) == 0);
+  CHECK(std::count(a.out.begin(), a.out.end(), '\n') == 1 + 8 * 420);
+  const auto fast1 = run_alphaledger({"replay", kDemo, "--rules", "lord++,saffron,addis", "--evaluation", "fast", "--json"});
+  const auto fast2 = run_alphaledger({"replay", kDemo, "--rules", "lord++,saffron,addis", "--evaluation", "fast", "--json"});
+  REQUIRE(fast1.exit_code == 0);
+  CHECK(fast1.out == fast2.out);
+}
+
+TEST_CASE("Replay: the summary counts discoveries and, with is_null, false discoveries and power") {
+  const auto r = run_alphaledger({"replay", kSimulated, "--rules", "lord++,bh", "--summary"});
+  REQUIRE(r.exit_code == 0);
+  CHECK(r.out.rfind("rule,tests,rejections,false_discoveries,fdp,power\n", 0) == 0);
+  CHECK(r.out.find("\nlord++,1000,") != std::string::npos);
+  CHECK(r.out.find("\nbh,1000,") != std::string::npos);
+  const auto no_truth = run_alphaledger({"replay", kDemo, "--summary"});
+  REQUIRE(no_truth.exit_code == 0);
+  CHECK(no_truth.out.find("\nlord++,420,") != std::string::npos);
+  CHECK(no_truth.out.find(",,,\n") != std::string::npos);  // no is_null: last three empty
+}
+
+TEST_CASE("Replay: rows are decided in ascending finished_at, ties keep file order") {
+  const std::string path = write_temp("order.csv",
+                                      "id,finished_at,p_value\n"
+                                      "late,2025-03-02,0.5\n"
+                                      "early,2025-03-01T08:00:00Z,0.0001\n"
+                                      "tie-a,2025-03-01T09:00:00+01:00,0.2\n"   // = 08:00Z, after 'early'
+                                      "mid,2025-03-01T12:00:00Z,0.3\n");
+  const auto r = run_alphaledger({"replay", path, "--rules", "alpha-spending"});
+  REQUIRE(r.exit_code == 0);
+  const auto first = r.out.find("alpha-spending,1,early,");
+  const auto second = r.out.find("alpha-spending,2,tie-a,");
+  const auto third = r.out.find("alpha-spending,3,mid,");
+  const auto fourth = r.out.find("alpha-spending,4,late,");
+  CHECK(first != std::string::npos);
+  CHECK(second != std::string::npos);
+  CHECK(third != std::string::npos);
+  CHECK(fourth != std::string::npos);
+  // The first level is alpha * gamma_1 = 0.05 / zeta(1.6) (methods.md 14.1: 0.02187450829).
+  CHECK(r.out.find("alpha-spending,1,early,1e-04,0.0218745082887") != std::string::npos);
+}
+
+TEST_CASE("Replay: JSON Lines input gives the same decisions as CSV") {
+  const std::string csv = write_temp("same.csv", "id,p_value\na,0.0004\nb,0.0012\nc,0.36\n");
+  const std::string jsonl = write_temp("same.jsonl",
+                                       "{\"id\": \"a\", \"p_value\": 0.0004}\n{\"id\": \"b\", \"p_value\": 0.0012}\n"
+                                       "{\"id\": \"c\", \"p_value\": 0.36}\n");
+  const auto a = run_alphaledger({"replay", csv, "--rules", "lord++,saffron"});
+  const auto b = run_alphaledger({"replay", jsonl, "--rules", "lord++,saffron"});
+  REQUIRE(a.exit_code == 0);
+  CHECK(a.out == b.out);
+  // LORD++ first level with the defaults: methods.md 14.3, 0.001370386057.
+  CHECK(a.out.find("lord++,1,a,4e-04,0.00137038605") != std::string::npos);
+}
+
+TEST_CASE("Replay: bad input exits 2 naming file:line, the field, the value and what is accepted") {
+  struct Case {
+    std::string name, text, needle;
+  };
+  const std::vector<Case> cases = {
+      {"range.csv", "id,p_value\na,0.1\nb,1.3\n", ":3: test 'b': p_value must be a number in [0, 1], got 1.3"},
+      {"nan.csv", "id,p_value\na,NaN\n", ":2: test 'a': p_value must be a number in [0, 1]"},
+      {"text.csv", "id,p_value\na,low\n", "p_value must be a number in [0, 1], got 'low'"},
+      {"missing.csv", "name,p_value\na,0.1\n", ":1: the header has no 'id' column"},
+      {"nop.csv", "id,score\na,0.1\n", ":2: test 'a': missing p_value"},
+      {"dup.csv", "id,p_value\na,0.1\na,0.2\n", ":3: duplicate id 'a' (first at line 2)"},
+      {"date.csv", "id,finished_at,p_value\na,2025-13-01,0.1\n", ":2: finished_at must be an ISO 8601 date"},
+      {"fields.csv", "id,p_value\na,0.1,extra\n", ":2: expected 2 fields as in the header, got 3"},
+      {"bad.jsonl", "{\"id\": \"a\", \"p_value\": 0.1}\n{not json}\n", ":2: not a JSON object"},
+      {"type.jsonl", "{\"id\": \"a\", \"p_value\": \"0.1\"}\n", ":1: p_value must be a JSON number in [0, 1], got \"0.1\""},
+  };
+  for (const auto& c : cases) {
+    CAPTURE(c.name);
+    const auto r = run_alphaledger({"replay", write_temp(c.name, c.text)});
+    CHECK(r.exit_code == 2);
+    CHECK_MESSAGE(r.err.find(c.needle) != std::string::npos, r.err);
+    CHECK(r.out.empty());
+  }
+  const std::string ok = write_temp("ok.csv", "id,p_value\na,0.1\n");
+  const auto unknown = run_alphaledger({"replay", ok, "--rules", "lord++,holm"});
+  CHECK(unknown.exit_code == 2);
+  CHECK(unknown.err.find("unknown rule 'holm'; accepted:") != std::string::npos);
+  const auto bad_param = run_alphaledger({"replay", ok, "--rules", "addis", "--candidate-threshold", "0.7"});
+  CHECK(bad_param.exit_code == 2);
+  CHECK(bad_param.err.find("lambda < tau") != std::string::npos);
+  const auto unused = run_alphaledger({"replay", ok, "--rules", "lord++", "--payout", "0.01"});
+  CHECK(unused.exit_code == 2);
+  CHECK(unused.err.find("--payout is not taken by any listed rule") != std::string::npos);
+  const auto absent = run_alphaledger({"replay", "/nonexistent/log.csv"});
+  CHECK(absent.exit_code == 2);
+  CHECK(absent.err.find("cannot open") != std::string::npos);
+}
+
+TEST_CASE("Replay: a flag applies to every listed rule that takes it") {
+  const std::string path = write_temp("flags.csv", "id,p_value\na,0.0004\n");
+  // --initial-wealth applies to lord++ and is ignored by lond, which does not take it.
+  const auto r = run_alphaledger({"replay", path, "--rules", "lord++,lond", "--initial-wealth", "0.01"});
+  REQUIRE(r.exit_code == 0);
+  // LORD++ alpha_1 = W0 gamma_1 (methods.md 5.2) = 0.01 * 0.05481544227 (gamma_1 of JM, section 13).
+  CHECK(r.out.find("lord++,1,a,4e-04,0.000548154422") != std::string::npos);
+}
