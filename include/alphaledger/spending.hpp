@@ -75,7 +75,7 @@ class SpendingSequence {
   double parameter_ = 0;
   double normaliser_ = 0;
   std::string spec_;
-  std::vector<double> table_;  // gamma_j for j <= table_.size(), precomputed
+  std::vector<double> table_;  // gamma_j for j <= table_.size() (65536), precomputed
   struct LazyMixture;          // fitted on first use, once, thread-safe
   std::shared_ptr<LazyMixture> mixture_;
 };

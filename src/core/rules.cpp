@@ -224,11 +224,22 @@ double Rule::deposit_sum() const {
   const double w0 = config_.initial_wealth;
   const double a = config_.alpha;
   if (mixture_ != nullptr) {
-    double s = 0;
-    for (std::size_t i = 0; i < head_.size(); ++i) s += head_[i] * mixture_->head[i];
-    for (std::size_t k = 0; k < accumulator_.size(); ++k)
-      s += mixture_->coefficient[k] * accumulator_[k];
-    return s;
+    // Four partial sums in a fixed order: deterministic, and four times the instruction-level
+    // parallelism of one running sum.
+    double part[4] = {0, 0, 0, 0};
+    for (std::size_t i = 0; i < head_.size(); ++i) part[i & 3] += head_[i] * mixture_->head[i];
+    const double* coef = mixture_->coefficient.data();
+    const double* acc = accumulator_.data();
+    const std::size_t k_count = accumulator_.size();
+    std::size_t k = 0;
+    for (; k + 4 <= k_count; k += 4) {
+      part[0] += coef[k] * acc[k];
+      part[1] += coef[k + 1] * acc[k + 1];
+      part[2] += coef[k + 2] * acc[k + 2];
+      part[3] += coef[k + 3] * acc[k + 3];
+    }
+    for (; k < k_count; ++k) part[k & 3] += coef[k] * acc[k];
+    return (part[0] + part[1]) + (part[2] + part[3]);
   }
   double s = 0;
   for (std::size_t d = 0; d < deposit_clock_.size(); ++d) {

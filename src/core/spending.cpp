@@ -12,7 +12,7 @@
 namespace alphaledger {
 namespace {
 
-constexpr std::size_t kTableSize = 4096;       // gamma_j precomputed for j <= 4096
+constexpr std::size_t kTableSize = 65536;      // gamma_j precomputed for j <= 65536
 constexpr std::size_t kJmHeadLags = 16;        // methods.md 15.4(b) hybrid: exact head L = 16
 constexpr double kMixtureMass = 1.0 - 1e-9;    // methods.md 15.6: strict validity margin
 

@@ -1,0 +1,196 @@
+// Decisions as a long-lived process: `pipe` (JSON Lines on stdin/stdout) and `serve` (HTTP/JSON),
+// both over one open Ledger and with the CLI's guarantees: every answered decision is durable
+// before it is written out, each test id is decided once per stream, and a retry (same id, same
+// p-value) gets the stored decision back with repeat = true. docs/http.md is the user guide.
+//
+// Example (pipe):
+//   auto ledger = Ledger::open("alphaledger.db");
+//   auto summary = run_pipe(**ledger, "checkout-team", /*in_fd=*/0, std::cout, /*stop_fd=*/-1);
+//   // stdin  {"id": "exp-0142", "p_value": 0.0004}
+//   // stdout {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860570381,...}
+//
+// Example (HTTP):
+//   HttpOptions options;                      // 127.0.0.1:8742, no token
+//   auto service = HttpService::create(**ledger, options);
+//   auto port = (*service)->bind();           // the port actually bound (useful with port 0)
+//   (*service)->run();                        // blocks until stop() (e.g. from a signal watcher)
+//
+// Thread-safety: DecisionQueue and HttpService may be used from many threads; stop() may be
+// called from any thread. run_pipe is single-threaded. Nothing here owns the Ledger: it must
+// outlive every object that refers to it.
+#pragma once
+
+#include <cstddef>
+#include <cstdint>
+#include <functional>
+#include <memory>
+#include <mutex>
+#include <nlohmann/json.hpp>
+#include <optional>
+#include <ostream>
+#include <string>
+#include <string_view>
+#include <unordered_map>
+#include <vector>
+
+#include "alphaledger/ledger.hpp"
+#include "alphaledger/result.hpp"
+
+namespace alphaledger {
+
+// ---- JSON forms shared by `decide --json`, `pipe` and the HTTP routes ------------------------
+
+// ISO 8601 UTC with milliseconds, e.g. "2025-03-14T09:30:00.123Z".
+std::string format_time_ms(std::int64_t ms_since_epoch);
+
+// {"step","id","p_value","level","rejected","wealth","stream","decided_at","repeat"}: the object
+// `decide --json` prints. Numbers are shortest round-trip doubles.
+nlohmann::ordered_json decision_to_json(const DecideResult& d);
+// One history row: replay's keys plus "decided_at" (no "stream"/"repeat").
+nlohmann::ordered_json history_row_to_json(const DecisionRecord& r);
+// A stream's status: name, rule, the parameters the rule takes, tests, rejections, wealth,
+// next_level, created_at.
+nlohmann::ordered_json stream_to_json(const StreamInfo& s);
+
+// Text of any JSON value, with invalid UTF-8 replaced (never throws).
+std::string dump_json(const nlohmann::ordered_json& j);
+
+// A test read from a JSON object {"id": ..., "p_value": ...}: id is a string (or an integer,
+// taken as its decimal text, as replay's JSON Lines reader does); p_value a JSON number in [0, 1].
+// Other keys are ignored. Errors are kInvalidInput naming the field, the value and what is
+// accepted.
+Result<TestInput> test_from_json(const nlohmann::json& object);
+
+// ---- Deciding many tests in arrival order ----------------------------------------------------
+
+// Decides `tests` on `stream` in order, with as few synced writes as the ledger allows: runs of
+// inputs without a repeated id go to Ledger::decide_batch together; a conflict or invalid input
+// answers that input only and the rest carry on. Returns one entry per input, in order. After
+// the first storage failure nothing more is tried: that input holds the error and every later
+// entry is std::nullopt (not attempted, so not decided).
+std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger, std::string_view stream,
+                                                                 const std::vector<TestInput>& tests,
+                                                                 std::size_t max_group = 256);
+
+// Group commit for concurrent callers: decide() from many threads; requests for one stream are
+// queued and the thread that finds the stream idle decides everything queued (decide_in_order),
+// so N waiting clients share one synced write. Different streams proceed in parallel.
+// Thread-safety: safe from many threads.
+class DecisionQueue {
+ public:
+  // Default max_group: 256 (one batch never holds more than this many tests).
+  explicit DecisionQueue(Ledger& ledger, std::size_t max_group = 256);
+  ~DecisionQueue();
+  DecisionQueue(const DecisionQueue&) = delete;
+  DecisionQueue& operator=(const DecisionQueue&) = delete;
+
+  // As Ledger::decide. REQUIRES: the caller has validated id and p_value (validate_test_id,
+  // validate_p_value), so one bad input cannot fail a shared batch.
+  Result<DecideResult> decide(const std::string& stream, const std::string& id, double p_value);
+
+ private:
+  struct Lane;
+  Lane& lane(const std::string& stream);
+
+  Ledger& ledger_;
+  std::size_t max_group_;
+  std::mutex lanes_mutex_;
+  std::unordered_map<std::string, std::unique_ptr<Lane>> lanes_;
+};
+
+// ---- pipe --------------------------------------------------------------------------------------
+
+struct PipeSummary {
+  std::uint64_t lines = 0;      // lines answered
+  std::uint64_t decided = 0;    // new decisions
+  std::uint64_t repeats = 0;    // retries answered with the stored decision
+  std::uint64_t bad = 0;        // lines answered with {"line": N, "error": "..."}
+  bool stopped = false;         // stopped by stop_fd before the end of input
+};
+
+// Reads JSON Lines from `in_fd` until end of input (or until `stop_fd`, if >= 0, becomes
+// readable), and writes one line per input line to `out`, flushed per line, in input order:
+// the decision object (decision_to_json) or {"line": N, "error": "..."}. Lines are counted from
+// 1; every line is answered, a blank one too. Lines that arrive together are decided with one
+// synced write per group; each answer is written only after its decision is durable.
+// On stop, every complete line already read is answered; a line without its newline yet is not.
+// Returns the summary; an unknown stream is kRefused before anything is read; a storage failure
+// answers the line it hit and returns kStorage (later lines are not read); a failed write to
+// `out` returns kStorage. Bad lines are not errors of the call: see PipeSummary::bad.
+// Lines longer than kMaxPipeLineBytes are answered with an error.
+inline constexpr std::size_t kMaxPipeLineBytes = 1 << 20;
+Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd, std::ostream& out,
+                             int stop_fd = -1);
+
+// ---- serve -------------------------------------------------------------------------------------
+
+struct ListenAddress {
+  std::string host;   // IPv4 dotted quad or "localhost"
+  int port = 0;       // 0: any free port (see HttpService::bind)
+};
+// "HOST:PORT" (or ":PORT" for 127.0.0.1). Errors name the text and the accepted form.
+Result<ListenAddress> parse_listen_address(std::string_view text);
+bool is_loopback_host(std::string_view host);
+
+// The bearer token from a file: its first line without surrounding white space. Errors
+// (kInvalidInput): unreadable, empty, or holding characters outside visible ASCII.
+Result<std::string> read_token_file(const std::string& path);
+
+// One line of the access log (written by the caller, e.g. as JSON on stderr).
+struct AccessLogEntry {
+  std::string remote;        // "127.0.0.1:53122"
+  std::string method;
+  std::string path;
+  int status = 0;
+  std::size_t bytes = 0;     // response body bytes
+  std::optional<double> ms;  // handling time, when known
+};
+
+struct HttpOptions {
+  ListenAddress listen{"127.0.0.1", 8742};   // Default: 127.0.0.1:8742
+  std::optional<std::string> token;          // Default: none (no authentication)
+  std::size_t max_body_bytes = 65536;        // Default: 64 KiB; larger bodies get 413
+  int io_timeout_seconds = 10;               // Default: 10 (read and write timeouts per request)
+  int keep_alive_seconds = 5;                // Default: 5 (idle keep-alive connections close)
+  std::size_t threads = 32;                  // Default: 32 worker threads (one per open connection)
+  std::function<void(const AccessLogEntry&)> access_log;  // Default: none
+};
+
+// The HTTP/JSON service of CONTRACT.md "Service" (routes and errors in docs/http.md).
+class HttpService {
+ public:
+  // Validates the options (kInvalidInput: threads 0, max body 0, bad timeouts).
+  static Result<std::unique_ptr<HttpService>> create(Ledger& ledger, HttpOptions options);
+  virtual ~HttpService() = default;
+
+  // Binds the listening socket; returns the port bound. kStorage if the address cannot be bound
+  // (in use, not local), naming it.
+  virtual Result<int> bind() = 0;
+  // Serves until stop(); in-flight requests are finished before it returns.
+  // REQUIRES: bind() succeeded.
+  virtual Status run() = 0;
+  // Safe from any thread (also before run() starts, in which case run() returns at once).
+  virtual void stop() = 0;
+};
+
+// ---- signals -----------------------------------------------------------------------------------
+
+// SIGTERM and SIGINT as a readable file descriptor (self-pipe), for loops that poll(). While an
+// object exists the two signals no longer end the process; its destructor restores the previous
+// handlers. Only one may exist at a time (returns kStorage otherwise). Also ignores SIGPIPE, so a
+// closed reader shows up as a write error.
+class StopSignals {
+ public:
+  static Result<std::unique_ptr<StopSignals>> install();
+  ~StopSignals();
+  StopSignals(const StopSignals&) = delete;
+  StopSignals& operator=(const StopSignals&) = delete;
+  int fd() const { return read_fd_; }   // becomes readable on the first SIGTERM/SIGINT
+  int signal_number() const;            // the signal received, or 0
+
+ private:
+  StopSignals() = default;
+  int read_fd_ = -1;
+};
+
+}  // namespace alphaledger

@@ -1,0 +1,134 @@
+// The narrow storage interface under the ledger: ordered keys and values, atomic write batches,
+// prefix scans. Three implementations: RocksDB (a folder on disk, the real ledger), an in-memory
+// store (tests, examples), and a fault-injecting wrapper (tests: fail the Nth write, refuse all
+// writes as a full or read-only disk would).
+//
+// The ledger's key layout and value grammar are in docs/ledger-format.md; nothing here knows
+// about streams or records.
+//
+// Example:
+//   auto store = open_rocksdb_store("alphaledger.db");
+//   WriteBatch batch;
+//   batch.put("m/format", "\x01\x00\x00\x00");
+//   (*store)->write(batch);            // durable (synced) when it returns ok
+//   (*store)->get("m/format");         // std::optional<std::string> holding the 4 bytes
+//
+// Thread-safety: every Store is safe to use from many threads; each write() is atomic (all of the
+// batch or none of it) with respect to readers and to a crash.
+#pragma once
+
+#include <cstddef>
+#include <cstdint>
+#include <functional>
+#include <map>
+#include <memory>
+#include <mutex>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "alphaledger/result.hpp"
+
+namespace alphaledger {
+
+// An ordered list of puts and deletes applied together.
+struct WriteBatch {
+  struct Op {
+    std::string key;
+    std::string value;
+    bool erase = false;  // delete `key` (value ignored)
+  };
+  std::vector<Op> ops;
+
+  void put(std::string key, std::string value) { ops.push_back({std::move(key), std::move(value), false}); }
+  void erase(std::string key) { ops.push_back({std::move(key), {}, true}); }
+  bool empty() const { return ops.empty(); }
+};
+
+class Store {
+ public:
+  virtual ~Store() = default;
+
+  // The value at `key`, std::nullopt if absent. Errors: kStorage (disk, corruption).
+  virtual Result<std::optional<std::string>> get(std::string_view key) = 0;
+
+  // Applies every op of `batch` atomically. With sync (Default: true) the batch is on stable
+  // storage (fsync'd) when this returns ok. On error (kStorage) none of the batch was applied as
+  // far as readers of this store can see; after a crash an unsynced or failed batch is either
+  // wholly present or wholly absent, never partial.
+  virtual Status write(const WriteBatch& batch, bool sync = true) = 0;
+
+  // Calls visit(key, value) for every key starting with `prefix`, in ascending byte order, until
+  // visit returns false. Errors: kStorage. The scan sees one consistent snapshot.
+  using Visitor = std::function<bool(std::string_view key, std::string_view value)>;
+  virtual Status scan(std::string_view prefix, const Visitor& visit) = 0;
+
+  // A short description for messages, e.g. the folder path.
+  virtual std::string describe() const = 0;
+};
+
+struct RocksStoreOptions {
+  bool create_if_missing = true;  // Default: true (the default ledger location needs no set-up)
+};
+
+// Opens (or creates) a RocksDB database in folder `path`.
+// Errors (kStorage), each naming the folder:
+//   - held by another process: names the LOCK file and, when the system reports it, the pid;
+//   - held by this process (a second open of the same folder);
+//   - corrupt, unreadable or unwritable folder.
+// With create_if_missing == false and no database in the folder: kRefused ("no ledger at ...").
+Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path, const RocksStoreOptions& options = {});
+
+// An in-memory store: a std::map under a mutex. write() is atomic; sync is a no-op.
+class MemoryStore final : public Store {
+ public:
+  Result<std::optional<std::string>> get(std::string_view key) override;
+  Status write(const WriteBatch& batch, bool sync = true) override;
+  Status scan(std::string_view prefix, const Visitor& visit) override;
+  std::string describe() const override { return "memory store"; }
+
+  // A copy of every key and value (tests compare before and after).
+  std::map<std::string, std::string> dump() const;
+
+ private:
+  mutable std::mutex mu_;
+  std::map<std::string, std::string, std::less<>> data_;
+};
+
+// Wraps a store and fails writes on demand, as a full or failing disk would. A failed write
+// never reaches the wrapped store. Reads pass through unchanged.
+//
+// Thread-safety: as the wrapped store; the fault settings are guarded by a mutex.
+class FaultyStore final : public Store {
+ public:
+  // REQUIRES: `inner` outlives this wrapper.
+  explicit FaultyStore(Store& inner) : inner_(inner) {}
+
+  // The n-th write from now (1 = the next one) fails once; later writes succeed.
+  void fail_write_in(std::uint64_t n);
+  // Every write fails until cleared, with `message` (e.g. "No space left on device").
+  void fail_all_writes(std::string message);
+  void clear_faults();
+  std::uint64_t writes_attempted() const;  // successful and failed, since construction
+  std::uint64_t writes_failed() const;
+
+  Result<std::optional<std::string>> get(std::string_view key) override { return inner_.get(key); }
+  Status write(const WriteBatch& batch, bool sync = true) override;
+  Status scan(std::string_view prefix, const Visitor& visit) override { return inner_.scan(prefix, visit); }
+  std::string describe() const override { return inner_.describe(); }
+
+ private:
+  Store& inner_;
+  mutable std::mutex mu_;
+  std::uint64_t countdown_ = 0;  // 0: no one-shot fault armed
+  std::optional<std::string> fail_all_;
+  std::uint64_t attempted_ = 0;
+  std::uint64_t failed_ = 0;
+};
+
+// A non-owning view of `inner` as a Store, for handing a store you keep to Ledger::open (tests
+// reopen a ledger over the same in-memory store). REQUIRES: `inner` outlives the returned object.
+std::unique_ptr<Store> borrow_store(Store& inner);
+
+}  // namespace alphaledger
