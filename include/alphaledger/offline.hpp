@@ -11,10 +11,10 @@
 namespace alphaledger {
 
 struct OfflineDecisions {
-  double threshold = 0;            // reject p <= threshold; k*alpha/m (or alpha/m when k = 0)
-  std::vector<bool> rejected;      // in input order
+  double threshold = 0;        // reject p <= threshold; k*alpha/m (or alpha/m when k = 0)
+  std::vector<bool> rejected;  // in input order
   std::size_t rejections = 0;
-  double null_proportion = 1;      // Storey's pi0 estimate (1 for BH)
+  double null_proportion = 1;  // Storey's pi0 estimate (1 for BH)
 };
 
 // BH step-up: k = max{i : p_(i) <= i alpha / m}; reject p_(1..k).

@@ -30,7 +30,7 @@ struct OfflineConfig {
 };
 
 struct Procedure {
-  std::string name;                                 // "lord++", "bh", ...
+  std::string name;  // "lord++", "bh", ...
   std::variant<RuleConfig, OfflineConfig> config;
   bool online() const { return std::holds_alternative<RuleConfig>(config); }
 };
@@ -65,7 +65,7 @@ struct ReplaySummary {
   std::uint64_t rejections = 0;
   std::optional<std::uint64_t> false_discoveries;  // only when the log has is_null
   std::optional<double> fdp;
-  std::optional<double> power;                     // empty also when there is no non-null
+  std::optional<double> power;  // empty also when there is no non-null
 };
 
 std::vector<ReplaySummary> summarize(const ReplayResult& result, const TestLog& log);

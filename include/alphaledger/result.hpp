@@ -36,23 +36,35 @@ inline Error storage_error(std::string message) { return {ErrorKind::kStorage, s
 template <typename T>
 class [[nodiscard]] Result {
  public:
-  Result(T value) : v_(std::move(value)) {}  // NOLINT: implicit by design, as std::expected
+  Result(T value) : v_(std::move(value)) {}      // NOLINT: implicit by design, as std::expected
   Result(Error error) : v_(std::move(error)) {}  // NOLINT
 
   bool ok() const { return v_.index() == 0; }
   explicit operator bool() const { return ok(); }
 
   // REQUIRES: ok()
-  T& value() & { assert(ok()); return std::get<0>(v_); }
-  const T& value() const& { assert(ok()); return std::get<0>(v_); }
-  T&& value() && { assert(ok()); return std::get<0>(std::move(v_)); }
+  T& value() & {
+    assert(ok());
+    return std::get<0>(v_);
+  }
+  const T& value() const& {
+    assert(ok());
+    return std::get<0>(v_);
+  }
+  T&& value() && {
+    assert(ok());
+    return std::get<0>(std::move(v_));
+  }
   T& operator*() & { return value(); }
   const T& operator*() const& { return value(); }
   T* operator->() { return &value(); }
   const T* operator->() const { return &value(); }
 
   // REQUIRES: !ok()
-  const Error& error() const { assert(!ok()); return std::get<1>(v_); }
+  const Error& error() const {
+    assert(!ok());
+    return std::get<1>(v_);
+  }
 
  private:
   std::variant<T, Error> v_;
@@ -65,7 +77,10 @@ class [[nodiscard]] Result<void> {
   Result(Error error) : error_(std::move(error)), ok_(false) {}  // NOLINT
   bool ok() const { return ok_; }
   explicit operator bool() const { return ok_; }
-  const Error& error() const { assert(!ok_); return error_; }
+  const Error& error() const {
+    assert(!ok_);
+    return error_;
+  }
 
  private:
   Error error_;

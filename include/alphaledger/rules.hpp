@@ -44,21 +44,21 @@ enum class RuleKind : std::uint8_t {
 // Stored on disk: do not change the numbers.
 enum class Evaluation : std::uint8_t { kExact = 1, kFast = 2 };
 
-std::string_view rule_name(RuleKind kind);          // "lord++", ...
+std::string_view rule_name(RuleKind kind);                // "lord++", ...
 Result<RuleKind> parse_rule_name(std::string_view name);  // refuses unknown names, listing the known
-std::string_view evaluation_name(Evaluation e);     // "exact" / "fast"
+std::string_view evaluation_name(Evaluation e);           // "exact" / "fast"
 Result<Evaluation> parse_evaluation(std::string_view name);
 
 // What a user asks for: every parameter optional. resolve_config() fills defaults and validates.
 struct RuleSpec {
-  std::string rule = {};                         // a rule name
-  std::optional<double> alpha = {};              // Default: 0.05
-  std::optional<double> initial_wealth = {};     // Default: alpha/2 (alpha*(1-alpha) for alpha-investing)
+  std::string rule = {};                           // a rule name
+  std::optional<double> alpha = {};                // Default: 0.05
+  std::optional<double> initial_wealth = {};       // Default: alpha/2 (alpha*(1-alpha) for alpha-investing)
   std::optional<double> candidate_threshold = {};  // lambda. Default: 1/2 (saffron), 1/4 (addis)
-  std::optional<double> discard_threshold = {};  // tau. Default: 1/2 (addis)
-  std::optional<double> payout = {};             // omega. Default: alpha (alpha-investing)
-  std::optional<std::string> spending = {};      // Default: per rule, see default_spending()
-  std::optional<std::string> evaluation = {};    // Default: "exact"
+  std::optional<double> discard_threshold = {};    // tau. Default: 1/2 (addis)
+  std::optional<double> payout = {};               // omega. Default: alpha (alpha-investing)
+  std::optional<std::string> spending = {};        // Default: per rule, see default_spending()
+  std::optional<std::string> evaluation = {};      // Default: "exact"
 };
 
 // A complete, validated configuration. Parameters a rule does not use are 0 / empty.
@@ -123,7 +123,9 @@ class Rule {
   const SpendingSequence* sequence() const { return sequence_.get(); }
 
  private:
-  double deposit_sum() const;    // sum_d c_d gamma(index_d), exact or fast
+  double deposit_sum() const;  // sum_d c_d gamma(index_d), exact or fast
+  double exact_sum() const;    // over the deposit list with the published gamma
+  double mixture_sum() const;  // over the head slots and accumulators, fixed order
   void advance(bool tick, bool rejected);
 
   RuleConfig config_;
@@ -133,11 +135,12 @@ class Rule {
   std::uint64_t step_ = 0;
   std::uint64_t rejections_ = 0;
   double wealth_ = 0;
-  std::uint64_t last_rejection_ = 0;   // alpha-investing: k*
-  std::uint64_t clock_ = 0;            // deposit rules: ticks so far
+  std::uint64_t last_rejection_ = 0;          // alpha-investing: k*
+  std::uint64_t clock_ = 0;                   // deposit rules: ticks so far
   std::vector<std::uint64_t> deposit_clock_;  // exact mode: clock at each deposit (index 0: W0)
-  std::vector<double> head_;           // fast mode: coefficient at each head index 1..L
-  std::vector<double> accumulator_;    // fast mode: A_k
+  std::vector<double> head_;                  // fast mode: coefficient at each head index 1..L
+  std::vector<double> accumulator_;           // fast mode: A_k
+  double fast_sum_ = 0;                       // fast mode: mixture_sum() of the current state
 };
 
 // Checks a p-value: finite and in [0, 1]. The message names the field and the value.

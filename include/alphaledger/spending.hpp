@@ -37,18 +37,18 @@ enum class SpendingKind : std::uint8_t { kJm = 1, kPower = 2, kPowerShift = 3 };
 // sum_k weight[k] * (1 - r_k) * r_k^(m-1) for larger m, with r_k = exp(-rate[k]).
 // It is itself a valid sequence: nonnegative, nonincreasing, total mass <= 1 - 1e-9.
 struct GeometricMixture {
-  std::vector<double> head;    // exact published values for the first lags (JM hybrid), or empty
-  std::vector<double> weight;  // w_k >= 0
-  std::vector<double> rate;    // x_k = -ln r_k > 0
+  std::vector<double> head;         // exact published values for the first lags (JM hybrid), or empty
+  std::vector<double> weight;       // w_k >= 0
+  std::vector<double> rate;         // x_k = -ln r_k > 0
   std::vector<double> one_minus_r;  // 1 - r_k = -expm1(-x_k), precomputed
   std::vector<double> ratio;        // r_k = exp(-x_k)
   std::vector<double> ratio_head;   // r_k^L, L = head.size(): a deposit leaving the head
   std::vector<double> coefficient;  // w_k * (1 - r_k): the level's weight on accumulator k
 
-  void finish();                         // fills the derived vectors from head, weight and rate
+  void finish();  // fills the derived vectors from head, weight and rate
 
-  double gamma(std::uint64_t m) const;   // gamma_m; 0 for m == 0
-  double total_mass() const;             // sum over all m >= 1, in closed form
+  double gamma(std::uint64_t m) const;  // gamma_m; 0 for m == 0
+  double total_mass() const;            // sum over all m >= 1, in closed form
 };
 
 class SpendingSequence {
@@ -61,7 +61,7 @@ class SpendingSequence {
   double gamma(std::uint64_t j) const;
 
   SpendingKind kind() const { return kind_; }
-  double parameter() const { return parameter_; }  // C for jm, S for power and power-shift
+  double parameter() const { return parameter_; }    // C for jm, S for power and power-shift
   const std::string& spec() const { return spec_; }  // canonical text, e.g. "power:1.6"
   double normaliser() const { return normaliser_; }  // the factor in front of the shape
 
@@ -87,8 +87,7 @@ double jm_shape_sum();
 // Default spending specification of each rule (methods.md "alphaledger's choices" 2).
 // Fits a power-law mixture (exposed for tests): trapezoid rule in u = ln x, step h, range
 // [u_lo, u_hi]; weights renormalised so the mass is exactly `mass`.
-GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi,
-                                   double mass);
+GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi, double mass);
 
 // Nonnegative least squares min ||A w - b||, w >= 0 (Lawson–Hanson active set, Householder QR on
 // the passive columns). A is row-major rows x cols. Deterministic. Exposed for tests.

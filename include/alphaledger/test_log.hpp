@@ -29,19 +29,19 @@ enum class LogFormat { kCsv, kJsonLines };
 struct TestRecord {
   std::string id;
   double p_value = 0;
-  std::optional<double> finished_at;   // seconds since 1970-01-01T00:00:00Z, or the plain number
+  std::optional<double> finished_at;  // seconds since 1970-01-01T00:00:00Z, or the plain number
   std::optional<bool> is_null;
-  std::size_t line = 0;                // 1-based line in the source (the header is line 1 in CSV)
+  std::size_t line = 0;  // 1-based line in the source (the header is line 1 in CSV)
 };
 
 struct TestLog {
-  std::string source;                  // file name used in messages
-  std::vector<TestRecord> records;     // in decision order (see order_by_finished_at)
-  bool has_truth = false;              // every row had is_null
+  std::string source;               // file name used in messages
+  std::vector<TestRecord> records;  // in decision order (see order_by_finished_at)
+  bool has_truth = false;           // every row had is_null
 };
 
 struct ReadOptions {
-  bool allow_duplicate_ids = false;    // decide --file: duplicates are retries, judged by the ledger
+  bool allow_duplicate_ids = false;  // decide --file: duplicates are retries, judged by the ledger
   bool order_by_finished_at = true;
 };
 
@@ -56,8 +56,8 @@ Result<TestLog> read_test_log_file(const std::string& path, std::optional<std::s
 
 // Parses one field as used in logs and requests. Errors name `field` and the accepted form.
 Result<double> parse_p_value_text(std::string_view text);
-Result<double> parse_time_text(std::string_view text);   // ISO 8601 date / date-time, or a number
-Status validate_test_id(std::string_view id);             // 1..256 bytes, no control characters
+Result<double> parse_time_text(std::string_view text);  // ISO 8601 date / date-time, or a number
+Status validate_test_id(std::string_view id);           // 1..256 bytes, no control characters
 
 // Turns a row's fields (column -> text) into a p-value. The default converter reads p_value;
 // summary columns (docs/formats.md) are converted by the statistics layer when present.

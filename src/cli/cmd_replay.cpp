@@ -35,14 +35,15 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
     for (const auto& s : rows) {
       if (g.json) {
         nlohmann::ordered_json j = {{"rule", s.rule}, {"tests", s.tests}, {"rejections", s.rejections}};
-        j["false_discoveries"] = s.false_discoveries ? nlohmann::ordered_json(*s.false_discoveries) : nlohmann::ordered_json(nullptr);
+        j["false_discoveries"] = s.false_discoveries ? nlohmann::ordered_json(*s.false_discoveries)
+                                                     : nlohmann::ordered_json(nullptr);
         j["fdp"] = s.fdp ? nlohmann::ordered_json(*s.fdp) : nlohmann::ordered_json(nullptr);
         j["power"] = s.power ? nlohmann::ordered_json(*s.power) : nlohmann::ordered_json(nullptr);
         out << j.dump() << '\n';
       } else {
         out << s.rule << ',' << s.tests << ',' << s.rejections << ','
-            << (s.false_discoveries ? std::to_string(*s.false_discoveries) : "") << ','
-            << opt_text(s.fdp) << ',' << opt_text(s.power) << '\n';
+            << (s.false_discoveries ? std::to_string(*s.false_discoveries) : "") << ',' << opt_text(s.fdp)
+            << ',' << opt_text(s.power) << '\n';
       }
     }
     return {};
@@ -54,8 +55,9 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
       const Decision& d = result.decisions[i][k];
       const TestRecord& r = log->records[k];
       if (g.json) {
-        nlohmann::ordered_json j = {{"rule", name}, {"step", d.step}, {"id", r.id}, {"p_value", r.p_value},
-                            {"level", d.level}, {"rejected", d.rejected ? 1 : 0}};
+        nlohmann::ordered_json j = {{"rule", name},     {"step", d.step},
+                                    {"id", r.id},       {"p_value", r.p_value},
+                                    {"level", d.level}, {"rejected", d.rejected ? 1 : 0}};
         j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
         out << j.dump() << '\n';
       } else {
@@ -73,12 +75,18 @@ void add_replay_command(CLI::App& app, CommandContext& ctx) {
   auto opts = std::make_shared<ReplayOptions>();
   CLI::App* sub = app.add_subcommand(
       "replay", "decide a whole log of finished tests with one or more rules, touching no ledger");
-  sub->add_option("file", opts->file, "log of tests: CSV with a header, or JSON Lines (docs/formats.md)")->required();
-  sub->add_option("--rules", opts->rules, "comma-separated rules: alpha-spending, alpha-investing, lond, lord++, saffron, addis, bh, storey-bh; default lord++");
-  sub->add_option("--format", opts->format, "csv or jsonl; default from the file extension")->check(CLI::IsMember({"csv", "jsonl"}));
-  sub->add_flag("--summary", opts->summary, "one row per rule: tests, rejections, false discoveries, fdp, power");
+  sub->add_option("file", opts->file, "log of tests: CSV with a header, or JSON Lines (docs/formats.md)")
+      ->required();
+  sub->add_option("--rules", opts->rules,
+                  "comma-separated rules: alpha-spending, alpha-investing, lond, lord++, saffron, addis, bh, "
+                  "storey-bh; default lord++");
+  sub->add_option("--format", opts->format, "csv or jsonl; default from the file extension")
+      ->check(CLI::IsMember({"csv", "jsonl"}));
+  sub->add_flag("--summary", opts->summary,
+                "one row per rule: tests, rejections, false discoveries, fdp, power");
   add_rule_flags(sub, opts->flags);
-  sub->callback([&ctx, opts] { ctx.run = [&ctx, opts] { return run_replay(*opts, ctx.global, std::cout); }; });
+  sub->callback(
+      [&ctx, opts] { ctx.run = [&ctx, opts] { return run_replay(*opts, ctx.global, std::cout); }; });
 }
 
 }  // namespace alphaledger::cli

@@ -15,8 +15,8 @@
 namespace alphaledger::cli {
 
 struct GlobalOptions {
-  std::string ledger;          // --ledger; resolved by ledger_path()
-  bool json = false;           // --json
+  std::string ledger;  // --ledger; resolved by ledger_path()
+  bool json = false;   // --json
   std::string log_level = "warn";
 };
 
@@ -45,9 +45,10 @@ inline constexpr const char* kCaution =
 
 // Subcommands, one file pair each.
 void add_replay_command(CLI::App& app, CommandContext& ctx);
-void add_ledger_commands(CLI::App& app, CommandContext& ctx);    // new decide next status streams history verify
+void add_ledger_commands(CLI::App& app,
+                         CommandContext& ctx);  // new decide next status streams history verify
 void add_simulate_command(CLI::App& app, CommandContext& ctx);
-void add_stats_commands(CLI::App& app, CommandContext& ctx);     // pvalue plan
-void add_service_commands(CLI::App& app, CommandContext& ctx);   // pipe serve
+void add_stats_commands(CLI::App& app, CommandContext& ctx);    // pvalue plan
+void add_service_commands(CLI::App& app, CommandContext& ctx);  // pipe serve
 
 }  // namespace alphaledger::cli

@@ -29,8 +29,10 @@ RuleSpec RuleFlags::to_spec(std::string rule) const {
 }
 
 void add_rule_flags(CLI::App* sub, RuleFlags& f) {
-  sub->add_option("--alpha", f.alpha, "target FDR (mFDR for alpha-investing, FWER for alpha-spending), 0 < A < 1; default 0.05");
-  sub->add_option("--initial-wealth", f.initial_wealth, "W0, in estimated false discoveries (docs/rules.md); default alpha/2");
+  sub->add_option("--alpha", f.alpha,
+                  "target FDR (mFDR for alpha-investing, FWER for alpha-spending), 0 < A < 1; default 0.05");
+  sub->add_option("--initial-wealth", f.initial_wealth,
+                  "W0, in estimated false discoveries (docs/rules.md); default alpha/2");
   sub->add_option("--candidate-threshold", f.candidate_threshold, "lambda (saffron, addis, storey-bh)");
   sub->add_option("--discard-threshold", f.discard_threshold, "tau, lambda < tau <= 1 (addis)");
   sub->add_option("--payout", f.payout, "paid on each rejection, <= alpha (alpha-investing)");
@@ -43,17 +45,17 @@ void add_rule_flags(CLI::App* sub, RuleFlags& f) {
 int main(int argc, char** argv) {
   using namespace alphaledger;
   using namespace alphaledger::cli;
-  CLI::App app{
-      "alphaledger " ALPHALEDGER_VERSION
-      ": decide each hypothesis test the moment it finishes, keeping the false discovery\n"
-      "rate of the whole stream below a target (LORD++, SAFFRON, ADDIS, LOND, alpha-investing,\n"
-      "alpha-spending), with a durable, verifiable ledger.\n\n" +
-      std::string(kCaution)};
+  CLI::App app{"alphaledger " ALPHALEDGER_VERSION
+               ": decide each hypothesis test the moment it finishes, keeping the false discovery\n"
+               "rate of the whole stream below a target (LORD++, SAFFRON, ADDIS, LOND, alpha-investing,\n"
+               "alpha-spending), with a durable, verifiable ledger.\n\n" +
+               std::string(kCaution)};
   app.require_subcommand(1);
   app.fallthrough();
   app.set_version_flag("--version", ALPHALEDGER_VERSION);
   CommandContext ctx;
-  app.add_option("--ledger", ctx.global.ledger, "ledger folder; default $ALPHALEDGER_LEDGER, else ./alphaledger.db");
+  app.add_option("--ledger", ctx.global.ledger,
+                 "ledger folder; default $ALPHALEDGER_LEDGER, else ./alphaledger.db");
   app.add_flag("--json", ctx.global.json, "machine-readable output, one JSON object per line");
   app.add_option("--log-level", ctx.global.log_level, "trace|debug|info|warn|error|off; default warn")
       ->check(CLI::IsMember({"trace", "debug", "info", "warn", "error", "off"}));

@@ -19,7 +19,10 @@ OfflineDecisions step_up(const std::vector<double>& p, double level, double cap,
   std::size_t k = 0;
   for (std::size_t i = m; i >= 1; --i) {
     const double line = static_cast<double>(i) * level / md;
-    if (sorted[i - 1] <= std::min(cap, line)) { k = i; break; }
+    if (sorted[i - 1] <= std::min(cap, line)) {
+      k = i;
+      break;
+    }
   }
   out.threshold = std::min(cap, static_cast<double>(std::max<std::size_t>(k, 1)) * level / md);
   for (std::size_t i = 0; i < m; ++i) {
@@ -36,7 +39,8 @@ OfflineDecisions benjamini_hochberg(const std::vector<double>& p, double alpha) 
 }
 
 OfflineDecisions storey_bh(const std::vector<double>& p, double alpha, double lambda) {
-  const auto above = static_cast<double>(std::count_if(p.begin(), p.end(), [&](double x) { return x > lambda; }));
+  const auto above =
+      static_cast<double>(std::count_if(p.begin(), p.end(), [&](double x) { return x > lambda; }));
   const double m = static_cast<double>(std::max<std::size_t>(p.size(), 1));
   const double pi0 = std::min(1.0, (1.0 + above) / (m * (1.0 - lambda)));
   return step_up(p, alpha / pi0, lambda, pi0);

@@ -46,13 +46,20 @@ struct Reader {
   std::string_view in;
   bool ok = true;
   std::uint8_t u8() {
-    if (in.empty()) { ok = false; return 0; }
+    if (in.empty()) {
+      ok = false;
+      return 0;
+    }
     const auto v = static_cast<std::uint8_t>(in[0]);
     in.remove_prefix(1);
     return v;
   }
   std::uint64_t u64() {
-    if (in.size() < 8) { ok = false; in = {}; return 0; }
+    if (in.size() < 8) {
+      ok = false;
+      in = {};
+      return 0;
+    }
     std::uint64_t v = 0;
     for (int i = 0; i < 8; ++i) v |= static_cast<std::uint64_t>(static_cast<std::uint8_t>(in[i])) << (8 * i);
     in.remove_prefix(8);
@@ -64,12 +71,14 @@ struct Reader {
 }  // namespace
 
 std::string_view rule_name(RuleKind kind) {
-  for (const auto& e : kRuleNames) if (e.kind == kind) return e.name;
+  for (const auto& e : kRuleNames)
+    if (e.kind == kind) return e.name;
   return "unknown";
 }
 
 Result<RuleKind> parse_rule_name(std::string_view name) {
-  for (const auto& e : kRuleNames) if (e.name == name) return e.kind;
+  for (const auto& e : kRuleNames)
+    if (e.name == name) return e.kind;
   return invalid_input("unknown rule '" + std::string(name) +
                        "'; accepted: alpha-spending, alpha-investing, lond, lord++, saffron, addis");
 }
@@ -84,12 +93,18 @@ Result<Evaluation> parse_evaluation(std::string_view name) {
 
 std::string default_spending(RuleKind kind) {
   switch (kind) {
-    case RuleKind::kAlphaSpending: return "power:1.6";
-    case RuleKind::kLond: return "jm";
-    case RuleKind::kLordPlusPlus: return "jm";
-    case RuleKind::kSaffron: return "power:1.6";
-    case RuleKind::kAddis: return "power-shift:1.6";
-    case RuleKind::kAlphaInvesting: return "";
+    case RuleKind::kAlphaSpending:
+      return "power:1.6";
+    case RuleKind::kLond:
+      return "jm";
+    case RuleKind::kLordPlusPlus:
+      return "jm";
+    case RuleKind::kSaffron:
+      return "power:1.6";
+    case RuleKind::kAddis:
+      return "power-shift:1.6";
+    case RuleKind::kAlphaInvesting:
+      return "";
   }
   return "";
 }
@@ -117,13 +132,13 @@ Result<RuleConfig> resolve_config(const RuleSpec& spec) {
     }
     return {};
   };
-  for (auto [given, param] : std::array<std::pair<bool, std::string_view>, 6>{{
-           {spec.initial_wealth.has_value(), "initial_wealth"},
-           {spec.candidate_threshold.has_value(), "candidate_threshold"},
-           {spec.discard_threshold.has_value(), "discard_threshold"},
-           {spec.payout.has_value(), "payout"},
-           {spec.spending.has_value(), "spending"},
-           {spec.evaluation.has_value(), "evaluation"}}}) {
+  for (auto [given, param] : std::array<std::pair<bool, std::string_view>, 6>{
+           {{spec.initial_wealth.has_value(), "initial_wealth"},
+            {spec.candidate_threshold.has_value(), "candidate_threshold"},
+            {spec.discard_threshold.has_value(), "discard_threshold"},
+            {spec.payout.has_value(), "payout"},
+            {spec.spending.has_value(), "spending"},
+            {spec.evaluation.has_value(), "evaluation"}}}) {
     if (auto s = refuse_unused(given, param); !s) return s.error();
   }
 
@@ -146,8 +161,8 @@ Result<RuleConfig> resolve_config(const RuleSpec& spec) {
   if (is_deposit_rule(c.kind)) {
     c.initial_wealth = spec.initial_wealth.value_or(c.alpha / 2);
     if (!(c.initial_wealth >= 0 && c.initial_wealth <= c.alpha)) {
-      return invalid_input("initial_wealth must satisfy 0 <= W0 <= alpha = " + num(c.alpha) +
-                           " for " + rn + ", got " + num(c.initial_wealth));
+      return invalid_input("initial_wealth must satisfy 0 <= W0 <= alpha = " + num(c.alpha) + " for " + rn +
+                           ", got " + num(c.initial_wealth));
     }
     auto e = parse_evaluation(spec.evaluation.value_or("exact"));
     if (!e) return e.error();
@@ -168,8 +183,8 @@ Result<RuleConfig> resolve_config(const RuleSpec& spec) {
                            num(c.discard_threshold));
     }
     if (!(c.candidate_threshold > 0 && c.candidate_threshold < c.discard_threshold)) {
-      return invalid_input("candidate_threshold must satisfy 0 < lambda < tau = " +
-                           num(c.discard_threshold) + " for addis, got " + num(c.candidate_threshold));
+      return invalid_input("candidate_threshold must satisfy 0 < lambda < tau = " + num(c.discard_threshold) +
+                           " for addis, got " + num(c.candidate_threshold));
     }
   }
   if (c.kind != RuleKind::kAlphaInvesting) {
@@ -214,6 +229,7 @@ Rule::Rule(const RuleConfig& config) : config_(config) {
         } else {
           head_[0] = config_.initial_wealth;
         }
+        fast_sum_ = mixture_sum();
       } else {
         deposit_clock_.push_back(0);
       }
@@ -221,26 +237,32 @@ Rule::Rule(const RuleConfig& config) : config_(config) {
 }
 
 double Rule::deposit_sum() const {
+  if (mixture_ != nullptr) return fast_sum_;
+  return exact_sum();
+}
+
+double Rule::mixture_sum() const {
+  // Four partial sums in a fixed order: deterministic, and four times the instruction-level
+  // parallelism of one running sum.
+  double part[4] = {0, 0, 0, 0};
+  for (std::size_t i = 0; i < head_.size(); ++i) part[i & 3] += head_[i] * mixture_->head[i];
+  const double* coef = mixture_->coefficient.data();
+  const double* acc = accumulator_.data();
+  const std::size_t k_count = accumulator_.size();
+  std::size_t k = 0;
+  for (; k + 4 <= k_count; k += 4) {
+    part[0] += coef[k] * acc[k];
+    part[1] += coef[k + 1] * acc[k + 1];
+    part[2] += coef[k + 2] * acc[k + 2];
+    part[3] += coef[k + 3] * acc[k + 3];
+  }
+  for (; k < k_count; ++k) part[k & 3] += coef[k] * acc[k];
+  return (part[0] + part[1]) + (part[2] + part[3]);
+}
+
+double Rule::exact_sum() const {
   const double w0 = config_.initial_wealth;
   const double a = config_.alpha;
-  if (mixture_ != nullptr) {
-    // Four partial sums in a fixed order: deterministic, and four times the instruction-level
-    // parallelism of one running sum.
-    double part[4] = {0, 0, 0, 0};
-    for (std::size_t i = 0; i < head_.size(); ++i) part[i & 3] += head_[i] * mixture_->head[i];
-    const double* coef = mixture_->coefficient.data();
-    const double* acc = accumulator_.data();
-    const std::size_t k_count = accumulator_.size();
-    std::size_t k = 0;
-    for (; k + 4 <= k_count; k += 4) {
-      part[0] += coef[k] * acc[k];
-      part[1] += coef[k + 1] * acc[k + 1];
-      part[2] += coef[k + 2] * acc[k + 2];
-      part[3] += coef[k + 3] * acc[k + 3];
-    }
-    for (; k < k_count; ++k) part[k & 3] += coef[k] * acc[k];
-    return (part[0] + part[1]) + (part[2] + part[3]);
-  }
   double s = 0;
   for (std::size_t d = 0; d < deposit_clock_.size(); ++d) {
     const double c = d == 0 ? w0 : (d == 1 ? a - w0 : a);
@@ -295,6 +317,7 @@ void Rule::advance(bool tick, bool rejected) {
         head_[0] += c_new;
       }
     }
+    if (tick || rejected) fast_sum_ = mixture_sum();  // unchanged state keeps its sum
   } else {
     if (tick) ++clock_;
     if (rejected) deposit_clock_.push_back(clock_);
@@ -399,6 +422,7 @@ Status Rule::restore_state(std::string_view bytes) {
   if (exact_deposits && (nd != next.rejections_ + 1)) {
     return storage_error("rule state is inconsistent: deposit count does not match rejections");
   }
+  if (next.mixture_ != nullptr) next.fast_sum_ = next.mixture_sum();
   *this = std::move(next);
   return {};
 }

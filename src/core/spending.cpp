@@ -12,9 +12,9 @@
 namespace alphaledger {
 namespace {
 
-constexpr std::size_t kTableSize = 65536;      // gamma_j precomputed for j <= 65536
-constexpr std::size_t kJmHeadLags = 16;        // methods.md 15.4(b) hybrid: exact head L = 16
-constexpr double kMixtureMass = 1.0 - 1e-9;    // methods.md 15.6: strict validity margin
+constexpr std::size_t kTableSize = 65536;    // gamma_j precomputed for j <= 65536
+constexpr std::size_t kJmHeadLags = 16;      // methods.md 15.4(b) hybrid: exact head L = 16
+constexpr double kMixtureMass = 1.0 - 1e-9;  // methods.md 15.6: strict validity margin
 
 double jm_shape(double j) {
   const double l = std::log(j);
@@ -27,8 +27,8 @@ Result<double> parse_number(std::string_view text, std::string_view spec) {
   const char* last = text.data() + text.size();
   auto [ptr, ec] = std::from_chars(first, last, v);
   if (text.empty() || ec != std::errc() || ptr != last || !std::isfinite(v)) {
-    return invalid_input("spending sequence '" + std::string(spec) +
-                         "': '" + std::string(text) + "' is not a number");
+    return invalid_input("spending sequence '" + std::string(spec) + "': '" + std::string(text) +
+                         "' is not a number");
   }
   return v;
 }
@@ -40,9 +40,8 @@ std::string shortest(double v) {
 }
 
 // Least squares on the columns `cols` of A (row-major, rows x ncols) by Householder QR.
-std::vector<double> least_squares_subset(const std::vector<double>& a, std::size_t rows,
-                                         std::size_t ncols, const std::vector<std::size_t>& cols,
-                                         const std::vector<double>& b) {
+std::vector<double> least_squares_subset(const std::vector<double>& a, std::size_t rows, std::size_t ncols,
+                                         const std::vector<std::size_t>& cols, const std::vector<double>& b) {
   const std::size_t n = cols.size();
   std::vector<double> q(rows * n);  // column-major copy of the chosen columns
   for (std::size_t c = 0; c < n; ++c)
@@ -99,13 +98,17 @@ std::vector<double> nonnegative_least_squares(const std::vector<double>& a, std:
       if (passive[c]) continue;
       double g = 0;
       for (std::size_t r = 0; r < rows; ++r) g += a[r * cols + c] * resid[r];
-      if (g > best_grad) { best_grad = g; best = c; }
+      if (g > best_grad) {
+        best_grad = g;
+        best = c;
+      }
     }
     if (best == cols) break;
     passive[best] = true;
     for (std::size_t inner = 0; inner < 3 * cols + 10; ++inner) {
       std::vector<std::size_t> idx;
-      for (std::size_t c = 0; c < cols; ++c) if (passive[c]) idx.push_back(c);
+      for (std::size_t c = 0; c < cols; ++c)
+        if (passive[c]) idx.push_back(c);
       std::vector<double> z = least_squares_subset(a, rows, cols, idx, b);
       bool all_positive = true;
       for (double v : z) all_positive = all_positive && v > 0;
@@ -120,13 +123,19 @@ std::vector<double> nonnegative_least_squares(const std::vector<double>& a, std:
         if (z[i] <= 0) {
           const double wi = w[idx[i]];
           const double s = wi - z[i] > 0 ? wi / (wi - z[i]) : 0.0;
-          if (s < step || blocking == idx.size()) { step = std::min(step, s); blocking = i; }
+          if (s < step || blocking == idx.size()) {
+            step = std::min(step, s);
+            blocking = i;
+          }
         }
       }
       for (std::size_t i = 0; i < idx.size(); ++i) {
         const std::size_t c = idx[i];
         w[c] += step * (z[i] - w[c]);
-        if (i == blocking || w[c] <= 0) { w[c] = 0; passive[c] = false; }
+        if (i == blocking || w[c] <= 0) {
+          w[c] = 0;
+          passive[c] = false;
+        }
       }
     }
   }
@@ -143,7 +152,10 @@ double GeometricMixture::gamma(std::uint64_t m) const {
 }
 
 void GeometricMixture::finish() {
-  one_minus_r.clear(); ratio.clear(); ratio_head.clear(); coefficient.clear();
+  one_minus_r.clear();
+  ratio.clear();
+  ratio_head.clear();
+  coefficient.clear();
   const double l = static_cast<double>(head.size());
   for (std::size_t k = 0; k < weight.size(); ++k) {
     one_minus_r.push_back(-std::expm1(-rate[k]));
@@ -161,8 +173,7 @@ double GeometricMixture::total_mass() const {
   return s;
 }
 
-GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi,
-                                   double mass) {
+GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi, double mass) {
   GeometricMixture m;
   const double z = shifted ? detail::zeta(s) - 1.0 : detail::zeta(s);
   const double g = detail::tgamma(s);
@@ -264,20 +275,23 @@ Result<SpendingSequence> SpendingSequence::parse(std::string_view spec) {
     if (has_param) {
       auto c = parse_number(param_text, spec);
       if (!c) return c.error();
-      if (*c <= 0) return invalid_input("spending sequence '" + std::string(spec) + "': jm:C needs C > 0, got " + shortest(*c));
+      if (*c <= 0)
+        return invalid_input("spending sequence '" + std::string(spec) + "': jm:C needs C > 0, got " +
+                             shortest(*c));
       const double total = *c * jm_shape_sum();
       if (total > 1.0) {
         return invalid_input("spending sequence '" + std::string(spec) +
-                             "': the sequence must sum to at most 1, but C = " + shortest(*c) +
-                             " gives " + shortest(total) + "; jm:C needs C <= " +
-                             shortest(1.0 / jm_shape_sum()));
+                             "': the sequence must sum to at most 1, but C = " + shortest(*c) + " gives " +
+                             shortest(total) + "; jm:C needs C <= " + shortest(1.0 / jm_shape_sum()));
       }
       seq.parameter_ = *c;
     }
     seq.normaliser_ = seq.parameter_;
     seq.spec_ = has_param ? "jm:" + shortest(seq.parameter_) : "jm";
   } else if (name == "power" || name == "power-shift") {
-    if (!has_param) return invalid_input("spending sequence '" + std::string(spec) + "' needs an exponent, e.g. " + std::string(name) + ":1.6; " + kAccepted);
+    if (!has_param)
+      return invalid_input("spending sequence '" + std::string(spec) + "' needs an exponent, e.g. " +
+                           std::string(name) + ":1.6; " + kAccepted);
     auto s = parse_number(param_text, spec);
     if (!s) return s.error();
     if (!(*s > 1.0) || *s > 50) {
@@ -297,9 +311,15 @@ Result<SpendingSequence> SpendingSequence::parse(std::string_view spec) {
     const double x = static_cast<double>(j);
     double v = 0;
     switch (seq.kind_) {
-      case SpendingKind::kJm: v = seq.normaliser_ * jm_shape(x); break;
-      case SpendingKind::kPower: v = seq.normaliser_ * std::pow(x, -seq.parameter_); break;
-      case SpendingKind::kPowerShift: v = seq.normaliser_ * std::pow(x + 1.0, -seq.parameter_); break;
+      case SpendingKind::kJm:
+        v = seq.normaliser_ * jm_shape(x);
+        break;
+      case SpendingKind::kPower:
+        v = seq.normaliser_ * std::pow(x, -seq.parameter_);
+        break;
+      case SpendingKind::kPowerShift:
+        v = seq.normaliser_ * std::pow(x + 1.0, -seq.parameter_);
+        break;
     }
     seq.table_.push_back(v);
   }
@@ -312,9 +332,12 @@ double SpendingSequence::gamma(std::uint64_t j) const {
   if (j <= table_.size()) return table_[j - 1];
   const double x = static_cast<double>(j);
   switch (kind_) {
-    case SpendingKind::kJm: return normaliser_ * jm_shape(x);
-    case SpendingKind::kPower: return normaliser_ * std::pow(x, -parameter_);
-    case SpendingKind::kPowerShift: return normaliser_ * std::pow(x + 1.0, -parameter_);
+    case SpendingKind::kJm:
+      return normaliser_ * jm_shape(x);
+    case SpendingKind::kPower:
+      return normaliser_ * std::pow(x, -parameter_);
+    case SpendingKind::kPowerShift:
+      return normaliser_ * std::pow(x + 1.0, -parameter_);
   }
   return 0.0;
 }
@@ -329,8 +352,8 @@ const GeometricMixture& SpendingSequence::mixture() const {
     if (kind_ == SpendingKind::kJm) {
       mixture_->value = fit_hybrid_mixture(*this);
     } else {
-      mixture_->value = fit_power_mixture(parameter_, kind_ == SpendingKind::kPowerShift, 0.5, -28.0,
-                                          4.0, kMixtureMass);
+      mixture_->value =
+          fit_power_mixture(parameter_, kind_ == SpendingKind::kPowerShift, 0.5, -28.0, 4.0, kMixtureMass);
     }
   });
   return mixture_->value;

@@ -24,7 +24,7 @@ std::string number_text(double v) {
 // The critical value of a level-`level` test: two-sided tests put level/2 in the far tail (R's
 // power.*.test with strict = FALSE ignore the opposite tail).
 double tail_level(double level, Alternative alternative) {
-  return alternative == Alternative::kTwoSided ? level / 2.0 : level;
+  return level / 2.0;
 }
 
 // A root of f on [a, b] where f(a) < 0 <= f(b), to about 15 digits (Alefeld, Potra & Shi's

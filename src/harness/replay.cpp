@@ -38,7 +38,8 @@ Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>
   for (const auto& name : names) {
     if (name == "bh" || name == "storey-bh") {
       if (!allow_offline) {
-        return invalid_input("'" + name + "' needs the whole log at once; it is available in replay and simulate only");
+        return invalid_input("'" + name +
+                             "' needs the whole log at once; it is available in replay and simulate only");
       }
       OfflineConfig oc;
       oc.method = name == "bh" ? OfflineMethod::kBh : OfflineMethod::kStoreyBh;
@@ -58,7 +59,8 @@ Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>
     }
     auto kind = parse_rule_name(name);
     if (!kind) {
-      return invalid_input("unknown rule '" + name + "'; accepted: alpha-spending, alpha-investing, lond, lord++, saffron, addis" +
+      return invalid_input("unknown rule '" + name +
+                           "'; accepted: alpha-spending, alpha-investing, lond, lord++, saffron, addis" +
                            std::string(allow_offline ? ", bh, storey-bh" : ""));
     }
     RuleSpec spec;
@@ -68,12 +70,24 @@ Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>
       if (!given[i].second || !rule_takes(*kind, given[i].first)) continue;
       used[i] = true;
       switch (i) {
-        case 0: spec.initial_wealth = flags.initial_wealth; break;
-        case 1: spec.candidate_threshold = flags.candidate_threshold; break;
-        case 2: spec.discard_threshold = flags.discard_threshold; break;
-        case 3: spec.payout = flags.payout; break;
-        case 4: spec.spending = flags.spending; break;
-        case 5: spec.evaluation = flags.evaluation; break;
+        case 0:
+          spec.initial_wealth = flags.initial_wealth;
+          break;
+        case 1:
+          spec.candidate_threshold = flags.candidate_threshold;
+          break;
+        case 2:
+          spec.discard_threshold = flags.discard_threshold;
+          break;
+        case 3:
+          spec.payout = flags.payout;
+          break;
+        case 4:
+          spec.spending = flags.spending;
+          break;
+        case 5:
+          spec.evaluation = flags.evaluation;
+          break;
       }
     }
     auto config = resolve_config(spec);
@@ -110,7 +124,8 @@ ReplayResult replay(const TestLog& log, const std::vector<Procedure>& procedures
       const OfflineDecisions od = oc.method == OfflineMethod::kBh
                                       ? benjamini_hochberg(p, oc.alpha)
                                       : storey_bh(p, oc.alpha, oc.candidate_threshold);
-      for (std::size_t i = 0; i < p.size(); ++i) ds.push_back({i + 1, od.threshold, od.rejected[i], std::nullopt});
+      for (std::size_t i = 0; i < p.size(); ++i)
+        ds.push_back({i + 1, od.threshold, od.rejected[i], std::nullopt});
     }
     result.decisions.push_back(std::move(ds));
   }

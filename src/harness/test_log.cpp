@@ -29,16 +29,22 @@ bool split_csv(std::string_view line, std::vector<std::string>& out) {
     const char c = line[i];
     if (quoted) {
       if (c == '"') {
-        if (i + 1 < line.size() && line[i + 1] == '"') { cur.push_back('"'); ++i; }
-        else quoted = false;
+        if (i + 1 < line.size() && line[i + 1] == '"') {
+          cur.push_back('"');
+          ++i;
+        } else
+          quoted = false;
       } else {
         cur.push_back(c);
       }
     } else if (c == '"' && trim(cur).empty()) {
-      quoted = true; was_quoted = true; cur.clear();
+      quoted = true;
+      was_quoted = true;
+      cur.clear();
     } else if (c == ',') {
       out.push_back(was_quoted ? cur : trim(cur));
-      cur.clear(); was_quoted = false;
+      cur.clear();
+      was_quoted = false;
     } else {
       cur.push_back(c);
     }
@@ -67,18 +73,22 @@ bool parse_iso(std::string_view s, double& out) {
   // YYYY-MM-DD[(T| )hh:mm[:ss[.fff]][Z|(+|-)hh:mm]]
   if (s.size() < 10 || s[4] != '-' || s[7] != '-') return false;
   int y, mo, d;
-  if (!parse_int(s.substr(0, 4), y) || !parse_int(s.substr(5, 2), mo) || !parse_int(s.substr(8, 2), d)) return false;
+  if (!parse_int(s.substr(0, 4), y) || !parse_int(s.substr(5, 2), mo) || !parse_int(s.substr(8, 2), d))
+    return false;
   static constexpr int kDays[] = {31, 29, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31};
   if (mo < 1 || mo > 12 || d < 1 || d > kDays[mo - 1]) return false;
   const bool leap = (y % 4 == 0 && y % 100 != 0) || y % 400 == 0;
   if (mo == 2 && d == 29 && !leap) return false;
-  double secs = static_cast<double>(days_from_civil(y, static_cast<unsigned>(mo), static_cast<unsigned>(d))) * 86400.0;
+  double secs =
+      static_cast<double>(days_from_civil(y, static_cast<unsigned>(mo), static_cast<unsigned>(d))) * 86400.0;
   std::string_view rest = s.substr(10);
   if (!rest.empty()) {
     if (rest[0] != 'T' && rest[0] != ' ') return false;
     rest.remove_prefix(1);
     int hh, mm, ss = 0;
-    if (rest.size() < 5 || rest[2] != ':' || !parse_int(rest.substr(0, 2), hh) || !parse_int(rest.substr(3, 2), mm)) return false;
+    if (rest.size() < 5 || rest[2] != ':' || !parse_int(rest.substr(0, 2), hh) ||
+        !parse_int(rest.substr(3, 2), mm))
+      return false;
     rest.remove_prefix(5);
     double frac = 0;
     if (!rest.empty() && rest[0] == ':') {
@@ -134,8 +144,10 @@ Result<double> parse_time_text(std::string_view text) {
   auto [p, ec] = std::from_chars(t.data(), t.data() + t.size(), v);
   if (!t.empty() && ec == std::errc() && p == t.data() + t.size() && std::isfinite(v)) return v;
   if (parse_iso(t, v)) return v;
-  return invalid_input("finished_at must be an ISO 8601 date (2025-03-14) or date-time "
-                       "(2025-03-14T09:30:00Z), or a number, got '" + t + "'");
+  return invalid_input(
+      "finished_at must be an ISO 8601 date (2025-03-14) or date-time "
+      "(2025-03-14T09:30:00Z), or a number, got '" +
+      t + "'");
 }
 
 Status validate_test_id(std::string_view id) {
@@ -165,7 +177,8 @@ Result<LogFormat> log_format_for(std::string_view path, std::optional<std::strin
   };
   if (ends(".csv")) return LogFormat::kCsv;
   if (ends(".jsonl") || ends(".ndjson")) return LogFormat::kJsonLines;
-  return invalid_input(std::string(path) + ": cannot tell the format from the extension; use a "
+  return invalid_input(std::string(path) +
+                       ": cannot tell the format from the extension; use a "
                        ".csv or .jsonl file, or --format csv|jsonl");
 }
 
@@ -177,8 +190,10 @@ Result<TestRecord> make_record(const std::map<std::string, std::string>& f, std:
   TestRecord r;
   r.line = line;
   auto id = f.find("id");
-  if (id == f.end() || id->second.empty()) return invalid_input(where(source, line) + "missing id (a non-empty text of at most 256 bytes)");
-  if (auto s = validate_test_id(id->second); !s) return invalid_input(where(source, line) + s.error().message);
+  if (id == f.end() || id->second.empty())
+    return invalid_input(where(source, line) + "missing id (a non-empty text of at most 256 bytes)");
+  if (auto s = validate_test_id(id->second); !s)
+    return invalid_input(where(source, line) + s.error().message);
   r.id = id->second;
   auto p = p_value_from_fields(f);
   if (!p) return invalid_input(where(source, line) + "test '" + r.id + "': " + p.error().message);
@@ -190,9 +205,12 @@ Result<TestRecord> make_record(const std::map<std::string, std::string>& f, std:
   }
   if (auto n = f.find("is_null"); n != f.end() && !trim(n->second).empty()) {
     const std::string v = trim(n->second);
-    if (v == "1" || v == "true") r.is_null = true;
-    else if (v == "0" || v == "false") r.is_null = false;
-    else return invalid_input(where(source, line) + "is_null must be 0 or 1, got '" + v + "'");
+    if (v == "1" || v == "true")
+      r.is_null = true;
+    else if (v == "0" || v == "false")
+      r.is_null = false;
+    else
+      return invalid_input(where(source, line) + "is_null must be 0 or 1, got '" + v + "'");
   }
   return r;
 }
@@ -222,13 +240,16 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
     if (trim(line).empty()) continue;
     std::map<std::string, std::string> fields;
     if (format == LogFormat::kCsv) {
-      if (!split_csv(line, cells)) return invalid_input(where(source, line_no) + "unbalanced quote in CSV row");
+      if (!split_csv(line, cells))
+        return invalid_input(where(source, line_no) + "unbalanced quote in CSV row");
       if (!have_header) {
         header = cells;
         if (!header.empty() && header[0].rfind("\xEF\xBB\xBF", 0) == 0) header[0] = header[0].substr(3);
         have_header = true;
         if (std::find(header.begin(), header.end(), "id") == header.end()) {
-          return invalid_input(where(source, line_no) + "the header has no 'id' column; required columns: id, p_value (or summary columns, see docs/formats.md)");
+          return invalid_input(where(source, line_no) +
+                               "the header has no 'id' column; required columns: id, p_value (or summary "
+                               "columns, see docs/formats.md)");
         }
         continue;
       }
@@ -240,11 +261,14 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
     } else {
       nlohmann::json j = nlohmann::json::parse(line, nullptr, false);
       if (j.is_discarded() || !j.is_object()) {
-        return invalid_input(where(source, line_no) + "not a JSON object; each line must be one object such as {\"id\": \"t1\", \"p_value\": 0.01}");
+        return invalid_input(
+            where(source, line_no) +
+            "not a JSON object; each line must be one object such as {\"id\": \"t1\", \"p_value\": 0.01}");
       }
       for (auto it = j.begin(); it != j.end(); ++it) {
         if (it.key() == "p_value" && !it.value().is_number() && !it.value().is_null()) {
-          return invalid_input(where(source, line_no) + "p_value must be a JSON number in [0, 1], got " + it.value().dump());
+          return invalid_input(where(source, line_no) + "p_value must be a JSON number in [0, 1], got " +
+                               it.value().dump());
         }
         fields[it.key()] = json_field_text(it.value());
       }
@@ -254,7 +278,8 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
     log.records.push_back(std::move(rec).value());
   }
   if (in.bad()) return invalid_input(std::string(source) + ": read error");
-  if (format == LogFormat::kCsv && !have_header) return invalid_input(std::string(source) + ": empty file; expected a header row with id and p_value");
+  if (format == LogFormat::kCsv && !have_header)
+    return invalid_input(std::string(source) + ": empty file; expected a header row with id and p_value");
 
   if (!options.allow_duplicate_ids) {
     std::map<std::string_view, std::size_t> seen;
@@ -266,8 +291,9 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
       }
     }
   }
-  log.has_truth = !log.records.empty() &&
-                  std::all_of(log.records.begin(), log.records.end(), [](const TestRecord& r) { return r.is_null.has_value(); });
+  log.has_truth =
+      !log.records.empty() && std::all_of(log.records.begin(), log.records.end(),
+                                          [](const TestRecord& r) { return r.is_null.has_value(); });
   if (options.order_by_finished_at) {
     // A row without finished_at keeps its place right after the row before it (docs/formats.md).
     std::vector<std::pair<double, std::size_t>> keys;
@@ -276,7 +302,8 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
       if (log.records[i].finished_at) last = *log.records[i].finished_at;
       keys.emplace_back(last, i);
     }
-    std::stable_sort(keys.begin(), keys.end(), [](const auto& a, const auto& b) { return a.first < b.first; });
+    std::stable_sort(keys.begin(), keys.end(),
+                     [](const auto& a, const auto& b) { return a.first < b.first; });
     std::vector<TestRecord> sorted;
     sorted.reserve(log.records.size());
     for (const auto& k : keys) sorted.push_back(std::move(log.records[k.second]));
