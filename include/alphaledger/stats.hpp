@@ -12,9 +12,9 @@
 // Example (two proportions, pooled z-test, two-sided):
 //   auto r = compare_proportions({.n = 1000, .conversions = 100}, {.n = 1000, .conversions = 130},
 //                                ProportionMethod::kPooled, Alternative::kTwoSided, 0.95);
-//   r->statistic;   // 2.0985...   (R: prop.test(c(130, 100), c(1000, 1000), correct = FALSE)
-//   r->p_value;     // 0.03586...   gives X-squared = 4.4037..., the square of this z)
-//   r->estimate;    // 0.03, with ci_low 0.0021..., ci_high 0.0578... (Wald, as R's prop.test)
+//   r->statistic;   // 2.10274...  (R: prop.test(c(130, 100), c(1000, 1000), correct = FALSE)
+//   r->p_value;     // 0.0354884...  gives X-squared = 4.42152, the square of this z)
+//   r->estimate;    // 0.03, with ci_low 0.00207, ci_high 0.05793 (Wald, as R's prop.test)
 //
 // Example (sample size, as R's power.t.test(delta = 1, sd = 1, power = 0.9) gives n = 22.02110):
 //   auto plan = plan_means(1.0, {.level = 0.05, .min_effect = 1.0, .power = 0.9});
@@ -73,11 +73,11 @@ struct MeanArm {
 
 // The answer of one test. Optional members are absent where they do not apply.
 struct Comparison {
-  double statistic = 0;  // z (proportions, z input), t (means, t input), or for Fisher's test the
-                         // treatment conversions (whose law given the margins is hypergeometric)
-  double p_value = 1;    // in [0, 1]
-  std::optional<double> df;             // degrees of freedom (t-tests only)
-  std::optional<double> estimate;       // treatment minus control (not for a ready statistic)
+  double statistic = 0;            // z (proportions, z input), t (means, t input), or for Fisher's test the
+                                   // treatment conversions (whose law given the margins is hypergeometric)
+  double p_value = 1;              // in [0, 1]
+  std::optional<double> df;        // degrees of freedom (t-tests only)
+  std::optional<double> estimate;  // treatment minus control (not for a ready statistic)
   std::optional<double> relative_lift;  // estimate / control proportion (proportions, control > 0)
   std::optional<double> ci_low;         // confidence interval for `estimate`; one-sided
   std::optional<double> ci_high;        // alternatives give a one-sided interval, whose open end
@@ -100,8 +100,7 @@ Result<Comparison> compare_proportions(const ProportionArm& control, const Propo
 // Interval: estimate +- t quantile * standard error of that test (as R's t.test).
 Result<Comparison> compare_means(const MeanArm& control, const MeanArm& treatment,
                                  bool pooled_variance = false,
-                                 Alternative alternative = Alternative::kTwoSided,
-                                 double confidence = 0.95);
+                                 Alternative alternative = Alternative::kTwoSided, double confidence = 0.95);
 
 // A ready statistic: z against the standard normal, or t against Student's t with `df` degrees of
 // freedom (any real df > 0). Errors: non-finite z or t, df <= 0 or non-finite.
@@ -144,12 +143,12 @@ enum class PlanTarget : std::uint8_t { kSize = 1, kPower = 2, kMinEffect = 3 };
 std::string_view plan_target_name(PlanTarget t);  // "n_per_arm", "power", "min_effect"
 
 struct PlanRequest {
-  double level = 0.05;                       // the test's level. REQUIRES (checked): 0 < level < 1
+  double level = 0.05;                               // the test's level. REQUIRES (checked): 0 < level < 1
   Alternative alternative = Alternative::kTwoSided;  // Default: two-sided
-  std::optional<double> min_effect = {};     // treatment minus control; not 0; sign must match a
-                                             // one-sided alternative (> 0 greater, < 0 less)
-  std::optional<double> power = {};          // in (0, 1). Default: 0.8 where it is an input
-  std::optional<std::uint64_t> n_per_arm = {};  // users per arm, >= 2
+  std::optional<double> min_effect = {};             // treatment minus control; not 0; sign must match a
+                                                     // one-sided alternative (> 0 greater, < 0 less)
+  std::optional<double> power = {};                  // in (0, 1). Default: 0.8 where it is an input
+  std::optional<std::uint64_t> n_per_arm = {};       // users per arm, >= 2
 };
 
 struct Plan {
@@ -177,7 +176,8 @@ Result<Plan> plan_proportions(double baseline, const PlanRequest& request);
 Result<Plan> plan_means(double sd, const PlanRequest& request);
 
 // The power formulas themselves, for a real-valued n >= 2 (REQUIRES, checked by the plan_* calls):
-double proportions_power(double baseline, double min_effect, double n_per_arm, double level, Alternative alternative);
+double proportions_power(double baseline, double min_effect, double n_per_arm, double level,
+                         Alternative alternative);
 double means_power(double sd, double min_effect, double n_per_arm, double level, Alternative alternative);
 
 }  // namespace alphaledger

@@ -24,15 +24,15 @@ std::string number_text(double v) {
 // The critical value of a level-`level` test: two-sided tests put level/2 in the far tail (R's
 // power.*.test with strict = FALSE ignore the opposite tail).
 double tail_level(double level, Alternative alternative) {
-  return level / 2.0;
+  return alternative == Alternative::kTwoSided ? level / 2.0 : level;
 }
 
 // A root of f on [a, b] where f(a) < 0 <= f(b), to about 15 digits (Alefeld, Potra & Shi's
 // TOMS 748, Boost.Math).
 double solve_increasing(const std::function<double(double)>& f, double a, double b) {
   boost::uintmax_t max_iter = 300;
-  const auto r = boost::math::tools::toms748_solve(f, a, b, f(a), f(b), boost::math::tools::eps_tolerance<double>(50),
-                                                   max_iter, detail::MathPolicy());
+  const auto r = boost::math::tools::toms748_solve(
+      f, a, b, f(a), f(b), boost::math::tools::eps_tolerance<double>(50), max_iter, detail::MathPolicy());
   return r.first + (r.second - r.first) / 2.0;
 }
 
@@ -43,24 +43,28 @@ struct Checked {
 };
 
 Result<Checked> check_request(const PlanRequest& r) {
-  if (!(r.level > 0.0 && r.level < 1.0)) return invalid_input("level must be in (0, 1), got " + number_text(r.level));
+  if (!(r.level > 0.0 && r.level < 1.0))
+    return invalid_input("level must be in (0, 1), got " + number_text(r.level));
   if (r.power && !(*r.power > 0.0 && *r.power < 1.0)) {
     return invalid_input("power must be in (0, 1), e.g. 0.8, got " + number_text(*r.power));
   }
   if (r.n_per_arm && (*r.n_per_arm < 2 || static_cast<double>(*r.n_per_arm) > kMaxPlanSize)) {
-    return invalid_input("n_per_arm must be a whole number in [2, 1e12], got " + std::to_string(*r.n_per_arm));
+    return invalid_input("n_per_arm must be a whole number in [2, 1e12], got " +
+                         std::to_string(*r.n_per_arm));
   }
   if (r.min_effect) {
     const double d = *r.min_effect;
     if (!std::isfinite(d)) return invalid_input("min_effect must be a finite number, got " + number_text(d));
     if (d == 0.0) return invalid_input("min_effect must not be 0: no sample size detects no effect");
     if (r.alternative == Alternative::kGreater && d < 0) {
-      return invalid_input("min_effect must be > 0 with alternative greater (the treatment is expected larger), got " +
-                           number_text(d));
+      return invalid_input(
+          "min_effect must be > 0 with alternative greater (the treatment is expected larger), got " +
+          number_text(d));
     }
     if (r.alternative == Alternative::kLess && d > 0) {
-      return invalid_input("min_effect must be < 0 with alternative less (the treatment is expected smaller), got " +
-                           number_text(d));
+      return invalid_input(
+          "min_effect must be < 0 with alternative less (the treatment is expected smaller), got " +
+          number_text(d));
     }
   }
   Checked c{PlanTarget::kSize, r.power.value_or(0.8)};
@@ -68,20 +72,23 @@ Result<Checked> check_request(const PlanRequest& r) {
     c.target = PlanTarget::kSize;
   } else if (r.min_effect && r.n_per_arm) {
     if (r.power) {
-      return invalid_input("give at most two of min_effect, n_per_arm and power: with min_effect and n_per_arm the power "
-                           "is computed");
+      return invalid_input(
+          "give at most two of min_effect, n_per_arm and power: with min_effect and n_per_arm the power "
+          "is computed");
     }
     c.target = PlanTarget::kPower;
   } else if (r.n_per_arm) {
     c.target = PlanTarget::kMinEffect;
   } else {
-    return invalid_input("give min_effect (to get n_per_arm or, with n_per_arm, the power), or n_per_arm alone (to get "
-                         "the smallest detectable effect)");
+    return invalid_input(
+        "give min_effect (to get n_per_arm or, with n_per_arm, the power), or n_per_arm alone (to get "
+        "the smallest detectable effect)");
   }
   const double floor_power = tail_level(r.level, r.alternative);
   if (c.target != PlanTarget::kPower && c.power <= floor_power) {
     return invalid_input("power must be above " + number_text(floor_power) +
-                         " (the chance of rejecting when there is no effect at this level), got " + number_text(c.power));
+                         " (the chance of rejecting when there is no effect at this level), got " +
+                         number_text(c.power));
   }
   return c;
 }
@@ -94,7 +101,8 @@ std::uint64_t round_up_size(double n_exact, double target, const std::function<d
   return static_cast<std::uint64_t>(n);
 }
 
-Result<Plan> finish_size(Plan p, double n_exact, double target, const std::function<double(double)>& power_at) {
+Result<Plan> finish_size(Plan p, double n_exact, double target,
+                         const std::function<double(double)>& power_at) {
   if (!(n_exact <= kMaxPlanSize)) {
     return invalid_input("this plan needs more than 1e12 users per arm (about " + number_text(n_exact) +
                          "); a larger min_effect or level, or a lower power, is needed");
@@ -110,14 +118,18 @@ Result<Plan> finish_size(Plan p, double n_exact, double target, const std::funct
 
 std::string_view plan_target_name(PlanTarget t) {
   switch (t) {
-    case PlanTarget::kSize: return "n_per_arm";
-    case PlanTarget::kPower: return "power";
-    case PlanTarget::kMinEffect: return "min_effect";
+    case PlanTarget::kSize:
+      return "n_per_arm";
+    case PlanTarget::kPower:
+      return "power";
+    case PlanTarget::kMinEffect:
+      return "min_effect";
   }
   return "n_per_arm";
 }
 
-double proportions_power(double baseline, double min_effect, double n_per_arm, double level, Alternative alternative) {
+double proportions_power(double baseline, double min_effect, double n_per_arm, double level,
+                         Alternative alternative) {
   const double p0 = baseline, p1 = baseline + min_effect;
   const double pbar = (p0 + p1) / 2.0;
   const double z = detail::normal_upper_quantile(tail_level(level, alternative));
@@ -142,7 +154,8 @@ Result<Plan> plan_proportions(double baseline, const PlanRequest& request) {
   if (request.min_effect) {
     const double p1 = baseline + *request.min_effect;
     if (!(p1 > 0.0 && p1 < 1.0)) {
-      return invalid_input("baseline + min_effect (the treatment proportion) must be in (0, 1), got " + number_text(p1));
+      return invalid_input("baseline + min_effect (the treatment proportion) must be in (0, 1), got " +
+                           number_text(p1));
     }
   }
   const double level = request.level;
@@ -158,8 +171,9 @@ Result<Plan> plan_proportions(double baseline, const PlanRequest& request) {
       // Power is increasing in n, so the power equation solves in closed form.
       const double za = detail::normal_upper_quantile(tail_level(level, alt));
       const double zb = normal_quantile(checked->power);
-      const double root_n = (za * std::sqrt(2.0 * pbar * (1.0 - pbar)) + zb * std::sqrt(p0 * (1.0 - p0) + p1 * (1.0 - p1))) /
-                            std::fabs(d);
+      const double root_n =
+          (za * std::sqrt(2.0 * pbar * (1.0 - pbar)) + zb * std::sqrt(p0 * (1.0 - p0) + p1 * (1.0 - p1))) /
+          std::fabs(d);
       const double n_exact = root_n > 0.0 ? root_n * root_n : 0.0;
       p.min_effect = d;
       return finish_size(p, n_exact, checked->power,
@@ -178,7 +192,9 @@ Result<Plan> plan_proportions(double baseline, const PlanRequest& request) {
       p.power = checked->power;
       // Solve for an increase over `from` (a decrease for kLess, by the symmetry p -> 1 - p).
       const double from = alt == Alternative::kLess ? 1.0 - baseline : baseline;
-      const auto f = [&](double p1) { return proportions_power(from, p1 - from, p.n_exact, level, alt) - p.power; };
+      const auto f = [&](double p1) {
+        return proportions_power(from, p1 - from, p.n_exact, level, alt) - p.power;
+      };
       // The smallest effect: scan upward for the first grid point reaching the power, then refine
       // (the power need not be monotone close to 1).
       constexpr int kGrid = 1000;
@@ -186,7 +202,11 @@ Result<Plan> plan_proportions(double baseline, const PlanRequest& request) {
       bool found = false;
       for (int i = 1; i <= kGrid; ++i) {
         const double x = from + (1.0 - from) * i / kGrid;
-        if (f(x) >= 0.0) { b = x; found = true; break; }
+        if (f(x) >= 0.0) {
+          b = x;
+          found = true;
+          break;
+        }
         a = x;
       }
       if (!found) {
@@ -204,7 +224,8 @@ Result<Plan> plan_proportions(double baseline, const PlanRequest& request) {
 }
 
 Result<Plan> plan_means(double sd, const PlanRequest& request) {
-  if (!(sd > 0.0 && std::isfinite(sd))) return invalid_input("sd must be a finite number > 0, got " + number_text(sd));
+  if (!(sd > 0.0 && std::isfinite(sd)))
+    return invalid_input("sd must be a finite number > 0, got " + number_text(sd));
   auto checked = check_request(request);
   if (!checked) return checked.error();
   const double level = request.level;

@@ -33,7 +33,8 @@ Result<const std::string*> require(const std::map<std::string, std::string>& fie
                                    std::string_view kind) {
   const std::string* v = find_present(fields, name);
   if (v == nullptr) {
-    return invalid_input("missing " + std::string(name) + " (needed with " + std::string(kind) + "); " + kSummaryHelp);
+    return invalid_input("missing " + std::string(name) + " (needed with " + std::string(kind) + "); " +
+                         kSummaryHelp);
   }
   return v;
 }
@@ -47,7 +48,8 @@ Result<std::uint64_t> whole_number(const std::map<std::string, std::string>& fie
   const std::string t = trimmed(**text);
   double v = 0;
   if (!parse_double(t, v) || v < 0 || v != std::floor(v) || v > 9007199254740992.0) {
-    return invalid_input(std::string(name) + " must be a whole number >= " + std::to_string(at_least) + ", got '" + t + "'");
+    return invalid_input(std::string(name) + " must be a whole number >= " + std::to_string(at_least) +
+                         ", got '" + t + "'");
   }
   return static_cast<std::uint64_t>(v);
 }
@@ -58,19 +60,23 @@ Result<double> real_number(const std::map<std::string, std::string>& fields, std
   if (!text) return text.error();
   const std::string t = trimmed(**text);
   double v = 0;
-  if (!parse_double(t, v)) return invalid_input(std::string(name) + " must be " + std::string(accepted) + ", got '" + t + "'");
+  if (!parse_double(t, v))
+    return invalid_input(std::string(name) + " must be " + std::string(accepted) + ", got '" + t + "'");
   return v;
 }
 
 }  // namespace
 
-Result<double> p_value_from_summary(const std::map<std::string, std::string>& fields, Alternative alternative) {
-  const bool counts = find_present(fields, kControlConversionsColumn) || find_present(fields, kTreatmentConversionsColumn);
+Result<double> p_value_from_summary(const std::map<std::string, std::string>& fields,
+                                    Alternative alternative) {
+  const bool counts =
+      find_present(fields, kControlConversionsColumn) || find_present(fields, kTreatmentConversionsColumn);
   const bool means = find_present(fields, kControlMeanColumn) || find_present(fields, kControlSdColumn) ||
                      find_present(fields, kTreatmentMeanColumn) || find_present(fields, kTreatmentSdColumn);
   if (counts && means) {
-    return invalid_input("the row gives both conversion counts and means; give one kind of summary per row "
-                         "(docs/formats.md, \"Summary columns\")");
+    return invalid_input(
+        "the row gives both conversion counts and means; give one kind of summary per row "
+        "(docs/formats.md, \"Summary columns\")");
   }
   if (counts) {
     constexpr std::string_view kKind = "conversion counts";

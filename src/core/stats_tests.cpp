@@ -26,9 +26,12 @@ constexpr double kInf = std::numeric_limits<double>::infinity();
 template <typename Upper>
 double p_value_symmetric(double stat, Alternative alternative, Upper upper) {
   switch (alternative) {
-    case Alternative::kGreater: return upper(stat);
-    case Alternative::kLess: return upper(-stat);
-    case Alternative::kTwoSided: break;
+    case Alternative::kGreater:
+      return upper(stat);
+    case Alternative::kLess:
+      return upper(-stat);
+    case Alternative::kTwoSided:
+      break;
   }
   return std::min(1.0, 2.0 * upper(std::fabs(stat)));
 }
@@ -42,7 +45,8 @@ Status check_confidence(double confidence) {
 
 Status check_arm_size(std::uint64_t n, std::string_view field) {
   if (n < 2 || n > kMaxArmSize) {
-    return invalid_input(std::string(field) + " must be a whole number in [2, 2^53], got " + std::to_string(n));
+    return invalid_input(std::string(field) + " must be a whole number in [2, 2^53], got " +
+                         std::to_string(n));
   }
   return {};
 }
@@ -55,7 +59,9 @@ double interval_z(double confidence, Alternative alternative) {
 }
 
 // Wilson score interval of x out of n at normal quantile z (Wilson 1927), clipped to [0, 1].
-struct Interval { double low, high; };
+struct Interval {
+  double low, high;
+};
 Interval wilson(double x, double n, double z) {
   const double z2 = z * z;
   const double center = (x + z2 / 2.0) / (n + z2);
@@ -76,18 +82,22 @@ double fisher_p_value(unsigned x, unsigned r, unsigned n, unsigned total, Altern
     return k <= lo ? 1.0 : bm::cdf(bm::complement(dist, k - 1));
   };
   switch (alternative) {
-    case Alternative::kGreater: return upper_from(x);
-    case Alternative::kLess: return x >= hi ? 1.0 : bm::cdf(dist, x);
-    case Alternative::kTwoSided: break;
+    case Alternative::kGreater:
+      return upper_from(x);
+    case Alternative::kLess:
+      return x >= hi ? 1.0 : bm::cdf(dist, x);
+    case Alternative::kTwoSided:
+      break;
   }
   const double threshold = bm::pdf(dist, x) * (1.0 + 1e-7);
   // The law is unimodal: the tables at most as likely as the observed one are two tails.
-  const auto mode = static_cast<unsigned>(std::floor((double(r) + 1.0) * (double(n) + 1.0) / (double(total) + 2.0)));
+  const auto mode =
+      static_cast<unsigned>(std::floor((double(r) + 1.0) * (double(n) + 1.0) / (double(total) + 2.0)));
   const unsigned m = std::clamp(mode, lo, hi);
   if (bm::pdf(dist, m) <= threshold) return 1.0;
   double p = 0;
   if (bm::pdf(dist, lo) <= threshold) {  // left tail [lo, a]: the largest a < m with pdf <= threshold
-    unsigned a = lo, b = m;  // pdf(a) <= threshold < pdf(b)
+    unsigned a = lo, b = m;              // pdf(a) <= threshold < pdf(b)
     while (b - a > 1) {
       const unsigned mid = a + (b - a) / 2;
       (bm::pdf(dist, mid) <= threshold ? a : b) = mid;
@@ -95,7 +105,7 @@ double fisher_p_value(unsigned x, unsigned r, unsigned n, unsigned total, Altern
     p += bm::cdf(dist, a);
   }
   if (bm::pdf(dist, hi) <= threshold) {  // right tail [c, hi]: the smallest c > m with pdf <= threshold
-    unsigned a = m, c = hi;  // pdf(a) > threshold >= pdf(c)
+    unsigned a = m, c = hi;              // pdf(a) > threshold >= pdf(c)
     while (c - a > 1) {
       const unsigned mid = a + (c - a) / 2;
       (bm::pdf(dist, mid) <= threshold ? c : a) = mid;
@@ -109,9 +119,12 @@ double fisher_p_value(unsigned x, unsigned r, unsigned n, unsigned total, Altern
 
 std::string_view alternative_name(Alternative a) {
   switch (a) {
-    case Alternative::kTwoSided: return "two-sided";
-    case Alternative::kGreater: return "greater";
-    case Alternative::kLess: return "less";
+    case Alternative::kTwoSided:
+      return "two-sided";
+    case Alternative::kGreater:
+      return "greater";
+    case Alternative::kLess:
+      return "less";
   }
   return "two-sided";
 }
@@ -125,9 +138,12 @@ Result<Alternative> parse_alternative(std::string_view name) {
 
 std::string_view proportion_method_name(ProportionMethod m) {
   switch (m) {
-    case ProportionMethod::kPooled: return "pooled";
-    case ProportionMethod::kUnpooled: return "unpooled";
-    case ProportionMethod::kFisher: return "fisher";
+    case ProportionMethod::kPooled:
+      return "pooled";
+    case ProportionMethod::kUnpooled:
+      return "unpooled";
+    case ProportionMethod::kFisher:
+      return "fisher";
   }
   return "pooled";
 }
@@ -150,8 +166,8 @@ Result<Comparison> compare_proportions(const ProportionArm& control, const Propo
   if (auto s = check_arm_size(control.n, "control_n"); !s) return s.error();
   if (auto s = check_arm_size(treatment.n, "treatment_n"); !s) return s.error();
   if (control.conversions > control.n) {
-    return invalid_input("control_conversions must be a whole number in [0, control_n = " + std::to_string(control.n) +
-                         "], got " + std::to_string(control.conversions));
+    return invalid_input("control_conversions must be a whole number in [0, control_n = " +
+                         std::to_string(control.n) + "], got " + std::to_string(control.conversions));
   }
   if (treatment.conversions > treatment.n) {
     return invalid_input("treatment_conversions must be a whole number in [0, treatment_n = " +
@@ -190,10 +206,12 @@ Result<Comparison> compare_proportions(const ProportionArm& control, const Propo
     case ProportionMethod::kUnpooled: {
       if (se_unpooled == 0.0) {
         if (diff != 0.0) {
-          return invalid_input("the unpooled test has zero variance when each arm is all conversions or none and the "
-                               "arms differ (control " + std::to_string(control.conversions) + "/" +
-                               std::to_string(control.n) + ", treatment " + std::to_string(treatment.conversions) + "/" +
-                               std::to_string(treatment.n) + "); use method pooled or fisher");
+          return invalid_input(
+              "the unpooled test has zero variance when each arm is all conversions or none and the "
+              "arms differ (control " +
+              std::to_string(control.conversions) + "/" + std::to_string(control.n) + ", treatment " +
+              std::to_string(treatment.conversions) + "/" + std::to_string(treatment.n) +
+              "); use method pooled or fisher");
         }
         c.statistic = 0.0;
         c.p_value = 1.0;
@@ -207,8 +225,8 @@ Result<Comparison> compare_proportions(const ProportionArm& control, const Propo
       const auto x = static_cast<unsigned>(treatment.conversions);
       const auto r = static_cast<unsigned>(control.conversions + treatment.conversions);
       c.statistic = x1;
-      c.p_value = fisher_p_value(x, r, static_cast<unsigned>(treatment.n), static_cast<unsigned>(control.n + treatment.n),
-                                 alternative);
+      c.p_value = fisher_p_value(x, r, static_cast<unsigned>(treatment.n),
+                                 static_cast<unsigned>(control.n + treatment.n), alternative);
       break;
     }
   }
@@ -234,8 +252,10 @@ Result<Comparison> compare_means(const MeanArm& control, const MeanArm& treatmen
                                  Alternative alternative, double confidence) {
   if (auto s = check_arm_size(control.n, "control_n"); !s) return s.error();
   if (auto s = check_arm_size(treatment.n, "treatment_n"); !s) return s.error();
-  if (!std::isfinite(control.mean)) return invalid_input("control_mean must be a finite number, got " + number_text(control.mean));
-  if (!std::isfinite(treatment.mean)) return invalid_input("treatment_mean must be a finite number, got " + number_text(treatment.mean));
+  if (!std::isfinite(control.mean))
+    return invalid_input("control_mean must be a finite number, got " + number_text(control.mean));
+  if (!std::isfinite(treatment.mean))
+    return invalid_input("treatment_mean must be a finite number, got " + number_text(treatment.mean));
   if (!(control.sd > 0.0 && std::isfinite(control.sd))) {
     return invalid_input("control_sd must be a finite number > 0, got " + number_text(control.sd));
   }
@@ -282,7 +302,8 @@ Result<Comparison> test_from_z(double z, Alternative alternative) {
 
 Result<Comparison> test_from_t(double t, double df, Alternative alternative) {
   if (!std::isfinite(t)) return invalid_input("t must be a finite number, got " + number_text(t));
-  if (!(df > 0.0 && std::isfinite(df))) return invalid_input("df must be a finite number > 0, got " + number_text(df));
+  if (!(df > 0.0 && std::isfinite(df)))
+    return invalid_input("df must be a finite number > 0, got " + number_text(df));
   Comparison c;
   c.statistic = t;
   c.df = df;

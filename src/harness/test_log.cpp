@@ -9,6 +9,7 @@
 #include <set>
 #include <sstream>
 
+#include "alphaledger/stats.hpp"
 #include "harness/format.hpp"
 
 namespace alphaledger {
@@ -160,10 +161,16 @@ Status validate_test_id(std::string_view id) {
   return {};
 }
 
-Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields) {
+// A non-empty p_value is used as given; otherwise the row's summary columns are turned into a
+// p-value in the given direction (docs/formats.md, "Summary columns"; alphaledger/stats.hpp).
+Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields, Alternative alternative) {
   auto it = fields.find("p_value");
-  if (it == fields.end()) return invalid_input("missing p_value");
-  return parse_p_value_text(it->second);
+  if (it != fields.end() && !trim(it->second).empty()) return parse_p_value_text(it->second);
+  return p_value_from_summary(fields, alternative);
+}
+
+Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields) {
+  return p_value_from_fields(fields, Alternative::kTwoSided);
 }
 
 Result<LogFormat> log_format_for(std::string_view path, std::optional<std::string_view> forced) {
