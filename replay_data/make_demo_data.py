@@ -7,6 +7,8 @@ results below are made up for demonstrating alphaledger and describe no real com
 Files written:
   larkspur_experiments.csv  two years of product A/B tests (id, team, metric, finished_at, p_value);
                             about 12% of the changes truly move their metric.
+  larkspur_summaries.csv    60 of its checkout experiments as raw dashboard summaries (users and
+                            conversions per arm) instead of p-values, for the summary columns.
   simulated_stream.csv      a simulated monitoring stream with the truth known (is_null column):
                             1,000 one-sided z-tests, 10% non-null with mean 3.
 
@@ -81,6 +83,17 @@ def main():
         f.write("id,team,metric,finished_at,p_value\n")
         for ts, eid, team, metric, p in experiments(rng):  # file order = order of entry, not time
             f.write("%s,%s,%s,%s,%s\n" % (eid, team, metric, iso(ts), repr(p)))
+    rng = random.Random(31)
+    with open(os.path.join(HERE, "larkspur_summaries.csv"), "w", newline="\n") as f:
+        f.write("id,finished_at,control_n,control_conversions,treatment_n,treatment_conversions\n")
+        for n in range(1, 61):
+            users = 2000 + int(rng.random() * 18000)
+            base = 0.03 + 0.04 * rng.random()
+            lift = base * (0.15 + 0.15 * rng.random()) if rng.random() < 0.2 else 0.0
+            control = sum(1 for _ in range(users) if rng.random() < base)
+            treatment = sum(1 for _ in range(users) if rng.random() < base + lift)
+            f.write("LS-%03d,2025-%02d-%02d,%d,%d,%d,%d\n" % (n, 1 + (n - 1) // 5, 1 + (n * 7) % 28,
+                                                              users, control, users, treatment))
     rng = random.Random(7)
     with open(os.path.join(HERE, "simulated_stream.csv"), "w", newline="\n") as f:
         f.write("id,finished_at,p_value,is_null\n")

@@ -20,6 +20,7 @@
 #include <vector>
 
 #include "alphaledger/result.hpp"
+#include "alphaledger/stats.hpp"
 
 namespace alphaledger {
 
@@ -43,6 +44,8 @@ struct TestLog {
 struct ReadOptions {
   bool allow_duplicate_ids = false;  // decide --file: duplicates are retries, judged by the ledger
   bool order_by_finished_at = true;
+  // Direction of the test computed from summary columns (docs/formats.md). Default: two-sided.
+  Alternative alternative = Alternative::kTwoSided;
 };
 
 // Chooses the format from the extension (.csv / .jsonl / .ndjson); `forced` overrides.
@@ -62,5 +65,6 @@ Status validate_test_id(std::string_view id);           // 1..256 bytes, no cont
 // Turns a row's fields (column -> text) into a p-value. The default converter reads p_value;
 // summary columns (docs/formats.md) are converted by the statistics layer when present.
 Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields);
+Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields, Alternative alternative);
 
 }  // namespace alphaledger

@@ -14,6 +14,7 @@ struct ReplayOptions {
   std::string rules = "lord++";
   std::optional<std::string> format;
   bool summary = false;
+  std::optional<std::string> alternative;
   RuleFlags flags;
 };
 
@@ -26,7 +27,13 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
   if (!procs) return procs.error();
   std::optional<std::string_view> forced;
   if (o.format) forced = *o.format;
-  auto log = read_test_log_file(o.file, forced);
+  ReadOptions read_options;
+  if (o.alternative) {
+    auto alt = parse_alternative(*o.alternative);
+    if (!alt) return alt.error();
+    read_options.alternative = *alt;
+  }
+  auto log = read_test_log_file(o.file, forced, read_options);
   if (!log) return log.error();
   const ReplayResult result = replay(*log, *procs);
   if (o.summary) {
@@ -82,6 +89,8 @@ void add_replay_command(CLI::App& app, CommandContext& ctx) {
                   "storey-bh; default lord++");
   sub->add_option("--format", opts->format, "csv or jsonl; default from the file extension")
       ->check(CLI::IsMember({"csv", "jsonl"}));
+  sub->add_option("--alternative", opts->alternative,
+                  "direction of tests computed from summary columns: two-sided, greater or less; default two-sided");
   sub->add_flag("--summary", opts->summary,
                 "one row per rule: tests, rejections, false discoveries, fdp, power");
   add_rule_flags(sub, opts->flags);

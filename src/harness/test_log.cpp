@@ -193,7 +193,7 @@ namespace {
 
 // Turns one row's fields into a record; common to CSV and JSON Lines.
 Result<TestRecord> make_record(const std::map<std::string, std::string>& f, std::string_view source,
-                               std::size_t line) {
+                               std::size_t line, Alternative alternative) {
   TestRecord r;
   r.line = line;
   auto id = f.find("id");
@@ -202,7 +202,7 @@ Result<TestRecord> make_record(const std::map<std::string, std::string>& f, std:
   if (auto s = validate_test_id(id->second); !s)
     return invalid_input(where(source, line) + s.error().message);
   r.id = id->second;
-  auto p = p_value_from_fields(f);
+  auto p = p_value_from_fields(f, alternative);
   if (!p) return invalid_input(where(source, line) + "test '" + r.id + "': " + p.error().message);
   r.p_value = *p;
   if (auto t = f.find("finished_at"); t != f.end() && !trim(t->second).empty()) {
@@ -280,7 +280,7 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
         fields[it.key()] = json_field_text(it.value());
       }
     }
-    auto rec = make_record(fields, source, line_no);
+    auto rec = make_record(fields, source, line_no, options.alternative);
     if (!rec) return rec.error();
     log.records.push_back(std::move(rec).value());
   }
