@@ -1,8 +1,185 @@
-// Placeholder: registers nothing until this part is built.
+// alphaledger simulate [--rules R1,R2,...] [rule flags] --tests T --runs N [model flags] [--table]
+// (CONTRACT.md "Simulate"; docs/simulate.md).
+#include <spdlog/spdlog.h>
+#include <unistd.h>
+
+#include <charconv>
+#include <iostream>
+#include <memory>
+#include <thread>
+
+#include "alphaledger/replay.hpp"
+#include "alphaledger/simulate.hpp"
 #include "cli/command.hpp"
+#include "harness/simulate_report.hpp"
 
 namespace alphaledger::cli {
+namespace {
 
-void add_simulate_command(CLI::App& /*app*/, CommandContext& /*ctx*/) {}
+constexpr const char* kAllProcedures =
+    "alpha-spending,alpha-investing,lond,lord++,saffron,addis,bh,storey-bh";
+
+struct SimulateOptions {
+  std::string rules = kAllProcedures;
+  std::string tests, runs, seed = "1", threads;
+  double nonnull_fraction = 0.1;
+  double effect = 3;
+  double effect_sd = 0;
+  double null_mean = 0;
+  std::string pattern = "constant";
+  std::string correlation = "none";
+  bool table = false;
+  RuleFlags flags;
+};
+
+Result<std::uint64_t> parse_whole(const std::string& text, const char* flag, std::uint64_t lo,
+                                  std::uint64_t hi) {
+  std::uint64_t v = 0;
+  const char* end = text.data() + text.size();
+  auto [ptr, ec] = std::from_chars(text.data(), end, v);
+  if (text.empty() || ec != std::errc() || ptr != end || v < lo || v > hi) {
+    return invalid_input(std::string(flag) + " must be a whole number in [" + std::to_string(lo) + ", " +
+                         std::to_string(hi) + "], got '" + text + "'");
+  }
+  return v;
+}
+
+// Shows "simulate: 412/1000 runs" on stderr, only when stderr is a terminal.
+class Progress {
+ public:
+  explicit Progress(std::uint64_t total) : total_(total), enabled_(isatty(STDERR_FILENO) == 1) {}
+  void update(std::uint64_t done) {
+    if (!enabled_) return;
+    const std::uint64_t percent = done * 100 / total_;
+    if (percent == last_percent_ && done != total_) return;
+    last_percent_ = percent;
+    std::cerr << "\rsimulate: " << done << "/" << total_ << " runs (" << percent << "%)" << std::flush;
+  }
+  // Clears the line and, on a terminal, says which evaluation mode ran (the CSV has no column for it).
+  void finish(const std::string& evaluation) {
+    if (!enabled_) return;
+    std::cerr << "\r" << std::string(48, ' ') << "\r";
+    if (!evaluation.empty()) std::cerr << "simulate: evaluation " << evaluation << "\n";
+    std::cerr << std::flush;
+  }
+
+ private:
+  std::uint64_t total_;
+  bool enabled_;
+  std::uint64_t last_percent_ = 101;
+};
+
+Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostream& out) {
+  if (o.table && g.json) return invalid_input("--table and --json cannot be used together; choose one");
+  auto names = split_rule_list(o.rules);
+  if (!names) return names.error();
+  RuleSpec flags = o.flags.to_spec();
+  // Fast evaluation by default for the rules that have it (docs/simulate.md), unless asked otherwise.
+  if (!flags.evaluation) {
+    for (const auto& n : *names) {
+      if (n == "lord++" || n == "saffron" || n == "addis") flags.evaluation = "fast";
+    }
+  }
+  auto procs = resolve_procedures(*names, flags, /*allow_offline=*/true);
+  if (!procs) return procs.error();
+
+  SimulationModel model;
+  auto tests = parse_whole(o.tests, "--tests", 1, 100'000'000);
+  if (!tests) return tests.error();
+  model.tests = *tests;
+  model.nonnull_fraction = o.nonnull_fraction;
+  model.effect = o.effect;
+  model.effect_sd = o.effect_sd;
+  model.null_mean = o.null_mean;
+  auto pattern = parse_nonnull_pattern(o.pattern);
+  if (!pattern) return pattern.error();
+  model.pattern = *pattern;
+  auto correlation = parse_correlation(o.correlation);
+  if (!correlation) return correlation.error();
+  model.correlation = *correlation;
+  if (auto s = validate_model(model); !s) return s.error();
+
+  SimulationOptions run;
+  auto runs = parse_whole(o.runs, "--runs", 1, 100'000'000);
+  if (!runs) return runs.error();
+  run.runs = *runs;
+  auto seed = parse_whole(o.seed, "--seed", 0, UINT64_MAX);
+  if (!seed) return seed.error();
+  run.seed = *seed;
+  if (o.threads.empty()) {
+    run.threads = std::max(1u, std::thread::hardware_concurrency());
+  } else {
+    auto threads = parse_whole(o.threads, "--threads", 1, 1024);
+    if (!threads) return threads.error();
+    run.threads = static_cast<unsigned>(*threads);
+  }
+
+  const SimulationPlan plan(std::move(*procs));
+  spdlog::info(
+      "simulate: {} runs x {} tests, seed {}, {} threads, non-null share {} ({}), effect {} (sd {}), "
+      "null mean {}, correlation {}",
+      run.runs, model.tests, run.seed, run.threads, model.nonnull_fraction, pattern_text(model.pattern),
+      model.effect, model.effect_sd, model.null_mean, correlation_text(model.correlation));
+  Progress progress(run.runs);
+  run.progress = [&progress](std::uint64_t done) { progress.update(done); };
+  auto result = run_simulation(plan, model, run);
+  if (!result) {
+    progress.finish("");
+    return result.error();
+  }
+  const std::string eval = evaluation_note(result->summaries);
+  progress.finish(g.json || o.table ? "" : eval);  // the table and the JSON say it themselves
+  if (!eval.empty()) spdlog::info("simulate: evaluation {}", eval);
+  if (g.json) {
+    write_simulation_json(out, result->summaries);
+  } else if (o.table) {
+    write_simulation_table(out, result->summaries, {model, run.runs, run.seed, run.threads});
+  } else {
+    write_simulation_csv(out, result->summaries);
+  }
+  return {};
+}
+
+}  // namespace
+
+void add_simulate_command(CLI::App& app, CommandContext& ctx) {
+  auto opts = std::make_shared<SimulateOptions>();
+  CLI::App* sub = app.add_subcommand("simulate",
+                                     "decide many simulated streams of one-sided z-tests with each rule: "
+                                     "realized FDR, mFDR, FWER and power");
+  sub->add_option(
+      "--rules", opts->rules,
+      "comma-separated rules; default all: alpha-spending, alpha-investing, lond, lord++, saffron, "
+      "addis, bh, storey-bh");
+  sub->add_option("--tests", opts->tests, "tests per stream, 1 to 100000000")->required()->type_name("INT");
+  sub->add_option("--runs", opts->runs, "number of simulated streams, 1 to 100000000")
+      ->required()
+      ->type_name("INT");
+  sub->add_option("--nonnull-fraction", opts->nonnull_fraction,
+                  "average chance that a test is non-null, in [0, 1]; default 0.1");
+  sub->add_option("--effect", opts->effect, "mean z of a non-null test; default 3");
+  sub->add_option("--effect-sd", opts->effect_sd, "spread of that mean between non-null tests; default 0");
+  sub->add_option("--null-mean", opts->null_mean,
+                  "mean z of a null test; negative means conservative nulls; default 0");
+  sub->add_option(
+      "--nonnull-pattern", opts->pattern,
+      "how the non-null share changes along the stream: constant, bursts[:LENGTH[:SHARE]], rising, "
+      "falling; default constant");
+  sub->add_option(
+      "--correlation", opts->correlation,
+      "positive correlation between neighbouring tests: none, ar1:RHO, blocks:SIZE:RHO; default none");
+  sub->add_option("--seed", opts->seed, "random seed, a whole number; default 1")->type_name("INT");
+  sub->add_option("--threads", opts->threads,
+                  "worker threads; default all cores (the output does not depend on it)")
+      ->type_name("INT");
+  sub->add_flag("--table", opts->table, "a table for people with standard errors and flags, instead of CSV");
+  add_rule_flags(sub, opts->flags);
+  sub->footer(
+      "--evaluation defaults to fast here for lord++, saffron and addis (docs/simulate.md).\n"
+      "With --table, a rule is flagged when its realized error rate is above its target by more than 3\n"
+      "standard errors. docs/simulate.md explains the model and the output.\n");
+  sub->callback(
+      [&ctx, opts] { ctx.run = [&ctx, opts] { return run_simulate(*opts, ctx.global, std::cout); }; });
+}
 
 }  // namespace alphaledger::cli

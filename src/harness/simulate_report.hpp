@@ -1,0 +1,42 @@
+// Writing simulate's results: the CSV of CONTRACT.md, one JSON object per rule row (--json), and
+// a table for people with standard errors and a plain flag on any rule whose realized error rate
+// is above its target by more than 3 standard errors (docs/simulate.md). Internal to the project.
+#pragma once
+
+#include <ostream>
+#include <string>
+#include <vector>
+
+#include "alphaledger/simulate.hpp"
+
+namespace alphaledger {
+
+// What the run used, for the table's heading and the JSON / log lines.
+struct SimulationSettings {
+  SimulationModel model;
+  std::uint64_t runs = 0;
+  std::uint64_t seed = 1;
+  unsigned threads = 1;
+};
+
+// Header `rule,runs,tests,mean_rejections,fdr,fdr_se,mfdr,power,power_se,fwer`, then one row per
+// procedure; numbers in shortest round-trip form, an undefined value (power with no non-null,
+// a standard error from one run) as an empty field.
+void write_simulation_csv(std::ostream& out, const std::vector<ProcedureSummary>& rows);
+
+// One object per row: the CSV keys, then evaluation ("exact" / "fast" / null), mfdr_se, fwer_se,
+// promised ("FDR" / "mFDR" / "FWER"), target and exceeds_target. Undefined numbers are null.
+void write_simulation_json(std::ostream& out, const std::vector<ProcedureSummary>& rows);
+
+// The table for people: heading with the settings and evaluation mode, one line per rule with
+// standard errors and the promise, the flags, and which guarantees the chosen scenario leaves out.
+void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummary>& rows,
+                            const SimulationSettings& settings);
+
+// "fast for lord++, saffron; exact for addis", or "" when no listed rule has a mode.
+std::string evaluation_note(const std::vector<ProcedureSummary>& rows);
+
+// The plain flag line for one row, or "" when the row is not flagged.
+std::string exceedance_note(const ProcedureSummary& row);
+
+}  // namespace alphaledger
