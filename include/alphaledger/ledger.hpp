@@ -33,6 +33,7 @@
 
 #include "alphaledger/result.hpp"
 #include "alphaledger/rules.hpp"
+#include "alphaledger/stats.hpp"
 #include "alphaledger/store.hpp"
 
 namespace alphaledger {
@@ -52,6 +53,9 @@ std::string describe_config(const RuleConfig& config);
 struct StreamInfo {
   std::string name;
   RuleConfig config;
+  // The direction in which summary rows (docs/formats.md) are turned into p-values when this
+  // stream decides them. Frozen with the configuration. Default: two-sided.
+  Alternative alternative = Alternative::kTwoSided;
   std::int64_t created_at_ms = 0;
   std::uint64_t tests = 0;
   std::uint64_t rejections = 0;
@@ -82,15 +86,19 @@ struct TestInput {
 
 // The answer of `decide --json` and of the HTTP service, as one line of JSON with the keys
 // step, id, p_value, level, rejected (1/0, as replay prints it), wealth, stream, decided_at
-// (format_timestamp),
-// repeat. Numbers in shortest round-trip form.
-std::string decision_json(const DecideResult& d);
+// (format_timestamp) and repeat. Numbers in shortest round-trip form. With a non-empty `rule`, a
+// first key "rule" holds it (decide --file rows, which carry replay's rule column).
+std::string decision_json(const DecideResult& d, std::string_view rule = {});
 
 struct VerifyReport {
-  std::uint64_t steps = 0;        // records checked
+  std::uint64_t steps = 0;  // records checked
   bool ok = true;
   std::uint64_t first_bad_step = 0;
-  std::string problem;            // what did not match, for the first bad step
+  std::string problem;  // what did not match, for the first bad step
+  // When ok: SHA-256 (hex) of the last record, or of the configuration when there is none. It
+  // commits to the whole history: keep it elsewhere to prove later that nothing up to here
+  // changed (docs/ledger.md "What verify proves").
+  std::string chain_hash;
 };
 
 class Ledger {
@@ -113,8 +121,15 @@ class Ledger {
   // are 1..128 bytes of ASCII letters, digits, '-', '_', '.', and not "." or ".."; see
   // docs/ledger.md). A config that resolve_config() would not produce: kInvalidInput.
   // REQUIRES: config came from resolve_config().
-  struct Created { StreamInfo info; bool created = true; };
+  struct Created {
+    StreamInfo info;
+    bool created = true;
+  };
   virtual Result<Created> create_stream(std::string_view name, const RuleConfig& config) = 0;
+  // The same, with the direction for summary rows frozen too (create_stream uses two-sided).
+  // "Same configuration" means the same RuleConfig and the same direction.
+  virtual Result<Created> create_stream_directed(std::string_view name, const RuleConfig& config,
+                                                 Alternative alternative) = 0;
 
   // Decides one test. Unknown stream: kRefused. Bad id or p-value: kInvalidInput. Same id and
   // same p-value as before: the stored decision with repeat = true. Same id, other p-value:
@@ -122,20 +137,24 @@ class Ledger {
   // this returns.
   virtual Result<DecideResult> decide(std::string_view stream, std::string_view id, double p_value) = 0;
 
-  // Decides tests in order with one synced write per group (group commit). Validation of every
-  // input happens first; a refused input (conflict) stops the batch at that input: results before
-  // it are durable and returned together with the error's position in `stopped_at`.
+  // Decides tests in order with one synced write per group (group commit). Every input is
+  // checked first: a bad id or p-value (kInvalidInput), or a conflict (kRefused: an id already
+  // decided with another p-value, or given twice in the batch with different p-values) refuses
+  // the whole batch with the ledger unchanged, as BatchResult{decided = {}, error, stopped_at}.
+  // Only a storage failure can stop a batch part-way: the groups written before it stay
+  // durable and are returned in `decided`.
   struct BatchResult {
-    std::vector<DecideResult> decided;   // durable
-    std::optional<Error> error;          // set if the batch stopped early
-    std::size_t stopped_at = 0;          // index of the input that failed, when error is set
+    std::vector<DecideResult> decided;  // durable, in input order (repeats included)
+    std::optional<Error> error;         // set if the batch was refused or stopped early
+    std::size_t stopped_at = 0;         // index of the input that failed, when error is set
   };
   // Errors returned directly (nothing decided): bad stream name, id or p-value (kInvalidInput,
-  // naming the input's 1-based position), unknown stream (kRefused). A storage failure while
-  // writing a group stops the batch like a conflict: `error` is kStorage, `stopped_at` is the first
-  // input of the group that was not written, and `decided` holds the earlier, durable groups.
-  // Within the batch, an id repeated with the same p-value is a repeat of its first occurrence.
-  // Default group_size: 256 (0 is taken as 1).
+  // naming the input's 1-based position), unknown stream (kRefused). In the BatchResult: a
+  // conflict (nothing decided; `stopped_at` is the conflicting input), or a storage failure while
+  // writing a group (`error` is kStorage, `stopped_at` is the first input of the group that was
+  // not written, `decided` holds the earlier, durable groups). Within the batch, an id repeated
+  // with the same p-value is a repeat of its first occurrence. Default group_size: 256 (0 is
+  // taken as 1).
   virtual Result<BatchResult> decide_batch(std::string_view stream, const std::vector<TestInput>& tests,
                                            std::size_t group_size = 256) = 0;
 
@@ -144,8 +163,10 @@ class Ledger {
   // prints each group there, so nothing is printed before it is durable. on_durable runs with
   // the stream's lock held: it must not call back into this Ledger for the same stream.
   using GroupCallback = std::function<void(const std::vector<DecideResult>&)>;
-  virtual Result<BatchResult> decide_batch_streamed(std::string_view stream, const std::vector<TestInput>& tests,
-                                                    std::size_t group_size, const GroupCallback& on_durable) = 0;
+  virtual Result<BatchResult> decide_batch_streamed(std::string_view stream,
+                                                    const std::vector<TestInput>& tests,
+                                                    std::size_t group_size,
+                                                    const GroupCallback& on_durable) = 0;
 
   // The level the next test will get; changes nothing. Unknown stream: kRefused.
   virtual Result<double> next_level(std::string_view stream) = 0;
@@ -162,6 +183,11 @@ class Ledger {
   // ok == false names the first bad step (0: the configuration or head itself) and what did
   // not match. Unknown stream: kRefused. Reads the store, never a cache: it sees what is on disk.
   virtual Result<VerifyReport> verify(std::string_view stream) = 0;
+
+  // The chain hash at `step` (SHA-256 hex of that record, which commits to every record up to it),
+  // as stored; run verify() to know it is consistent. Unknown stream: kRefused; step 0 or past the
+  // last record: kInvalidInput naming the range.
+  virtual Result<std::string> chain_hash_at(std::string_view stream, std::uint64_t step) = 0;
 
   // A short description of where the ledger lives (the folder path), for messages.
   virtual std::string location() const = 0;

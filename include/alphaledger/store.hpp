@@ -78,7 +78,8 @@ struct RocksStoreOptions {
 //   - held by this process (a second open of the same folder);
 //   - corrupt, unreadable or unwritable folder.
 // With create_if_missing == false and no database in the folder: kRefused ("no ledger at ...").
-Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path, const RocksStoreOptions& options = {});
+Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path,
+                                                  const RocksStoreOptions& options = {});
 
 // An in-memory store: a std::map under a mutex. write() is atomic; sync is a no-op.
 class MemoryStore final : public Store {

@@ -1,0 +1,354 @@
+// Encodings of docs/ledger-format.md.
+#include "store/codec.hpp"
+
+#include <bit>
+#include <cstring>
+
+namespace alphaledger::store {
+namespace {
+
+// Config field numbers. Stored on disk: do not change or reuse.
+enum class ConfigField : std::uint8_t {
+  kName = 1,
+  kRule = 2,
+  kAlpha = 3,
+  kInitialWealth = 4,
+  kCandidateThreshold = 5,
+  kDiscardThreshold = 6,
+  kPayout = 7,
+  kSpending = 8,
+  kEvaluation = 9,
+  kCreatedAt = 10,
+  kAlternative = 11,
+};
+constexpr int kConfigFieldCount = 11;
+
+void put_u8(std::string& out, std::uint8_t v) { out.push_back(static_cast<char>(v)); }
+void put_u16(std::string& out, std::uint16_t v) {
+  for (int i = 0; i < 2; ++i) out.push_back(static_cast<char>(v >> (8 * i)));
+}
+void put_u32(std::string& out, std::uint32_t v) {
+  for (int i = 0; i < 4; ++i) out.push_back(static_cast<char>(v >> (8 * i)));
+}
+void put_u64(std::string& out, std::uint64_t v) {
+  for (int i = 0; i < 8; ++i) out.push_back(static_cast<char>(v >> (8 * i)));
+}
+void put_f64(std::string& out, double v) { put_u64(out, std::bit_cast<std::uint64_t>(v)); }
+void put_text16(std::string& out, std::string_view s) {
+  put_u16(out, static_cast<std::uint16_t>(s.size()));
+  out.append(s);
+}
+
+// Reads fixed-width little-endian values; `ok` turns false on the first short read.
+struct Reader {
+  std::string_view in;
+  bool ok = true;
+
+  std::uint64_t uint(int bytes) {
+    if (in.size() < static_cast<std::size_t>(bytes)) {
+      ok = false;
+      in = {};
+      return 0;
+    }
+    std::uint64_t v = 0;
+    for (int i = 0; i < bytes; ++i) v |= std::uint64_t{static_cast<unsigned char>(in[i])} << (8 * i);
+    in.remove_prefix(static_cast<std::size_t>(bytes));
+    return v;
+  }
+  std::uint8_t u8() { return static_cast<std::uint8_t>(uint(1)); }
+  std::uint16_t u16() { return static_cast<std::uint16_t>(uint(2)); }
+  std::uint32_t u32() { return static_cast<std::uint32_t>(uint(4)); }
+  std::uint64_t u64() { return uint(8); }
+  double f64() { return std::bit_cast<double>(u64()); }
+  std::string_view bytes(std::size_t n) {
+    if (in.size() < n) {
+      ok = false;
+      in = {};
+      return {};
+    }
+    auto s = in.substr(0, n);
+    in.remove_prefix(n);
+    return s;
+  }
+  Digest digest() {
+    Digest d{};
+    auto s = bytes(32);
+    if (ok) std::memcpy(d.data(), s.data(), 32);
+    return d;
+  }
+};
+
+std::string hex16(std::uint64_t v) {
+  static constexpr char kHex[] = "0123456789abcdef";
+  std::string out(16, '0');
+  for (int i = 15; i >= 0; --i, v >>= 4) out[static_cast<std::size_t>(i)] = kHex[v & 15];
+  return out;
+}
+
+constexpr std::size_t kRecordHashSize = 32;
+
+}  // namespace
+
+Status validate_stream_name(std::string_view name) {
+  const std::string shown(name.substr(0, 160));
+  if (name.empty()) return invalid_input("stream name must not be empty");
+  if (name.size() > kMaxStreamName) {
+    return invalid_input("stream name must be at most 128 bytes, got " + std::to_string(name.size()));
+  }
+  for (std::size_t i = 0; i < name.size(); ++i) {
+    const auto c = static_cast<unsigned char>(name[i]);
+    const bool allowed = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
+                         c == '-' || c == '_' || c == '.';
+    if (!allowed) {
+      std::string what =
+          (c < 0x20 || c >= 0x7f) ? "byte " + std::to_string(c) : "'" + std::string(1, name[i]) + "'";
+      std::string printable;
+      for (char ch : shown)
+        printable.push_back(
+            static_cast<unsigned char>(ch) < 0x20 || static_cast<unsigned char>(ch) >= 0x7f ? '?' : ch);
+      return invalid_input("stream name may contain only letters, digits, '-', '_' and '.', got '" +
+                           printable + "' (" + what + " at position " + std::to_string(i + 1) + ")");
+    }
+  }
+  if (name == "." || name == "..") return invalid_input("stream name must not be '.' or '..'");
+  return {};
+}
+
+std::string config_key(std::string_view stream) { return "c/" + std::string(stream); }
+std::string head_key(std::string_view stream) { return "h/" + std::string(stream); }
+std::string record_prefix(std::string_view stream) { return "r/" + std::string(stream) + "/"; }
+std::string record_key(std::string_view stream, std::uint64_t step) {
+  return record_prefix(stream) + hex16(step);
+}
+std::string index_prefix(std::string_view stream) { return "i/" + std::string(stream) + "/"; }
+std::string index_key(std::string_view stream, std::string_view id) {
+  return index_prefix(stream) + std::string(id);
+}
+
+std::string encode_format_version(std::uint32_t version) {
+  std::string out;
+  put_u32(out, version);
+  return out;
+}
+
+Result<std::uint32_t> decode_format_version(std::string_view bytes) {
+  Reader r{bytes};
+  const auto v = r.u32();
+  if (!r.ok || !r.in.empty())
+    return storage_error("the format version key holds " + std::to_string(bytes.size()) +
+                         " bytes, expected 4");
+  return v;
+}
+
+std::string encode_config(const StoredConfig& c) {
+  std::string out;
+  put_u8(out, kConfigVersion);
+  auto field = [&](ConfigField f) { put_u8(out, static_cast<std::uint8_t>(f)); };
+  field(ConfigField::kName);
+  put_text16(out, c.name);
+  field(ConfigField::kRule);
+  put_u8(out, static_cast<std::uint8_t>(c.config.kind));
+  field(ConfigField::kAlpha);
+  put_f64(out, c.config.alpha);
+  field(ConfigField::kInitialWealth);
+  put_f64(out, c.config.initial_wealth);
+  field(ConfigField::kCandidateThreshold);
+  put_f64(out, c.config.candidate_threshold);
+  field(ConfigField::kDiscardThreshold);
+  put_f64(out, c.config.discard_threshold);
+  field(ConfigField::kPayout);
+  put_f64(out, c.config.payout);
+  field(ConfigField::kSpending);
+  put_text16(out, c.config.spending);
+  field(ConfigField::kEvaluation);
+  put_u8(out, static_cast<std::uint8_t>(c.config.evaluation));
+  field(ConfigField::kCreatedAt);
+  put_u64(out, static_cast<std::uint64_t>(c.created_at_ms));
+  field(ConfigField::kAlternative);
+  put_u8(out, static_cast<std::uint8_t>(c.alternative));
+  return out;
+}
+
+Result<StoredConfig> decode_config(std::string_view bytes) {
+  Reader r{bytes};
+  const auto version = r.u8();
+  if (!r.ok) return storage_error("stream configuration is empty");
+  if (version != kConfigVersion) {
+    return storage_error("stream configuration has version " + std::to_string(version) +
+                         ", this build reads version " + std::to_string(kConfigVersion));
+  }
+  StoredConfig c;
+  bool seen[kConfigFieldCount + 1] = {};
+  std::uint8_t kind = 0, evaluation = 0, alternative = 0;
+  while (r.ok && !r.in.empty()) {
+    const auto f = r.u8();
+    if (f == 0 || f > kConfigFieldCount) {
+      return storage_error("stream configuration has unknown field number " + std::to_string(f));
+    }
+    if (seen[f]) return storage_error("stream configuration repeats field number " + std::to_string(f));
+    seen[f] = true;
+    switch (static_cast<ConfigField>(f)) {
+      case ConfigField::kName:
+        c.name = std::string(r.bytes(r.u16()));
+        break;
+      case ConfigField::kRule:
+        kind = r.u8();
+        break;
+      case ConfigField::kAlpha:
+        c.config.alpha = r.f64();
+        break;
+      case ConfigField::kInitialWealth:
+        c.config.initial_wealth = r.f64();
+        break;
+      case ConfigField::kCandidateThreshold:
+        c.config.candidate_threshold = r.f64();
+        break;
+      case ConfigField::kDiscardThreshold:
+        c.config.discard_threshold = r.f64();
+        break;
+      case ConfigField::kPayout:
+        c.config.payout = r.f64();
+        break;
+      case ConfigField::kSpending:
+        c.config.spending = std::string(r.bytes(r.u16()));
+        break;
+      case ConfigField::kEvaluation:
+        evaluation = r.u8();
+        break;
+      case ConfigField::kCreatedAt:
+        c.created_at_ms = static_cast<std::int64_t>(r.u64());
+        break;
+      case ConfigField::kAlternative:
+        alternative = r.u8();
+        break;
+    }
+  }
+  if (!r.ok) return storage_error("stream configuration is truncated");
+  for (int f = 1; f <= kConfigFieldCount; ++f) {
+    if (!seen[f]) return storage_error("stream configuration lacks field number " + std::to_string(f));
+  }
+  if (kind < 1 || kind > 6)
+    return storage_error("stream configuration has unknown rule number " + std::to_string(kind));
+  if (evaluation < 1 || evaluation > 2) {
+    return storage_error("stream configuration has unknown evaluation number " + std::to_string(evaluation));
+  }
+  if (alternative < 1 || alternative > 3) {
+    return storage_error("stream configuration has unknown alternative number " +
+                         std::to_string(alternative));
+  }
+  c.alternative = static_cast<Alternative>(alternative);
+  c.config.kind = static_cast<RuleKind>(kind);
+  c.config.evaluation = static_cast<Evaluation>(evaluation);
+  // The configuration must be exactly one that resolve_config() produces: rebuild it from the
+  // parameters the rule takes and compare.
+  RuleSpec spec;
+  spec.rule = std::string(rule_name(c.config.kind));
+  spec.alpha = c.config.alpha;
+  if (rule_takes(c.config.kind, "initial_wealth")) spec.initial_wealth = c.config.initial_wealth;
+  if (rule_takes(c.config.kind, "candidate_threshold"))
+    spec.candidate_threshold = c.config.candidate_threshold;
+  if (rule_takes(c.config.kind, "discard_threshold")) spec.discard_threshold = c.config.discard_threshold;
+  if (rule_takes(c.config.kind, "payout")) spec.payout = c.config.payout;
+  if (rule_takes(c.config.kind, "spending")) spec.spending = c.config.spending;
+  if (rule_takes(c.config.kind, "evaluation"))
+    spec.evaluation = std::string(evaluation_name(c.config.evaluation));
+  auto resolved = resolve_config(spec);
+  if (!resolved) return storage_error("stream configuration is not valid: " + resolved.error().message);
+  if (!(*resolved == c.config)) return storage_error("stream configuration is not in canonical form");
+  if (validate_stream_name(c.name).ok() == false)
+    return storage_error("stream configuration holds a bad name");
+  return c;
+}
+
+std::string encode_head(const StoredHead& h) {
+  std::string out;
+  put_u8(out, kHeadVersion);
+  put_u64(out, h.steps);
+  out.append(as_bytes(h.last_hash));
+  put_u32(out, static_cast<std::uint32_t>(h.rule_state.size()));
+  out.append(h.rule_state);
+  return out;
+}
+
+Result<StoredHead> decode_head(std::string_view bytes) {
+  Reader r{bytes};
+  const auto version = r.u8();
+  if (!r.ok) return storage_error("stream head is empty");
+  if (version != kHeadVersion) {
+    return storage_error("stream head has version " + std::to_string(version) +
+                         ", this build reads version " + std::to_string(kHeadVersion));
+  }
+  StoredHead h;
+  h.steps = r.u64();
+  h.last_hash = r.digest();
+  const auto n = r.u32();
+  h.rule_state = std::string(r.bytes(n));
+  if (!r.ok || !r.in.empty()) return storage_error("stream head is truncated or has trailing bytes");
+  return h;
+}
+
+std::string encode_record(const DecisionRecord& rec, const Digest& prev_hash, Digest* hash) {
+  std::string out;
+  out.reserve(80 + rec.id.size());
+  put_u8(out, kRecordVersion);
+  put_u64(out, rec.step);
+  put_text16(out, rec.id);
+  put_f64(out, rec.p_value);
+  put_f64(out, rec.level);
+  put_u8(out, rec.rejected ? 1 : 0);
+  put_f64(out, rec.wealth);
+  put_u64(out, static_cast<std::uint64_t>(rec.decided_at_ms));
+  out.append(as_bytes(prev_hash));
+  const Digest h = sha256(out);
+  out.append(as_bytes(h));
+  if (hash != nullptr) *hash = h;
+  return out;
+}
+
+Result<StoredRecord> decode_record(std::string_view bytes) {
+  Reader r{bytes};
+  const auto version = r.u8();
+  if (!r.ok) return storage_error("decision record is empty");
+  if (version != kRecordVersion) {
+    return storage_error("decision record has version " + std::to_string(version) +
+                         ", this build reads version " + std::to_string(kRecordVersion));
+  }
+  StoredRecord s;
+  s.record.step = r.u64();
+  s.record.id = std::string(r.bytes(r.u16()));
+  s.record.p_value = r.f64();
+  s.record.level = r.f64();
+  const auto rejected = r.u8();
+  s.record.wealth = r.f64();
+  s.record.decided_at_ms = static_cast<std::int64_t>(r.u64());
+  s.prev_hash = r.digest();
+  s.hash = r.digest();
+  if (!r.ok || !r.in.empty()) return storage_error("decision record is truncated or has trailing bytes");
+  if (rejected > 1)
+    return storage_error("decision record has rejected = " + std::to_string(rejected) + ", expected 0 or 1");
+  s.record.rejected = rejected == 1;
+  return s;
+}
+
+Digest recompute_record_hash(std::string_view encoded) {
+  if (encoded.size() < kRecordHashSize) return sha256(encoded);
+  return sha256(encoded.substr(0, encoded.size() - kRecordHashSize));
+}
+
+std::string encode_step(std::uint64_t step) {
+  std::string out;
+  put_u64(out, step);
+  return out;
+}
+
+Result<std::uint64_t> decode_step(std::string_view bytes) {
+  Reader r{bytes};
+  const auto v = r.u64();
+  if (!r.ok || !r.in.empty())
+    return storage_error("test id index entry holds " + std::to_string(bytes.size()) + " bytes, expected 8");
+  return v;
+}
+
+Digest genesis_hash(std::string_view encoded_config) { return sha256(encoded_config); }
+
+}  // namespace alphaledger::store

@@ -1,0 +1,693 @@
+// The Ledger over a Store (include/alphaledger/ledger.hpp; layout in docs/ledger-format.md).
+//
+// Each stream has an in-memory copy of its configuration, rule and head, loaded on first use and
+// guarded by the stream's mutex. A decision advances that copy, is written as one synced batch
+// (record, id index entry, head with the rule's new state), and only then is the copy trusted
+// again; if the write fails, the copy is marked stale and the stream is reloaded from the store
+// on next use, so the store is always the truth.
+#include "alphaledger/ledger.hpp"
+
+#include <bit>
+#include <charconv>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <map>
+#include <mutex>
+#include <nlohmann/json.hpp>
+#include <set>
+#include <unordered_map>
+
+#include "alphaledger/test_log.hpp"
+#include "harness/format.hpp"
+#include "store/codec.hpp"
+
+namespace alphaledger {
+
+std::int64_t system_clock_ms() {
+  using namespace std::chrono;
+  return duration_cast<milliseconds>(system_clock::now().time_since_epoch()).count();
+}
+
+std::string format_timestamp(std::int64_t ms) {
+  using namespace std::chrono;
+  const sys_time<milliseconds> tp{milliseconds{ms}};
+  const auto day = floor<days>(tp);
+  const year_month_day ymd{day};
+  const hh_mm_ss<milliseconds> t{tp - day};
+  char buf[40];
+  std::snprintf(buf, sizeof buf, "%04d-%02u-%02uT%02d:%02d:%02d.%03dZ", static_cast<int>(ymd.year()),
+                static_cast<unsigned>(ymd.month()), static_cast<unsigned>(ymd.day()),
+                static_cast<int>(t.hours().count()), static_cast<int>(t.minutes().count()),
+                static_cast<int>(t.seconds().count()), static_cast<int>(t.subseconds().count()));
+  return buf;
+}
+
+namespace {
+
+// For messages: the shortest text that reads back to the same double, in plain decimals when
+// that stays short (0.0005 rather than 5e-04).
+std::string readable_number(double v) {
+  const double a = std::fabs(v);
+  if (v == 0 || (a >= 1e-6 && a < 1e15)) {
+    char buf[64];
+    auto [ptr, ec] = std::to_chars(buf, buf + sizeof buf, v, std::chars_format::fixed);
+    if (ec == std::errc()) return std::string(buf, ptr);
+  }
+  return format_number(v);
+}
+
+}  // namespace
+
+std::string describe_config(const RuleConfig& c) {
+  std::string out(rule_name(c.kind));
+  out += " alpha=" + readable_number(c.alpha);
+  if (rule_takes(c.kind, "initial_wealth")) out += " initial_wealth=" + readable_number(c.initial_wealth);
+  if (rule_takes(c.kind, "candidate_threshold"))
+    out += " candidate_threshold=" + readable_number(c.candidate_threshold);
+  if (rule_takes(c.kind, "discard_threshold"))
+    out += " discard_threshold=" + readable_number(c.discard_threshold);
+  if (rule_takes(c.kind, "payout")) out += " payout=" + readable_number(c.payout);
+  if (rule_takes(c.kind, "spending")) out += " spending=" + c.spending;
+  if (rule_takes(c.kind, "evaluation")) out += " evaluation=" + std::string(evaluation_name(c.evaluation));
+  return out;
+}
+
+std::string decision_json(const DecideResult& d, std::string_view rule) {
+  nlohmann::ordered_json j;
+  if (!rule.empty()) j["rule"] = std::string(rule);
+  j.update(nlohmann::ordered_json{{"step", d.record.step},
+                                  {"id", d.record.id},
+                                  {"p_value", d.record.p_value},
+                                  {"level", d.record.level},
+                                  {"rejected", d.record.rejected ? 1 : 0},
+                                  {"wealth", d.record.wealth},
+                                  {"stream", d.stream},
+                                  {"decided_at", format_timestamp(d.record.decided_at_ms)},
+                                  {"repeat", d.repeat}});
+  return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
+}
+
+namespace {
+
+using store::Digest;
+using store::StoredConfig;
+using store::StoredHead;
+
+bool same_bits(double a, double b) {
+  return std::bit_cast<std::uint64_t>(a) == std::bit_cast<std::uint64_t>(b);
+}
+
+std::string in_quotes(std::string_view s) {
+  // Built by append: GCC 12's -Wrestrict misfires on "'" + std::string(s) + "'" (GCC PR 105651).
+  std::string out;
+  out.reserve(s.size() + 2);
+  out.push_back('\'');
+  out.append(s);
+  out.push_back('\'');
+  return out;
+}
+
+Error unknown_stream(std::string_view name, const std::string& where) {
+  return refused("no stream named " + in_quotes(name) + " in ledger " + where +
+                 " (create it first: alphaledger new " + std::string(name) + " --rule RULE)");
+}
+
+// One stream's cached state. `mu` serialises every decision on the stream.
+struct StreamSlot {
+  std::mutex mu;
+  bool loaded = false;
+  bool exists = false;
+  StoredConfig config;
+  std::string encoded_config;
+  std::optional<Rule> rule;
+  StoredHead head;
+};
+
+class StoreLedger final : public Ledger {
+ public:
+  StoreLedger(std::unique_ptr<Store> store, Clock clock)
+      : store_(std::move(store)), clock_(std::move(clock)) {}
+
+  std::string location() const override { return store_->describe(); }
+
+  Result<Created> create_stream(std::string_view name, const RuleConfig& config) override {
+    return create_stream_directed(name, config, Alternative::kTwoSided);
+  }
+
+  Result<Created> create_stream_directed(std::string_view name, const RuleConfig& config,
+                                         Alternative alternative) override {
+    if (auto s = store::validate_stream_name(name); !s) return s.error();
+    // The configuration must be one resolve_config() produces (a Rule is only defined for those).
+    StoredConfig candidate{std::string(name), config, 0, alternative};
+    if (auto check = store::decode_config(store::encode_config(candidate)); !check) {
+      return invalid_input("the rule configuration is not valid: " + check.error().message);
+    }
+    auto slot = slot_for(name);
+    std::lock_guard lock(slot->mu);
+    if (auto s = load(name, *slot); !s) return s.error();
+    if (slot->exists) {
+      if (slot->config.config == config && slot->config.alternative == alternative) {
+        return Created{info_of(*slot), false};
+      }
+      auto described = [](const RuleConfig& c, Alternative a) {
+        std::string out = describe_config(c);
+        if (a != Alternative::kTwoSided) out += " alternative=" + std::string(alternative_name(a));
+        return out;
+      };
+      return refused("stream " + in_quotes(name) + " already exists with another configuration: it has " +
+                     described(slot->config.config, slot->config.alternative) + "; asked for " +
+                     described(config, alternative) +
+                     " (a stream's configuration is frozen at creation; use a new name)");
+    }
+    candidate.created_at_ms = clock_();
+    const std::string encoded = store::encode_config(candidate);
+    Rule rule(config);
+    StoredHead head{0, store::genesis_hash(encoded), rule.encode_state()};
+    WriteBatch batch;
+    batch.put(store::config_key(name), encoded);
+    batch.put(store::head_key(name), store::encode_head(head));
+    if (auto s = store_->write(batch, true); !s) {
+      slot->loaded = false;
+      return s.error();
+    }
+    slot->loaded = true;
+    slot->exists = true;
+    slot->config = std::move(candidate);
+    slot->encoded_config = encoded;
+    slot->rule.emplace(std::move(rule));
+    slot->head = std::move(head);
+    return Created{info_of(*slot), true};
+  }
+
+  Result<DecideResult> decide(std::string_view stream, std::string_view id, double p_value) override {
+    if (auto s = store::validate_stream_name(stream); !s) return s.error();
+    if (auto s = validate_test_id(id); !s) return s.error();
+    if (auto s = validate_p_value(p_value); !s)
+      return invalid_input("test " + in_quotes(id) + ": " + s.error().message);
+    auto slot = slot_for(stream);
+    std::lock_guard lock(slot->mu);
+    if (auto s = load(stream, *slot); !s) return s.error();
+    if (!slot->exists) return unknown_stream(stream, location());
+    auto prior = find_decided(stream, id);
+    if (!prior) return prior.error();
+    if (*prior) {
+      auto r = repeat_or_conflict(stream, **prior, p_value);
+      if (!r) return Error{r.error().kind, r.error().message + " (the ledger is unchanged)"};
+      return r;
+    }
+
+    // The cached rule and head advance in place (no copy of a long exact-mode state); until the
+    // write succeeds the slot counts as not loaded, so a failure (or an exception) makes the next
+    // call reload the stream from the store, which is the truth.
+    slot->loaded = false;
+    Rule& rule = *slot->rule;
+    StoredHead& head = slot->head;
+    WriteBatch batch;
+    DecideResult result = decide_into(stream, rule, head, std::string(id), p_value, batch);
+    head.rule_state = rule.encode_state();
+    batch.put(store::head_key(stream), store::encode_head(head));
+    if (auto s = store_->write(batch, true); !s) return s.error();
+    slot->loaded = true;
+    return result;
+  }
+
+  Result<BatchResult> decide_batch(std::string_view stream, const std::vector<TestInput>& tests,
+                                   std::size_t group_size) override {
+    return decide_batch_streamed(stream, tests, group_size, nullptr);
+  }
+
+  Result<BatchResult> decide_batch_streamed(std::string_view stream, const std::vector<TestInput>& tests,
+                                            std::size_t group_size,
+                                            const GroupCallback& on_durable) override {
+    if (auto s = store::validate_stream_name(stream); !s) return s.error();
+    for (std::size_t i = 0; i < tests.size(); ++i) {
+      const auto& t = tests[i];
+      if (auto s = validate_test_id(t.id); !s) {
+        return invalid_input("test " + std::to_string(i + 1) + " of the batch: " + s.error().message);
+      }
+      if (auto s = validate_p_value(t.p_value); !s) {
+        return invalid_input("test " + std::to_string(i + 1) + " of the batch (" + in_quotes(t.id) +
+                             "): " + s.error().message);
+      }
+    }
+    if (group_size == 0) group_size = 1;
+    auto slot = slot_for(stream);
+    std::lock_guard lock(slot->mu);
+    if (auto s = load(stream, *slot); !s) return s.error();
+    if (!slot->exists) return unknown_stream(stream, location());
+
+    BatchResult out;
+    // First pass, before anything is written: every id is looked up, so a conflict (with the
+    // ledger, or between two rows of the batch) refuses the batch with the ledger unchanged.
+    std::vector<std::optional<DecisionRecord>> stored(tests.size());
+    {
+      std::unordered_map<std::string_view, std::size_t> first_new;  // id -> first index, new ids
+      for (std::size_t i = 0; i < tests.size(); ++i) {
+        const auto& t = tests[i];
+        if (auto it = first_new.find(t.id); it != first_new.end()) {
+          const double first_p = tests[it->second].p_value;
+          if (first_p != t.p_value) {
+            out.error =
+                refused("test " + in_quotes(t.id) + " appears twice in the batch with different p-values (" +
+                        readable_number(first_p) + " at position " + std::to_string(it->second + 1) + ", " +
+                        readable_number(t.p_value) + " at position " + std::to_string(i + 1) +
+                        "); a test id is decided once (the ledger is unchanged)");
+            out.stopped_at = i;
+            return out;
+          }
+          continue;
+        }
+        auto found = find_decided(stream, t.id);
+        if (!found) return found.error();
+        if (*found) {
+          if (auto r = repeat_or_conflict(stream, **found, t.p_value); !r) {
+            out.error = Error{r.error().kind, r.error().message + " (the ledger is unchanged)"};
+            out.stopped_at = i;
+            return out;
+          }
+          stored[i] = std::move(*found);
+        } else {
+          first_new.emplace(t.id, i);
+        }
+      }
+    }
+
+    // As in decide(): the cached state advances in place and counts as loaded only after each
+    // successful write.
+    Rule& rule = *slot->rule;
+    StoredHead& head = slot->head;
+    WriteBatch batch;
+    std::vector<DecideResult> group;
+    std::size_t group_start = 0;
+    std::unordered_map<std::string, DecisionRecord> decided_here;  // new ids decided in this batch
+
+    // Writes the group (if it decided anything), then publishes it. Returns false on failure,
+    // having recorded the error in `out`.
+    auto flush = [&]() -> bool {
+      if (!batch.empty()) {
+        head.rule_state = rule.encode_state();
+        batch.put(store::head_key(stream), store::encode_head(head));
+        if (auto s = store_->write(batch, true); !s) {
+          out.error = s.error();
+          out.stopped_at = group_start;
+          return false;  // the slot stays not loaded: the next call reloads from the store
+        }
+        slot->loaded = true;
+      }
+      if (on_durable && !group.empty()) on_durable(group);
+      for (auto& d : group) out.decided.push_back(std::move(d));
+      group.clear();
+      batch = WriteBatch{};
+      return true;
+    };
+
+    for (std::size_t i = 0; i < tests.size(); ++i) {
+      const auto& t = tests[i];
+      if (stored[i]) {
+        group.push_back(DecideResult{std::string(stream), *stored[i], true});
+      } else if (auto it = decided_here.find(t.id); it != decided_here.end()) {
+        group.push_back(DecideResult{std::string(stream), it->second, true});
+      } else {
+        slot->loaded = false;
+        DecideResult d = decide_into(stream, rule, head, t.id, t.p_value, batch);
+        decided_here.emplace(t.id, d.record);
+        group.push_back(std::move(d));
+      }
+      if (group.size() >= group_size) {
+        if (!flush()) return out;
+        group_start = i + 1;
+      }
+    }
+    flush();
+    return out;
+  }
+
+  Result<double> next_level(std::string_view stream) override {
+    auto info = status(stream);
+    if (!info) return info.error();
+    return info->next_level;
+  }
+
+  Result<StreamInfo> status(std::string_view stream) override {
+    if (auto s = store::validate_stream_name(stream); !s) return s.error();
+    auto slot = slot_for(stream);
+    std::lock_guard lock(slot->mu);
+    if (auto s = load(stream, *slot); !s) return s.error();
+    if (!slot->exists) return unknown_stream(stream, location());
+    return info_of(*slot);
+  }
+
+  Result<std::vector<StreamInfo>> streams() override {
+    std::vector<std::string> names;
+    auto s = store_->scan(store::kConfigPrefix, [&](std::string_view key, std::string_view) {
+      names.emplace_back(key.substr(store::kConfigPrefix.size()));
+      return true;
+    });
+    if (!s) return s.error();
+    std::vector<StreamInfo> out;
+    for (const auto& n : names) {
+      auto info = status(n);
+      if (!info) {
+        if (info.error().kind == ErrorKind::kInvalidInput) {
+          return storage_error("ledger " + location() +
+                               " holds a stream with a bad name: " + info.error().message);
+        }
+        return info.error();
+      }
+      out.push_back(std::move(*info));
+    }
+    return out;
+  }
+
+  Result<std::vector<DecisionRecord>> history(std::string_view stream) override {
+    if (auto s = status(stream); !s) return s.error();
+    std::vector<DecisionRecord> out;
+    std::optional<Error> bad;
+    auto s = store_->scan(store::record_prefix(stream), [&](std::string_view key, std::string_view value) {
+      auto rec = store::decode_record(value);
+      if (!rec) {
+        bad = storage_error("ledger " + location() + ": record " + std::string(key) + " cannot be read: " +
+                            rec.error().message + " (run alphaledger verify " + std::string(stream) + ")");
+        return false;
+      }
+      out.push_back(std::move(rec->record));
+      return true;
+    });
+    if (!s) return s.error();
+    if (bad) return *bad;
+    return out;
+  }
+
+  Result<VerifyReport> verify(std::string_view stream) override {
+    if (auto s = store::validate_stream_name(stream); !s) return s.error();
+    VerifyReport report;
+    auto fail = [&](std::uint64_t step, std::string problem) {
+      report.ok = false;
+      report.first_bad_step = step;
+      report.problem = std::move(problem);
+      return report;
+    };
+    auto config_bytes = store_->get(store::config_key(stream));
+    if (!config_bytes) return config_bytes.error();
+    if (!*config_bytes) return unknown_stream(stream, location());
+    auto config = store::decode_config(**config_bytes);
+    if (!config) return fail(0, "the configuration cannot be read: " + config.error().message);
+    if (config->name != stream) return fail(0, "the configuration names stream " + in_quotes(config->name));
+    auto head_bytes = store_->get(store::head_key(stream));
+    if (!head_bytes) return head_bytes.error();
+    if (!*head_bytes) return fail(0, "the stream has no head record");
+    auto head = store::decode_head(**head_bytes);
+    if (!head) return fail(0, "the head cannot be read: " + head.error().message);
+
+    Rule rule(config->config);
+    Digest prev = store::genesis_hash(**config_bytes);
+    std::uint64_t expected = 1;
+    std::set<std::string> ids;
+    std::optional<VerifyReport> bad;
+    std::optional<Error> io_error;
+    auto s = store_->scan(store::record_prefix(stream), [&](std::string_view key, std::string_view value) {
+      const std::string step_text = "step " + std::to_string(expected);
+      if (key != store::record_key(stream, expected)) {
+        bad = fail(expected, "the record for " + step_text + " is missing (next stored key is " +
+                                 std::string(key) + ")");
+        return false;
+      }
+      auto rec = store::decode_record(value);
+      if (!rec) {
+        bad = fail(expected, "the record cannot be read: " + rec.error().message);
+        return false;
+      }
+      const DecisionRecord& r = rec->record;
+      if (r.step != expected) {
+        bad = fail(expected, "the record stored at " + step_text + " says step " + std::to_string(r.step) +
+                                 " (records were moved or reordered)");
+        return false;
+      }
+      if (store::recompute_record_hash(value) != rec->hash) {
+        bad = fail(expected, "the record's contents do not match its hash (the record was changed)");
+        return false;
+      }
+      if (rec->prev_hash != prev) {
+        if (expected == 1) {
+          bad = fail(1,
+                     "the first record does not link to the stream's configuration (the configuration "
+                     "or the first record was replaced)");
+        } else {
+          bad = fail(expected - 1, "the record does not match the hash stored in the record after it (step " +
+                                       std::to_string(expected - 1) + " was replaced)");
+        }
+        return false;
+      }
+      if (auto v = validate_p_value(r.p_value); !v) {
+        bad = fail(expected, "the stored " + v.error().message);
+        return false;
+      }
+      const Outcome o = rule.record(r.p_value);
+      if (!same_bits(o.level, r.level) || o.rejected != r.rejected || !same_bits(o.wealth, r.wealth)) {
+        bad = fail(expected, "replaying the rule gives level " + readable_number(o.level) + ", rejected " +
+                                 (o.rejected ? "1" : "0") + ", wealth " + readable_number(o.wealth) +
+                                 " but the record has level " + readable_number(r.level) + ", rejected " +
+                                 (r.rejected ? "1" : "0") + ", wealth " + readable_number(r.wealth));
+        return false;
+      }
+      auto index = store_->get(store::index_key(stream, r.id));
+      if (!index) {
+        io_error = index.error();
+        return false;
+      }
+      std::optional<std::uint64_t> indexed;
+      if (*index) {
+        if (auto st = store::decode_step(**index); st) indexed = *st;
+      }
+      if (!indexed || *indexed != expected) {
+        bad =
+            fail(expected, "the test id index for " + in_quotes(r.id) + " points to " +
+                               (indexed ? "step " + std::to_string(*indexed) : std::string("no valid step")) +
+                               (ids.count(r.id) ? " (the id appears twice in the history)" : ""));
+        return false;
+      }
+      ids.insert(r.id);
+      prev = rec->hash;
+      ++expected;
+      return true;
+    });
+    if (!s) return s.error();
+    if (io_error) return *io_error;
+    if (bad) return *bad;
+    const std::uint64_t steps = expected - 1;
+    report.steps = steps;
+    if (head->steps > steps) {
+      return fail(steps + 1, "the record for step " + std::to_string(steps + 1) +
+                                 " is missing (the head counts " + std::to_string(head->steps) + " records)");
+    }
+    if (head->steps < steps) {
+      return fail(head->steps + 1, "the history holds " + std::to_string(steps) +
+                                       " records but the head counts " + std::to_string(head->steps));
+    }
+    if (head->last_hash != prev) {
+      return fail(steps, steps == 0
+                             ? "the head does not link to the configuration"
+                             : "the last record does not match the hash in the head (it was replaced)");
+    }
+    if (head->rule_state != rule.encode_state()) {
+      return fail(steps, "the stored rule state does not equal the state replayed from the history");
+    }
+    std::optional<VerifyReport> index_bad;
+    s = store_->scan(store::index_prefix(stream), [&](std::string_view key, std::string_view) {
+      const std::string id(key.substr(store::index_prefix(stream).size()));
+      if (!ids.count(id)) {
+        index_bad = fail(0, "the test id index holds " + in_quotes(id) + ", which no record has");
+        return false;
+      }
+      return true;
+    });
+    if (!s) return s.error();
+    if (index_bad) return *index_bad;
+    report.chain_hash = store::to_hex(prev);
+    return report;
+  }
+
+  Result<std::string> chain_hash_at(std::string_view stream, std::uint64_t step) override {
+    auto info = status(stream);
+    if (!info) return info.error();
+    if (step < 1 || step > info->tests) {
+      return invalid_input("step must be between 1 and " + std::to_string(info->tests) +
+                           " (the records of stream " + in_quotes(stream) + "), got " + std::to_string(step));
+    }
+    auto bytes = store_->get(store::record_key(stream, step));
+    if (!bytes) return bytes.error();
+    if (!*bytes)
+      return storage_error("ledger " + location() + ": the record for step " + std::to_string(step) +
+                           " is missing");
+    auto rec = store::decode_record(**bytes);
+    if (!rec)
+      return storage_error("ledger " + location() + ": step " + std::to_string(step) + ": " +
+                           rec.error().message);
+    return store::to_hex(rec->hash);
+  }
+
+  Status check_format() {
+    auto v = store_->get(store::kFormatKey);
+    if (!v) return v.error();
+    if (!*v) {
+      bool has_data = false;
+      auto s = store_->scan("", [&](std::string_view, std::string_view) {
+        has_data = true;
+        return false;
+      });
+      if (!s) return s.error();
+      if (has_data) {
+        return storage_error("ledger " + location() + " holds data but no format version key " +
+                             std::string(store::kFormatKey) +
+                             ": it is not an alphaledger ledger, or it is corrupt");
+      }
+      WriteBatch batch;
+      batch.put(std::string(store::kFormatKey), store::encode_format_version(store::kFormatVersion));
+      return store_->write(batch, true);
+    }
+    auto version = store::decode_format_version(**v);
+    if (!version) return storage_error("ledger " + location() + " is corrupt: " + version.error().message);
+    if (*version > store::kFormatVersion) {
+      return storage_error("ledger " + location() + " has format version " + std::to_string(*version) +
+                           ", newer than this build of alphaledger reads (version " +
+                           std::to_string(store::kFormatVersion) + "); use a newer alphaledger");
+    }
+    if (*version != store::kFormatVersion) {
+      return storage_error("ledger " + location() + " has format version " + std::to_string(*version) +
+                           ", which this build does not read (it reads version " +
+                           std::to_string(store::kFormatVersion) + ")");
+    }
+    return {};
+  }
+
+ private:
+  std::shared_ptr<StreamSlot> slot_for(std::string_view name) {
+    std::lock_guard lock(slots_mu_);
+    auto it = slots_.find(name);
+    if (it == slots_.end()) it = slots_.emplace(std::string(name), std::make_shared<StreamSlot>()).first;
+    return it->second;
+  }
+
+  // REQUIRES: slot.mu held.
+  Status load(std::string_view name, StreamSlot& slot) {
+    if (slot.loaded) return {};
+    auto config_bytes = store_->get(store::config_key(name));
+    if (!config_bytes) return config_bytes.error();
+    if (!*config_bytes) {
+      slot.exists = false;
+      slot.loaded = true;
+      return {};
+    }
+    const std::string where = "ledger " + location() + ", stream " + in_quotes(name) + ": ";
+    auto config = store::decode_config(**config_bytes);
+    if (!config) return storage_error(where + config.error().message);
+    auto head_bytes = store_->get(store::head_key(name));
+    if (!head_bytes) return head_bytes.error();
+    if (!*head_bytes) return storage_error(where + "the head record is missing");
+    auto head = store::decode_head(**head_bytes);
+    if (!head) return storage_error(where + head.error().message);
+    Rule rule(config->config);
+    if (auto s = rule.restore_state(head->rule_state); !s) return storage_error(where + s.error().message);
+    if (rule.tests() != head->steps) {
+      return storage_error(where + "the rule state counts " + std::to_string(rule.tests()) +
+                           " tests but the head counts " + std::to_string(head->steps));
+    }
+    slot.config = std::move(*config);
+    slot.encoded_config = std::move(**config_bytes);
+    slot.rule.emplace(std::move(rule));
+    slot.head = std::move(*head);
+    slot.exists = true;
+    slot.loaded = true;
+    return {};
+  }
+
+  StreamInfo info_of(const StreamSlot& slot) const {
+    StreamInfo info;
+    info.name = slot.config.name;
+    info.config = slot.config.config;
+    info.alternative = slot.config.alternative;
+    info.created_at_ms = slot.config.created_at_ms;
+    info.tests = slot.rule->tests();
+    info.rejections = slot.rule->rejections();
+    info.wealth = slot.rule->wealth();
+    info.next_level = slot.rule->next_level();
+    return info;
+  }
+
+  // The stored decision for `id`, if any.
+  Result<std::optional<DecisionRecord>> find_decided(std::string_view stream, std::string_view id) {
+    auto index = store_->get(store::index_key(stream, id));
+    if (!index) return index.error();
+    if (!*index) return std::optional<DecisionRecord>{};
+    const std::string where =
+        "ledger " + location() + ", stream " + in_quotes(stream) + ", test " + in_quotes(id) + ": ";
+    auto step = store::decode_step(**index);
+    if (!step) return storage_error(where + step.error().message);
+    auto bytes = store_->get(store::record_key(stream, *step));
+    if (!bytes) return bytes.error();
+    if (!*bytes)
+      return storage_error(where + "the index points to step " + std::to_string(*step) +
+                           ", which has no record");
+    auto rec = store::decode_record(**bytes);
+    if (!rec) return storage_error(where + rec.error().message);
+    if (rec->record.id != id) return storage_error(where + "the index points to a record of another test");
+    return std::optional<DecisionRecord>{std::move(rec->record)};
+  }
+
+  Result<DecideResult> repeat_or_conflict(std::string_view stream, const DecisionRecord& prior,
+                                          double p_value) {
+    if (prior.p_value == p_value) return DecideResult{std::string(stream), prior, true};
+    return refused("test " + in_quotes(prior.id) + " was already decided in stream " + in_quotes(stream) +
+                   " at step " + std::to_string(prior.step) + " with p_value " +
+                   readable_number(prior.p_value) + "; a test id is decided once, so p_value " +
+                   readable_number(p_value) + " is refused");
+  }
+
+  // Decides one new test on `rule` / `head` and adds its record and index entry to `batch`.
+  DecideResult decide_into(std::string_view stream, Rule& rule, StoredHead& head, std::string id,
+                           double p_value, WriteBatch& batch) {
+    const Outcome o = rule.record(p_value);
+    DecisionRecord rec;
+    rec.step = o.step;
+    rec.id = std::move(id);
+    rec.p_value = p_value;
+    rec.level = o.level;
+    rec.rejected = o.rejected;
+    rec.wealth = o.wealth;
+    rec.decided_at_ms = clock_();
+    Digest hash{};
+    batch.put(store::record_key(stream, rec.step), store::encode_record(rec, head.last_hash, &hash));
+    batch.put(store::index_key(stream, rec.id), store::encode_step(rec.step));
+    head.steps = rec.step;
+    head.last_hash = hash;  // head.rule_state is filled when the batch is written
+    return DecideResult{std::string(stream), std::move(rec), false};
+  }
+
+  std::unique_ptr<Store> store_;
+  Clock clock_;
+  std::mutex slots_mu_;
+  std::map<std::string, std::shared_ptr<StreamSlot>, std::less<>> slots_;
+};
+
+}  // namespace
+
+Result<std::unique_ptr<Ledger>> Ledger::open(std::unique_ptr<Store> store, Clock clock) {
+  auto ledger =
+      std::make_unique<StoreLedger>(std::move(store), clock ? std::move(clock) : Clock(system_clock_ms));
+  if (auto s = ledger->check_format(); !s) return s.error();
+  return std::unique_ptr<Ledger>(std::move(ledger));
+}
+
+Result<std::unique_ptr<Ledger>> Ledger::open(const std::string& path, const RocksStoreOptions& options,
+                                             Clock clock) {
+  auto store = open_rocksdb_store(path, options);
+  if (!store) return store.error();
+  return open(std::move(*store), std::move(clock));
+}
+
+Result<std::unique_ptr<Ledger>> Ledger::open(const std::string& path, Clock clock) {
+  return open(path, RocksStoreOptions{}, std::move(clock));
+}
+
+}  // namespace alphaledger

@@ -1,0 +1,266 @@
+// The ledger commands as a user runs them: one process per command (CONTRACT.md "The ledger").
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <fstream>
+#include <map>
+#include <nlohmann/json.hpp>
+
+#include "ledger_process.hpp"
+
+using ledger_test::complete_lines;
+using ledger_test::run_alphaledger;
+using ledger_test::ScratchDir;
+
+namespace {
+
+// The p-value stream of methods.md section 14 and its LORD++ levels (14.3: Ramdas, Yang,
+// Wainwright & Jordan 2017, the LORD++ display, W0 = alpha/2, JM gamma), 10 significant digits.
+const std::vector<double> kStream = {0.0004, 0.0012, 0.36, 0.0009, 0.78, 0.0032, 0.17, 0.0011, 0.44, 0.0100};
+const std::vector<double> kLordLevels = {0.001370386057,  0.0016684017,   0.003292613799, 0.001060948593,
+                                         0.00363847711,   0.001351990812, 0.00115660396,  0.000989535854,
+                                         0.0008614799781, 0.0007620915508};
+const std::vector<bool> kLordRejected = {true, true, false, true, false, false, false, false, false, false};
+
+std::string num(double v) {
+  std::ostringstream s;
+  s.precision(17);
+  s << v;
+  return s.str();
+}
+
+std::vector<std::string> with_ledger(const std::string& ledger, std::vector<std::string> args) {
+  args.insert(args.begin(), {"--ledger", ledger});
+  return args;
+}
+
+}  // namespace
+
+// A session across separate processes; each level is checked against methods.md 14.3 (1e-9
+// relative) and each decision exactly; the history replayed by `replay` gives the same rows bit
+// for bit (issue 3 item 2).
+TEST_CASE("LedgerCli: a stream decided one test per process matches methods.md 14.3 and replay") {
+  ScratchDir dir;
+  const std::string db = dir.sub("ledger");
+  auto created = run_alphaledger(with_ledger(db, {"new", "checkout", "--rule", "lord++"}));
+  REQUIRE(created.exit_code == 0);
+  CHECK(created.out.find("created stream checkout") != std::string::npos);
+  auto again = run_alphaledger(with_ledger(db, {"new", "checkout", "--rule", "lord++", "--alpha", "0.05"}));
+  CHECK(again.exit_code == 0);
+  CHECK(again.out.find("nothing changed") != std::string::npos);
+
+  for (std::size_t i = 0; i < kStream.size(); ++i) {
+    CAPTURE(i + 1);
+    auto next = run_alphaledger(with_ledger(db, {"--json", "next", "checkout"}));
+    REQUIRE(next.exit_code == 0);
+    auto d = run_alphaledger(with_ledger(db, {"--json", "decide", "checkout", "--id",
+                                              "exp-" + std::to_string(i + 1), "--p", num(kStream[i])}));
+    REQUIRE(d.exit_code == 0);
+    auto j = nlohmann::json::parse(d.out);
+    CHECK(j["step"] == i + 1);
+    CHECK(j["stream"] == "checkout");
+    CHECK(j["repeat"] == false);
+    CHECK(j["rejected"] == (kLordRejected[i] ? 1 : 0));
+    const double level = j["level"].get<double>();
+    CHECK(std::abs(level - kLordLevels[i]) <= 1e-9 * kLordLevels[i]);
+    CHECK(nlohmann::json::parse(next.out)["level"].get<double>() == level);  // next promised this level
+  }
+  // Text output marks a rejection visibly.
+  auto text = run_alphaledger(with_ledger(db, {"decide", "checkout", "--id", "exp-1", "--p", "0.0004"}));
+  CHECK(text.exit_code == 0);
+  CHECK(text.out.find("REJECTED") != std::string::npos);
+  CHECK(text.out.find("repeat") != std::string::npos);
+
+  auto history = run_alphaledger(with_ledger(db, {"history", "checkout"}));
+  REQUIRE(history.exit_code == 0);
+  const std::string history_file = dir.write("history.csv", history.out);
+  auto replayed = run_alphaledger({"replay", history_file, "--rules", "lord++"});
+  REQUIRE(replayed.exit_code == 0);
+  auto h = complete_lines(history.out);
+  auto r = complete_lines(replayed.out);
+  REQUIRE(h.size() == 11);
+  REQUIRE(r.size() == 11);
+  CHECK(h[0] == "rule,step,id,p_value,level,rejected,wealth,decided_at");
+  for (std::size_t i = 1; i < h.size(); ++i) {
+    CAPTURE(h[i]);
+    CHECK(h[i].substr(0, h[i].rfind(',')) == r[i]);  // identical text: identical doubles
+  }
+
+  auto status = run_alphaledger(with_ledger(db, {"--json", "status", "checkout"}));
+  REQUIRE(status.exit_code == 0);
+  auto s = nlohmann::json::parse(status.out);
+  CHECK(s["tests"] == 10);
+  CHECK(s["rejections"] == 3);
+  CHECK(s["rule"] == "lord++");
+  auto streams = run_alphaledger(with_ledger(db, {"streams"}));
+  CHECK(streams.exit_code == 0);
+  CHECK(complete_lines(streams.out).size() == 1);
+  auto verify = run_alphaledger(with_ledger(db, {"verify", "checkout"}));
+  CHECK(verify.exit_code == 0);
+  CHECK(verify.out.find("10 records") != std::string::npos);
+  auto at = run_alphaledger(with_ledger(db, {"--json", "verify", "checkout", "--at-step", "10"}));
+  REQUIRE(at.exit_code == 0);
+  auto vj = nlohmann::json::parse(at.out);
+  CHECK(vj["ok"] == true);
+  CHECK(vj["chain_hash_at_step"] == vj["chain_hash"]);  // step 10 is the last record
+  CHECK(vj["chain_hash"].get<std::string>().size() == 64);
+}
+
+// CONTRACT.md exit codes: 3 for refusals (conflict, unknown stream, other configuration), 2 for
+// invalid input, each with a message on stderr; the history is unchanged after every failure.
+TEST_CASE("LedgerCli: refusals and bad input give the contract's exit codes and change nothing") {
+  ScratchDir dir;
+  const std::string db = dir.sub("ledger");
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "saffron"})).exit_code == 0);
+  REQUIRE(run_alphaledger(with_ledger(db, {"decide", "s", "--id", "a", "--p", "0.01"})).exit_code == 0);
+  const std::string before = run_alphaledger(with_ledger(db, {"history", "s"})).out;
+
+  struct Case {
+    std::vector<std::string> args;
+    int code;
+    std::string says;
+  };
+  const std::vector<Case> cases = {
+      {{"--json", "decide", "s", "--id", "a", "--p", "0.02"}, 3, "already decided"},
+      {{"decide", "nope", "--id", "b", "--p", "0.02"}, 3, "no stream named 'nope'"},
+      {{"new", "s", "--rule", "saffron", "--candidate-threshold", "0.4"}, 3, "another configuration"},
+      {{"new", "t", "--rule", "lord++", "--payout", "0.01"}, 2, "payout"},
+      {{"new", "a/b", "--rule", "lord++"}, 2, "stream name"},
+      {{"decide", "s", "--id", "b", "--p", "1.3"}, 2, "[0, 1], got 1.3"},
+      {{"decide", "s", "--id", "b", "--p", "abc"}, 2, "p_value"},
+      {{"decide", "s", "--id", "", "--p", "0.3"}, 2, "id must not be empty"},
+      {{"decide", "s", "--id", std::string(257, 'x'), "--p", "0.3"}, 2, "at most 256 bytes"},
+      {{"decide", "s", "--id", "bad\tid", "--p", "0.3"}, 2, "control characters"},
+      {{"decide", "s", "--id", "b"}, 2, "--p"},
+      {{"decide", "s", "--id", "b", "--p", "0.3", "--file", "x.csv"}, 2, "not both"},
+      {{"verify", "nope"}, 3, "no stream"},
+  };
+  for (const auto& c : cases) {
+    CAPTURE(c.args.size() > 1 ? c.args[1] : c.args[0]);
+    CAPTURE(c.says);
+    auto r = run_alphaledger(with_ledger(db, c.args));
+    CHECK(r.exit_code == c.code);
+    CHECK(r.err.find("alphaledger: error: ") != std::string::npos);
+    CHECK(r.err.find(c.says) != std::string::npos);
+    CHECK(r.out.empty());
+  }
+  CHECK(run_alphaledger(with_ledger(db, {"history", "s"})).out == before);
+  CHECK(complete_lines(run_alphaledger(with_ledger(db, {"streams"})).out).size() == 1);
+
+  // A read-only command on a folder with no ledger: refused, and no folder is created.
+  auto missing = run_alphaledger(with_ledger(dir.sub("absent"), {"status", "s"}));
+  CHECK(missing.exit_code == 3);
+  CHECK(missing.err.find("no ledger at") != std::string::npos);
+  CHECK_FALSE(std::filesystem::exists(dir.sub("absent")));
+}
+
+// decide --file: a bad row (exit 2, file:line) or a conflicting row (exit 3, file:line) refuses
+// the whole file and nothing is decided; a good file prints replay's rows; running it again
+// repeats every decision (idempotence makes it resumable).
+TEST_CASE("LedgerCli: decide --file refuses a bad file whole and resumes a good one") {
+  ScratchDir dir;
+  const std::string db = dir.sub("ledger");
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lord++"})).exit_code == 0);
+  REQUIRE(run_alphaledger(with_ledger(db, {"decide", "s", "--id", "e3", "--p", "0.36"})).exit_code == 0);
+  const std::string before = run_alphaledger(with_ledger(db, {"history", "s"})).out;
+
+  const std::string bad_p = dir.write("bad.csv", "id,p_value\ne1,0.0004\ne2,1.5\n");
+  auto r1 = run_alphaledger(with_ledger(db, {"decide", "s", "--file", bad_p}));
+  CHECK(r1.exit_code == 2);
+  CHECK(r1.err.find("bad.csv:3") != std::string::npos);
+  const std::string conflict =
+      dir.write("conflict.jsonl", "{\"id\":\"e1\",\"p_value\":0.0004}\n{\"id\":\"e3\",\"p_value\":0.5}\n");
+  auto r2 = run_alphaledger(with_ledger(db, {"decide", "s", "--file", conflict}));
+  CHECK(r2.exit_code == 3);
+  CHECK(r2.err.find("conflict.jsonl:2") != std::string::npos);
+  CHECK(run_alphaledger(with_ledger(db, {"history", "s"})).out == before);
+
+  const std::string good = dir.write("good.csv",
+                                     "id,p_value,finished_at\ne1,0.0004,2025-03-01\ne2,0.0012,2025-03-02\n"
+                                     "e3,0.36,2025-02-28\ne4,0.0009,2025-03-03\n");
+  auto r3 = run_alphaledger(with_ledger(db, {"decide", "s", "--file", good, "--sync-every", "2"}));
+  REQUIRE(r3.exit_code == 0);
+  auto lines = complete_lines(r3.out);
+  REQUIRE(lines.size() == 5);
+  CHECK(lines[0] == "rule,step,id,p_value,level,rejected,wealth");
+  CHECK(lines[1].rfind("lord++,1,e3,", 0) == 0);  // ordered by finished_at; e3 was step 1
+  CHECK(lines[2].rfind("lord++,2,e1,", 0) == 0);
+  auto r4 = run_alphaledger(with_ledger(db, {"--json", "decide", "s", "--file", good}));
+  REQUIRE(r4.exit_code == 0);
+  for (const auto& line : complete_lines(r4.out)) CHECK(nlohmann::json::parse(line)["repeat"] == true);
+  CHECK(complete_lines(run_alphaledger(with_ledger(db, {"history", "s"})).out).size() == 5);
+}
+
+// Issue 3 item 5: a ledger held by another process gets exit 4 and a message naming the lock
+// file and the holder. RocksDB 7.8.3 locks <ledger>/LOCK with fcntl(F_SETLK) (checked by running
+// it: its error reads "While lock file: .../LOCK: Resource temporarily unavailable"); this test
+// holds that lock itself, so the holder is this test process.
+TEST_CASE("LedgerCli: a ledger locked by another process gives exit 4 naming the holder") {
+  ScratchDir dir;
+  const std::string db = dir.sub("ledger");
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lond"})).exit_code == 0);
+  const int fd = ::open((db + "/LOCK").c_str(), O_RDWR | O_CLOEXEC);
+  REQUIRE(fd >= 0);
+  struct flock fl {};
+  fl.l_type = F_WRLCK;
+  fl.l_whence = SEEK_SET;
+  REQUIRE(::fcntl(fd, F_SETLK, &fl) == 0);
+  auto r = run_alphaledger(with_ledger(db, {"decide", "s", "--id", "a", "--p", "0.001"}));
+  ::close(fd);  // releases the lock
+  CHECK(r.exit_code == 4);
+  CHECK(r.err.find(db + "/LOCK") != std::string::npos);
+  CHECK(r.err.find("process " + std::to_string(::getpid())) != std::string::npos);
+  CHECK(r.out.empty());
+  auto status = run_alphaledger(with_ledger(db, {"--json", "status", "s"}));
+  REQUIRE(status.exit_code == 0);
+  CHECK(nlohmann::json::parse(status.out)["tests"] == 0);
+}
+
+// A stream created with --alternative decides summary rows (docs/formats.md "Summary columns") in
+// that direction. Reference p-values: tests/data/ledger_summary_reference.csv, written by
+// make_ledger_summary_reference.py with SciPy 1.10.1 (pooled two-proportion z-test,
+// scipy.stats.norm.sf / cdf); 1e-12 relative.
+TEST_CASE("LedgerCli: a stream's direction applies to the summary rows it decides") {
+  std::ifstream ref(std::string(ALPHALEDGER_TEST_DATA) + "/ledger_summary_reference.csv");
+  REQUIRE(ref.good());
+  std::string line;
+  std::string input = "id,control_n,control_conversions,treatment_n,treatment_conversions\n";
+  std::map<std::string, std::map<std::string, double>> expected;  // id -> direction -> p
+  while (std::getline(ref, line)) {
+    if (line.empty() || line[0] == '#' || line.rfind("id,", 0) == 0) continue;
+    const auto f = ledger_test::split_csv_simple(line);
+    REQUIRE(f.size() == 8);
+    input += f[0] + "," + f[1] + "," + f[2] + "," + f[3] + "," + f[4] + "\n";
+    expected[f[0]] = {
+        {"two-sided", std::stod(f[5])}, {"greater", std::stod(f[6])}, {"less", std::stod(f[7])}};
+  }
+  REQUIRE(expected.size() == 3);
+  ScratchDir dir;
+  const std::string db = dir.sub("ledger");
+  const std::string file = dir.write("summaries.csv", input);
+  for (const std::string direction : {"two-sided", "greater", "less"}) {
+    CAPTURE(direction);
+    const std::string stream = "s-" + direction;
+    REQUIRE(run_alphaledger(with_ledger(db, {"new", stream, "--rule", "lord++", "--alternative", direction}))
+                .exit_code == 0);
+    auto status = run_alphaledger(with_ledger(db, {"--json", "status", stream}));
+    auto sj = nlohmann::json::parse(status.out);
+    if (direction == "two-sided") {
+      CHECK_FALSE(sj.contains("alternative"));  // shown only when it is not the default
+    } else {
+      CHECK(sj["alternative"] == direction);
+    }
+    auto r = run_alphaledger(with_ledger(db, {"--json", "decide", stream, "--file", file}));
+    REQUIRE(r.exit_code == 0);
+    const auto lines = complete_lines(r.out);
+    REQUIRE(lines.size() == 3);
+    for (const auto& l : lines) {
+      auto j = nlohmann::json::parse(l);
+      const double want = expected[j["id"].get<std::string>()][direction];
+      CHECK(std::abs(j["p_value"].get<double>() - want) <= 1e-12 * want);
+    }
+  }
+  auto bad = run_alphaledger(with_ledger(db, {"new", "x", "--rule", "lord++", "--alternative", "sideways"}));
+  CHECK(bad.exit_code == 2);
+  CHECK(bad.err.find("--alternative") != std::string::npos);
+}
