@@ -13,3 +13,12 @@ bin=build/alphaledger
 log=replay_data/larkspur_experiments.csv
 echo "\$ alphaledger replay $log --rules lord++,saffron,addis,lond,alpha-investing,alpha-spending,bh --summary"
 "$bin" replay "$log" --rules lord++,saffron,addis,lond,alpha-investing,alpha-spending,bh --summary
+echo
+echo "\$ alphaledger new larkspur-demo --rule saffron"
+"$bin" new larkspur-demo --rule saffron
+echo "\$ alphaledger decide larkspur-demo --file $log | tail -n 3"
+"$bin" decide larkspur-demo --file "$log" | tail -n 3
+echo "\$ alphaledger status larkspur-demo"
+"$bin" status larkspur-demo
+echo "\$ alphaledger verify larkspur-demo"
+"$bin" verify larkspur-demo
