@@ -7,7 +7,8 @@
 //   auto ledger = Ledger::open("alphaledger.db");
 //   auto summary = run_pipe(**ledger, "checkout-team", /*in_fd=*/0, std::cout, /*stop_fd=*/-1);
 //   // stdin  {"id": "exp-0142", "p_value": 0.0004}
-//   // stdout {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860570381,...}
+//   // stdout {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860574...,...}
+//   //        (the decision_json() of ledger.hpp, the same line `decide --json` prints)
 //
 // Example (HTTP):
 //   HttpOptions options;                      // 127.0.0.1:8742, no token
@@ -38,18 +39,13 @@
 
 namespace alphaledger {
 
-// ---- JSON forms shared by `decide --json`, `pipe` and the HTTP routes ------------------------
+// ---- JSON forms (decisions themselves use decision_json() from ledger.hpp) -------------------
 
-// ISO 8601 UTC with milliseconds, e.g. "2025-03-14T09:30:00.123Z".
-std::string format_time_ms(std::int64_t ms_since_epoch);
-
-// {"step","id","p_value","level","rejected","wealth","stream","decided_at","repeat"}: the object
-// `decide --json` prints. Numbers are shortest round-trip doubles.
-nlohmann::ordered_json decision_to_json(const DecideResult& d);
-// One history row: replay's keys plus "decided_at" (no "stream"/"repeat").
-nlohmann::ordered_json history_row_to_json(const DecisionRecord& r);
-// A stream's status: name, rule, the parameters the rule takes, tests, rejections, wealth,
-// next_level, created_at.
+// One history row, the line `history --format jsonl` prints: {"rule","step","id","p_value",
+// "level","rejected" (1/0),"wealth","decided_at"}.
+nlohmann::ordered_json history_row_to_json(const DecisionRecord& r, std::string_view rule);
+// A stream's status, the object `status --json` prints: stream, rule, the parameters the rule
+// takes, created_at, tests, rejections, wealth, next_level.
 nlohmann::ordered_json stream_to_json(const StreamInfo& s);
 
 // Text of any JSON value, with invalid UTF-8 replaced (never throws).
@@ -101,16 +97,16 @@ class DecisionQueue {
 // ---- pipe --------------------------------------------------------------------------------------
 
 struct PipeSummary {
-  std::uint64_t lines = 0;      // lines answered
-  std::uint64_t decided = 0;    // new decisions
-  std::uint64_t repeats = 0;    // retries answered with the stored decision
-  std::uint64_t bad = 0;        // lines answered with {"line": N, "error": "..."}
-  bool stopped = false;         // stopped by stop_fd before the end of input
+  std::uint64_t lines = 0;    // lines answered
+  std::uint64_t decided = 0;  // new decisions
+  std::uint64_t repeats = 0;  // retries answered with the stored decision
+  std::uint64_t bad = 0;      // lines answered with {"line": N, "error": "..."}
+  bool stopped = false;       // stopped by stop_fd before the end of input
 };
 
 // Reads JSON Lines from `in_fd` until end of input (or until `stop_fd`, if >= 0, becomes
 // readable), and writes one line per input line to `out`, flushed per line, in input order:
-// the decision object (decision_to_json) or {"line": N, "error": "..."}. Lines are counted from
+// the decision object (decision_json) or {"line": N, "error": "..."}. Lines are counted from
 // 1; every line is answered, a blank one too. Lines that arrive together are decided with one
 // synced write per group; each answer is written only after its decision is durable.
 // On stop, every complete line already read is answered; a line without its newline yet is not.
@@ -125,8 +121,8 @@ Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd,
 // ---- serve -------------------------------------------------------------------------------------
 
 struct ListenAddress {
-  std::string host;   // IPv4 dotted quad or "localhost"
-  int port = 0;       // 0: any free port (see HttpService::bind)
+  std::string host;  // IPv4 dotted quad or "localhost"
+  int port = 0;      // 0: any free port (see HttpService::bind)
 };
 // "HOST:PORT" (or ":PORT" for 127.0.0.1). Errors name the text and the accepted form.
 Result<ListenAddress> parse_listen_address(std::string_view text);
@@ -138,7 +134,7 @@ Result<std::string> read_token_file(const std::string& path);
 
 // One line of the access log (written by the caller, e.g. as JSON on stderr).
 struct AccessLogEntry {
-  std::string remote;        // "127.0.0.1:53122"
+  std::string remote;  // "127.0.0.1:53122"
   std::string method;
   std::string path;
   int status = 0;
@@ -147,12 +143,12 @@ struct AccessLogEntry {
 };
 
 struct HttpOptions {
-  ListenAddress listen{"127.0.0.1", 8742};   // Default: 127.0.0.1:8742
-  std::optional<std::string> token;          // Default: none (no authentication)
-  std::size_t max_body_bytes = 65536;        // Default: 64 KiB; larger bodies get 413
-  int io_timeout_seconds = 10;               // Default: 10 (read and write timeouts per request)
-  int keep_alive_seconds = 5;                // Default: 5 (idle keep-alive connections close)
-  std::size_t threads = 32;                  // Default: 32 worker threads (one per open connection)
+  ListenAddress listen{"127.0.0.1", 8742};  // Default: 127.0.0.1:8742
+  std::optional<std::string> token;         // Default: none (no authentication)
+  std::size_t max_body_bytes = 65536;       // Default: 64 KiB; larger bodies get 413
+  int io_timeout_seconds = 10;              // Default: 10 (read and write timeouts per request)
+  int keep_alive_seconds = 5;               // Default: 5 (idle keep-alive connections close)
+  std::size_t threads = 32;                 // Default: 32 worker threads (one per open connection)
   std::function<void(const AccessLogEntry&)> access_log;  // Default: none
 };
 
@@ -175,18 +171,23 @@ class HttpService {
 
 // ---- signals -----------------------------------------------------------------------------------
 
-// SIGTERM and SIGINT as a readable file descriptor (self-pipe), for loops that poll(). While an
-// object exists the two signals no longer end the process; its destructor restores the previous
-// handlers. Only one may exist at a time (returns kStorage otherwise). Also ignores SIGPIPE, so a
-// closed reader shows up as a write error.
+// SIGTERM and SIGINT as a readable file descriptor, for loops that poll(). install() blocks the
+// two signals and watches them with a signalfd, so no handler runs on an arbitrary thread; the fd
+// becomes readable when one arrives. While the object exists the signals no longer end the
+// process; the destructor takes any still pending and restores the previous mask. Also ignores
+// SIGPIPE, so a closed reader shows up as a write error. Only one may exist at a time (kStorage
+// otherwise). REQUIRES: install() is called before the process starts other threads (threads
+// inherit the mask from their creator; one started earlier could still be ended by the signal).
 class StopSignals {
  public:
   static Result<std::unique_ptr<StopSignals>> install();
   ~StopSignals();
   StopSignals(const StopSignals&) = delete;
   StopSignals& operator=(const StopSignals&) = delete;
-  int fd() const { return read_fd_; }   // becomes readable on the first SIGTERM/SIGINT
-  int signal_number() const;            // the signal received, or 0
+  int fd() const { return read_fd_; }  // becomes readable on the first SIGTERM/SIGINT
+  // The signal received (SIGTERM or SIGINT), or 0 while none has arrived. Reading it takes the
+  // signal from the fd.
+  int signal_number() const;
 
  private:
   StopSignals() = default;

@@ -1,0 +1,162 @@
+// Deciding tests in arrival order with group commit (pipe) and across concurrent callers (HTTP).
+#include <algorithm>
+#include <condition_variable>
+#include <deque>
+#include <unordered_set>
+
+#include "alphaledger/service.hpp"
+
+namespace alphaledger {
+
+std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger, std::string_view stream,
+                                                                 const std::vector<TestInput>& tests,
+                                                                 std::size_t max_group) {
+  std::vector<std::optional<Result<DecideResult>>> out(tests.size());
+  if (max_group == 0) max_group = 1;
+  // Returns false after a storage failure: nothing more is tried.
+  auto decide_one = [&](std::size_t k) {
+    out[k] = ledger.decide(stream, tests[k].id, tests[k].p_value);
+    return out[k]->ok() || out[k]->error().kind != ErrorKind::kStorage;
+  };
+  // Inputs not yet answered, in arrival order.
+  std::deque<std::size_t> pending;
+  for (std::size_t k = 0; k < tests.size(); ++k) pending.push_back(k);
+  while (!pending.empty()) {
+    // The longest run of pending inputs without a repeated id: a retry inside one batch must see
+    // the first decision, so it waits for the next batch.
+    std::vector<std::size_t> group;
+    std::unordered_set<std::string_view> ids;
+    for (std::size_t k : pending) {
+      if (group.size() == max_group || !ids.insert(tests[k].id).second) break;
+      group.push_back(k);
+    }
+    if (group.size() == 1) {
+      pending.pop_front();
+      if (!decide_one(group[0])) return out;
+      continue;
+    }
+    std::vector<TestInput> inputs;
+    inputs.reserve(group.size());
+    for (std::size_t k : group) inputs.push_back(tests[k]);
+    auto batch = ledger.decide_batch(stream, inputs, inputs.size());
+    if (!batch) {
+      // The whole batch failed before deciding anything (e.g. one invalid input): decide one by
+      // one so that only the guilty input is answered with the error.
+      for (std::size_t k : group) {
+        pending.pop_front();
+        if (!decide_one(k)) return out;
+      }
+      continue;
+    }
+    // Decided inputs (a prefix of the group) are answered; the ledger may also have refused one
+    // input (a conflict), which decides nothing and so does not depend on its neighbours: it is
+    // answered with the error and the rest of the group is batched again.
+    const std::size_t done = std::min(batch->decided.size(), group.size());
+    for (std::size_t k = 0; k < done; ++k) out[group[k]] = std::move(batch->decided[k]);
+    std::optional<std::size_t> refused_at;
+    if (batch->error) {
+      if (batch->stopped_at < done || batch->stopped_at >= group.size()) {
+        // Outside the contract; fall back to one by one for the undecided rest.
+        for (std::size_t k = 0; k < done; ++k) pending.pop_front();
+        for (std::size_t k = done; k < group.size(); ++k) {
+          pending.pop_front();
+          if (!decide_one(group[k])) return out;
+        }
+        continue;
+      }
+      refused_at = batch->stopped_at;
+      out[group[*refused_at]] = *batch->error;
+      if (batch->error->kind == ErrorKind::kStorage) return out;
+    } else if (done < group.size()) {
+      // Outside the contract (no error, yet not everything decided): one by one.
+      for (std::size_t k = 0; k < group.size(); ++k) pending.pop_front();
+      for (std::size_t k = done; k < group.size(); ++k) {
+        if (!decide_one(group[k])) return out;
+      }
+      continue;
+    }
+    // Drop the answered inputs from the front part of `pending` that this group came from.
+    std::deque<std::size_t> rest;
+    for (std::size_t k = 0; k < group.size(); ++k) {
+      const bool answered = k < done || (refused_at && k == *refused_at);
+      if (!answered) rest.push_back(group[k]);
+    }
+    for (std::size_t k = 0; k < group.size(); ++k) pending.pop_front();
+    pending.insert(pending.begin(), rest.begin(), rest.end());
+  }
+  return out;
+}
+
+struct DecisionQueue::Lane {
+  struct Pending {
+    const std::string* id;
+    double p_value;
+    std::optional<Result<DecideResult>> result;
+  };
+  std::mutex mutex;
+  std::condition_variable done;
+  std::deque<Pending*> waiting;
+  bool busy = false;
+};
+
+DecisionQueue::DecisionQueue(Ledger& ledger, std::size_t max_group)
+    : ledger_(ledger), max_group_(max_group == 0 ? 1 : max_group) {}
+
+DecisionQueue::~DecisionQueue() = default;
+
+DecisionQueue::Lane& DecisionQueue::lane(const std::string& stream) {
+  std::lock_guard<std::mutex> lock(lanes_mutex_);
+  auto& slot = lanes_[stream];
+  if (!slot) slot = std::make_unique<Lane>();
+  return *slot;
+}
+
+Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std::string& id, double p_value) {
+  Lane& lane = this->lane(stream);
+  Lane::Pending me{&id, p_value, std::nullopt};
+  std::unique_lock<std::mutex> lock(lane.mutex);
+  lane.waiting.push_back(&me);
+  while (!me.result) {
+    if (lane.busy) {
+      lane.done.wait(lock);
+      continue;
+    }
+    // This thread decides everything queued so far (up to max_group), in arrival order.
+    lane.busy = true;
+    std::vector<Lane::Pending*> group;
+    while (!lane.waiting.empty() && group.size() < max_group_) {
+      group.push_back(lane.waiting.front());
+      lane.waiting.pop_front();
+    }
+    lock.unlock();
+    std::vector<TestInput> inputs;
+    inputs.reserve(group.size());
+    for (const auto* p : group) inputs.push_back({*p->id, p->p_value});
+    std::vector<std::optional<Result<DecideResult>>> results;
+    try {
+      results = decide_in_order(ledger_, stream, inputs, max_group_);
+    } catch (const std::exception& e) {
+      results.assign(group.size(), std::nullopt);
+      results[0].emplace(storage_error(std::string("unexpected failure while deciding: ") + e.what()));
+    }
+    lock.lock();
+    std::optional<Error> storage_failure;
+    for (std::size_t k = 0; k < group.size(); ++k) {
+      if (results[k]) {
+        if (!results[k]->ok() && results[k]->error().kind == ErrorKind::kStorage)
+          storage_failure = results[k]->error();
+        group[k]->result = std::move(results[k]);
+      } else {
+        // Not attempted after a storage failure: not decided, and the caller is told so.
+        group[k]->result = Result<DecideResult>(
+            storage_failure ? *storage_failure
+                            : storage_error("not decided: the ledger failed earlier in the same group"));
+      }
+    }
+    lane.busy = false;
+    lane.done.notify_all();
+  }
+  return std::move(*me.result);
+}
+
+}  // namespace alphaledger

@@ -1,0 +1,194 @@
+// alphaledger pipe: JSON Lines in, one answer per line out (docs/http.md, "pipe").
+#include <poll.h>
+#include <unistd.h>
+
+#include <cerrno>
+#include <cstring>
+
+#include "alphaledger/service.hpp"
+
+namespace alphaledger {
+namespace {
+
+// One input line, parsed or refused.
+struct LineWork {
+  std::uint64_t line = 0;
+  std::optional<TestInput> input;  // set when the line is a valid test
+  std::string error;               // otherwise, why not
+};
+
+std::string trim_ws(std::string_view s) {
+  while (!s.empty() && (s.front() == ' ' || s.front() == '\t' || s.front() == '\r')) s.remove_prefix(1);
+  while (!s.empty() && (s.back() == ' ' || s.back() == '\t' || s.back() == '\r')) s.remove_suffix(1);
+  return std::string(s);
+}
+
+LineWork parse_line(std::uint64_t line_no, std::string_view text) {
+  LineWork w;
+  w.line = line_no;
+  const std::string t = trim_ws(text);
+  if (t.empty()) {
+    w.error = "empty line; each line must be one JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}";
+    return w;
+  }
+  nlohmann::json j = nlohmann::json::parse(t, nullptr, /*allow_exceptions=*/false);
+  if (j.is_discarded() || !j.is_object()) {
+    w.error = "not a JSON object; each line must be one object such as {\"id\": \"t1\", \"p_value\": 0.01}";
+    return w;
+  }
+  auto input = test_from_json(j);
+  if (!input) {
+    w.error = input.error().message;
+    return w;
+  }
+  w.input = std::move(input).value();
+  return w;
+}
+
+LineWork too_long(std::uint64_t line_no) {
+  LineWork w;
+  w.line = line_no;
+  w.error =
+      "line longer than " + std::to_string(kMaxPipeLineBytes) + " bytes; each line must be one JSON object";
+  return w;
+}
+
+std::string error_line(std::uint64_t line, const std::string& message) {
+  nlohmann::ordered_json j;
+  j["line"] = line;
+  j["error"] = message;
+  return dump_json(j);
+}
+
+class PipeRun {
+ public:
+  PipeRun(Ledger& ledger, std::string_view stream, std::ostream& out)
+      : ledger_(ledger), stream_(stream), out_(out) {}
+
+  // Decides and answers a group of complete lines. Returns an error on storage failure or when
+  // the output cannot be written.
+  Status answer(std::vector<LineWork>& work) {
+    std::vector<TestInput> inputs;
+    for (const auto& w : work) {
+      if (w.input) inputs.push_back(*w.input);
+    }
+    auto results = decide_in_order(ledger_, stream_, inputs);
+    std::size_t next_input = 0;
+    for (std::size_t k = 0; k < work.size(); ++k) {
+      std::string text;
+      std::optional<Error> fatal;
+      if (!work[k].input) {
+        text = error_line(work[k].line, work[k].error);
+        ++summary_.bad;
+      } else {
+        auto& r = results[next_input++];
+        if (!r) break;  // not attempted after a storage failure: stop without answering
+        if (r->ok()) {
+          text = decision_json(r->value());
+          if (r->value().repeat)
+            ++summary_.repeats;
+          else
+            ++summary_.decided;
+        } else {
+          text = error_line(work[k].line, r->error().message);
+          ++summary_.bad;
+          if (r->error().kind == ErrorKind::kStorage) fatal = r->error();
+        }
+      }
+      out_ << text << '\n';
+      out_.flush();
+      if (!out_)
+        return storage_error("cannot write the answer to line " + std::to_string(work[k].line) +
+                             " to the output");
+      ++summary_.lines;
+      if (fatal) return storage_error("line " + std::to_string(work[k].line) + ": " + fatal->message);
+    }
+    return {};
+  }
+
+  PipeSummary summary_;
+
+ private:
+  Ledger& ledger_;
+  std::string stream_;
+  std::ostream& out_;
+};
+
+}  // namespace
+
+Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd, std::ostream& out,
+                             int stop_fd) {
+  if (auto s = ledger.status(stream); !s) return s.error();
+  PipeRun run(ledger, stream, out);
+  std::string buffer;  // bytes read but not yet split into lines
+  std::uint64_t line_no = 0;
+  bool skipping_long = false;  // inside a line already answered as too long
+  bool eof = false;
+  char chunk[65536];
+  while (!eof) {
+    pollfd fds[2] = {{in_fd, POLLIN, 0}, {stop_fd, POLLIN, 0}};
+    const nfds_t n = stop_fd >= 0 ? 2 : 1;
+    const int ready = ::poll(fds, n, -1);
+    if (ready < 0) {
+      if (errno == EINTR) continue;
+      return storage_error(std::string("cannot wait for input: ") + std::strerror(errno));
+    }
+    // Once asked to stop, nothing more is read: the complete lines already read are answered.
+    const bool stop = n == 2 && (fds[1].revents & POLLIN) != 0;
+    if (!stop && (fds[0].revents & (POLLIN | POLLHUP | POLLERR)) != 0) {
+      const ssize_t got = ::read(in_fd, chunk, sizeof chunk);
+      if (got < 0) {
+        if (errno != EINTR && errno != EAGAIN)
+          return storage_error(std::string("cannot read the input: ") + std::strerror(errno));
+      } else if (got == 0) {
+        eof = true;
+      } else {
+        buffer.append(chunk, static_cast<std::size_t>(got));
+      }
+    }
+    if (!stop && (fds[0].revents & POLLNVAL) != 0)
+      return storage_error("cannot read the input: not an open file descriptor");
+    // Split off every complete line (and, at the end of input, the last unterminated one).
+    std::vector<LineWork> work;
+    std::size_t start = 0;
+    while (true) {
+      const std::size_t nl = buffer.find('\n', start);
+      if (nl == std::string::npos) break;
+      if (skipping_long) {
+        skipping_long = false;  // the rest of an over-long line: already answered
+      } else {
+        ++line_no;
+        if (nl - start > kMaxPipeLineBytes) {
+          work.push_back(too_long(line_no));
+        } else {
+          work.push_back(parse_line(line_no, std::string_view(buffer).substr(start, nl - start)));
+        }
+      }
+      start = nl + 1;
+    }
+    buffer.erase(0, start);
+    if (!skipping_long && buffer.size() > kMaxPipeLineBytes) {
+      ++line_no;
+      work.push_back(too_long(line_no));
+      skipping_long = true;
+      buffer.clear();
+    } else if (skipping_long) {
+      buffer.clear();
+    }
+    if (eof && !buffer.empty() && !skipping_long) {
+      ++line_no;
+      work.push_back(parse_line(line_no, buffer));
+      buffer.clear();
+    }
+    if (!work.empty()) {
+      if (auto s = run.answer(work); !s) return s.error();
+    }
+    if (stop) {
+      run.summary_.stopped = true;
+      break;
+    }
+  }
+  return run.summary_;
+}
+
+}  // namespace alphaledger

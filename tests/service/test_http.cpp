@@ -1,0 +1,541 @@
+// `alphaledger serve`: the real binary on a free loopback port, driven by httplib clients.
+#include <doctest/doctest.h>
+#include <httplib.h>
+#include <netinet/in.h>
+#include <sys/socket.h>
+
+#include <atomic>
+#include <mutex>
+#include <random>
+#include <thread>
+
+#include "alphaledger/ledger.hpp"
+#include "service_test_support.hpp"
+
+namespace alphaledger {
+namespace {
+
+using testing::Child;
+using testing::read_file;
+using testing::ServerProcess;
+using testing::TempDir;
+using testing::write_file;
+
+struct Reply {
+  int status = 0;       // 0: no response (connection failed)
+  nlohmann::json body;  // parsed, or discarded when not JSON
+  std::string raw;
+  std::string www_authenticate;
+};
+
+class Api {
+ public:
+  explicit Api(int port, std::string token = {}) : client_("127.0.0.1", port), token_(std::move(token)) {
+    client_.set_connection_timeout(5, 0);
+    client_.set_read_timeout(30, 0);
+    client_.set_write_timeout(30, 0);
+    client_.set_keep_alive(true);
+    client_.set_tcp_nodelay(true);  // headers and body go out in separate writes
+  }
+  Reply get(const std::string& path, std::optional<std::string> auth = std::nullopt) {
+    return wrap(client_.Get(path.c_str(), headers(auth)));
+  }
+  Reply post(const std::string& path, const std::string& body,
+             std::optional<std::string> auth = std::nullopt) {
+    return wrap(client_.Post(path.c_str(), headers(auth), body, "application/json"));
+  }
+  // Closes the keep-alive connection (a stopping server waits for idle ones until they time out).
+  void close() { client_.stop(); }
+  Reply del(const std::string& path) { return wrap(client_.Delete(path.c_str(), headers(std::nullopt))); }
+  Reply decide(const std::string& stream, const std::string& id, double p) {
+    nlohmann::json j;
+    j["id"] = id;
+    j["p_value"] = p;
+    return post("/v1/streams/" + stream + "/tests", j.dump());
+  }
+  Reply create(const std::string& name, const std::string& rule) {
+    return post("/v1/streams", nlohmann::json{{"name", name}, {"rule", rule}}.dump());
+  }
+
+ private:
+  // auth: nullopt = the right token (if any); "" = no header; otherwise the header value.
+  httplib::Headers headers(const std::optional<std::string>& auth) const {
+    httplib::Headers h;
+    if (!auth) {
+      if (!token_.empty()) h.emplace("Authorization", "Bearer " + token_);
+    } else if (!auth->empty()) {
+      h.emplace("Authorization", *auth);
+    }
+    return h;
+  }
+  static Reply wrap(const httplib::Result& r) {
+    Reply out;
+    if (!r) return out;
+    out.status = r->status;
+    out.raw = r->body;
+    out.body = nlohmann::json::parse(r->body, nullptr, false);
+    out.www_authenticate = r->get_header_value("WWW-Authenticate");
+    return out;
+  }
+  httplib::Client client_;
+  std::string token_;
+};
+
+std::string error_code(const Reply& r) {
+  if (!r.body.is_object() || !r.body.contains("error")) return "(no error object: " + r.raw + ")";
+  return r.body["error"].value("code", "");
+}
+std::string error_message(const Reply& r) {
+  if (!r.body.is_object() || !r.body.contains("error")) return "";
+  return r.body["error"].value("message", "");
+}
+
+// The stored history and verification, read in process after the server has stopped.
+struct StoredStream {
+  RuleConfig config;
+  std::vector<DecisionRecord> history;
+  VerifyReport verify;
+};
+StoredStream read_stream(const std::string& db, const std::string& name) {
+  auto ledger = Ledger::open(db);
+  REQUIRE_MESSAGE(ledger.ok(), (ledger.ok() ? "" : ledger.error().message));
+  StoredStream s;
+  auto status = (*ledger)->status(name);
+  REQUIRE(status.ok());
+  s.config = status->config;
+  auto h = (*ledger)->history(name);
+  REQUIRE(h.ok());
+  s.history = *h;
+  auto v = (*ledger)->verify(name);
+  REQUIRE(v.ok());
+  s.verify = *v;
+  return s;
+}
+
+TEST_CASE(
+    "Server: 8 concurrent clients, 2,000 decisions over 4 streams with retries and conflicts; each id once, "
+    "histories equal replay, verify passes") {
+  const std::uint64_t seed = 424242;
+  INFO("seed " << seed);
+  TempDir dir;
+  const std::string db = dir.file("db");
+  ServerProcess server(db, dir.file("server.log"));
+  const std::vector<std::pair<std::string, std::string>> streams = {{"web-lord", "lord++"},
+                                                                    {"web-saffron", "saffron"},
+                                                                    {"web-addis", "addis"},
+                                                                    {"web-investing", "alpha-investing"}};
+  {
+    Api api(server.port());
+    for (const auto& [name, rule] : streams) REQUIRE(api.create(name, rule).status == 201);
+  }
+  // The tests: n = 0..1999, stream n % 4; client (n / 4) % 8 sends it, so every client works on
+  // every stream. Some are also sent by the next client at the same time (a duplicate delivery),
+  // some are retried at once by the same client, some are resent with another p-value (conflict).
+  struct Plan {
+    std::string stream, id;
+    double p = 0;
+    bool retry = false, conflict = false, also_next_client = false;
+  };
+  std::mt19937_64 rng(seed);
+  std::uniform_real_distribution<double> unif(0.0, 1.0);
+  const int kTests = 2000, kClients = 8;
+  std::vector<Plan> plan(kTests);
+  for (int n = 0; n < kTests; ++n) {
+    Plan& t = plan[static_cast<std::size_t>(n)];
+    t.stream = streams[static_cast<std::size_t>(n % 4)].first;
+    t.id = testing::tag("exp-", n);
+    t.p = unif(rng) < 0.15 ? unif(rng) * 1e-3 : unif(rng);
+    t.retry = unif(rng) < 0.10;
+    t.conflict = unif(rng) < 0.05;
+    t.also_next_client = unif(rng) < 0.05;
+  }
+  struct Sent {
+    std::size_t test;
+    bool conflicting;  // sent with another p-value
+    Reply reply;
+  };
+  std::vector<std::vector<Sent>> sent(kClients);
+  std::vector<std::thread> clients;
+  for (int c = 0; c < kClients; ++c) {
+    clients.emplace_back([&, c] {
+      Api api(server.port());
+      for (int n = 0; n < kTests; ++n) {
+        const Plan& t = plan[static_cast<std::size_t>(n)];
+        const int owner = (n / 4) % kClients;
+        const bool mine = owner == c || (t.also_next_client && (owner + 1) % kClients == c);
+        if (!mine) continue;
+        auto& out = sent[static_cast<std::size_t>(c)];
+        out.push_back({static_cast<std::size_t>(n), false, api.decide(t.stream, t.id, t.p)});
+        if (t.retry) out.push_back({static_cast<std::size_t>(n), false, api.decide(t.stream, t.id, t.p)});
+        if (t.conflict)
+          out.push_back(
+              {static_cast<std::size_t>(n), true, api.decide(t.stream, t.id, t.p == 0.5 ? 0.25 : 0.5)});
+      }
+    });
+  }
+  for (auto& t : clients) t.join();
+  const auto code = server.stop();
+  REQUIRE_MESSAGE(code.has_value(), "the server did not stop within 30 s of SIGTERM");
+  CHECK(*code == 0);
+
+  std::map<std::string, DecisionRecord> stored;
+  std::size_t total = 0;
+  for (const auto& [name, rule] : streams) {
+    INFO("stream " << name);
+    const StoredStream s = read_stream(db, name);
+    CHECK_MESSAGE(s.verify.ok, "verify: step " << s.verify.first_bad_step << ": " << s.verify.problem);
+    CHECK(s.verify.steps == s.history.size());
+    testing::check_history_equals_replay(s.history, s.config);
+    for (const auto& r : s.history) stored[r.id] = r;
+    total += s.history.size();
+  }
+  CHECK(total == static_cast<std::size_t>(kTests));  // every test decided, each once
+  CHECK(stored.size() == static_cast<std::size_t>(kTests));
+
+  std::map<std::string, int> created;  // 201 answers per id
+  int checked = 0, mismatched = 0;
+  for (const auto& list : sent) {
+    for (const auto& s : list) {
+      const Plan& t = plan[s.test];
+      INFO("id " << t.id << " reply " << s.reply.status << " " << s.reply.raw);
+      if (s.conflicting) {
+        CHECK(s.reply.status == 409);
+        CHECK(error_code(s.reply) == "conflict");
+        continue;
+      }
+      REQUIRE((s.reply.status == 201 || s.reply.status == 200));
+      if (s.reply.status == 201) ++created[t.id];
+      CHECK(s.reply.body["repeat"].get<bool>() == (s.reply.status == 200));
+      const DecisionRecord& r = stored[t.id];
+      const bool same = s.reply.body["step"].get<std::uint64_t>() == r.step &&
+                        s.reply.body["p_value"].get<double>() == t.p && r.p_value == t.p &&
+                        s.reply.body["level"].get<double>() == r.level &&
+                        s.reply.body["rejected"].get<int>() == (r.rejected ? 1 : 0) &&
+                        s.reply.body["wealth"].get<double>() == r.wealth &&
+                        s.reply.body["stream"] == t.stream &&
+                        s.reply.body["decided_at"] == format_timestamp(r.decided_at_ms);
+      CHECK(same);
+      mismatched += same ? 0 : 1;
+      ++checked;
+      if (mismatched > 5) return;
+    }
+  }
+  CHECK(checked >= kTests);
+  CHECK(created.size() == static_cast<std::size_t>(kTests));
+  for (const auto& [id, count] : created) CHECK_MESSAGE(count == 1, id << " got 201 " << count << " times");
+}
+
+// Runs the CLI on the ledger and returns its stdout (REQUIRES exit 0).
+std::string cli_output(const TempDir& dir, const std::vector<std::string>& args) {
+  Child child(args, {"/dev/null", dir.file("cli.out"), dir.file("cli.err")});
+  const auto code = child.wait(std::chrono::seconds(30));
+  REQUIRE(code.has_value());
+  REQUIRE_MESSAGE(*code == 0, read_file(dir.file("cli.err")));
+  return read_file(dir.file("cli.out"));
+}
+
+TEST_CASE(
+    "Server: status, next, history and a repeated decision answer byte for byte what the CLI prints with "
+    "--json") {
+  TempDir dir;
+  const std::string db = dir.file("db");
+  std::string status, next, history, streams, repeat;
+  {
+    ServerProcess server(db, dir.file("server.log"));
+    Api api(server.port());
+    REQUIRE(api.post("/v1/streams", R"({"name": "same", "rule": "addis", "alpha": 0.1})").status == 201);
+    for (int k = 0; k < 5; ++k)
+      REQUIRE(api.decide("same", testing::tag("t", k), k == 2 ? 0.0002 : 0.3 + 0.1 * k).status == 201);
+    status = api.get("/v1/streams/same").raw;
+    next = api.get("/v1/streams/same/next").raw;
+    history = api.get("/v1/streams/same/history").raw;
+    streams = api.get("/v1/streams").raw;
+    repeat = api.decide("same", "t2", 0.0002).raw;
+    api.close();
+    REQUIRE(server.stop() == std::optional<int>(0));
+  }
+  CHECK(status == cli_output(dir, {"--ledger", db, "--json", "status", "same"}));
+  CHECK(next == cli_output(dir, {"--ledger", db, "--json", "next", "same"}));
+  CHECK(repeat ==
+        cli_output(dir, {"--ledger", db, "--json", "decide", "same", "--id", "t2", "--p", "0.0002"}));
+  CHECK(nlohmann::ordered_json::parse(streams)["streams"][0].dump() + "\n" ==
+        cli_output(dir, {"--ledger", db, "--json", "streams"}));
+  std::string rows;
+  const auto parsed = nlohmann::ordered_json::parse(history);
+  for (const auto& row : parsed["decisions"]) rows += row.dump() + "\n";
+  CHECK(rows == cli_output(dir, {"--ledger", db, "history", "same", "--format", "jsonl"}));
+}
+
+TEST_CASE(
+    "Server: without the bearer token, or with a wrong one, every route answers 401 and nothing changes") {
+  TempDir dir;
+  const std::string db = dir.file("db");
+  const std::string token = "k7Qw-2mXr9-vT4pL-8sNf";
+  write_file(dir.file("token"), token + "\n");
+  ServerProcess server(db, dir.file("server.log"), {"--token-file", dir.file("token")});
+  Api good(server.port(), token);
+  REQUIRE(good.create("guarded", "lord++").status == 201);
+  REQUIRE(good.decide("guarded", "first", 0.01).status == 201);
+
+  Api api(server.port());
+  const std::vector<std::string> wrong = {"",
+                                          "Bearer wrong-token",
+                                          "Bearer " + token + "x",
+                                          "Bearer " + token.substr(1),
+                                          "Basic " + token,
+                                          "bearer " + token,
+                                          "Bearer"};
+  for (const auto& auth : wrong) {
+    INFO("Authorization: '" << auth << "'");
+    std::vector<Reply> replies = {
+        api.get("/v1/health", auth),
+        api.get("/v1/streams", auth),
+        api.post("/v1/streams", R"({"name": "intruder", "rule": "lord++"})", auth),
+        api.get("/v1/streams/guarded", auth),
+        api.get("/v1/streams/guarded/next", auth),
+        api.post("/v1/streams/guarded/tests", R"({"id": "sneaky", "p_value": 0.0001})", auth),
+        api.post("/v1/streams/guarded/tests", R"({"id": "first", "p_value": 0.5})", auth),
+        api.get("/v1/streams/guarded/history", auth),
+        api.get("/v1/streams/missing", auth),
+        api.get("/v1/no-such-route", auth),
+    };
+    for (const auto& r : replies) {
+      CHECK(r.status == 401);
+      CHECK(error_code(r) == "unauthorized");
+      CHECK(r.www_authenticate.find("Bearer") == 0);
+    }
+  }
+  // Nothing changed: one stream, one decision.
+  const Reply list = good.get("/v1/streams");
+  REQUIRE(list.status == 200);
+  REQUIRE(list.body["streams"].size() == 1);
+  CHECK(list.body["streams"][0]["stream"] == "guarded");
+  CHECK(list.body["streams"][0]["tests"] == 1);
+  const Reply history = good.get("/v1/streams/guarded/history");
+  REQUIRE(history.status == 200);
+  REQUIRE(history.body["decisions"].size() == 1);
+  CHECK(history.body["decisions"][0]["id"] == "first");
+  CHECK(history.body["decisions"][0]["p_value"] == 0.01);
+  CHECK(good.get("/v1/health").status == 200);
+  good.close();
+  api.close();
+  REQUIRE(server.stop() == std::optional<int>(0));
+  CHECK(read_file(dir.file("server.log")).find(token) == std::string::npos);  // the token is never logged
+}
+
+// Sends raw bytes and returns the status line of the answer.
+std::string raw_exchange(int port, const std::string& bytes) {
+  const int fd = ::socket(AF_INET, SOCK_STREAM, 0);
+  REQUIRE(fd >= 0);
+  sockaddr_in addr{};
+  addr.sin_family = AF_INET;
+  addr.sin_port = htons(static_cast<std::uint16_t>(port));
+  addr.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
+  timeval tv{10, 0};
+  ::setsockopt(fd, SOL_SOCKET, SO_RCVTIMEO, &tv, sizeof tv);
+  REQUIRE(::connect(fd, reinterpret_cast<sockaddr*>(&addr), sizeof addr) == 0);
+  REQUIRE(::send(fd, bytes.data(), bytes.size(), 0) == static_cast<ssize_t>(bytes.size()));
+  std::string got;
+  char buf[4096];
+  ssize_t n;
+  while ((n = ::recv(fd, buf, sizeof buf, 0)) > 0) {
+    got.append(buf, static_cast<std::size_t>(n));
+    if (got.find("\r\n") != std::string::npos) break;
+  }
+  ::close(fd);
+  return got.substr(0, got.find("\r\n"));
+}
+
+TEST_CASE(
+    "Server: bad requests get the right 4xx and a clear message, change nothing, and the server keeps "
+    "serving") {
+  TempDir dir;
+  const std::string db = dir.file("db");
+  ServerProcess server(db, dir.file("server.log"));
+  Api api(server.port());
+  REQUIRE(api.create("steady", "saffron").status == 201);
+  REQUIRE(api.decide("steady", "ok-1", 0.2).status == 201);
+
+  struct Case {
+    std::string what;
+    std::function<Reply()> send;
+    int status;
+    std::string code;
+    std::string message_has;  // a word the message must contain
+  };
+  const std::string tests = "/v1/streams/steady/tests";
+  const std::vector<Case> cases = {
+      {"malformed JSON (decide)", [&] { return api.post(tests, R"({"id": "x", "p_value": )"); }, 400,
+       "invalid_json", "not valid JSON"},
+      {"malformed JSON (create)", [&] { return api.post("/v1/streams", "{name: steady}"); }, 400,
+       "invalid_json", "not valid JSON"},
+      {"empty body", [&] { return api.post(tests, ""); }, 400, "invalid_json", "not valid JSON"},
+      {"array body", [&] { return api.post(tests, R"([{"id": "x", "p_value": 0.1}])"); }, 400,
+       "invalid_input", "JSON object"},
+      {"missing id", [&] { return api.post(tests, R"({"p_value": 0.1})"); }, 400, "invalid_input", "'id'"},
+      {"missing p_value", [&] { return api.post(tests, R"({"id": "x"})"); }, 400, "invalid_input",
+       "'p_value'"},
+      {"p_value as text", [&] { return api.post(tests, R"({"id": "x", "p_value": "0.1"})"); }, 400,
+       "invalid_input", "p_value must be a JSON number"},
+      {"p_value out of range", [&] { return api.post(tests, R"({"id": "x", "p_value": 1.5})"); }, 400,
+       "invalid_input", "[0, 1]"},
+      {"negative p_value", [&] { return api.post(tests, R"({"id": "x", "p_value": -0.1})"); }, 400,
+       "invalid_input", "[0, 1]"},
+      {"id as boolean", [&] { return api.post(tests, R"({"id": true, "p_value": 0.1})"); }, 400,
+       "invalid_input", "id must be"},
+      {"empty id", [&] { return api.post(tests, R"({"id": "", "p_value": 0.1})"); }, 400, "invalid_input",
+       "id"},
+      {"create without rule", [&] { return api.post("/v1/streams", R"({"name": "n1"})"); }, 400,
+       "invalid_input", "'rule'"},
+      {"create without name", [&] { return api.post("/v1/streams", R"({"rule": "lord++"})"); }, 400,
+       "invalid_input", "'name'"},
+      {"alpha as text",
+       [&] { return api.post("/v1/streams", R"({"name": "n1", "rule": "lord++", "alpha": "0.05"})"); }, 400,
+       "invalid_input", "alpha must be a JSON number"},
+      {"alpha out of range",
+       [&] { return api.post("/v1/streams", R"({"name": "n1", "rule": "lord++", "alpha": 2})"); }, 400,
+       "invalid_input", "alpha"},
+      {"unknown rule", [&] { return api.post("/v1/streams", R"({"name": "n1", "rule": "lord+++"})"); }, 400,
+       "invalid_input", "lord+++"},
+      {"misspelt parameter",
+       [&] { return api.post("/v1/streams", R"({"name": "n1", "rule": "lord++", "alpah": 0.1})"); }, 400,
+       "invalid_input", "alpah"},
+      {"parameter the rule does not take",
+       [&] { return api.post("/v1/streams", R"({"name": "n1", "rule": "lord++", "payout": 0.01})"); }, 400,
+       "invalid_input", "payout"},
+      {"bad stream name",
+       [&] { return api.post("/v1/streams", R"({"name": "has space", "rule": "lord++"})"); }, 400,
+       "invalid_input", "name"},
+      {"stream exists with another rule", [&] { return api.create("steady", "lord++"); }, 409, "conflict",
+       "another configuration"},
+      {"same id, other p-value", [&] { return api.post(tests, R"({"id": "ok-1", "p_value": 0.3})"); }, 409,
+       "conflict", "ok-1"},
+      {"oversized body",
+       [&] {
+         return api.post(tests, R"({"id": "x", "p_value": 0.1, "pad": ")" + std::string(70000, 'a') + "\"}");
+       },
+       413, "too_large", "65536"},
+      {"unknown route", [&] { return api.get("/v1/nothing"); }, 404, "unknown_route", "/v1/nothing"},
+      {"unknown sub-route", [&] { return api.post("/v1/streams/steady/verify", "{}"); }, 404, "unknown_route",
+       "routes"},
+      {"unsupported method", [&] { return api.del("/v1/streams/steady"); }, 404, "unknown_route", "DELETE"},
+      {"unknown stream (status)", [&] { return api.get("/v1/streams/nowhere"); }, 404, "unknown_stream",
+       "nowhere"},
+      {"unknown stream (next)", [&] { return api.get("/v1/streams/nowhere/next"); }, 404, "unknown_stream",
+       "nowhere"},
+      {"unknown stream (history)", [&] { return api.get("/v1/streams/nowhere/history"); }, 404,
+       "unknown_stream", "nowhere"},
+      {"unknown stream (decide)", [&] { return api.decide("nowhere", "x", 0.1); }, 404, "unknown_stream",
+       "nowhere"},
+  };
+  for (const auto& c : cases) {
+    INFO(c.what);
+    const Reply r = c.send();
+    INFO("reply " << r.status << " " << r.raw);
+    CHECK(r.status == c.status);
+    CHECK(error_code(r) == c.code);
+    CHECK(error_message(r).find(c.message_has) != std::string::npos);
+    CHECK(api.get("/v1/health").status == 200);  // still serving
+  }
+  // Not even HTTP: the server answers 400 and goes on.
+  CHECK(raw_exchange(server.port(), "NONSENSE\r\n\r\n").find(" 400") != std::string::npos);
+  CHECK(api.get("/v1/health").status == 200);
+
+  // Nothing changed: one stream, one decision; and a good request still works.
+  const Reply list = api.get("/v1/streams");
+  REQUIRE(list.status == 200);
+  CHECK(list.body["streams"].size() == 1);
+  const Reply next = api.decide("steady", "ok-2", 0.3);
+  REQUIRE(next.status == 201);
+  CHECK(next.body["step"] == 2);
+  api.close();
+  REQUIRE(server.stop() == std::optional<int>(0));
+  const StoredStream s = read_stream(db, "steady");
+  CHECK(s.history.size() == 2);
+  CHECK(s.verify.ok);
+}
+
+TEST_CASE(
+    "Server: killed with SIGKILL under load and restarted, every acknowledged decision is there, unchanged") {
+  TempDir dir;
+  const std::string db = dir.file("db");
+  std::mutex mu;
+  std::map<std::string, nlohmann::json> acknowledged;  // id -> the 201 body
+  {
+    ServerProcess server(db, dir.file("server1.log"));
+    {
+      Api api(server.port());
+      REQUIRE(api.create("kill-a", "lord++").status == 201);
+      REQUIRE(api.create("kill-b", "saffron").status == 201);
+    }
+    std::atomic<bool> stop{false};
+    std::atomic<int> acks{0};
+    std::vector<std::thread> clients;
+    for (int c = 0; c < 4; ++c) {
+      clients.emplace_back([&, c] {
+        Api api(server.port());
+        std::mt19937_64 rng(static_cast<std::uint64_t>(100 + c));
+        std::uniform_real_distribution<double> unif(0.0, 1.0);
+        for (int n = 0; n < 5000 && !stop.load(); ++n) {  // bounded; ends at the kill
+          const std::string id = testing::tag("c", c) + testing::tag("-", n);
+          const Reply r = api.decide(c % 2 == 0 ? "kill-a" : "kill-b", id,
+                                     unif(rng) < 0.1 ? unif(rng) * 1e-3 : unif(rng));
+          if (r.status != 201) break;  // the server is gone: this request was never acknowledged
+          std::lock_guard<std::mutex> lock(mu);
+          acknowledged[id] = r.body;
+          ++acks;
+        }
+      });
+    }
+    const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(60);
+    while (acks.load() < 400 && std::chrono::steady_clock::now() < deadline) {
+      std::this_thread::sleep_for(std::chrono::milliseconds(2));
+    }
+    server.child().signal(SIGKILL);  // mid-load: requests are in flight
+    stop = true;
+    for (auto& t : clients) t.join();
+    REQUIRE(server.child().wait(std::chrono::seconds(10)).has_value());
+  }
+  REQUIRE(acknowledged.size() >= 100);
+
+  // Restart on the same ledger: every acknowledged decision is stored unchanged, and resending
+  // it gets the stored decision back (200, repeat).
+  ServerProcess server(db, dir.file("server2.log"));
+  Api api(server.port());
+  std::map<std::string, nlohmann::json> stored;
+  for (const std::string stream : {"kill-a", "kill-b"}) {
+    const Reply h = api.get("/v1/streams/" + stream + "/history");
+    REQUIRE(h.status == 200);
+    for (const auto& row : h.body["decisions"]) stored[row["id"].get<std::string>()] = row;
+  }
+  int missing = 0;
+  for (const auto& [id, body] : acknowledged) {
+    INFO("acknowledged " << body.dump());
+    auto it = stored.find(id);
+    if (it == stored.end()) {
+      ++missing;
+      continue;
+    }
+    for (const char* key : {"step", "p_value", "level", "rejected", "wealth", "decided_at"})
+      CHECK(it->second[key] == body[key]);
+  }
+  CHECK(missing == 0);
+  int resent = 0;
+  for (const auto& [id, body] : acknowledged) {
+    if (++resent > 50) break;
+    const Reply r = api.decide(body["stream"].get<std::string>(), id, body["p_value"].get<double>());
+    CHECK(r.status == 200);
+    CHECK(r.body["step"] == body["step"]);
+    CHECK(r.body["level"] == body["level"]);
+  }
+  api.close();
+  REQUIRE(server.stop() == std::optional<int>(0));
+  for (const std::string stream : {"kill-a", "kill-b"}) {
+    const StoredStream s = read_stream(db, stream);
+    CHECK_MESSAGE(s.verify.ok, "verify: step " << s.verify.first_bad_step << ": " << s.verify.problem);
+    testing::check_history_equals_replay(s.history, s.config);
+  }
+}
+
+}  // namespace
+}  // namespace alphaledger

@@ -1,0 +1,340 @@
+// `alphaledger pipe`: one answer per line, in order, durable before printed, bad lines answered
+// and skipped, SIGTERM finishing what was read. Most checks drive the real binary.
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <random>
+
+#include "alphaledger/service.hpp"
+#include "alphaledger/store.hpp"
+#include "service_test_support.hpp"
+
+namespace alphaledger {
+namespace {
+
+using testing::Child;
+using testing::read_file;
+using testing::split_lines;
+using testing::TempDir;
+using testing::write_file;
+
+void create_stream_on_disk(const std::string& ledger_dir, const std::string& name, const RuleSpec& spec) {
+  auto ledger = Ledger::open(ledger_dir);
+  REQUIRE_MESSAGE(ledger.ok(), (ledger.ok() ? "" : ledger.error().message));
+  auto config = resolve_config(spec);
+  REQUIRE(config.ok());
+  REQUIRE((*ledger)->create_stream(name, *config).ok());
+}
+
+std::vector<DecisionRecord> history_on_disk(const std::string& ledger_dir, const std::string& name,
+                                            RuleConfig* config = nullptr, bool verify = true) {
+  auto ledger = Ledger::open(ledger_dir);
+  REQUIRE_MESSAGE(ledger.ok(), (ledger.ok() ? "" : ledger.error().message));
+  auto h = (*ledger)->history(name);
+  REQUIRE(h.ok());
+  if (config != nullptr) {
+    auto s = (*ledger)->status(name);
+    REQUIRE(s.ok());
+    *config = s->config;
+  }
+  if (verify) {
+    auto v = (*ledger)->verify(name);
+    REQUIRE(v.ok());
+    CHECK_MESSAGE(v->ok, "verify: step " << v->first_bad_step << ": " << v->problem);
+    CHECK(v->steps == h->size());
+  }
+  return *h;
+}
+
+std::string test_line(const std::string& id, double p) {
+  nlohmann::json j;
+  j["id"] = id;
+  j["p_value"] = p;
+  return j.dump();
+}
+
+TEST_CASE(
+    "Pipe: 10,000 lines with bad lines mixed in get one answer each, in order, and the history equals replay "
+    "of the good lines") {
+  const std::uint64_t seed = 20250314;
+  INFO("seed " << seed);
+  std::mt19937_64 rng(seed);
+  std::uniform_real_distribution<double> unif(0.0, 1.0);
+  TempDir dir;
+  const std::string db = dir.file("db");
+  create_stream_on_disk(db, "monitor", RuleSpec{.rule = "saffron"});
+
+  // What each line should get back.
+  struct Expect {
+    enum Kind { kDecision, kRepeat, kBad } kind;
+    std::string id;
+    double p = 0;
+  };
+  std::vector<Expect> expect;
+  std::vector<std::pair<std::string, double>> good;  // first-time tests, in order
+  std::string input;
+  const int kLines = 10000;
+  for (int k = 1; k <= kLines; ++k) {
+    const double u = unif(rng);
+    if (u < 0.08) {
+      const int which = static_cast<int>(unif(rng) * 9);
+      std::string line;
+      switch (which) {
+        case 0:
+          line = R"({"id": "broken)";
+          break;  // malformed JSON
+        case 1:
+          line = "";
+          break;  // blank line
+        case 2:
+          line = "[1, 2]";
+          break;  // not an object
+        case 3:
+          line = R"({"id": ")" + testing::tag("m", k) + R"("})";
+          break;  // no p_value
+        case 4:
+          line = R"({"id": ")" + testing::tag("r", k) + R"(", "p_value": 1.5})";
+          break;  // out of range
+        case 5:
+          line = R"({"id": ")" + testing::tag("s", k) + R"(", "p_value": "0.01"})";
+          break;  // wrong type
+        case 6:
+          line = R"({"id": "", "p_value": 0.01})";
+          break;  // empty id
+        case 7:
+          line = R"({"p_value": 0.01})";
+          break;  // no id
+        default:
+          if (good.empty()) {
+            line = "null";
+          } else {  // a conflict: a decided id with another p-value
+            const auto& g = good[static_cast<std::size_t>(unif(rng) * static_cast<double>(good.size()))];
+            line = test_line(g.first, g.second == 0.5 ? 0.25 : 0.5);
+          }
+      }
+      input += line + "\n";
+      expect.push_back({Expect::kBad, "", 0});
+    } else if (u < 0.11 && !good.empty()) {  // a retry of a decided test
+      const auto& g = good[static_cast<std::size_t>(unif(rng) * static_cast<double>(good.size()))];
+      input += test_line(g.first, g.second) + "\n";
+      expect.push_back({Expect::kRepeat, g.first, g.second});
+    } else {
+      // Mostly nulls (uniform), some strong signals.
+      const double p = unif(rng) < 0.1 ? std::pow(unif(rng), 4) * 1e-3 : unif(rng);
+      const std::string id = testing::tag("t", k);
+      input += test_line(id, p) + (k == kLines ? "" : "\n");  // the last line has no newline
+      expect.push_back({Expect::kDecision, id, p});
+      good.emplace_back(id, p);
+    }
+  }
+  write_file(dir.file("in.jsonl"), input);
+
+  Child child({"--ledger", db, "pipe", "monitor"},
+              {dir.file("in.jsonl"), dir.file("out.jsonl"), dir.file("err.txt")});
+  const auto code = child.wait(std::chrono::seconds(120));
+  REQUIRE(code.has_value());
+  const std::string err = read_file(dir.file("err.txt"));
+  CHECK_MESSAGE(*code == 2, "exit code " << *code << "; stderr: " << err);  // some lines were bad
+  CHECK(err.find("lines were refused") != std::string::npos);
+
+  const auto answers = split_lines(read_file(dir.file("out.jsonl")));
+  REQUIRE(answers.size() == expect.size());
+  std::map<std::string, std::uint64_t> step_of;
+  std::uint64_t next_step = 1;
+  int mismatches = 0;
+  for (std::size_t k = 0; k < answers.size() && mismatches < 5; ++k) {
+    INFO("line " << k + 1 << ": " << answers[k]);
+    auto j = nlohmann::json::parse(answers[k], nullptr, false);
+    REQUIRE(j.is_object());
+    const Expect& e = expect[k];
+    if (e.kind == Expect::kBad) {
+      const bool ok =
+          j.value("line", 0ULL) == k + 1 && j.contains("error") && !j["error"].get<std::string>().empty();
+      CHECK(ok);
+      mismatches += ok ? 0 : 1;
+      continue;
+    }
+    const bool ok = j.value("id", "") == e.id && j.value("p_value", -1.0) == e.p &&
+                    j.value("repeat", !(e.kind == Expect::kRepeat)) == (e.kind == Expect::kRepeat) &&
+                    j.value("stream", "") == "monitor";
+    CHECK(ok);
+    mismatches += ok ? 0 : 1;
+    if (e.kind == Expect::kDecision) {
+      CHECK(j.value("step", 0ULL) == next_step);
+      step_of[e.id] = next_step++;
+    } else {
+      CHECK(j.value("step", 0ULL) == step_of[e.id]);  // the stored decision comes back
+    }
+  }
+
+  RuleConfig config;
+  const auto history = history_on_disk(db, "monitor", &config);
+  REQUIRE(history.size() == good.size());
+  for (std::size_t k = 0; k < good.size(); ++k) {
+    INFO("step " << k + 1);
+    CHECK(history[k].id == good[k].first);
+    CHECK(history[k].p_value == good[k].second);
+  }
+  testing::check_history_equals_replay(history, config);
+}
+
+TEST_CASE("Pipe: LORD++ levels and decisions equal the check values of methods.md 14.3") {
+  // Source: /work/shared/docs/methods.md section 14.3 (LORD++ as displayed in Ramdas et al. 2017,
+  // "Online control of the false discovery rate with decaying memory", section 5.2; W0 = alpha/2,
+  // Javanmard-Montanari gamma, alpha = 0.05), 10 significant digits.
+  const double p[10] = {0.0004, 0.0012, 0.36, 0.0009, 0.78, 0.0032, 0.17, 0.0011, 0.44, 0.0100};
+  const double level[10] = {0.001370386057, 0.0016684017,  0.003292613799, 0.001060948593,  0.00363847711,
+                            0.001351990812, 0.00115660396, 0.000989535854, 0.0008614799781, 0.0007620915508};
+  const int rejected[10] = {1, 1, 0, 1, 0, 0, 0, 0, 0, 0};
+  TempDir dir;
+  const std::string db = dir.file("db");
+  create_stream_on_disk(db, "check-values", RuleSpec{.rule = "lord++"});
+  std::string input;
+  for (int t = 0; t < 10; ++t) input += test_line(testing::tag("t", t + 1), p[t]) + "\n";
+  write_file(dir.file("in.jsonl"), input);
+  Child child({"--ledger", db, "pipe", "check-values"},
+              {dir.file("in.jsonl"), dir.file("out.jsonl"), dir.file("err.txt")});
+  const auto code = child.wait();
+  REQUIRE(code.has_value());
+  CHECK_MESSAGE(*code == 0, read_file(dir.file("err.txt")));
+  const auto answers = split_lines(read_file(dir.file("out.jsonl")));
+  REQUIRE(answers.size() == 10);
+  for (int t = 0; t < 10; ++t) {
+    INFO("t = " << t + 1 << ": " << answers[static_cast<std::size_t>(t)]);
+    auto j = nlohmann::json::parse(answers[static_cast<std::size_t>(t)]);
+    CHECK(j["step"].get<int>() == t + 1);
+    CHECK(j["level"].get<double>() == doctest::Approx(level[t]).epsilon(1e-9));
+    CHECK(j["rejected"].get<int>() == rejected[t]);
+  }
+}
+
+TEST_CASE(
+    "Pipe: SIGTERM answers every line already read, then exits 0; the history holds exactly the answered "
+    "tests") {
+  TempDir dir;
+  const std::string db = dir.file("db");
+  create_stream_on_disk(db, "live", RuleSpec{.rule = "lord++"});
+  Child child({"--ledger", db, "pipe", "live"}, {std::nullopt, dir.file("out.jsonl"), dir.file("err.txt")});
+  std::string batch;
+  for (int k = 1; k <= 40; ++k) batch += test_line(testing::tag("a", k), 0.5) + "\n";
+  child.write_stdin(batch);
+  // Wait (bounded) until all 40 answers are out, so the process sits idle reading stdin.
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(30);
+  while (split_lines(read_file(dir.file("out.jsonl"))).size() < 40) {
+    REQUIRE_MESSAGE(std::chrono::steady_clock::now() < deadline, "40 answers did not arrive within 30 s");
+    std::this_thread::sleep_for(std::chrono::milliseconds(5));
+  }
+  // More lines, then SIGTERM straight away; stdin stays open, so only the signal ends the run.
+  batch.clear();
+  for (int k = 41; k <= 60; ++k) batch += test_line(testing::tag("a", k), 0.5) + "\n";
+  child.write_stdin(batch + R"({"id": "half-written)");
+  child.signal(SIGTERM);
+  const auto code = child.wait(std::chrono::seconds(30));
+  REQUIRE_MESSAGE(code.has_value(), "pipe did not exit within 30 s of SIGTERM");
+  CHECK_MESSAGE(*code == 0, read_file(dir.file("err.txt")));
+  const auto answers = split_lines(read_file(dir.file("out.jsonl")));
+  CHECK(answers.size() >= 40);
+  CHECK(answers.size() <= 60);  // the unterminated line is never answered
+  const auto history = history_on_disk(db, "live");
+  REQUIRE(history.size() == answers.size());  // nothing decided unanswered, nothing answered undecided
+  for (std::size_t k = 0; k < answers.size(); ++k) {
+    CHECK(nlohmann::json::parse(answers[k])["id"].get<std::string>() == history[k].id);
+  }
+}
+
+TEST_CASE("Pipe: an unknown stream is refused with exit 3 before any line is read") {
+  TempDir dir;
+  const std::string db = dir.file("db");
+  create_stream_on_disk(db, "exists", RuleSpec{.rule = "lord++"});
+  write_file(dir.file("in.jsonl"), test_line("x", 0.1) + "\n");
+  Child child({"--ledger", db, "pipe", "missing"},
+              {dir.file("in.jsonl"), dir.file("out.jsonl"), dir.file("err.txt")});
+  const auto code = child.wait();
+  REQUIRE(code.has_value());
+  CHECK(*code == 3);
+  CHECK(read_file(dir.file("out.jsonl")).empty());
+  CHECK(read_file(dir.file("err.txt")).find("missing") != std::string::npos);
+}
+
+// ---- in process, over the in-memory and fault-injecting stores ---------------------------------
+
+struct PipeFixture {
+  MemoryStore memory;
+  FaultyStore faulty{memory};
+  std::unique_ptr<Ledger> ledger;
+  TempDir dir;
+  PipeFixture() {
+    auto l = Ledger::open(borrow_store(faulty), [] { return std::int64_t{1700000000000}; });
+    REQUIRE(l.ok());
+    ledger = std::move(l).value();
+    REQUIRE(ledger->create_stream("s", *resolve_config(RuleSpec{.rule = "lord++"})).ok());
+  }
+  // Runs the pipe over `input` (a file) and returns the answers.
+  std::pair<Result<PipeSummary>, std::vector<std::string>> run(const std::string& input) {
+    write_file(dir.file("in"), input);
+    const int fd = ::open(dir.file("in").c_str(), O_RDONLY);
+    REQUIRE(fd >= 0);
+    std::ostringstream out;
+    auto summary = run_pipe(*ledger, "s", fd, out);
+    ::close(fd);
+    return {std::move(summary), split_lines(out.str())};
+  }
+};
+
+TEST_CASE("Pipe: blank, over-long and unterminated lines are each answered once with their line number") {
+  PipeFixture f;
+  const std::string long_line(kMaxPipeLineBytes + 10, 'x');
+  auto [summary, answers] =
+      f.run("\n" + long_line + "\n" + test_line("a", 0.2) + "\n  \r\n" + test_line("b", 0.3));
+  REQUIRE(summary.ok());
+  CHECK(summary->lines == 5);
+  CHECK(summary->bad == 3);
+  CHECK(summary->decided == 2);
+  REQUIRE(answers.size() == 5);
+  CHECK(nlohmann::json::parse(answers[0])["line"] == 1);
+  CHECK(nlohmann::json::parse(answers[1])["line"] == 2);
+  CHECK(nlohmann::json::parse(answers[1])["error"].get<std::string>().find("longer than") !=
+        std::string::npos);
+  CHECK(nlohmann::json::parse(answers[2])["id"] == "a");
+  CHECK(nlohmann::json::parse(answers[3])["line"] == 4);
+  CHECK(nlohmann::json::parse(answers[4])["id"] == "b");
+}
+
+TEST_CASE(
+    "Pipe: a repeat inside one group returns the stored decision; a conflict is answered and the group goes "
+    "on") {
+  PipeFixture f;
+  auto [summary, answers] = f.run(test_line("a", 0.2) + "\n" + test_line("a", 0.2) + "\n" +
+                                  test_line("a", 0.9) + "\n" + test_line("b", 0.0001) + "\n");
+  REQUIRE(summary.ok());
+  REQUIRE(answers.size() == 4);
+  auto a1 = nlohmann::json::parse(answers[0]), a2 = nlohmann::json::parse(answers[1]);
+  CHECK(a1["repeat"] == false);
+  CHECK(a2["repeat"] == true);
+  CHECK(a1["step"] == a2["step"]);
+  CHECK(a1["level"] == a2["level"]);
+  auto conflict = nlohmann::json::parse(answers[2]);
+  CHECK(conflict["line"] == 3);
+  CHECK(conflict["error"].get<std::string>().find("already decided") != std::string::npos);
+  CHECK(nlohmann::json::parse(answers[3])["step"] == 2);
+  CHECK(summary->bad == 1);
+  CHECK(summary->repeats == 1);
+}
+
+TEST_CASE("Pipe: a storage failure answers the line it hit, stops, and nothing unanswered is decided") {
+  PipeFixture f;
+  REQUIRE(f.ledger->decide("s", "before", 0.3).ok());
+  f.faulty.fail_all_writes("No space left on device");
+  const auto before = f.memory.dump();
+  auto [summary, answers] = f.run(test_line("a", 0.2) + "\n" + test_line("b", 0.3) + "\n");
+  REQUIRE_FALSE(summary.ok());
+  CHECK(summary.error().kind == ErrorKind::kStorage);
+  REQUIRE(answers.size() == 1);
+  auto j = nlohmann::json::parse(answers[0]);
+  CHECK(j["line"] == 1);
+  CHECK(j["error"].get<std::string>().find("No space left") != std::string::npos);
+  CHECK(f.memory.dump() == before);  // the ledger is as it was
+}
+
+}  // namespace
+}  // namespace alphaledger
