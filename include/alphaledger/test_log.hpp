@@ -14,6 +14,7 @@
 #include <cstdint>
 #include <istream>
 #include <map>
+#include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -61,6 +62,20 @@ Result<TestLog> read_test_log_file(const std::string& path, std::optional<std::s
 Result<double> parse_p_value_text(std::string_view text);
 Result<double> parse_time_text(std::string_view text);  // ISO 8601 date / date-time, or a number
 Status validate_test_id(std::string_view id);           // 1..256 bytes, no control characters
+
+// The deepest nesting of arrays and objects accepted in any JSON input (request bodies, pipe lines,
+// JSON Lines rows). Deeper text is refused before it is parsed, so no input can exhaust the stack.
+inline constexpr int kMaxJsonDepth = 32;
+
+// Parses one JSON text that must be an object: the one JSON reader of every input. Errors
+// (kInvalidInput), none of which quotes more than excerpt() of the input: not valid JSON (with the
+// byte offset), nested deeper than kMaxJsonDepth, not an object (names the type found).
+Result<nlohmann::json> parse_json_object(std::string_view text);
+
+// A value as it may appear in a message: at most `max_bytes` of it (then "...(N bytes)"), with
+// control characters and bytes that are not valid UTF-8 written as \xHH. Every message that
+// echoes input goes through this, so a megabyte field never becomes a megabyte message.
+std::string excerpt(std::string_view value, std::size_t max_bytes = 60);
 
 // Turns a row's fields (column -> text) into a p-value. The default converter reads p_value;
 // summary columns (docs/formats.md) are converted by the statistics layer when present.

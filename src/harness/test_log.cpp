@@ -266,16 +266,13 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
       }
       for (std::size_t i = 0; i < header.size(); ++i) fields[header[i]] = cells[i];
     } else {
-      nlohmann::json j = nlohmann::json::parse(line, nullptr, false);
-      if (j.is_discarded() || !j.is_object()) {
-        return invalid_input(
-            where(source, line_no) +
-            "not a JSON object; each line must be one object such as {\"id\": \"t1\", \"p_value\": 0.01}");
-      }
+      auto parsed = parse_json_object(line);
+      if (!parsed) return invalid_input(where(source, line_no) + parsed.error().message);
+      const nlohmann::json& j = *parsed;
       for (auto it = j.begin(); it != j.end(); ++it) {
         if (it.key() == "p_value" && !it.value().is_number() && !it.value().is_null()) {
           return invalid_input(where(source, line_no) + "p_value must be a JSON number in [0, 1], got " +
-                               it.value().dump());
+                               excerpt(it.value().dump(-1, ' ', false, nlohmann::json::error_handler_t::replace)));
         }
         fields[it.key()] = json_field_text(it.value());
       }
@@ -326,6 +323,80 @@ Result<TestLog> read_test_log_file(const std::string& path, std::optional<std::s
   std::ifstream in(path, std::ios::binary);
   if (!in) return invalid_input(path + ": cannot open the file (does it exist, can it be read?)");
   return read_test_log(in, path, *format, options);
+}
+
+}  // namespace alphaledger
+
+namespace alphaledger {
+namespace {
+
+// Nesting depth of a JSON text, counting brackets outside strings; stops counting past `limit`.
+int json_depth(std::string_view text, int limit) {
+  int depth = 0, deepest = 0;
+  bool in_string = false, escaped = false;
+  for (char c : text) {
+    if (in_string) {
+      if (escaped) escaped = false;
+      else if (c == '\\') escaped = true;
+      else if (c == '"') in_string = false;
+      continue;
+    }
+    if (c == '"') in_string = true;
+    else if (c == '[' || c == '{') {
+      deepest = std::max(deepest, ++depth);
+      if (deepest > limit) return deepest;
+    } else if (c == ']' || c == '}') {
+      --depth;
+    }
+  }
+  return deepest;
+}
+
+}  // namespace
+
+std::string excerpt(std::string_view value, std::size_t max_bytes) {
+  std::string out;
+  const std::size_t n = std::min(value.size(), max_bytes);
+  std::size_t i = 0;
+  while (i < n) {
+    const auto c = static_cast<unsigned char>(value[i]);
+    std::size_t len = c < 0x80 ? 1 : (c >> 5) == 0x6 ? 2 : (c >> 4) == 0xE ? 3 : (c >> 3) == 0x1E ? 4 : 0;
+    bool valid = len > 0 && i + len <= value.size();
+    for (std::size_t k = 1; valid && k < len; ++k)
+      valid = (static_cast<unsigned char>(value[i + k]) & 0xC0) == 0x80;
+    if (valid && len == 1 && (c < 0x20 || c == 0x7F)) valid = false;
+    if (!valid) {
+      static const char* kHex = "0123456789abcdef";
+      out += "\\x";
+      out.push_back(kHex[c >> 4]);
+      out.push_back(kHex[c & 0xF]);
+      ++i;
+      continue;
+    }
+    out.append(value.substr(i, len));
+    i += len;
+  }
+  if (value.size() > n || i < value.size()) out += "...(" + std::to_string(value.size()) + " bytes)";
+  return out;
+}
+
+Result<nlohmann::json> parse_json_object(std::string_view text) {
+  if (json_depth(text, kMaxJsonDepth) > kMaxJsonDepth) {
+    return invalid_input("JSON nested deeper than " + std::to_string(kMaxJsonDepth) +
+                         " levels; expected one flat object such as {\"id\": \"t1\", \"p_value\": 0.01}");
+  }
+  nlohmann::json j;
+  try {
+    j = nlohmann::json::parse(text);
+  } catch (const nlohmann::json::parse_error& e) {
+    return invalid_input("not valid JSON (at byte " + std::to_string(e.byte) +
+                         "); expected one object such as {\"id\": \"t1\", \"p_value\": 0.01}");
+  }
+  if (!j.is_object()) {
+    return invalid_input(std::string("expected a JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}, got ") +
+                         (j.is_array() ? "an array" : j.is_string() ? "a string" : j.is_number() ? "a number" : j.is_boolean() ? "a boolean" : "null"));
+  }
+  return j;
 }
 
 }  // namespace alphaledger

@@ -10,6 +10,7 @@
 #include <unordered_set>
 
 #include "alphaledger/service.hpp"
+#include "alphaledger/test_log.hpp"
 
 namespace alphaledger {
 namespace {
@@ -62,20 +63,15 @@ bool same_secret(std::string_view a, std::string_view b) {
 // Parses a request body that must be a JSON object. On failure fills `res` and returns nullopt.
 std::optional<nlohmann::json> json_body(const httplib::Request& req, httplib::Response& res,
                                         std::string_view example) {
-  nlohmann::json j = nlohmann::json::parse(req.body, nullptr, /*allow_exceptions=*/false);
-  if (j.is_discarded()) {
-    send_error(res, 400, "invalid_json",
-               std::string("the request body is not valid JSON; expected an object such as ") +
-                   std::string(example));
+  auto j = parse_json_object(req.body);
+  if (!j) {
+    // Valid JSON that is not an object is invalid input; text that is not JSON is invalid JSON.
+    const bool not_object = j.error().message.rfind("expected a JSON object", 0) == 0;
+    send_error(res, 400, not_object ? "invalid_input" : "invalid_json",
+               "the request body: " + j.error().message + " (for this route: " + std::string(example) + ")");
     return std::nullopt;
   }
-  if (!j.is_object()) {
-    send_error(res, 400, "invalid_input",
-               std::string("the request body must be a JSON object such as ") + std::string(example) +
-                   ", got " + nlohmann::json(j.type_name()).get<std::string>());
-    return std::nullopt;
-  }
-  return j;
+  return std::move(j).value();
 }
 
 constexpr std::string_view kCreateExample = R"({"name": "checkout-team", "rule": "lord++", "alpha": 0.05})";

@@ -6,6 +6,7 @@
 #include <cstring>
 
 #include "alphaledger/service.hpp"
+#include "alphaledger/test_log.hpp"
 
 namespace alphaledger {
 namespace {
@@ -31,12 +32,12 @@ LineWork parse_line(std::uint64_t line_no, std::string_view text) {
     w.error = "empty line; each line must be one JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}";
     return w;
   }
-  nlohmann::json j = nlohmann::json::parse(t, nullptr, /*allow_exceptions=*/false);
-  if (j.is_discarded() || !j.is_object()) {
-    w.error = "not a JSON object; each line must be one object such as {\"id\": \"t1\", \"p_value\": 0.01}";
+  auto j = parse_json_object(t);
+  if (!j) {
+    w.error = j.error().message;
     return w;
   }
-  auto input = test_from_json(j);
+  auto input = test_from_json(*j);
   if (!input) {
     w.error = input.error().message;
     return w;

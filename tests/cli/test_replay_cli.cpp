@@ -93,7 +93,7 @@ TEST_CASE("Replay: bad input exits 2 naming file:line, the field, the value and 
       {"dup.csv", "id,p_value\na,0.1\na,0.2\n", ":3: duplicate id 'a' (first at line 2)"},
       {"date.csv", "id,finished_at,p_value\na,2025-13-01,0.1\n", ":2: finished_at must be an ISO 8601 date"},
       {"fields.csv", "id,p_value\na,0.1,extra\n", ":2: expected 2 fields as in the header, got 3"},
-      {"bad.jsonl", "{\"id\": \"a\", \"p_value\": 0.1}\n{not json}\n", ":2: not a JSON object"},
+      {"bad.jsonl", "{\"id\": \"a\", \"p_value\": 0.1}\n{not json}\n", ":2: not valid JSON (at byte"},
       {"type.jsonl", "{\"id\": \"a\", \"p_value\": \"0.1\"}\n", ":1: p_value must be a JSON number in [0, 1], got \"0.1\""},
   };
   for (const auto& c : cases) {
