@@ -283,7 +283,7 @@ TEST_CASE(
                                           "Bearer " + token + "x",
                                           "Bearer " + token.substr(1),
                                           "Basic " + token,
-                                          "bearer " + token,
+                                          "bearer " + token + "x",
                                           "Bearer"};
   for (const auto& auth : wrong) {
     INFO("Authorization: '" << auth << "'");
@@ -535,6 +535,38 @@ TEST_CASE(
     CHECK_MESSAGE(s.verify.ok, "verify: step " << s.verify.first_bad_step << ": " << s.verify.problem);
     testing::check_history_equals_replay(s.history, s.config);
   }
+}
+
+TEST_CASE("Server: pipe and serve refuse a ledger folder that does not exist (exit 3) and create nothing") {
+  TempDir dir;
+  const std::string missing = dir.file("no-such-ledger");
+  {
+    Child serve({"--ledger", missing, "serve", "--listen", "127.0.0.1:0"},
+                {"/dev/null", dir.file("serve.out"), dir.file("serve.err")});
+    CHECK(serve.wait(std::chrono::seconds(30)) == std::optional<int>(3));
+    CHECK(read_file(dir.file("serve.err")).find("no ledger at") != std::string::npos);
+  }
+  {
+    write_file(dir.file("in.jsonl"), "{\"id\": \"a\", \"p_value\": 0.1}\n");
+    Child pipe({"--ledger", missing, "pipe", "s"}, {dir.file("in.jsonl"), dir.file("pipe.out"), dir.file("pipe.err")});
+    CHECK(pipe.wait(std::chrono::seconds(30)) == std::optional<int>(3));
+    CHECK(read_file(dir.file("pipe.err")).find("no ledger at") != std::string::npos);
+  }
+  CHECK_FALSE(std::filesystem::exists(missing));
+}
+
+TEST_CASE("Server: a second serve on the same address refuses to start (exit 4, address in use)") {
+  TempDir dir;
+  ServerProcess first(dir.file("db1"), dir.file("first.log"));
+  REQUIRE(Ledger::open(dir.file("db2")).ok());
+  Child second({"--ledger", dir.file("db2"), "serve", "--listen", "127.0.0.1:" + std::to_string(first.port())},
+               {"/dev/null", dir.file("second.out"), dir.file("second.err")});
+  CHECK(second.wait(std::chrono::seconds(30)) == std::optional<int>(4));
+  CHECK(read_file(dir.file("second.err")).find("address in use") != std::string::npos);
+  Api api(first.port());
+  CHECK(api.get("/v1/health").status == 200);
+  api.close();
+  CHECK(first.stop() == std::optional<int>(0));
 }
 
 }  // namespace
