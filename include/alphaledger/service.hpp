@@ -158,7 +158,7 @@ struct HttpOptions {
   std::function<void(const AccessLogEntry&)> access_log;  // Default: none
 };
 
-// The HTTP/JSON service of CONTRACT.md "Service" (routes and errors in docs/http.md).
+// The HTTP/JSON service (routes, errors and limits in docs/http.md).
 class HttpService {
  public:
   // Validates the options (kInvalidInput: threads 0, max body 0, max connections 0, bad timeouts).

@@ -45,19 +45,32 @@ bool is_token_char(char c) {
 
 const char* reason(int status) {
   switch (status) {
-    case 100: return "Continue";
-    case 200: return "OK";
-    case 201: return "Created";
-    case 400: return "Bad Request";
-    case 401: return "Unauthorized";
-    case 404: return "Not Found";
-    case 408: return "Request Timeout";
-    case 409: return "Conflict";
-    case 413: return "Payload Too Large";
-    case 431: return "Request Header Fields Too Large";
-    case 500: return "Internal Server Error";
-    case 503: return "Service Unavailable";
-    default: return "Status";
+    case 100:
+      return "Continue";
+    case 200:
+      return "OK";
+    case 201:
+      return "Created";
+    case 400:
+      return "Bad Request";
+    case 401:
+      return "Unauthorized";
+    case 404:
+      return "Not Found";
+    case 408:
+      return "Request Timeout";
+    case 409:
+      return "Conflict";
+    case 413:
+      return "Payload Too Large";
+    case 431:
+      return "Request Header Fields Too Large";
+    case 500:
+      return "Internal Server Error";
+    case 503:
+      return "Service Unavailable";
+    default:
+      return "Status";
   }
 }
 
@@ -77,10 +90,14 @@ std::optional<std::size_t> parse_hex(std::string_view s) {
   std::size_t v = 0;
   for (char c : s) {
     int d;
-    if (c >= '0' && c <= '9') d = c - '0';
-    else if (c >= 'a' && c <= 'f') d = c - 'a' + 10;
-    else if (c >= 'A' && c <= 'F') d = c - 'A' + 10;
-    else return std::nullopt;
+    if (c >= '0' && c <= '9')
+      d = c - '0';
+    else if (c >= 'a' && c <= 'f')
+      d = c - 'a' + 10;
+    else if (c >= 'A' && c <= 'F')
+      d = c - 'A' + 10;
+    else
+      return std::nullopt;
     v = v * 16 + static_cast<std::size_t>(d);
   }
   return v;
@@ -100,7 +117,7 @@ struct Conn {
   int fd = -1;
   std::string remote;
   State state = State::kIdle;
-  std::string in;  // bytes read and not yet consumed
+  std::string in;   // bytes read and not yet consumed
   std::string out;  // bytes to write
   std::size_t out_done = 0;
   bool close_after_write = false;
@@ -189,8 +206,8 @@ struct Server::Impl {
 
   // Queues an answer on the connection and starts writing it.
   void answer(Conn& c, const Response& r) {
-    const bool close = r.close || !c.keep_alive || stopping.load() ||
-                       c.served + 1 >= options.max_requests_per_connection;
+    const bool close =
+        r.close || !c.keep_alive || stopping.load() || c.served + 1 >= options.max_requests_per_connection;
     c.out += serialize(r, close);
     c.close_after_write = c.close_after_write || close;
     c.state = State::kWriting;
@@ -316,7 +333,8 @@ struct Server::Impl {
   }
 
   Refusal too_large() const {
-    return Refusal{413, "the request body is larger than " + std::to_string(options.max_body_bytes) + " bytes"};
+    return Refusal{413,
+                   "the request body is larger than " + std::to_string(options.max_body_bytes) + " bytes"};
   }
 
   // Consumes body bytes from c.in. Sets complete when the whole body is in c.req.body.
@@ -359,15 +377,16 @@ struct Server::Impl {
         if (*n == 0) {
           c.chunk = Conn::Chunk::kTrailer;
         } else {
-          if (*n > options.max_body_bytes || c.req.body.size() + *n > options.max_body_bytes) return too_large();
+          if (*n > options.max_body_bytes || c.req.body.size() + *n > options.max_body_bytes)
+            return too_large();
           c.chunk_left = *n;
           c.chunk = Conn::Chunk::kData;
         }
       } else {  // trailer lines until an empty one
         c.trailer_bytes += line.size();
         if (c.trailer_bytes > options.max_header_bytes)
-          return Refusal{431, "the chunked trailer is larger than " + std::to_string(options.max_header_bytes) +
-                                  " bytes"};
+          return Refusal{431, "the chunked trailer is larger than " +
+                                  std::to_string(options.max_header_bytes) + " bytes"};
         if (line.empty()) {
           c.in.erase(0, pos);
           complete = true;
@@ -515,7 +534,8 @@ struct Server::Impl {
     while (true) {
       sockaddr_in addr{};
       socklen_t len = sizeof addr;
-      const int fd = ::accept4(listen_fd, reinterpret_cast<sockaddr*>(&addr), &len, SOCK_NONBLOCK | SOCK_CLOEXEC);
+      const int fd =
+          ::accept4(listen_fd, reinterpret_cast<sockaddr*>(&addr), &len, SOCK_NONBLOCK | SOCK_CLOEXEC);
       if (fd < 0) {
         if (errno == EINTR || errno == ECONNABORTED) continue;
         if (errno == EMFILE || errno == ENFILE || errno == ENOBUFS || errno == ENOMEM) {
@@ -692,7 +712,8 @@ Result<int> Server::bind(const std::string& host, int port) {
   const std::string ip = host == "localhost" ? "127.0.0.1" : host;
   if (::inet_pton(AF_INET, ip.c_str(), &addr) != 1)
     return storage_error("cannot listen on " + where + ": not an IPv4 address");
-  if (impl_->wake_fd < 0) return storage_error("cannot listen on " + where + ": no event descriptor available");
+  if (impl_->wake_fd < 0)
+    return storage_error("cannot listen on " + where + ": no event descriptor available");
   const int fd = ::socket(AF_INET, SOCK_STREAM | SOCK_NONBLOCK | SOCK_CLOEXEC, 0);
   if (fd < 0) return storage_error("cannot listen on " + where + ": cannot create a socket");
   // SO_REUSEADDR only (restart over connections in TIME_WAIT). Not SO_REUSEPORT: with it a second

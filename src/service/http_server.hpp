@@ -34,10 +34,10 @@
 namespace alphaledger::http {
 
 struct Request {
-  std::string method;  // as sent, e.g. "GET"
-  std::string target;  // as sent, e.g. "/v1/streams?x=1"
-  std::string path;    // target before '?', not decoded
-  std::string query;   // after '?', not decoded ("" when absent)
+  std::string method;                                        // as sent, e.g. "GET"
+  std::string target;                                        // as sent, e.g. "/v1/streams?x=1"
+  std::string path;                                          // target before '?', not decoded
+  std::string query;                                         // after '?', not decoded ("" when absent)
   int minor_version = 1;                                     // HTTP/1.<minor>
   std::vector<std::pair<std::string, std::string>> headers;  // names in lower case, values trimmed
   std::string body;                                          // decoded (chunks joined)
@@ -48,17 +48,17 @@ struct Request {
 
 struct Response {
   int status = 200;
-  std::string body;                                         // sent as application/json
+  std::string body;                                          // sent as application/json
   std::vector<std::pair<std::string, std::string>> headers;  // extra headers
   bool close = false;                                        // close the connection after it
 };
 
 struct ServerOptions {
-  std::size_t threads = 32;                       // worker threads (requests handled at once)
-  std::size_t max_body_bytes = 65536;             // larger bodies: 413, connection closed
-  std::size_t max_header_bytes = 16384;           // request line and headers: 431 above it
-  std::size_t max_headers = 100;                  // header lines: 431 above it
-  std::size_t max_connections = 4096;             // more are accepted and closed at once
+  std::size_t threads = 32;              // worker threads (requests handled at once)
+  std::size_t max_body_bytes = 65536;    // larger bodies: 413, connection closed
+  std::size_t max_header_bytes = 16384;  // request line and headers: 431 above it
+  std::size_t max_headers = 100;         // header lines: 431 above it
+  std::size_t max_connections = 4096;    // more are accepted and closed at once
   std::size_t max_requests_per_connection = 1000;
   std::chrono::milliseconds request_timeout{10000};    // first byte to last byte of a request
   std::chrono::milliseconds keep_alive_timeout{5000};  // idle time between requests

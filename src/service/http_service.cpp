@@ -1,4 +1,4 @@
-// alphaledger serve: the HTTP/JSON routes of CONTRACT.md "Service" (docs/http.md), one function per
+// alphaledger serve: the HTTP/JSON routes (docs/http.md), one function per
 // route, over the small HTTP server of http_server.hpp.
 #include <arpa/inet.h>
 
@@ -20,7 +20,9 @@ using Json = nlohmann::ordered_json;
 using http::Request;
 using http::Response;
 
-Response json_response(int status, const Json& body) { return Response{status, dump_json(body) + "\n", {}, false}; }
+Response json_response(int status, const Json& body) {
+  return Response{status, dump_json(body) + "\n", {}, false};
+}
 
 Response error_response(int status, std::string_view code, const std::string& message) {
   Json j;
@@ -76,9 +78,9 @@ Result<nlohmann::json> json_body(const Request& req, std::string_view example, R
   if (!j) {
     // Valid JSON that is not an object is invalid input; text that is not JSON is invalid JSON.
     const bool not_object = j.error().message.rfind("expected a JSON object", 0) == 0;
-    error = error_response(400, not_object ? "invalid_input" : "invalid_json",
-                           "the request body: " + j.error().message + " (for this route: " +
-                               std::string(example) + ")");
+    error = error_response(
+        400, not_object ? "invalid_input" : "invalid_json",
+        "the request body: " + j.error().message + " (for this route: " + std::string(example) + ")");
     return j.error();
   }
   return std::move(j).value();
@@ -167,10 +169,14 @@ std::optional<std::string> percent_decode(std::string_view s) {
     for (int k = 1; k <= 2; ++k) {
       const char c = s[i + static_cast<std::size_t>(k)];
       int d;
-      if (c >= '0' && c <= '9') d = c - '0';
-      else if (c >= 'a' && c <= 'f') d = c - 'a' + 10;
-      else if (c >= 'A' && c <= 'F') d = c - 'A' + 10;
-      else return std::nullopt;
+      if (c >= '0' && c <= '9')
+        d = c - '0';
+      else if (c >= 'a' && c <= 'f')
+        d = c - 'a' + 10;
+      else if (c >= 'A' && c <= 'F')
+        d = c - 'A' + 10;
+      else
+        return std::nullopt;
       v = v * 16 + d;
     }
     out.push_back(static_cast<char>(v));
@@ -218,7 +224,8 @@ class Routes {
       const std::size_t slash = path.find('/');
       auto decoded = percent_decode(path.substr(0, slash));
       if (!decoded)
-        return error_response(400, "invalid_request", "the path " + excerpt(req.path) + " has a bad %-escape");
+        return error_response(400, "invalid_request",
+                              "the path " + excerpt(req.path) + " has a bad %-escape");
       parts.push_back(std::move(*decoded));
       if (slash == std::string_view::npos) break;
       path.remove_prefix(slash);
@@ -237,8 +244,9 @@ class Routes {
         if (n == 4 && parts[3] == "verify" && m == "GET") return verify(parts[2]);
       }
     }
-    return error_response(404, "unknown_route",
-                          "no route " + excerpt(m, 16) + " " + excerpt(req.path) + "; " + std::string(kRouteList));
+    return error_response(
+        404, "unknown_route",
+        "no route " + excerpt(m, 16) + " " + excerpt(req.path) + "; " + std::string(kRouteList));
   }
 
   // Streams for which the DecisionQueue holds a lane right now (for tests).
@@ -403,8 +411,8 @@ Response protocol_error(int status, const std::string& what, std::size_t max_bod
     case 408:
       return error_response(408, "timeout", what);
     case 413:
-      return error_response(413, "too_large", "the request body is larger than " + std::to_string(max_body) +
-                                                  " bytes");
+      return error_response(413, "too_large",
+                            "the request body is larger than " + std::to_string(max_body) + " bytes");
     case 431:
       return error_response(431, "headers_too_large", what);
     default:
@@ -415,7 +423,9 @@ Response protocol_error(int status, const std::string& what, std::size_t max_bod
 class HttpServiceImpl final : public HttpService {
  public:
   HttpServiceImpl(Ledger& ledger, HttpOptions options)
-      : options_(std::move(options)), routes_(ledger, options_), server_(server_options(options_), handlers()) {}
+      : options_(std::move(options)),
+        routes_(ledger, options_),
+        server_(server_options(options_), handlers()) {}
 
   Result<int> bind() override { return server_.bind(options_.listen.host, options_.listen.port); }
 

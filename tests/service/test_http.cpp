@@ -548,7 +548,8 @@ TEST_CASE("Server: pipe and serve refuse a ledger folder that does not exist (ex
   }
   {
     write_file(dir.file("in.jsonl"), "{\"id\": \"a\", \"p_value\": 0.1}\n");
-    Child pipe({"--ledger", missing, "pipe", "s"}, {dir.file("in.jsonl"), dir.file("pipe.out"), dir.file("pipe.err")});
+    Child pipe({"--ledger", missing, "pipe", "s"},
+               {dir.file("in.jsonl"), dir.file("pipe.out"), dir.file("pipe.err")});
     CHECK(pipe.wait(std::chrono::seconds(30)) == std::optional<int>(3));
     CHECK(read_file(dir.file("pipe.err")).find("no ledger at") != std::string::npos);
   }
@@ -559,8 +560,9 @@ TEST_CASE("Server: a second serve on the same address refuses to start (exit 4, 
   TempDir dir;
   ServerProcess first(dir.file("db1"), dir.file("first.log"));
   REQUIRE(Ledger::open(dir.file("db2")).ok());
-  Child second({"--ledger", dir.file("db2"), "serve", "--listen", "127.0.0.1:" + std::to_string(first.port())},
-               {"/dev/null", dir.file("second.out"), dir.file("second.err")});
+  Child second(
+      {"--ledger", dir.file("db2"), "serve", "--listen", "127.0.0.1:" + std::to_string(first.port())},
+      {"/dev/null", dir.file("second.out"), dir.file("second.err")});
   CHECK(second.wait(std::chrono::seconds(30)) == std::optional<int>(4));
   CHECK(read_file(dir.file("second.err")).find("address in use") != std::string::npos);
   Api api(first.port());

@@ -182,7 +182,8 @@ struct InProcess {
 
 std::string deep(std::size_t depth) { return std::string(depth, '[') + std::string(depth, ']'); }
 
-TEST_CASE("HTTP hardening: a body nested 200,000 deep is refused with 400, chunked or not, and the server lives") {
+TEST_CASE(
+    "HTTP hardening: a body nested 200,000 deep is refused with 400, chunked or not, and the server lives") {
   HttpOptions big;
   big.max_body_bytes = 1 << 20;  // so that the 400 KB body is read and parsed
   InProcess t(big);
@@ -191,8 +192,8 @@ TEST_CASE("HTTP hardening: a body nested 200,000 deep is refused with 400, chunk
   for (const bool use_chunks : {false, true}) {
     INFO("chunked " << use_chunks);
     for (const std::string path : {"/v1/streams/deep/tests", "/v1/streams"}) {
-      const std::string answer = t.exchange(use_chunks ? chunked("POST", path, body, 8192)
-                                                       : request("POST", path, body));
+      const std::string answer =
+          t.exchange(use_chunks ? chunked("POST", path, body, 8192) : request("POST", path, body));
       CHECK(status_of(answer) == 400);
       CHECK(code_of(answer) == "invalid_json");
       CHECK(answer.size() < 2000);  // the message quotes an excerpt, never the whole value
@@ -262,11 +263,14 @@ TEST_CASE("HTTP hardening: without the token, a 200 MiB body gets 401 before any
     CHECK(raw.closed_within(std::chrono::seconds(5)));
   }
   // Lower-case scheme (RFC 7235 section 2.1: the scheme is case-insensitive) and the right token.
-  const std::string ok = s.exchange(request("GET", "/v1/health", "", "Authorization: bearer s3cret-token\r\n"));
+  const std::string ok =
+      s.exchange(request("GET", "/v1/health", "", "Authorization: bearer s3cret-token\r\n"));
   CHECK(status_of(ok) == 200);
-  const std::string upper = s.exchange(request("GET", "/v1/health", "", "Authorization: BEARER s3cret-token\r\n"));
+  const std::string upper =
+      s.exchange(request("GET", "/v1/health", "", "Authorization: BEARER s3cret-token\r\n"));
   CHECK(status_of(upper) == 200);
-  const std::string wrong = s.exchange(request("GET", "/v1/health", "", "Authorization: bearer s3cret-tokeN\r\n"));
+  const std::string wrong =
+      s.exchange(request("GET", "/v1/health", "", "Authorization: bearer s3cret-tokeN\r\n"));
   CHECK(status_of(wrong) == 401);
 }
 
@@ -298,7 +302,8 @@ TEST_CASE("HTTP hardening: malformed framing gets 400 with a JSON error, not a d
   CHECK(s.ledger->history("framing")->empty());
 }
 
-TEST_CASE("HTTP hardening: slow clients, more than the worker threads, neither starve health nor stay forever") {
+TEST_CASE(
+    "HTTP hardening: slow clients, more than the worker threads, neither starve health nor stay forever") {
   HttpOptions options;
   options.threads = 2;
   options.io_timeout_seconds = 2;
@@ -339,25 +344,27 @@ TEST_CASE("HTTP hardening: unknown stream names leave nothing behind; lanes live
   InProcess s;
   s.create("real");
   for (int k = 0; k < 2000; ++k) {
-    const std::string answer = s.exchange(
-        request("POST", "/v1/streams/" + testing::tag("ghost-", k) + "/tests", R"({"id": "x", "p_value": 0.5})"));
+    const std::string answer = s.exchange(request(
+        "POST", "/v1/streams/" + testing::tag("ghost-", k) + "/tests", R"({"id": "x", "p_value": 0.5})"));
     REQUIRE(status_of(answer) == 404);
   }
   CHECK(s.service->queue_lanes() == 0);
   for (int k = 0; k < 20; ++k) {
-    const std::string answer = s.exchange(
-        request("POST", "/v1/streams/real/tests", "{\"id\": \"" + testing::tag("t", k) + "\", \"p_value\": 0.5}"));
+    const std::string answer = s.exchange(request(
+        "POST", "/v1/streams/real/tests", "{\"id\": \"" + testing::tag("t", k) + "\", \"p_value\": 0.5}"));
     REQUIRE(status_of(answer) == 201);
   }
   CHECK(s.service->queue_lanes() == 0);  // the idle lane was dropped
 }
 
-TEST_CASE("HTTP hardening: after a storage failure health answers 503 with the reason until a write succeeds") {
+TEST_CASE(
+    "HTTP hardening: after a storage failure health answers 503 with the reason until a write succeeds") {
   InProcess s;
   s.create("disk");
   CHECK(s.healthy());
   s.faults.fail_all_writes("No space left on device");
-  const std::string failed = s.exchange(request("POST", "/v1/streams/disk/tests", R"({"id": "a", "p_value": 0.1})"));
+  const std::string failed =
+      s.exchange(request("POST", "/v1/streams/disk/tests", R"({"id": "a", "p_value": 0.1})"));
   CHECK(status_of(failed) == 503);
   CHECK(code_of(failed) == "storage");
   const std::string health = s.exchange(request("GET", "/v1/health", ""));
@@ -368,7 +375,8 @@ TEST_CASE("HTTP hardening: after a storage failure health answers 503 with the r
   CHECK(status_of(s.exchange(request("GET", "/v1/streams/disk", ""))) == 200);
   CHECK(status_of(s.exchange(request("GET", "/v1/health", ""))) == 503);
   s.faults.clear_faults();
-  CHECK(status_of(s.exchange(request("POST", "/v1/streams/disk/tests", R"({"id": "a", "p_value": 0.1})"))) == 201);
+  CHECK(status_of(s.exchange(request("POST", "/v1/streams/disk/tests", R"({"id": "a", "p_value": 0.1})"))) ==
+        201);
   CHECK(s.healthy());
 }
 
@@ -377,7 +385,8 @@ TEST_CASE("HTTP hardening: GET /v1/streams/{s}/verify answers the report; 200 wh
   s.create("checked");
   for (int k = 0; k < 3; ++k) {
     REQUIRE(status_of(s.exchange(request("POST", "/v1/streams/checked/tests",
-                                         "{\"id\": \"" + testing::tag("v", k) + "\", \"p_value\": 0.3}"))) == 201);
+                                         "{\"id\": \"" + testing::tag("v", k) + "\", \"p_value\": 0.3}"))) ==
+            201);
   }
   const std::string ok = s.exchange(request("GET", "/v1/streams/checked/verify", ""));
   REQUIRE(status_of(ok) == 200);
@@ -408,19 +417,21 @@ TEST_CASE("HTTP hardening: GET /v1/streams/{s}/verify answers the report; 200 wh
 
 TEST_CASE("HTTP hardening: POST /v1/streams takes `alternative`, and the stream object shows it") {
   InProcess s;
-  const std::string answer =
-      s.exchange(request("POST", "/v1/streams", R"({"name": "dir", "rule": "lord++", "alternative": "greater"})"));
+  const std::string answer = s.exchange(
+      request("POST", "/v1/streams", R"({"name": "dir", "rule": "lord++", "alternative": "greater"})"));
   REQUIRE(status_of(answer) == 201);
   auto j = nlohmann::json::parse(body_of(answer));
   CHECK(j["alternative"] == "greater");
   CHECK(s.ledger->status("dir")->alternative == Alternative::kGreater);
-  const std::string bad =
-      s.exchange(request("POST", "/v1/streams", R"({"name": "dir2", "rule": "lord++", "alternative": "sideways"})"));
+  const std::string bad = s.exchange(
+      request("POST", "/v1/streams", R"({"name": "dir2", "rule": "lord++", "alternative": "sideways"})"));
   CHECK(status_of(bad) == 400);
   CHECK(body_of(bad).find("alternative") != std::string::npos);
   // Two-sided (the default) is not shown, as in `status --json`.
-  REQUIRE(status_of(s.exchange(request("POST", "/v1/streams", R"({"name": "plain", "rule": "lord++"})"))) == 201);
-  CHECK(body_of(s.exchange(request("GET", "/v1/streams/plain", ""))).find("alternative") == std::string::npos);
+  REQUIRE(status_of(s.exchange(request("POST", "/v1/streams", R"({"name": "plain", "rule": "lord++"})"))) ==
+          201);
+  CHECK(body_of(s.exchange(request("GET", "/v1/streams/plain", ""))).find("alternative") ==
+        std::string::npos);
 }
 
 TEST_CASE("HTTP hardening: 32 and 64 concurrent keep-alive clients with 8 workers: no failed request") {
