@@ -239,13 +239,16 @@ TEST_CASE(
     "--json") {
   TempDir dir;
   const std::string db = dir.file("db");
-  std::string status, next, history, streams, repeat;
+  std::string status, next, history, streams, repeat, directed;
   {
     ServerProcess server(db, dir.file("server.log"));
     Api api(server.port());
     REQUIRE(api.post("/v1/streams", R"({"name": "same", "rule": "addis", "alpha": 0.1})").status == 201);
     for (int k = 0; k < 5; ++k)
       REQUIRE(api.decide("same", testing::tag("t", k), k == 2 ? 0.0002 : 0.3 + 0.1 * k).status == 201);
+    REQUIRE(api.post("/v1/streams", R"({"name": "directed", "rule": "saffron", "alternative": "greater"})")
+                .status == 201);
+    directed = api.get("/v1/streams/directed").raw;
     status = api.get("/v1/streams/same").raw;
     next = api.get("/v1/streams/same/next").raw;
     history = api.get("/v1/streams/same/history").raw;
@@ -255,11 +258,15 @@ TEST_CASE(
     REQUIRE(server.stop() == std::optional<int>(0));
   }
   CHECK(status == cli_output(dir, {"--ledger", db, "--json", "status", "same"}));
+  CHECK(directed == cli_output(dir, {"--ledger", db, "--json", "status", "directed"}));
+  CHECK(directed.find("\"alternative\":\"greater\"") != std::string::npos);
   CHECK(next == cli_output(dir, {"--ledger", db, "--json", "next", "same"}));
   CHECK(repeat ==
         cli_output(dir, {"--ledger", db, "--json", "decide", "same", "--id", "t2", "--p", "0.0002"}));
-  CHECK(nlohmann::ordered_json::parse(streams)["streams"][0].dump() + "\n" ==
-        cli_output(dir, {"--ledger", db, "--json", "streams"}));
+  std::string stream_lines;
+  const auto listed = nlohmann::ordered_json::parse(streams);
+  for (const auto& one : listed["streams"]) stream_lines += one.dump() + "\n";
+  CHECK(stream_lines == cli_output(dir, {"--ledger", db, "--json", "streams"}));
   std::string rows;
   const auto parsed = nlohmann::ordered_json::parse(history);
   for (const auto& row : parsed["decisions"]) rows += row.dump() + "\n";
