@@ -2,7 +2,7 @@
 //
 // What it measures (each scenario on a fresh ledger folder and a fresh server on a free loopback
 // port, started from the built binary with --access-log off and enough worker threads):
-//   1. HTTP, distinct streams: C concurrent clients (C = 1, 8, 32 by default), each deciding new
+//   1. HTTP, distinct streams: C concurrent clients (C = 1, 8, 32, 64 by default), each deciding new
 //      tests on its own stream (LORD++, defaults) over one keep-alive connection. Different streams
 //      proceed in parallel; each request waits for its own synced write.
 //   2. HTTP, one stream: the same clients all deciding on one shared stream; the server's group
@@ -12,7 +12,7 @@
 // Prints the set-up, then per scenario: clients, decisions, seconds, decisions/s, and the latency
 // percentiles p50 / p99 / max in milliseconds (client side, request sent to answer read).
 //
-// Usage: load_http [--binary PATH] [--folder DIR] [--decisions N] [--clients 1,8,32] [--cli N]
+// Usage: load_http [--binary PATH] [--folder DIR] [--decisions N] [--clients 1,8,32,64] [--cli N]
 //   --binary     the alphaledger executable (default: the one built with this benchmark)
 //   --folder     where the ledger folders go (default ./load-http.tmp; created and removed); put it
 //                on the disk you want to measure
@@ -38,6 +38,8 @@
 #include <thread>
 #include <vector>
 
+#include "alphaledger/ledger.hpp"
+
 namespace {
 
 using SteadyClock = std::chrono::steady_clock;
@@ -46,7 +48,7 @@ struct Options {
   std::string binary = ALPHALEDGER_BINARY;
   std::string folder = "load-http.tmp";
   std::size_t decisions = 4000;
-  std::vector<int> clients = {1, 8, 32};
+  std::vector<int> clients = {1, 8, 32, 64};
   std::size_t cli = 200;
 };
 
@@ -95,6 +97,8 @@ std::string slurp(const std::string& path) {
 class Server {
  public:
   Server(const Options& o, const std::string& dir, std::size_t threads) : log_(dir + "/server.log") {
+    // `serve` opens an existing ledger only: make the empty one first (closed again at once).
+    if (!alphaledger::Ledger::open(dir + "/db").ok()) die("cannot create the ledger in " + dir + "/db");
     pid_ = spawn({o.binary, "--ledger", dir + "/db", "serve", "--listen", "127.0.0.1:0", "--access-log",
                   "off", "--threads", std::to_string(threads)},
                  dir + "/server.out", log_);

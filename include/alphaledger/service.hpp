@@ -84,13 +84,18 @@ class DecisionQueue {
   // validate_p_value), so one bad input cannot fail a shared batch.
   Result<DecideResult> decide(const std::string& stream, const std::string& id, double p_value);
 
+  // Streams with a lane right now. A lane exists only while a decide() on its stream is queued or
+  // running, so names seen once (unknown ones included) cost nothing afterwards.
+  std::size_t lane_count() const;
+
  private:
   struct Lane;
-  Lane& lane(const std::string& stream);
+  Lane& acquire(const std::string& stream);
+  void release(const std::string& stream);
 
   Ledger& ledger_;
   std::size_t max_group_;
-  std::mutex lanes_mutex_;
+  mutable std::mutex lanes_mutex_;
   std::unordered_map<std::string, std::unique_ptr<Lane>> lanes_;
 };
 
@@ -146,27 +151,31 @@ struct HttpOptions {
   ListenAddress listen{"127.0.0.1", 8742};  // Default: 127.0.0.1:8742
   std::optional<std::string> token;         // Default: none (no authentication)
   std::size_t max_body_bytes = 65536;       // Default: 64 KiB; larger bodies get 413
-  int io_timeout_seconds = 10;              // Default: 10 (read and write timeouts per request)
+  int io_timeout_seconds = 10;              // Default: 10 (a whole request, headers and body; 408 after)
   int keep_alive_seconds = 5;               // Default: 5 (idle keep-alive connections close)
-  std::size_t threads = 32;                 // Default: 32 worker threads (one per open connection)
+  std::size_t threads = 32;                 // Default: 32 worker threads (requests handled at once)
+  std::size_t max_connections = 4096;       // Default: 4096 open connections; more are closed at once
   std::function<void(const AccessLogEntry&)> access_log;  // Default: none
 };
 
-// The HTTP/JSON service of CONTRACT.md "Service" (routes and errors in docs/http.md).
+// The HTTP/JSON service (routes, errors and limits in docs/http.md).
 class HttpService {
  public:
-  // Validates the options (kInvalidInput: threads 0, max body 0, bad timeouts).
+  // Validates the options (kInvalidInput: threads 0, max body 0, max connections 0, bad timeouts).
   static Result<std::unique_ptr<HttpService>> create(Ledger& ledger, HttpOptions options);
   virtual ~HttpService() = default;
 
   // Binds the listening socket; returns the port bound. kStorage if the address cannot be bound
-  // (in use, not local), naming it.
+  // ("address in use": another process listens there, even another `serve`; or not local),
+  // naming it.
   virtual Result<int> bind() = 0;
   // Serves until stop(); in-flight requests are finished before it returns.
   // REQUIRES: bind() succeeded.
   virtual Status run() = 0;
   // Safe from any thread (also before run() starts, in which case run() returns at once).
   virtual void stop() = 0;
+  // Streams with a decision queue lane right now (DecisionQueue::lane_count; for tests).
+  virtual std::size_t queue_lanes() const = 0;
 };
 
 // ---- signals -----------------------------------------------------------------------------------

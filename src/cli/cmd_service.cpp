@@ -13,6 +13,7 @@
 #include <thread>
 
 #include "alphaledger/service.hpp"
+#include "alphaledger/store.hpp"
 #include "cli/command.hpp"
 
 namespace alphaledger::cli {
@@ -57,7 +58,8 @@ class ServiceLog {
 Status run_pipe_command(const PipeOptions& o, const GlobalOptions& g, std::ostream& out) {
   auto signals = StopSignals::install();
   if (!signals) return signals.error();
-  auto ledger = Ledger::open(ledger_path(g));
+  // An existing ledger only: a mistyped --ledger must not create an empty one (exit 3).
+  auto ledger = Ledger::open(ledger_path(g), RocksStoreOptions{.create_if_missing = false});
   if (!ledger) return ledger.error();
   auto summary = run_pipe(**ledger, o.stream, /*in_fd=*/0, out, (*signals)->fd());
   if (!summary) return summary.error();
@@ -101,7 +103,8 @@ Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
   // Handlers before any thread exists, so no worker is ended by SIGTERM/SIGINT.
   auto signals = StopSignals::install();
   if (!signals) return signals.error();
-  auto ledger = Ledger::open(ledger_path(g));
+  // An existing ledger only (create one with `alphaledger new`): exit 3 "no ledger at ...".
+  auto ledger = Ledger::open(ledger_path(g), RocksStoreOptions{.create_if_missing = false});
   if (!ledger) return ledger.error();
   auto service = HttpService::create(**ledger, options);
   if (!service) return service.error();
@@ -174,7 +177,7 @@ void add_service_commands(CLI::App& app, CommandContext& ctx) {
       "HOST:PORT to listen on; default 127.0.0.1:8742 (loopback only); port 0 picks a free one");
   serve->add_option("--token-file", serve_opts->token_file,
                     "file whose first line is the bearer token every request must carry");
-  serve->add_option("--threads", serve_opts->threads, "worker threads, one per open connection; default 32")
+  serve->add_option("--threads", serve_opts->threads, "worker threads: requests handled at once; default 32")
       ->check(CLI::Range(1, 1024));
   serve
       ->add_option("--max-body-bytes", serve_opts->max_body_bytes,
@@ -182,7 +185,8 @@ void add_service_commands(CLI::App& app, CommandContext& ctx) {
       ->check(CLI::Range(1, 64 << 20));
   serve
       ->add_option("--timeout-seconds", serve_opts->timeout_seconds,
-                   "read and write timeout per request; default 10")
+                   "time allowed for a whole request (headers and body; slower: 408) and for "
+                   "writing its answer; default 10")
       ->check(CLI::Range(1, 3600));
   serve
       ->add_option("--access-log", serve_opts->access_log,

@@ -97,6 +97,7 @@ struct DecisionQueue::Lane {
   std::condition_variable done;
   std::deque<Pending*> waiting;
   bool busy = false;
+  std::size_t users = 0;  // decide() calls holding this lane; guarded by lanes_mutex_
 };
 
 DecisionQueue::DecisionQueue(Ledger& ledger, std::size_t max_group)
@@ -104,15 +105,35 @@ DecisionQueue::DecisionQueue(Ledger& ledger, std::size_t max_group)
 
 DecisionQueue::~DecisionQueue() = default;
 
-DecisionQueue::Lane& DecisionQueue::lane(const std::string& stream) {
+DecisionQueue::Lane& DecisionQueue::acquire(const std::string& stream) {
   std::lock_guard<std::mutex> lock(lanes_mutex_);
   auto& slot = lanes_[stream];
   if (!slot) slot = std::make_unique<Lane>();
+  ++slot->users;
   return *slot;
 }
 
+// The last user of a lane removes it: a lane lives only while someone waits on it, so a stream
+// name (an unknown one too) leaves nothing behind.
+void DecisionQueue::release(const std::string& stream) {
+  std::lock_guard<std::mutex> lock(lanes_mutex_);
+  auto it = lanes_.find(stream);
+  if (it == lanes_.end()) return;
+  if (--it->second->users == 0) lanes_.erase(it);
+}
+
+std::size_t DecisionQueue::lane_count() const {
+  std::lock_guard<std::mutex> lock(lanes_mutex_);
+  return lanes_.size();
+}
+
 Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std::string& id, double p_value) {
-  Lane& lane = this->lane(stream);
+  Lane& lane = acquire(stream);
+  struct Release {
+    DecisionQueue* queue;
+    const std::string& stream;
+    ~Release() { queue->release(stream); }
+  } release_on_return{this, stream};
   Lane::Pending me{&id, p_value, std::nullopt};
   std::unique_lock<std::mutex> lock(lane.mutex);
   lane.waiting.push_back(&me);
@@ -135,9 +156,13 @@ Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std:
     std::vector<std::optional<Result<DecideResult>>> results;
     try {
       results = decide_in_order(ledger_, stream, inputs, max_group_);
-    } catch (const std::exception& e) {
+    } catch (...) {
       results.assign(group.size(), std::nullopt);
-      results[0].emplace(storage_error(std::string("unexpected failure while deciding: ") + e.what()));
+      // The library's own text is not shown; whether anything was decided is unknown, and a
+      // resend is safe (a decided test comes back as a repeat).
+      results[0].emplace(storage_error(
+          "the ledger failed unexpectedly while deciding; send the tests again (a decided one comes back "
+          "as a repeat)"));
     }
     lock.lock();
     std::optional<Error> storage_failure;

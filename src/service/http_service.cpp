@@ -1,53 +1,48 @@
-// alphaledger serve: the HTTP/JSON routes of CONTRACT.md "Service" (docs/http.md).
+// alphaledger serve: the HTTP/JSON routes (docs/http.md), one function per
+// route, over the small HTTP server of http_server.hpp.
 #include <arpa/inet.h>
-#include <httplib.h>
 
 #include <atomic>
 #include <charconv>
 #include <chrono>
 #include <fstream>
-#include <shared_mutex>
-#include <unordered_set>
+#include <mutex>
 
 #include "alphaledger/service.hpp"
+#include "alphaledger/stats.hpp"
 #include "alphaledger/test_log.hpp"
+#include "service/http_server.hpp"
 
 namespace alphaledger {
 namespace {
 
 using Json = nlohmann::ordered_json;
-using Clock = std::chrono::steady_clock;
+using http::Request;
+using http::Response;
 
-// When the request being handled on this worker thread started (set before routing).
-thread_local Clock::time_point t_request_start{};
-
-void send_json(httplib::Response& res, int status, const Json& body) {
-  res.status = status;
-  res.set_content(dump_json(body) + "\n", "application/json");
+Response json_response(int status, const Json& body) {
+  return Response{status, dump_json(body) + "\n", {}, false};
 }
 
-void send_error(httplib::Response& res, int status, std::string_view code, const std::string& message) {
+Response error_response(int status, std::string_view code, const std::string& message) {
   Json j;
   j["error"]["code"] = std::string(code);
   j["error"]["message"] = message;
-  send_json(res, status, j);
+  return json_response(status, j);
 }
 
 // Ledger errors to HTTP (docs/http.md "Errors"). kRefused is a conflict here: unknown streams are
-// recognised before the ledger is asked (see HttpServiceImpl::stream_exists).
-void send_ledger_error(httplib::Response& res, const Error& e) {
+// recognised before the ledger is asked (see Routes::find_stream).
+Response ledger_error(const Error& e) {
   switch (e.kind) {
     case ErrorKind::kInvalidInput:
-      send_error(res, 400, "invalid_input", e.message);
-      return;
+      return error_response(400, "invalid_input", e.message);
     case ErrorKind::kRefused:
-      send_error(res, 409, "conflict", e.message);
-      return;
+      return error_response(409, "conflict", e.message);
     case ErrorKind::kStorage:
-      send_error(res, 503, "storage", e.message);
-      return;
+      return error_response(503, "storage", e.message);
   }
-  send_error(res, 500, "internal", e.message);
+  return error_response(500, "internal", "internal error");
 }
 
 bool same_secret(std::string_view a, std::string_view b) {
@@ -60,50 +55,71 @@ bool same_secret(std::string_view a, std::string_view b) {
   return diff == 0;
 }
 
-// Parses a request body that must be a JSON object. On failure fills `res` and returns nullopt.
-std::optional<nlohmann::json> json_body(const httplib::Request& req, httplib::Response& res,
-                                        std::string_view example) {
+bool iequals(std::string_view a, std::string_view b) {
+  if (a.size() != b.size()) return false;
+  for (std::size_t i = 0; i < a.size(); ++i) {
+    char x = a[i], y = b[i];
+    if (x >= 'A' && x <= 'Z') x = static_cast<char>(x - 'A' + 'a');
+    if (y >= 'A' && y <= 'Z') y = static_cast<char>(y - 'A' + 'a');
+    if (x != y) return false;
+  }
+  return true;
+}
+
+// A JSON value as a message may show it: its text, cut to excerpt() length.
+std::string shown(const nlohmann::json& v) {
+  return excerpt(v.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
+}
+
+// Parses a request body that must be a JSON object (parse_json_object bounds the depth and never
+// echoes more than an excerpt). On failure, the error answer.
+Result<nlohmann::json> json_body(const Request& req, std::string_view example, Response& error) {
   auto j = parse_json_object(req.body);
   if (!j) {
     // Valid JSON that is not an object is invalid input; text that is not JSON is invalid JSON.
     const bool not_object = j.error().message.rfind("expected a JSON object", 0) == 0;
-    send_error(res, 400, not_object ? "invalid_input" : "invalid_json",
-               "the request body: " + j.error().message + " (for this route: " + std::string(example) + ")");
-    return std::nullopt;
+    error = error_response(
+        400, not_object ? "invalid_input" : "invalid_json",
+        "the request body: " + j.error().message + " (for this route: " + std::string(example) + ")");
+    return j.error();
   }
   return std::move(j).value();
 }
 
 constexpr std::string_view kCreateExample = R"({"name": "checkout-team", "rule": "lord++", "alpha": 0.05})";
 constexpr std::string_view kDecideExample = R"({"id": "exp-0142", "p_value": 0.0004})";
+constexpr std::string_view kRouteList =
+    "routes: GET /v1/health, GET|POST /v1/streams, GET /v1/streams/{name}, GET /v1/streams/{name}/next, POST "
+    "/v1/streams/{name}/tests, GET /v1/streams/{name}/history, GET /v1/streams/{name}/verify";
 
-// The create body: name and rule (strings) plus the optional rule parameters. Unknown keys are
-// refused so that a misspelt parameter cannot silently fall back to its default.
-Result<std::pair<std::string, RuleSpec>> create_request(const nlohmann::json& j) {
+struct CreateRequest {
+  std::string name;
+  RuleSpec spec;
+  Alternative alternative = Alternative::kTwoSided;
+};
+
+// The create body: name and rule (strings) plus the optional rule parameters and the direction of
+// summary rows (`alternative`), as `alphaledger new` takes them. Unknown keys are refused so that
+// a misspelt parameter cannot silently fall back to its default.
+Result<CreateRequest> create_request(const nlohmann::json& j) {
   static const char* kNumbers[] = {"alpha", "initial_wealth", "candidate_threshold", "discard_threshold",
                                    "payout"};
-  static const char* kTexts[] = {"name", "rule", "spending", "evaluation"};
+  static const char* kTexts[] = {"name", "rule", "spending", "evaluation", "alternative"};
   for (auto it = j.begin(); it != j.end(); ++it) {
     const std::string& key = it.key();
-    bool known = false;
-    for (const char* k : kNumbers) known = known || key == k;
-    for (const char* k : kTexts) known = known || key == k;
-    if (!known) {
-      return invalid_input("unknown field '" + key +
-                           "'; accepted: name, rule, alpha, initial_wealth, "
-                           "candidate_threshold, discard_threshold, payout, spending, evaluation");
+    bool numeric = false, text = false;
+    for (const char* k : kNumbers) numeric = numeric || key == k;
+    for (const char* k : kTexts) text = text || key == k;
+    if (!numeric && !text) {
+      return invalid_input("unknown field '" + excerpt(key) +
+                           "'; accepted: name, rule, alpha, initial_wealth, candidate_threshold, "
+                           "discard_threshold, payout, spending, evaluation, alternative");
     }
     if (it.value().is_null()) continue;
-    bool numeric = false;
-    for (const char* k : kNumbers) numeric = numeric || key == k;
-    if (numeric && !it.value().is_number()) {
-      return invalid_input(key + " must be a JSON number, got " +
-                           it.value().dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
-    }
-    if (!numeric && !it.value().is_string()) {
-      return invalid_input(key + " must be a JSON string, got " +
-                           it.value().dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
-    }
+    if (numeric && !it.value().is_number())
+      return invalid_input(key + " must be a JSON number, got " + shown(it.value()));
+    if (text && !it.value().is_string())
+      return invalid_input(key + " must be a JSON string, got " + shown(it.value()));
   }
   auto text = [&](const char* key) -> std::optional<std::string> {
     auto it = j.find(key);
@@ -115,263 +131,357 @@ Result<std::pair<std::string, RuleSpec>> create_request(const nlohmann::json& j)
     if (it == j.end() || it->is_null()) return std::nullopt;
     return it->get<double>();
   };
+  CreateRequest out;
   auto name = text("name");
   if (!name) return invalid_input("missing field 'name' (1 to 128 letters, digits, '-', '_' or '.')");
   auto rule = text("rule");
   if (!rule)
     return invalid_input(
         "missing field 'rule' (alpha-spending, alpha-investing, lond, lord++, saffron or addis)");
-  RuleSpec spec;
-  spec.rule = *rule;
-  spec.alpha = num("alpha");
-  spec.initial_wealth = num("initial_wealth");
-  spec.candidate_threshold = num("candidate_threshold");
-  spec.discard_threshold = num("discard_threshold");
-  spec.payout = num("payout");
-  spec.spending = text("spending");
-  spec.evaluation = text("evaluation");
-  return std::make_pair(*name, spec);
+  out.name = *name;
+  out.spec.rule = *rule;
+  out.spec.alpha = num("alpha");
+  out.spec.initial_wealth = num("initial_wealth");
+  out.spec.candidate_threshold = num("candidate_threshold");
+  out.spec.discard_threshold = num("discard_threshold");
+  out.spec.payout = num("payout");
+  out.spec.spending = text("spending");
+  out.spec.evaluation = text("evaluation");
+  if (auto a = text("alternative")) {
+    auto parsed = parse_alternative(*a);
+    if (!parsed) return invalid_input("alternative: " + parsed.error().message);
+    out.alternative = *parsed;
+  }
+  return out;
+}
+
+// "%41" -> "A". nullopt for a bad escape.
+std::optional<std::string> percent_decode(std::string_view s) {
+  std::string out;
+  out.reserve(s.size());
+  for (std::size_t i = 0; i < s.size(); ++i) {
+    if (s[i] != '%') {
+      out.push_back(s[i]);
+      continue;
+    }
+    if (i + 2 >= s.size()) return std::nullopt;
+    int v = 0;
+    for (int k = 1; k <= 2; ++k) {
+      const char c = s[i + static_cast<std::size_t>(k)];
+      int d;
+      if (c >= '0' && c <= '9')
+        d = c - '0';
+      else if (c >= 'a' && c <= 'f')
+        d = c - 'a' + 10;
+      else if (c >= 'A' && c <= 'F')
+        d = c - 'A' + 10;
+      else
+        return std::nullopt;
+      v = v * 16 + d;
+    }
+    out.push_back(static_cast<char>(v));
+    i += 2;
+  }
+  return out;
+}
+
+// The routes over one ledger; one member function per route.
+class Routes {
+ public:
+  Routes(Ledger& ledger, const HttpOptions& options) : ledger_(ledger), options_(options), queue_(ledger) {}
+
+  // Before the body is read: the token. A refused request changes nothing and its body is never
+  // read.
+  std::optional<Response> check_token(const Request& req) const {
+    if (!options_.token) return std::nullopt;
+    const std::string* header = req.header("authorization");
+    // RFC 7235: the scheme name is case-insensitive; one or more spaces before the token.
+    if (header != nullptr) {
+      const std::string_view h(*header);
+      const std::size_t space = h.find(' ');
+      if (space != std::string_view::npos && iequals(h.substr(0, space), "bearer")) {
+        std::string_view token = h.substr(space);
+        while (!token.empty() && token.front() == ' ') token.remove_prefix(1);
+        if (same_secret(token, *options_.token)) return std::nullopt;
+      }
+    }
+    Response res = error_response(401, "unauthorized",
+                                  header == nullptr || header->empty()
+                                      ? "this server needs an 'Authorization: Bearer <token>' header"
+                                      : "the bearer token is not the one this server was started with");
+    res.headers.emplace_back("WWW-Authenticate", "Bearer realm=\"alphaledger\"");
+    return res;
+  }
+
+  Response dispatch(const Request& req) {
+    std::vector<std::string> parts;
+    std::string_view path(req.path);
+    while (!path.empty()) {
+      if (path.front() == '/') {
+        path.remove_prefix(1);
+        continue;
+      }
+      const std::size_t slash = path.find('/');
+      auto decoded = percent_decode(path.substr(0, slash));
+      if (!decoded)
+        return error_response(400, "invalid_request",
+                              "the path " + excerpt(req.path) + " has a bad %-escape");
+      parts.push_back(std::move(*decoded));
+      if (slash == std::string_view::npos) break;
+      path.remove_prefix(slash);
+    }
+    const std::string& m = req.method;
+    const std::size_t n = parts.size();
+    if (n >= 2 && parts[0] == "v1") {
+      if (n == 2 && parts[1] == "health" && m == "GET") return health();
+      if (parts[1] == "streams") {
+        if (n == 2 && m == "GET") return list_streams();
+        if (n == 2 && m == "POST") return create_stream(req);
+        if (n == 3 && m == "GET") return stream_status(parts[2]);
+        if (n == 4 && parts[3] == "next" && m == "GET") return next_level(parts[2]);
+        if (n == 4 && parts[3] == "tests" && m == "POST") return decide(parts[2], req);
+        if (n == 4 && parts[3] == "history" && m == "GET") return history(parts[2]);
+        if (n == 4 && parts[3] == "verify" && m == "GET") return verify(parts[2]);
+      }
+    }
+    return error_response(
+        404, "unknown_route",
+        "no route " + excerpt(m, 16) + " " + excerpt(req.path) + "; " + std::string(kRouteList));
+  }
+
+  // Streams for which the DecisionQueue holds a lane right now (for tests).
+  std::size_t queue_lanes() const { return queue_.lane_count(); }
+
+ private:
+  // GET /v1/health: 200 {"status":"ok"}, or 503 while the last write to the ledger failed.
+  Response health() {
+    std::lock_guard<std::mutex> lock(health_mu_);
+    if (storage_failure_) {
+      Json j;
+      j["status"] = "failing";
+      j["error"]["code"] = "storage";
+      j["error"]["message"] = "the last write to the ledger failed: " + *storage_failure_ +
+                              " (decisions fail until a write succeeds again)";
+      return json_response(503, j);
+    }
+    Json j;
+    j["status"] = "ok";
+    return json_response(200, j);
+  }
+
+  // Remembers the outcome of a write for health(): a storage failure makes it 503 until a later
+  // write succeeds.
+  void note_write(const Error* failure) {
+    std::lock_guard<std::mutex> lock(health_mu_);
+    if (failure == nullptr) {
+      storage_failure_.reset();
+    } else if (failure->kind == ErrorKind::kStorage) {
+      storage_failure_ = failure->message;
+    }
+  }
+
+  // GET /v1/streams
+  Response list_streams() {
+    auto list = ledger_.streams();
+    if (!list) return ledger_error(list.error());
+    Json j;
+    j["streams"] = Json::array();
+    for (const auto& s : *list) j["streams"].push_back(stream_to_json(s));
+    return json_response(200, j);
+  }
+
+  // POST /v1/streams
+  Response create_stream(const Request& req) {
+    Response error;
+    auto body = json_body(req, kCreateExample, error);
+    if (!body) return error;
+    auto parsed = create_request(*body);
+    if (!parsed) return error_response(400, "invalid_input", parsed.error().message);
+    auto config = resolve_config(parsed->spec);
+    if (!config) return error_response(400, "invalid_input", config.error().message);
+    auto created = ledger_.create_stream_directed(parsed->name, *config, parsed->alternative);
+    if (!created) {
+      note_write(&created.error());
+      return ledger_error(created.error());
+    }
+    if (created->created) note_write(nullptr);
+    return json_response(created->created ? 201 : 200, stream_to_json(created->info));
+  }
+
+  // The stream's status, or the answer for a stream that does not exist (404) or cannot be read.
+  // Nothing is cached: a name that does not exist costs nothing after the answer.
+  Result<StreamInfo> find_stream(const std::string& name, Response& error) {
+    auto s = ledger_.status(name);
+    if (s) return s;
+    if (s.error().kind == ErrorKind::kRefused) {
+      error = error_response(404, "unknown_stream",
+                             "no stream named '" + excerpt(name) + "'; create it with POST /v1/streams");
+    } else {
+      error = ledger_error(s.error());
+    }
+    return s.error();
+  }
+
+  // GET /v1/streams/{name}
+  Response stream_status(const std::string& name) {
+    Response error;
+    auto s = find_stream(name, error);
+    if (!s) return error;
+    return json_response(200, stream_to_json(*s));
+  }
+
+  // GET /v1/streams/{name}/next
+  Response next_level(const std::string& name) {
+    Response error;
+    auto s = find_stream(name, error);
+    if (!s) return error;
+    Json j;
+    j["stream"] = name;
+    j["step"] = s->tests + 1;
+    j["level"] = s->next_level;
+    return json_response(200, j);
+  }
+
+  // POST /v1/streams/{name}/tests
+  Response decide(const std::string& name, const Request& req) {
+    Response error;
+    auto body = json_body(req, kDecideExample, error);
+    if (!body) return error;
+    auto input = test_from_json(*body);
+    if (!input) return error_response(400, "invalid_input", input.error().message);
+    if (!find_stream(name, error)) return error;
+    auto d = queue_.decide(name, input->id, input->p_value);
+    if (!d) {
+      note_write(&d.error());
+      return ledger_error(d.error());
+    }
+    if (!d->repeat) note_write(nullptr);
+    return Response{d->repeat ? 200 : 201, decision_json(*d) + "\n", {}, false};
+  }
+
+  // GET /v1/streams/{name}/history
+  Response history(const std::string& name) {
+    Response error;
+    auto s = find_stream(name, error);
+    if (!s) return error;
+    auto h = ledger_.history(name);
+    if (!h) return ledger_error(h.error());
+    const std::string_view rule = rule_name(s->config.kind);
+    Json j;
+    j["stream"] = name;
+    j["decisions"] = Json::array();
+    for (const auto& r : *h) j["decisions"].push_back(history_row_to_json(r, rule));
+    return json_response(200, j);
+  }
+
+  // GET /v1/streams/{name}/verify: Ledger::verify as JSON; 200 when ok, 409 when not.
+  Response verify(const std::string& name) {
+    Response error;
+    if (!find_stream(name, error)) return error;
+    auto v = ledger_.verify(name);
+    if (!v) return ledger_error(v.error());
+    Json j;
+    j["stream"] = name;
+    j["ok"] = v->ok;
+    j["steps"] = v->steps;
+    if (v->ok) {
+      j["first_bad_step"] = nullptr;
+      j["problem"] = nullptr;
+      j["chain_hash"] = v->chain_hash;
+    } else {
+      j["first_bad_step"] = v->first_bad_step;
+      j["problem"] = v->problem;
+      j["chain_hash"] = nullptr;
+    }
+    return json_response(v->ok ? 200 : 409, j);
+  }
+
+  Ledger& ledger_;
+  const HttpOptions& options_;
+  DecisionQueue queue_;
+  std::mutex health_mu_;
+  std::optional<std::string> storage_failure_;
+};
+
+// The answer to a request the server refused itself (malformed, too slow, too large).
+Response protocol_error(int status, const std::string& what, std::size_t max_body) {
+  switch (status) {
+    case 400:
+      return error_response(400, "invalid_request", what);
+    case 408:
+      return error_response(408, "timeout", what);
+    case 413:
+      return error_response(413, "too_large",
+                            "the request body is larger than " + std::to_string(max_body) + " bytes");
+    case 431:
+      return error_response(431, "headers_too_large", what);
+    default:
+      return error_response(500, "internal", "internal error");
+  }
 }
 
 class HttpServiceImpl final : public HttpService {
  public:
   HttpServiceImpl(Ledger& ledger, HttpOptions options)
-      : ledger_(ledger), options_(std::move(options)), queue_(ledger) {
-    const std::size_t threads = options_.threads;
-    server_.new_task_queue = [threads] { return new httplib::ThreadPool(threads); };
-    server_.set_payload_max_length(options_.max_body_bytes);
-    server_.set_read_timeout(options_.io_timeout_seconds, 0);
-    server_.set_write_timeout(options_.io_timeout_seconds, 0);
-    server_.set_keep_alive_timeout(options_.keep_alive_seconds);
-    server_.set_keep_alive_max_count(1000);
-    server_.set_tcp_nodelay(true);
-    routes();
-  }
+      : options_(std::move(options)),
+        routes_(ledger, options_),
+        server_(server_options(options_), handlers()) {}
 
-  Result<int> bind() override {
-    const ListenAddress& a = options_.listen;
-    const std::string where = a.host + ":" + std::to_string(a.port);
-    if (a.port == 0) {
-      const int port = server_.bind_to_any_port(a.host);
-      if (port <= 0) return storage_error("cannot listen on " + where + " (is the address local?)");
-      return port;
-    }
-    if (!server_.bind_to_port(a.host, a.port)) {
-      return storage_error("cannot listen on " + where +
-                           " (in use by another process, or not a local address)");
-    }
-    return a.port;
-  }
+  Result<int> bind() override { return server_.bind(options_.listen.host, options_.listen.port); }
 
   Status run() override {
-    if (!stop_requested_.load()) server_.listen_after_bind();
+    server_.run();
     return {};
   }
 
-  void stop() override {
-    stop_requested_ = true;
-    server_.stop();
-  }
+  void stop() override { server_.stop(); }
+
+  std::size_t queue_lanes() const override { return routes_.queue_lanes(); }
 
  private:
-  using Handler = std::function<void(const httplib::Request&, httplib::Response&)>;
-
-  // Every route checks the token before anything else (so a refused request changes nothing).
-  Handler guarded(Handler inner) {
-    return [this, inner = std::move(inner)](const httplib::Request& req, httplib::Response& res) {
-      if (!authorized(req, res)) return;
-      inner(req, res);
-    };
+  static http::ServerOptions server_options(const HttpOptions& o) {
+    http::ServerOptions s;
+    s.threads = o.threads;
+    s.max_body_bytes = o.max_body_bytes;
+    s.request_timeout = std::chrono::seconds(o.io_timeout_seconds);
+    s.keep_alive_timeout = std::chrono::seconds(o.keep_alive_seconds);
+    s.max_connections = o.max_connections;
+    return s;
   }
 
-  bool authorized(const httplib::Request& req, httplib::Response& res) {
-    if (!options_.token) return true;
-    const std::string header = req.get_header_value("Authorization");
-    constexpr std::string_view kScheme = "Bearer ";
-    if (header.size() > kScheme.size() && header.compare(0, kScheme.size(), kScheme) == 0 &&
-        same_secret(std::string_view(header).substr(kScheme.size()), *options_.token)) {
-      return true;
-    }
-    res.set_header("WWW-Authenticate", "Bearer realm=\"alphaledger\"");
-    send_error(res, 401, "unauthorized",
-               header.empty() ? "this server needs an 'Authorization: Bearer <token>' header"
-                              : "the bearer token is not the one this server was started with");
-    return false;
-  }
-
-  // Streams are never deleted, so one that was seen once is known for good.
-  // Returns false (and fills `res`) when the stream does not exist or the lookup failed.
-  bool stream_exists(const std::string& name, httplib::Response& res) {
-    {
-      std::shared_lock<std::shared_mutex> lock(known_mutex_);
-      if (known_.count(name) != 0) return true;
-    }
-    auto s = ledger_.status(name);
-    if (s) {
-      remember(name);
-      return true;
-    }
-    if (s.error().kind == ErrorKind::kRefused) {
-      send_error(res, 404, "unknown_stream",
-                 "no stream named '" + name + "'; create it with POST /v1/streams");
-    } else {
-      send_ledger_error(res, s.error());
-    }
-    return false;
-  }
-
-  void remember(const std::string& name) {
-    std::unique_lock<std::shared_mutex> lock(known_mutex_);
-    known_.insert(name);
-  }
-
-  void routes() {
-    server_.set_pre_routing_handler([](const httplib::Request&, httplib::Response&) {
-      t_request_start = Clock::now();
-      return httplib::Server::HandlerResponse::Unhandled;
-    });
-
-    server_.Get("/v1/health", guarded([](const httplib::Request&, httplib::Response& res) {
-                  Json j;
-                  j["status"] = "ok";
-                  send_json(res, 200, j);
-                }));
-
-    server_.Get("/v1/streams", guarded([this](const httplib::Request&, httplib::Response& res) {
-                  auto list = ledger_.streams();
-                  if (!list) return send_ledger_error(res, list.error());
-                  Json j;
-                  j["streams"] = Json::array();
-                  for (const auto& s : *list) j["streams"].push_back(stream_to_json(s));
-                  send_json(res, 200, j);
-                }));
-
-    server_.Post("/v1/streams", guarded([this](const httplib::Request& req, httplib::Response& res) {
-                   auto body = json_body(req, res, kCreateExample);
-                   if (!body) return;
-                   auto parsed = create_request(*body);
-                   if (!parsed) return send_error(res, 400, "invalid_input", parsed.error().message);
-                   auto config = resolve_config(parsed->second);
-                   if (!config) return send_error(res, 400, "invalid_input", config.error().message);
-                   auto created = ledger_.create_stream(parsed->first, *config);
-                   if (!created) return send_ledger_error(res, created.error());
-                   remember(parsed->first);
-                   send_json(res, created->created ? 201 : 200, stream_to_json(created->info));
-                 }));
-
-    server_.Get(R"(/v1/streams/([^/]+))",
-                guarded([this](const httplib::Request& req, httplib::Response& res) {
-                  const std::string name = req.matches[1];
-                  if (!stream_exists(name, res)) return;
-                  auto s = ledger_.status(name);
-                  if (!s) return send_ledger_error(res, s.error());
-                  send_json(res, 200, stream_to_json(*s));
-                }));
-
-    server_.Get(R"(/v1/streams/([^/]+)/next)",
-                guarded([this](const httplib::Request& req, httplib::Response& res) {
-                  const std::string name = req.matches[1];
-                  if (!stream_exists(name, res)) return;
-                  auto s = ledger_.status(name);
-                  if (!s) return send_ledger_error(res, s.error());
-                  Json j;
-                  j["stream"] = name;
-                  j["step"] = s->tests + 1;
-                  j["level"] = s->next_level;
-                  send_json(res, 200, j);
-                }));
-
-    server_.Post(R"(/v1/streams/([^/]+)/tests)",
-                 guarded([this](const httplib::Request& req, httplib::Response& res) {
-                   const std::string name = req.matches[1];
-                   auto body = json_body(req, res, kDecideExample);
-                   if (!body) return;
-                   auto input = test_from_json(*body);
-                   if (!input) return send_error(res, 400, "invalid_input", input.error().message);
-                   if (!stream_exists(name, res)) return;
-                   auto d = queue_.decide(name, input->id, input->p_value);
-                   if (!d) return send_ledger_error(res, d.error());
-                   res.status = d->repeat ? 200 : 201;
-                   res.set_content(decision_json(*d) + "\n", "application/json");
-                 }));
-
-    server_.Get(R"(/v1/streams/([^/]+)/history)",
-                guarded([this](const httplib::Request& req, httplib::Response& res) {
-                  const std::string name = req.matches[1];
-                  if (!stream_exists(name, res)) return;
-                  auto s = ledger_.status(name);
-                  if (!s) return send_ledger_error(res, s.error());
-                  auto h = ledger_.history(name);
-                  if (!h) return send_ledger_error(res, h.error());
-                  const std::string_view rule = rule_name(s->config.kind);
-                  Json j;
-                  j["stream"] = name;
-                  j["decisions"] = Json::array();
-                  for (const auto& r : *h) j["decisions"].push_back(history_row_to_json(r, rule));
-                  send_json(res, 200, j);
-                }));
-
-    // Called for every response with status >= 400; fills in a JSON error where no handler did
-    // (unknown routes, bodies over the limit, malformed HTTP).
-    server_.set_error_handler(httplib::Server::HandlerWithResponse([this](const httplib::Request& req,
-                                                                          httplib::Response& res) {
-      if (!res.body.empty()) return httplib::Server::HandlerResponse::Unhandled;
-      if (res.status == 404 && !authorized(req, res)) return httplib::Server::HandlerResponse::Handled;
-      switch (res.status) {
-        case 404:
-          send_error(
-              res, 404, "unknown_route",
-              "no route " + req.method + " " + req.path +
-                  "; routes: GET /v1/health, GET|POST /v1/streams, GET /v1/streams/{name}, GET "
-                  "/v1/streams/{name}/next, POST /v1/streams/{name}/tests, GET /v1/streams/{name}/history");
-          break;
-        case 413:
-          send_error(res, 413, "too_large",
-                     "the request body is larger than " + std::to_string(options_.max_body_bytes) + " bytes");
-          break;
-        case 400:
-          send_error(res, 400, "invalid_request", "malformed HTTP request");
-          break;
-        default:
-          send_error(res, res.status, "http_error", "HTTP status " + std::to_string(res.status));
-      }
-      return httplib::Server::HandlerResponse::Handled;
-    }));
-
-    server_.set_exception_handler([](const httplib::Request&, httplib::Response& res, std::exception_ptr ep) {
-      std::string what = "unknown exception";
+  http::Handlers handlers() {
+    http::Handlers h;
+    h.on_head = [this](const Request& req) { return routes_.check_token(req); };
+    h.on_request = [this](const Request& req) {
       try {
-        if (ep) std::rethrow_exception(ep);
-      } catch (const std::exception& e) {
-        what = e.what();
+        return routes_.dispatch(req);
       } catch (...) {
+        // No library text or exception name reaches the client.
+        return error_response(500, "internal", "internal error while handling the request");
       }
-      send_error(res, 500, "internal", "internal error: " + what);
-    });
-
-    server_.set_logger([this](const httplib::Request& req, const httplib::Response& res) {
-      if (!options_.access_log) return;
-      AccessLogEntry e;
-      e.remote = req.remote_addr + ":" + std::to_string(req.remote_port);
-      e.method = req.method;
-      e.path = req.path;
-      e.status = res.status;
-      e.bytes = res.body.size();
-      if (t_request_start != Clock::time_point{}) {
-        e.ms = std::chrono::duration<double, std::milli>(Clock::now() - t_request_start).count();
-        t_request_start = Clock::time_point{};
-      }
-      options_.access_log(e);
-    });
+    };
+    const std::size_t max_body = options_.max_body_bytes;
+    h.on_protocol_error = [max_body](int status, const std::string& what) {
+      return protocol_error(status, what, max_body);
+    };
+    if (options_.access_log) {
+      h.on_done = [this](const Request& req, const Response& res, double ms) {
+        AccessLogEntry e;
+        e.remote = req.remote;
+        e.method = req.method;
+        e.path = excerpt(req.path, 200);
+        e.status = res.status;
+        e.bytes = res.body.size();
+        e.ms = ms;
+        options_.access_log(e);
+      };
+    }
+    return h;
   }
 
-  Ledger& ledger_;
   HttpOptions options_;
-  DecisionQueue queue_;
-  httplib::Server server_;
-  std::atomic<bool> stop_requested_{false};
-  std::shared_mutex known_mutex_;
-  std::unordered_set<std::string> known_;
+  Routes routes_;
+  http::Server server_;
 };
 
 }  // namespace
@@ -389,6 +499,7 @@ Result<std::unique_ptr<HttpService>> HttpService::create(Ledger& ledger, HttpOpt
     return invalid_input("keep-alive must be in [1, 3600] seconds, got " +
                          std::to_string(options.keep_alive_seconds));
   }
+  if (options.max_connections == 0) return invalid_input("max connections must be at least 1, got 0");
   if (options.listen.port < 0 || options.listen.port > 65535) {
     return invalid_input("port must be in [0, 65535], got " + std::to_string(options.listen.port));
   }

@@ -2,6 +2,7 @@
 #include <cmath>
 
 #include "alphaledger/service.hpp"
+#include "alphaledger/stats.hpp"
 #include "alphaledger/test_log.hpp"
 
 namespace alphaledger {
@@ -40,6 +41,8 @@ nlohmann::ordered_json stream_to_json(const StreamInfo& s) {
   if (rule_takes(c.kind, "payout")) j["payout"] = number(c.payout);
   if (rule_takes(c.kind, "spending")) j["spending"] = c.spending;
   if (rule_takes(c.kind, "evaluation")) j["evaluation"] = std::string(evaluation_name(c.evaluation));
+  // As `status --json`: the direction of summary rows, shown only when it is not two-sided.
+  if (s.alternative != Alternative::kTwoSided) j["alternative"] = std::string(alternative_name(s.alternative));
   j["created_at"] = format_timestamp(s.created_at_ms);
   j["tests"] = s.tests;
   j["rejections"] = s.rejections;

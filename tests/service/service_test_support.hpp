@@ -170,6 +170,11 @@ class ServerProcess {
  public:
   ServerProcess(const std::string& ledger_dir, const std::string& log_file,
                 std::vector<std::string> extra = {}) {
+    // `serve` refuses a folder without a ledger: make an empty one first (as `new` would).
+    if (!std::filesystem::exists(ledger_dir)) {
+      auto made = Ledger::open(ledger_dir);
+      REQUIRE_MESSAGE(made.ok(), (made.ok() ? "" : made.error().message));
+    }
     std::vector<std::string> args = {"--ledger", ledger_dir, "serve", "--listen", "127.0.0.1:0"};
     for (auto& e : extra) args.push_back(e);
     child_ = std::make_unique<Child>(args, Child::Io{"/dev/null", log_file + ".out", log_file});

@@ -2,6 +2,7 @@
 // in-memory and fault-injecting stores.
 #include <doctest/doctest.h>
 
+#include <atomic>
 #include <random>
 #include <thread>
 
@@ -148,6 +149,39 @@ TEST_CASE(
   auto r = queue.decide("s", "after", 0.3);  // the queue recovers once the store does
   REQUIRE(r.ok());
   CHECK(r->record.step == 1);
+}
+
+TEST_CASE("DecisionQueue: lanes exist only while deciding; unknown and finished streams leave none") {
+  MemoryLedger m;
+  const RuleConfig config = m.create("kept", "lord++");
+  DecisionQueue queue(*m.ledger);
+  CHECK(queue.lane_count() == 0);
+  for (int k = 0; k < 1000; ++k) {
+    auto d = queue.decide(testing::tag("unknown-", k), "x", 0.5);
+    REQUIRE_FALSE(d.ok());
+    CHECK(d.error().kind == ErrorKind::kRefused);
+  }
+  CHECK(queue.lane_count() == 0);  // 1,000 names asked for, none kept
+  std::vector<std::thread> threads;
+  std::atomic<std::size_t> most{0};
+  for (int c = 0; c < 6; ++c) {
+    threads.emplace_back([&, c] {
+      for (int n = 0; n < 30; ++n) {
+        auto d = queue.decide("kept", testing::tag("c", c) + testing::tag("-", n), 0.3);
+        CHECK(d.ok());
+        std::size_t now = queue.lane_count(), seen = most.load();
+        while (now > seen && !most.compare_exchange_weak(seen, now)) {
+        }
+      }
+    });
+  }
+  for (auto& t : threads) t.join();
+  CHECK(most.load() <= 1);  // one stream, one lane at most
+  CHECK(queue.lane_count() == 0);
+  auto h = m.ledger->history("kept");
+  REQUIRE(h.ok());
+  CHECK(h->size() == 180);
+  testing::check_history_equals_replay(*h, config);
 }
 
 }  // namespace

@@ -239,13 +239,16 @@ TEST_CASE(
     "--json") {
   TempDir dir;
   const std::string db = dir.file("db");
-  std::string status, next, history, streams, repeat;
+  std::string status, next, history, streams, repeat, directed;
   {
     ServerProcess server(db, dir.file("server.log"));
     Api api(server.port());
     REQUIRE(api.post("/v1/streams", R"({"name": "same", "rule": "addis", "alpha": 0.1})").status == 201);
     for (int k = 0; k < 5; ++k)
       REQUIRE(api.decide("same", testing::tag("t", k), k == 2 ? 0.0002 : 0.3 + 0.1 * k).status == 201);
+    REQUIRE(api.post("/v1/streams", R"({"name": "directed", "rule": "saffron", "alternative": "greater"})")
+                .status == 201);
+    directed = api.get("/v1/streams/directed").raw;
     status = api.get("/v1/streams/same").raw;
     next = api.get("/v1/streams/same/next").raw;
     history = api.get("/v1/streams/same/history").raw;
@@ -255,11 +258,15 @@ TEST_CASE(
     REQUIRE(server.stop() == std::optional<int>(0));
   }
   CHECK(status == cli_output(dir, {"--ledger", db, "--json", "status", "same"}));
+  CHECK(directed == cli_output(dir, {"--ledger", db, "--json", "status", "directed"}));
+  CHECK(directed.find("\"alternative\":\"greater\"") != std::string::npos);
   CHECK(next == cli_output(dir, {"--ledger", db, "--json", "next", "same"}));
   CHECK(repeat ==
         cli_output(dir, {"--ledger", db, "--json", "decide", "same", "--id", "t2", "--p", "0.0002"}));
-  CHECK(nlohmann::ordered_json::parse(streams)["streams"][0].dump() + "\n" ==
-        cli_output(dir, {"--ledger", db, "--json", "streams"}));
+  std::string stream_lines;
+  const auto listed = nlohmann::ordered_json::parse(streams);
+  for (const auto& one : listed["streams"]) stream_lines += one.dump() + "\n";
+  CHECK(stream_lines == cli_output(dir, {"--ledger", db, "--json", "streams"}));
   std::string rows;
   const auto parsed = nlohmann::ordered_json::parse(history);
   for (const auto& row : parsed["decisions"]) rows += row.dump() + "\n";
@@ -283,7 +290,7 @@ TEST_CASE(
                                           "Bearer " + token + "x",
                                           "Bearer " + token.substr(1),
                                           "Basic " + token,
-                                          "bearer " + token,
+                                          "bearer " + token + "x",
                                           "Bearer"};
   for (const auto& auth : wrong) {
     INFO("Authorization: '" << auth << "'");
@@ -535,6 +542,40 @@ TEST_CASE(
     CHECK_MESSAGE(s.verify.ok, "verify: step " << s.verify.first_bad_step << ": " << s.verify.problem);
     testing::check_history_equals_replay(s.history, s.config);
   }
+}
+
+TEST_CASE("Server: pipe and serve refuse a ledger folder that does not exist (exit 3) and create nothing") {
+  TempDir dir;
+  const std::string missing = dir.file("no-such-ledger");
+  {
+    Child serve({"--ledger", missing, "serve", "--listen", "127.0.0.1:0"},
+                {"/dev/null", dir.file("serve.out"), dir.file("serve.err")});
+    CHECK(serve.wait(std::chrono::seconds(30)) == std::optional<int>(3));
+    CHECK(read_file(dir.file("serve.err")).find("no ledger at") != std::string::npos);
+  }
+  {
+    write_file(dir.file("in.jsonl"), "{\"id\": \"a\", \"p_value\": 0.1}\n");
+    Child pipe({"--ledger", missing, "pipe", "s"},
+               {dir.file("in.jsonl"), dir.file("pipe.out"), dir.file("pipe.err")});
+    CHECK(pipe.wait(std::chrono::seconds(30)) == std::optional<int>(3));
+    CHECK(read_file(dir.file("pipe.err")).find("no ledger at") != std::string::npos);
+  }
+  CHECK_FALSE(std::filesystem::exists(missing));
+}
+
+TEST_CASE("Server: a second serve on the same address refuses to start (exit 4, address in use)") {
+  TempDir dir;
+  ServerProcess first(dir.file("db1"), dir.file("first.log"));
+  REQUIRE(Ledger::open(dir.file("db2")).ok());
+  Child second(
+      {"--ledger", dir.file("db2"), "serve", "--listen", "127.0.0.1:" + std::to_string(first.port())},
+      {"/dev/null", dir.file("second.out"), dir.file("second.err")});
+  CHECK(second.wait(std::chrono::seconds(30)) == std::optional<int>(4));
+  CHECK(read_file(dir.file("second.err")).find("address in use") != std::string::npos);
+  Api api(first.port());
+  CHECK(api.get("/v1/health").status == 200);
+  api.close();
+  CHECK(first.stop() == std::optional<int>(0));
 }
 
 }  // namespace

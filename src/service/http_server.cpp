@@ -1,0 +1,772 @@
+// The poll()-based HTTP/1.1 server of `serve` (see http_server.hpp).
+#include "service/http_server.hpp"
+
+#include <arpa/inet.h>
+#include <fcntl.h>
+#include <netinet/in.h>
+#include <netinet/tcp.h>
+#include <poll.h>
+#include <sys/eventfd.h>
+#include <sys/socket.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cerrno>
+#include <condition_variable>
+#include <cstring>
+#include <deque>
+#include <mutex>
+#include <thread>
+#include <unordered_map>
+
+namespace alphaledger::http {
+namespace {
+
+using Clock = std::chrono::steady_clock;
+
+std::string lower(std::string_view s) {
+  std::string out(s);
+  for (char& c : out)
+    if (c >= 'A' && c <= 'Z') c = static_cast<char>(c - 'A' + 'a');
+  return out;
+}
+
+std::string_view trim(std::string_view s) {
+  while (!s.empty() && (s.front() == ' ' || s.front() == '\t')) s.remove_prefix(1);
+  while (!s.empty() && (s.back() == ' ' || s.back() == '\t' || s.back() == '\r')) s.remove_suffix(1);
+  return s;
+}
+
+bool is_token_char(char c) {
+  const auto u = static_cast<unsigned char>(c);
+  if (u <= 0x20 || u >= 0x7f) return false;
+  return std::strchr("\"(),/:;<=>?@[\\]{}", c) == nullptr;
+}
+
+const char* reason(int status) {
+  switch (status) {
+    case 100:
+      return "Continue";
+    case 200:
+      return "OK";
+    case 201:
+      return "Created";
+    case 400:
+      return "Bad Request";
+    case 401:
+      return "Unauthorized";
+    case 404:
+      return "Not Found";
+    case 408:
+      return "Request Timeout";
+    case 409:
+      return "Conflict";
+    case 413:
+      return "Payload Too Large";
+    case 431:
+      return "Request Header Fields Too Large";
+    case 500:
+      return "Internal Server Error";
+    case 503:
+      return "Service Unavailable";
+    default:
+      return "Status";
+  }
+}
+
+// Digits only, at most 18 of them (so no overflow); nullopt otherwise.
+std::optional<std::size_t> parse_decimal(std::string_view s) {
+  if (s.empty() || s.size() > 18) return std::nullopt;
+  std::size_t v = 0;
+  for (char c : s) {
+    if (c < '0' || c > '9') return std::nullopt;
+    v = v * 10 + static_cast<std::size_t>(c - '0');
+  }
+  return v;
+}
+
+std::optional<std::size_t> parse_hex(std::string_view s) {
+  if (s.empty() || s.size() > 15) return std::nullopt;
+  std::size_t v = 0;
+  for (char c : s) {
+    int d;
+    if (c >= '0' && c <= '9')
+      d = c - '0';
+    else if (c >= 'a' && c <= 'f')
+      d = c - 'a' + 10;
+    else if (c >= 'A' && c <= 'F')
+      d = c - 'A' + 10;
+    else
+      return std::nullopt;
+    v = v * 16 + static_cast<std::size_t>(d);
+  }
+  return v;
+}
+
+// A protocol failure found while reading a request.
+struct Refusal {
+  int status;
+  std::string what;
+};
+
+// kDraining: answered and closing; what the client still sends is read and dropped for a moment
+// so that closing does not reset the connection before the client has read the answer.
+enum class State { kIdle, kHead, kBody, kHandling, kWriting, kDraining };
+
+struct Conn {
+  int fd = -1;
+  std::string remote;
+  State state = State::kIdle;
+  std::string in;   // bytes read and not yet consumed
+  std::string out;  // bytes to write
+  std::size_t out_done = 0;
+  bool close_after_write = false;
+  Clock::time_point deadline;
+  Clock::time_point started;  // the current request's first byte
+  std::size_t served = 0;
+  Request req;
+  // Body framing of the current request.
+  bool chunked = false;
+  std::size_t content_length = 0;
+  enum class Chunk { kSize, kData, kDataEnd, kTrailer } chunk = Chunk::kSize;
+  std::size_t chunk_left = 0;
+  std::size_t trailer_bytes = 0;
+  bool keep_alive = true;
+  std::size_t drained = 0;
+};
+
+}  // namespace
+
+const std::string* Request::header(std::string_view lower_name) const {
+  for (const auto& [k, v] : headers)
+    if (k == lower_name) return &v;
+  return nullptr;
+}
+
+struct Server::Impl {
+  ServerOptions options;
+  Handlers handlers;
+  int listen_fd = -1;
+  int wake_fd = -1;
+  std::atomic<bool> stopping{false};
+
+  // Workers.
+  std::mutex jobs_mu;
+  std::condition_variable jobs_cv;
+  std::deque<std::pair<std::uint64_t, Request>> jobs;
+  bool workers_quit = false;
+  std::vector<std::thread> workers;
+
+  // Finished answers, handed back to the loop.
+  struct Done {
+    std::uint64_t conn;
+    Response response;
+  };
+  std::mutex done_mu;
+  std::vector<Done> done;
+
+  std::unordered_map<std::uint64_t, Conn> conns;
+  std::uint64_t next_id = 1;
+
+  Impl(ServerOptions o, Handlers h) : options(std::move(o)), handlers(std::move(h)) {
+    wake_fd = ::eventfd(0, EFD_NONBLOCK | EFD_CLOEXEC);
+  }
+  ~Impl() {
+    if (listen_fd >= 0) ::close(listen_fd);
+    for (auto& [id, c] : conns) ::close(c.fd);
+    if (wake_fd >= 0) ::close(wake_fd);
+  }
+
+  void wake() {
+    const std::uint64_t one = 1;
+    [[maybe_unused]] const ssize_t n = ::write(wake_fd, &one, sizeof one);
+  }
+
+  // ---- answers ---------------------------------------------------------------------------
+
+  std::string serialize(const Response& r, bool close) const {
+    std::string s = "HTTP/1.1 " + std::to_string(r.status) + " " + reason(r.status) + "\r\n";
+    s += "Content-Type: application/json\r\n";
+    s += "Content-Length: " + std::to_string(r.body.size()) + "\r\n";
+    for (const auto& [k, v] : r.headers) s += k + ": " + v + "\r\n";
+    if (close) {
+      s += "Connection: close\r\n";
+    } else {
+      s += "Keep-Alive: timeout=" + std::to_string(options.keep_alive_timeout.count() / 1000) +
+           ", max=" + std::to_string(options.max_requests_per_connection) + "\r\n";
+    }
+    s += "\r\n";
+    s += r.body;
+    return s;
+  }
+
+  double ms_since(Clock::time_point t) const {
+    return std::chrono::duration<double, std::milli>(Clock::now() - t).count();
+  }
+
+  // Queues an answer on the connection and starts writing it.
+  void answer(Conn& c, const Response& r) {
+    const bool close =
+        r.close || !c.keep_alive || stopping.load() || c.served + 1 >= options.max_requests_per_connection;
+    c.out += serialize(r, close);
+    c.close_after_write = c.close_after_write || close;
+    c.state = State::kWriting;
+    c.deadline = Clock::now() + options.request_timeout;
+    ++c.served;
+  }
+
+  void refuse(Conn& c, const Refusal& r) {
+    Response res = handlers.on_protocol_error ? handlers.on_protocol_error(r.status, r.what)
+                                              : Response{r.status, r.what + "\n", {}, true};
+    res.close = true;
+    answer(c, res);
+    if (handlers.on_done) handlers.on_done(c.req, res, ms_since(c.started));
+  }
+
+  // ---- reading a request -----------------------------------------------------------------
+
+  // Parses the head once it is complete. Returns false while more bytes are needed.
+  std::optional<Refusal> parse_head(Conn& c, bool& complete) {
+    complete = false;
+    // Find the empty line that ends the head (CRLF or bare LF line ends).
+    std::size_t end = std::string::npos, body_start = 0;
+    for (std::size_t pos = 0; pos < c.in.size();) {
+      const std::size_t nl = c.in.find('\n', pos);
+      if (nl == std::string::npos) break;
+      const std::size_t len = nl - pos;
+      if (len == 0 || (len == 1 && c.in[pos] == '\r')) {
+        end = pos;
+        body_start = nl + 1;
+        break;
+      }
+      pos = nl + 1;
+    }
+    if (end == std::string::npos) {
+      if (c.in.size() > options.max_header_bytes)
+        return Refusal{431, "the request line and headers are larger than " +
+                                std::to_string(options.max_header_bytes) + " bytes"};
+      return std::nullopt;
+    }
+    if (end > options.max_header_bytes)
+      return Refusal{431, "the request line and headers are larger than " +
+                              std::to_string(options.max_header_bytes) + " bytes"};
+    complete = true;
+    const std::string head = c.in.substr(0, end);
+    c.in.erase(0, body_start);
+
+    std::vector<std::string_view> lines;
+    std::string_view rest(head);
+    while (!rest.empty()) {
+      const std::size_t nl = rest.find('\n');
+      std::string_view line = rest.substr(0, nl);
+      if (!line.empty() && line.back() == '\r') line.remove_suffix(1);
+      lines.push_back(line);
+      if (nl == std::string_view::npos) break;
+      rest.remove_prefix(nl + 1);
+    }
+    const Refusal malformed{400, "malformed HTTP request"};
+    if (lines.empty()) return malformed;
+    // Request line: METHOD SP TARGET SP HTTP/1.x
+    const std::string_view rl = lines[0];
+    const std::size_t s1 = rl.find(' ');
+    const std::size_t s2 = s1 == std::string_view::npos ? s1 : rl.find(' ', s1 + 1);
+    if (s1 == std::string_view::npos || s2 == std::string_view::npos) return malformed;
+    const std::string_view method = rl.substr(0, s1), target = rl.substr(s1 + 1, s2 - s1 - 1),
+                           version = rl.substr(s2 + 1);
+    if (method.empty() || !std::all_of(method.begin(), method.end(), is_token_char)) return malformed;
+    if (target.empty() || target[0] != '/') return malformed;
+    for (char ch : target)
+      if (static_cast<unsigned char>(ch) <= 0x20 || static_cast<unsigned char>(ch) >= 0x7f) return malformed;
+    if (version == "HTTP/1.1") {
+      c.req.minor_version = 1;
+    } else if (version == "HTTP/1.0") {
+      c.req.minor_version = 0;
+    } else {
+      return Refusal{400, "malformed HTTP request (only HTTP/1.0 and HTTP/1.1 are served)"};
+    }
+    c.req.method = std::string(method);
+    c.req.target = std::string(target);
+    const std::size_t q = target.find('?');
+    c.req.path = std::string(target.substr(0, q));
+    c.req.query = q == std::string_view::npos ? std::string() : std::string(target.substr(q + 1));
+    if (lines.size() - 1 > options.max_headers)
+      return Refusal{431, "more than " + std::to_string(options.max_headers) + " header lines"};
+    for (std::size_t k = 1; k < lines.size(); ++k) {
+      const std::string_view line = lines[k];
+      const std::size_t colon = line.find(':');
+      if (colon == std::string_view::npos || colon == 0) return malformed;
+      const std::string_view name = line.substr(0, colon);
+      if (!std::all_of(name.begin(), name.end(), is_token_char)) return malformed;
+      c.req.headers.emplace_back(lower(name), std::string(trim(line.substr(colon + 1))));
+    }
+    return std::nullopt;
+  }
+
+  // Decides how the body is framed, after the head. Refusal on contradictory or bad framing.
+  std::optional<Refusal> framing(Conn& c) {
+    const Request& r = c.req;
+    const std::string* connection = r.header("connection");
+    const std::string conn_value = connection ? lower(*connection) : std::string();
+    c.keep_alive = r.minor_version == 1 ? conn_value.find("close") == std::string::npos
+                                        : conn_value.find("keep-alive") != std::string::npos;
+    std::optional<std::size_t> length;
+    bool te = false;
+    for (const auto& [k, v] : r.headers) {
+      if (k == "content-length") {
+        auto n = parse_decimal(v);
+        if (!n) return Refusal{400, "Content-Length must be a decimal number of bytes"};
+        if (length && *length != *n) return Refusal{400, "two different Content-Length headers"};
+        length = n;
+      } else if (k == "transfer-encoding") {
+        if (te || lower(v) != "chunked")
+          return Refusal{400, "the only Transfer-Encoding accepted is 'chunked'"};
+        te = true;
+      }
+    }
+    if (te && length) return Refusal{400, "Content-Length and Transfer-Encoding together"};
+    c.chunked = te;
+    c.content_length = length.value_or(0);
+    c.chunk = Conn::Chunk::kSize;
+    c.chunk_left = 0;
+    c.trailer_bytes = 0;
+    return std::nullopt;
+  }
+
+  Refusal too_large() const {
+    return Refusal{413,
+                   "the request body is larger than " + std::to_string(options.max_body_bytes) + " bytes"};
+  }
+
+  // Consumes body bytes from c.in. Sets complete when the whole body is in c.req.body.
+  std::optional<Refusal> read_body(Conn& c, bool& complete) {
+    complete = false;
+    if (!c.chunked) {
+      if (c.in.size() < c.content_length) return std::nullopt;
+      c.req.body = c.in.substr(0, c.content_length);
+      c.in.erase(0, c.content_length);
+      complete = true;
+      return std::nullopt;
+    }
+    std::size_t pos = 0;
+    const Refusal bad{400, "malformed chunked body"};
+    while (true) {
+      if (c.chunk == Conn::Chunk::kData) {
+        const std::size_t take = std::min(c.chunk_left, c.in.size() - pos);
+        c.req.body.append(c.in, pos, take);
+        pos += take;
+        c.chunk_left -= take;
+        if (c.chunk_left > 0) break;
+        c.chunk = Conn::Chunk::kDataEnd;
+        continue;
+      }
+      const std::size_t nl = c.in.find('\n', pos);
+      if (nl == std::string::npos) {
+        if (c.in.size() - pos > 1024) return bad;  // a size or trailer line this long is not sane
+        break;
+      }
+      std::string_view line(c.in.data() + pos, nl - pos);
+      if (!line.empty() && line.back() == '\r') line.remove_suffix(1);
+      pos = nl + 1;
+      if (c.chunk == Conn::Chunk::kDataEnd) {
+        if (!line.empty()) return bad;
+        c.chunk = Conn::Chunk::kSize;
+      } else if (c.chunk == Conn::Chunk::kSize) {
+        const std::string_view size = trim(line.substr(0, line.find(';')));
+        auto n = parse_hex(size);
+        if (!n) return bad;
+        if (*n == 0) {
+          c.chunk = Conn::Chunk::kTrailer;
+        } else {
+          if (*n > options.max_body_bytes || c.req.body.size() + *n > options.max_body_bytes)
+            return too_large();
+          c.chunk_left = *n;
+          c.chunk = Conn::Chunk::kData;
+        }
+      } else {  // trailer lines until an empty one
+        c.trailer_bytes += line.size();
+        if (c.trailer_bytes > options.max_header_bytes)
+          return Refusal{431, "the chunked trailer is larger than " +
+                                  std::to_string(options.max_header_bytes) + " bytes"};
+        if (line.empty()) {
+          c.in.erase(0, pos);
+          complete = true;
+          return std::nullopt;
+        }
+      }
+    }
+    c.in.erase(0, pos);
+    return std::nullopt;
+  }
+
+  // Moves the connection forward with the bytes in c.in: head, body, then hands the request on.
+  void advance(std::uint64_t id, Conn& c) {
+    while (true) {
+      if (c.state == State::kIdle) {
+        if (c.in.empty()) return;
+        c.state = State::kHead;
+        c.started = Clock::now();
+        c.deadline = c.started + options.request_timeout;
+        c.req = Request{};
+        c.req.remote = c.remote;
+      }
+      if (c.state == State::kHead) {
+        bool complete = false;
+        if (auto r = parse_head(c, complete)) return refuse(c, *r);
+        if (!complete) return;
+        if (auto r = framing(c)) return refuse(c, *r);
+        if (handlers.on_head) {
+          if (auto early = handlers.on_head(c.req)) {
+            early->close = true;  // the body, if any, is never read
+            answer(c, *early);
+            if (handlers.on_done) handlers.on_done(c.req, *early, ms_since(c.started));
+            return;
+          }
+        }
+        if (!c.chunked && c.content_length > options.max_body_bytes) return refuse(c, too_large());
+        const std::string* expect = c.req.header("expect");
+        if (expect && lower(*expect) == "100-continue" && (c.chunked || c.content_length > 0) &&
+            c.in.empty()) {
+          c.out += "HTTP/1.1 100 Continue\r\n\r\n";
+        }
+        c.state = State::kBody;
+      }
+      if (c.state == State::kBody) {
+        bool complete = false;
+        if (auto r = read_body(c, complete)) return refuse(c, *r);
+        if (!complete) return;
+        c.state = State::kHandling;
+        {
+          std::lock_guard<std::mutex> lock(jobs_mu);
+          jobs.emplace_back(id, std::move(c.req));
+        }
+        jobs_cv.notify_one();
+        c.req = Request{};
+        return;
+      }
+      return;  // handling or writing: nothing to read now
+    }
+  }
+
+  // ---- workers ---------------------------------------------------------------------------
+
+  void worker() {
+    while (true) {
+      std::pair<std::uint64_t, Request> job;
+      {
+        std::unique_lock<std::mutex> lock(jobs_mu);
+        jobs_cv.wait(lock, [&] { return workers_quit || !jobs.empty(); });
+        if (jobs.empty()) return;
+        job = std::move(jobs.front());
+        jobs.pop_front();
+      }
+      const auto t0 = Clock::now();
+      Response res;
+      try {
+        res = handlers.on_request(job.second);
+      } catch (...) {
+        res = handlers.on_protocol_error ? handlers.on_protocol_error(500, "internal error")
+                                         : Response{500, "internal error\n", {}, false};
+      }
+      if (handlers.on_done) {
+        try {
+          handlers.on_done(job.second, res, ms_since(t0));
+        } catch (...) {
+        }
+      }
+      {
+        std::lock_guard<std::mutex> lock(done_mu);
+        done.push_back({job.first, std::move(res)});
+      }
+      wake();
+    }
+  }
+
+  // ---- the loop --------------------------------------------------------------------------
+
+  void close_conn(std::uint64_t id) {
+    auto it = conns.find(id);
+    if (it == conns.end()) return;
+    ::close(it->second.fd);
+    conns.erase(it);
+  }
+
+  // Writes what it can; returns false if the connection is to be closed now.
+  bool flush(Conn& c) {
+    while (c.out_done < c.out.size()) {
+      const ssize_t n = ::send(c.fd, c.out.data() + c.out_done, c.out.size() - c.out_done, MSG_NOSIGNAL);
+      if (n > 0) {
+        c.out_done += static_cast<std::size_t>(n);
+        continue;
+      }
+      if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) return true;
+      if (n < 0 && errno == EINTR) continue;
+      return false;
+    }
+    c.out.clear();
+    c.out_done = 0;
+    if (c.state == State::kWriting) {
+      if (c.close_after_write) {
+        ::shutdown(c.fd, SHUT_WR);
+        c.state = State::kDraining;
+        c.in.clear();
+        c.deadline = Clock::now() + std::chrono::seconds(2);
+        return true;
+      }
+      c.state = State::kIdle;
+      c.deadline = Clock::now() + options.keep_alive_timeout;
+    }
+    return true;
+  }
+
+  // Reads what c.in holds and writes what c.out holds, as far as both go without waiting.
+  // Returns false if the connection is to be closed now.
+  bool pump(std::uint64_t id, Conn& c) {
+    for (int round = 0; round < 64; ++round) {
+      advance(id, c);
+      if (c.out_done < c.out.size() && !flush(c)) return false;
+      if (c.state == State::kIdle && !c.in.empty()) continue;  // a pipelined request
+      return true;
+    }
+    return true;
+  }
+
+  void accept_all(bool& accept_paused_until_set, Clock::time_point& accept_paused_until) {
+    while (true) {
+      sockaddr_in addr{};
+      socklen_t len = sizeof addr;
+      const int fd =
+          ::accept4(listen_fd, reinterpret_cast<sockaddr*>(&addr), &len, SOCK_NONBLOCK | SOCK_CLOEXEC);
+      if (fd < 0) {
+        if (errno == EINTR || errno == ECONNABORTED) continue;
+        if (errno == EMFILE || errno == ENFILE || errno == ENOBUFS || errno == ENOMEM) {
+          accept_paused_until_set = true;  // out of descriptors: try again shortly
+          accept_paused_until = Clock::now() + std::chrono::milliseconds(100);
+        }
+        return;
+      }
+      if (conns.size() >= options.max_connections) {
+        ::close(fd);
+        continue;
+      }
+      const int one = 1;
+      ::setsockopt(fd, IPPROTO_TCP, TCP_NODELAY, &one, sizeof one);
+      Conn c;
+      c.fd = fd;
+      char ip[INET_ADDRSTRLEN] = {0};
+      ::inet_ntop(AF_INET, &addr.sin_addr, ip, sizeof ip);
+      c.remote = std::string(ip) + ":" + std::to_string(ntohs(addr.sin_port));
+      c.deadline = Clock::now() + options.keep_alive_timeout;
+      conns.emplace(next_id++, std::move(c));
+    }
+  }
+
+  void take_done() {
+    std::vector<Done> finished;
+    {
+      std::lock_guard<std::mutex> lock(done_mu);
+      finished.swap(done);
+    }
+    for (auto& d : finished) {
+      auto it = conns.find(d.conn);
+      if (it == conns.end()) continue;
+      Conn& c = it->second;
+      answer(c, d.response);
+      if (!pump(d.conn, c)) close_conn(d.conn);  // pump also starts a pipelined request
+    }
+  }
+
+  void loop() {
+    bool accept_paused = false;
+    Clock::time_point accept_paused_until;
+    std::vector<pollfd> fds;
+    std::vector<std::uint64_t> ids;
+    bool listening = true;
+    while (true) {
+      const bool stop_now = stopping.load();
+      if (stop_now && listening) {
+        ::close(listen_fd);
+        listen_fd = -1;
+        listening = false;
+      }
+      if (stop_now) {
+        // Idle and half-read connections go; those being handled or written are finished.
+        std::vector<std::uint64_t> drop;
+        for (auto& [id, c] : conns)
+          if (c.state != State::kHandling && c.state != State::kWriting) drop.push_back(id);
+        for (auto id : drop) close_conn(id);
+        if (conns.empty()) return;
+      }
+      fds.clear();
+      ids.clear();
+      fds.push_back({wake_fd, POLLIN, 0});
+      ids.push_back(0);
+      if (listening) {
+        if (accept_paused && Clock::now() >= accept_paused_until) accept_paused = false;
+        if (!accept_paused) {
+          fds.push_back({listen_fd, POLLIN, 0});
+          ids.push_back(0);
+        }
+      }
+      const std::size_t first_conn = fds.size();
+      for (auto& [id, c] : conns) {
+        short events = 0;
+        if (c.state == State::kIdle || c.state == State::kHead || c.state == State::kBody ||
+            c.state == State::kDraining)
+          events |= POLLIN;
+        if (c.out_done < c.out.size()) events |= POLLOUT;
+        if (events == 0) continue;
+        fds.push_back({c.fd, events, 0});
+        ids.push_back(id);
+      }
+      const int r = ::poll(fds.data(), fds.size(), 100);
+      if (r < 0 && errno != EINTR) return;
+      if (r > 0 && (fds[0].revents & POLLIN) != 0) {
+        std::uint64_t v = 0;
+        [[maybe_unused]] const ssize_t n = ::read(wake_fd, &v, sizeof v);
+      }
+      take_done();
+      if (r > 0) {
+        if (listening && first_conn == 2 && (fds[1].revents & POLLIN) != 0)
+          accept_all(accept_paused, accept_paused_until);
+        for (std::size_t k = first_conn; k < fds.size(); ++k) {
+          if (fds[k].revents == 0) continue;
+          auto it = conns.find(ids[k]);
+          if (it == conns.end()) continue;
+          Conn& c = it->second;
+          bool keep = true;
+          if ((fds[k].revents & (POLLIN | POLLHUP | POLLERR)) != 0 &&
+              (c.state == State::kIdle || c.state == State::kHead || c.state == State::kBody)) {
+            bool eof = false;
+            char buf[16384];
+            while (true) {
+              const ssize_t n = ::recv(c.fd, buf, sizeof buf, 0);
+              if (n > 0) {
+                c.in.append(buf, static_cast<std::size_t>(n));
+                if (c.in.size() > options.max_header_bytes + options.max_body_bytes + 65536) break;
+                continue;
+              }
+              if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) break;
+              if (n < 0 && errno == EINTR) continue;
+              eof = true;  // closed by the peer (or an error)
+              break;
+            }
+            keep = pump(ids[k], c);
+            if (keep && eof) {
+              // A request read in full is still answered (the peer may only have shut down its
+              // sending side); an unfinished one is dropped.
+              if (c.state == State::kHandling || c.state == State::kWriting) {
+                c.keep_alive = false;
+                c.close_after_write = true;
+              } else {
+                keep = false;
+              }
+            }
+          } else if (c.state == State::kDraining && (fds[k].revents & (POLLIN | POLLHUP | POLLERR)) != 0) {
+            char buf[16384];
+            while (keep) {
+              const ssize_t n = ::recv(c.fd, buf, sizeof buf, 0);
+              if (n > 0) {
+                c.drained += static_cast<std::size_t>(n);
+                if (c.drained > (std::size_t{4} << 20)) keep = false;  // enough politeness
+                continue;
+              }
+              if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) break;
+              if (n < 0 && errno == EINTR) continue;
+              keep = false;
+            }
+          } else if ((fds[k].revents & POLLERR) != 0) {
+            keep = false;
+          } else if ((fds[k].revents & POLLOUT) != 0) {
+            keep = pump(ids[k], c);
+          }
+          if (!keep) close_conn(ids[k]);
+        }
+      }
+      // Deadlines.
+      const auto now = Clock::now();
+      std::vector<std::uint64_t> expired;
+      for (auto& [id, c] : conns) {
+        if (c.state == State::kHandling || now < c.deadline) continue;
+        if (c.state == State::kHead || c.state == State::kBody) {
+          refuse(c, Refusal{408, "the request was not complete within " +
+                                     std::to_string(options.request_timeout.count() / 1000) + " s"});
+          if (!flush(c)) expired.push_back(id);
+          if (c.state == State::kWriting) c.deadline = now + std::chrono::seconds(1);  // a last second
+        } else {
+          expired.push_back(id);  // idle past keep-alive, or not reading its answer
+        }
+      }
+      for (auto id : expired) close_conn(id);
+    }
+  }
+};
+
+Server::Server(ServerOptions options, Handlers handlers)
+    : impl_(std::make_unique<Impl>(std::move(options), std::move(handlers))) {}
+
+Server::~Server() = default;
+
+Result<int> Server::bind(const std::string& host, int port) {
+  const std::string where = host + ":" + std::to_string(port);
+  in_addr addr{};
+  const std::string ip = host == "localhost" ? "127.0.0.1" : host;
+  if (::inet_pton(AF_INET, ip.c_str(), &addr) != 1)
+    return storage_error("cannot listen on " + where + ": not an IPv4 address");
+  if (impl_->wake_fd < 0)
+    return storage_error("cannot listen on " + where + ": no event descriptor available");
+  const int fd = ::socket(AF_INET, SOCK_STREAM | SOCK_NONBLOCK | SOCK_CLOEXEC, 0);
+  if (fd < 0) return storage_error("cannot listen on " + where + ": cannot create a socket");
+  // SO_REUSEADDR only (restart over connections in TIME_WAIT). Not SO_REUSEPORT: with it a second
+  // server could bind the same address and take half of the requests.
+  const int one = 1;
+  ::setsockopt(fd, SOL_SOCKET, SO_REUSEADDR, &one, sizeof one);
+  sockaddr_in sa{};
+  sa.sin_family = AF_INET;
+  sa.sin_port = htons(static_cast<std::uint16_t>(port));
+  sa.sin_addr = addr;
+  if (::bind(fd, reinterpret_cast<sockaddr*>(&sa), sizeof sa) != 0) {
+    const int e = errno;
+    ::close(fd);
+    if (e == EADDRINUSE)
+      return storage_error("cannot listen on " + where + ": address in use (another process listens there)");
+    if (e == EADDRNOTAVAIL) return storage_error("cannot listen on " + where + ": not a local address");
+    if (e == EACCES) return storage_error("cannot listen on " + where + ": permission denied");
+    return storage_error("cannot listen on " + where + ": bind failed (errno " + std::to_string(e) + ")");
+  }
+  if (::listen(fd, 1024) != 0) {
+    const int e = errno;
+    ::close(fd);
+    if (e == EADDRINUSE)
+      return storage_error("cannot listen on " + where + ": address in use (another process listens there)");
+    return storage_error("cannot listen on " + where + ": listen failed (errno " + std::to_string(e) + ")");
+  }
+  socklen_t len = sizeof sa;
+  ::getsockname(fd, reinterpret_cast<sockaddr*>(&sa), &len);
+  if (impl_->listen_fd >= 0) ::close(impl_->listen_fd);
+  impl_->listen_fd = fd;
+  return static_cast<int>(ntohs(sa.sin_port));
+}
+
+void Server::run() {
+  Impl& s = *impl_;
+  if (s.listen_fd < 0 || s.stopping.load()) return;
+  const std::size_t n = std::max<std::size_t>(1, s.options.threads);
+  for (std::size_t k = 0; k < n; ++k) s.workers.emplace_back([&s] { s.worker(); });
+  s.loop();
+  {
+    std::lock_guard<std::mutex> lock(s.jobs_mu);
+    s.workers_quit = true;
+  }
+  s.jobs_cv.notify_all();
+  for (auto& t : s.workers) t.join();
+  s.workers.clear();
+  for (auto& [id, c] : s.conns) ::close(c.fd);
+  s.conns.clear();
+}
+
+void Server::stop() {
+  impl_->stopping = true;
+  impl_->wake();
+}
+
+}  // namespace alphaledger::http
