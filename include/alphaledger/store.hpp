@@ -66,18 +66,42 @@ class Store {
 
   // A short description for messages, e.g. the folder path.
   virtual std::string describe() const = 0;
+
+  // True when this store was opened read-only: every write() fails and nothing on disk changes.
+  virtual bool read_only() const { return false; }
+
+  // Why the last write failed, if it did and no write has succeeded since; std::nullopt when
+  // storage is healthy as far as this store knows (the HTTP health route reports it).
+  virtual std::optional<std::string> failing() const { return std::nullopt; }
 };
 
 struct RocksStoreOptions {
   bool create_if_missing = true;  // Default: true (the default ledger location needs no set-up)
+  // Open for reading only: no lock is taken (works beside a running `serve` and in a read-only
+  // folder), no info LOG and no other file is created, changed, deleted or truncated; write()
+  // fails with kStorage. Default: false.
+  bool read_only = false;
+  // Also read every table file in full and check all its block checksums on open (cost grows with
+  // the ledger's size; `verify` and `recover` use it). Default: false: table blocks are checked
+  // when they are read.
+  bool check_all_files = false;
+  // For `recover` only, on a copy of a damaged folder: open read-write without the checks,
+  // skipping log records that fail their checksum, pointing a missing or bad CURRENT at the
+  // newest MANIFEST, and falling back to the newest consistent set of table files (without the
+  // log) when a table file is missing. This CHANGES the folder. Default: false.
+  bool salvage_copy = false;
 };
 
-// Opens (or creates) a RocksDB database in folder `path`.
-// Errors (kStorage), each naming the folder:
-//   - held by another process: names the LOCK file and, when the system reports it, the pid;
-//   - held by this process (a second open of the same folder);
-//   - corrupt, unreadable or unwritable folder.
-// With create_if_missing == false and no database in the folder: kRefused ("no ledger at ...").
+// Opens (or creates) a RocksDB database in folder `path`. Before a read-write open, the folder is
+// first opened read-only and checked, so a damaged ledger is refused with every file left as it
+// was (docs/ledger.md "Damaged files").
+// Errors, each naming the folder (and the damaged file when known):
+//   - kStorage: held by another process (names the LOCK file and, when the system reports it, the
+//     pid); held by this process (a second open of the same folder); a damaged file: a byte
+//     changed, a file missing or cut short (write-ahead log, table, MANIFEST, CURRENT, OPTIONS or
+//     the seal file); unreadable or unwritable folder; `path` is a regular file; a folder that
+//     holds files but no ledger when creating.
+//   - kRefused: no ledger in the folder and create_if_missing == false ("no ledger at ...").
 Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path,
                                                   const RocksStoreOptions& options = {});
 
@@ -118,10 +142,14 @@ class FaultyStore final : public Store {
   Status write(const WriteBatch& batch, bool sync = true) override;
   Status scan(std::string_view prefix, const Visitor& visit) override { return inner_.scan(prefix, visit); }
   std::string describe() const override { return inner_.describe(); }
+  bool read_only() const override { return inner_.read_only(); }
+  // The injected fault's message while the last write failed; else the wrapped store's answer.
+  std::optional<std::string> failing() const override;
 
  private:
   Store& inner_;
   mutable std::mutex mu_;
+  std::optional<std::string> last_failure_;
   std::uint64_t countdown_ = 0;  // 0: no one-shot fault armed
   std::optional<std::string> fail_all_;
   std::uint64_t attempted_ = 0;

@@ -25,6 +25,16 @@ Result<std::unique_ptr<Ledger>> open_ledger(const GlobalOptions& g, bool create)
   return Ledger::open(ledger_path(g), RocksStoreOptions{.create_if_missing = create});
 }
 
+// Opens the ledger for reading only (status, history, verify, streams, next): takes no lock, so it
+// works beside a running serve and in a read-only folder, and writes no file (docs/ledger.md).
+Result<std::unique_ptr<Ledger>> open_for_reading(const GlobalOptions& g, bool check_all_files = false) {
+  return Ledger::open(ledger_path(g), RocksStoreOptions{
+                                          .create_if_missing = false,
+                                          .read_only = true,
+                                          .check_all_files = check_all_files,
+                                      });
+}
+
 Json config_json(const RuleConfig& c) {
   Json j;
   j["rule"] = std::string(rule_name(c.kind));
@@ -207,7 +217,7 @@ struct StreamOptions {
 };
 
 Status run_next(const StreamOptions& o, const GlobalOptions& g, std::ostream& out) {
-  auto ledger = open_ledger(g, false);
+  auto ledger = open_for_reading(g);
   if (!ledger) return ledger.error();
   auto info = (*ledger)->status(o.stream);
   if (!info) return info.error();
@@ -221,7 +231,7 @@ Status run_next(const StreamOptions& o, const GlobalOptions& g, std::ostream& ou
 }
 
 Status run_status(const StreamOptions& o, const GlobalOptions& g, std::ostream& out) {
-  auto ledger = open_ledger(g, false);
+  auto ledger = open_for_reading(g);
   if (!ledger) return ledger.error();
   auto info = (*ledger)->status(o.stream);
   if (!info) return info.error();
@@ -241,7 +251,7 @@ Status run_status(const StreamOptions& o, const GlobalOptions& g, std::ostream& 
 }
 
 Status run_streams(const GlobalOptions& g, std::ostream& out) {
-  auto ledger = open_ledger(g, false);
+  auto ledger = open_for_reading(g);
   if (!ledger) {
     if (ledger.error().kind == ErrorKind::kRefused) {  // no ledger yet: no streams
       spdlog::warn("{}", ledger.error().message);
@@ -270,7 +280,7 @@ struct HistoryOptions {
 };
 
 Status run_history(const HistoryOptions& o, const GlobalOptions& g, std::ostream& out) {
-  auto ledger = open_ledger(g, false);
+  auto ledger = open_for_reading(g);
   if (!ledger) return ledger.error();
   auto info = (*ledger)->status(o.stream);
   if (!info) return info.error();
@@ -305,7 +315,7 @@ struct VerifyOptions {
 };
 
 Status run_verify(const VerifyOptions& o, const GlobalOptions& g, std::ostream& out) {
-  auto ledger = open_ledger(g, false);
+  auto ledger = open_for_reading(g, /*check_all_files=*/true);
   if (!ledger) return ledger.error();
   auto report = (*ledger)->verify(o.stream);
   if (!report) return report.error();

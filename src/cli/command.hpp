@@ -50,5 +50,6 @@ void add_ledger_commands(CLI::App& app,
 void add_simulate_command(CLI::App& app, CommandContext& ctx);
 void add_stats_commands(CLI::App& app, CommandContext& ctx);    // pvalue plan
 void add_service_commands(CLI::App& app, CommandContext& ctx);  // pipe serve
+void add_recover_command(CLI::App& app, CommandContext& ctx);   // recover
 
 }  // namespace alphaledger::cli

@@ -65,6 +65,7 @@ int main(int argc, char** argv) {
   add_simulate_command(app, ctx);
   add_stats_commands(app, ctx);
   add_service_commands(app, ctx);
+  add_recover_command(app, ctx);
 
   try {
     app.parse(argc, argv);

@@ -542,6 +542,7 @@ class StoreLedger final : public Ledger {
                              std::string(store::kFormatKey) +
                              ": it is not an alphaledger ledger, or it is corrupt");
       }
+      if (store_->read_only()) return {};  // an empty ledger; a read-only open writes nothing
       WriteBatch batch;
       batch.put(std::string(store::kFormatKey), store::encode_format_version(store::kFormatVersion));
       return store_->write(batch, true);

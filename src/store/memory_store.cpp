@@ -69,21 +69,34 @@ std::uint64_t FaultyStore::writes_failed() const {
   return failed_;
 }
 
+std::optional<std::string> FaultyStore::failing() const {
+  {
+    std::lock_guard lock(mu_);
+    if (last_failure_) return last_failure_;
+  }
+  return inner_.failing();
+}
+
 Status FaultyStore::write(const WriteBatch& batch, bool sync) {
   {
     std::lock_guard lock(mu_);
     ++attempted_;
     if (fail_all_) {
       ++failed_;
-      return storage_error("write to " + inner_.describe() + " failed: " + *fail_all_ + " (injected fault)");
+      last_failure_ = "write to " + inner_.describe() + " failed: " + *fail_all_ + " (injected fault)";
+      return storage_error(*last_failure_);
     }
     if (countdown_ > 0 && --countdown_ == 0) {
       ++failed_;
-      return storage_error("write to " + inner_.describe() + " failed: I/O error (injected fault, write " +
-                           std::to_string(attempted_) + ")");
+      last_failure_ = "write to " + inner_.describe() + " failed: I/O error (injected fault, write " +
+                      std::to_string(attempted_) + ")";
+      return storage_error(*last_failure_);
     }
   }
-  return inner_.write(batch, sync);
+  auto s = inner_.write(batch, sync);
+  std::lock_guard lock(mu_);
+  if (s) last_failure_.reset();
+  return s;
 }
 
 namespace {
@@ -95,6 +108,8 @@ class BorrowedStore final : public Store {
   Status write(const WriteBatch& batch, bool sync) override { return inner_.write(batch, sync); }
   Status scan(std::string_view prefix, const Visitor& visit) override { return inner_.scan(prefix, visit); }
   std::string describe() const override { return inner_.describe(); }
+  bool read_only() const override { return inner_.read_only(); }
+  std::optional<std::string> failing() const override { return inner_.failing(); }
 
  private:
   Store& inner_;

@@ -1,0 +1,59 @@
+// Copying what can be proven out of a damaged ledger into a new folder (docs/ledger.md
+// "Recovering a damaged ledger").
+//
+// Example:
+//   auto report = recover_ledger("/srv/ab/ledger", "/srv/ab/ledger-recovered");
+//   report->complete();              // false: something could not be proven
+//   report->streams[0].kept_steps;   // 255: steps 1..255 are in the new ledger
+//   report->streams[0].known_steps;  // 2000: the source's head counted 2000
+//
+// The source folder is never changed: its files are copied to a scratch folder beside the target
+// and RocksDB's own salvage opens that copy. A decision is copied only if the stream's hash chain
+// is intact from the configuration up to it and a replay of the rule gives its level, decision and
+// wealth bit for bit; each stream stops at its first unproven step.
+//
+// Thread-safety: a free function; no shared state.
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "alphaledger/result.hpp"
+
+namespace alphaledger {
+
+struct StreamRecovery {
+  std::string stream;
+  std::uint64_t kept_steps = 0;              // steps 1..kept_steps were copied and proven
+  std::optional<std::uint64_t> known_steps;  // what the source's head counted, when readable
+  std::string problem;                       // why copying stopped early; empty when it did not
+  bool complete() const { return problem.empty() && (!known_steps || *known_steps <= kept_steps); }
+};
+
+struct RecoveryReport {
+  std::string source;
+  std::string target;
+  // What the strict open of the source said, when it refused the source (the damage found);
+  // empty when the source opened cleanly with every check.
+  std::string source_problem;
+  std::vector<StreamRecovery> streams;  // by name
+  std::uint64_t other_keys_copied = 0;  // keys outside the streams' records, copied as they were
+  bool complete() const {
+    if (!source_problem.empty()) return false;
+    for (const auto& s : streams)
+      if (!s.complete()) return false;
+    return true;
+  }
+};
+
+// Copies every stream's configuration and every provable decision of ledger folder `source` into
+// a new ledger in `target`, then verifies each stream of the new ledger.
+// Errors: kInvalidInput: `target` exists and is not an empty folder, or is the source;
+// kRefused: no ledger at `source`; kStorage: the source cannot be read at all (not even salvaged),
+// the target or the scratch copy cannot be written, or the new ledger fails its own verify.
+// A source that was read but lost decisions is not an error: see RecoveryReport::complete().
+Result<RecoveryReport> recover_ledger(const std::string& source, const std::string& target);
+
+}  // namespace alphaledger

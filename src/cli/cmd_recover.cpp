@@ -1,0 +1,91 @@
+// recover: copy what can be proven out of a damaged ledger into a new folder (docs/ledger.md
+// "Recovering a damaged ledger").
+#include <iostream>
+#include <nlohmann/json.hpp>
+
+#include "alphaledger/recover.hpp"
+#include "cli/command.hpp"
+
+namespace alphaledger::cli {
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+std::string dump(const Json& j) { return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace); }
+
+struct RecoverOptions {
+  std::string to;
+};
+
+std::string steps_text(std::uint64_t first, std::uint64_t last) {
+  if (first == last) return "step " + std::to_string(first);
+  return "steps " + std::to_string(first) + ".." + std::to_string(last);
+}
+
+Status run_recover(const RecoverOptions& o, const GlobalOptions& g, std::ostream& out) {
+  const std::string source = ledger_path(g);
+  auto report = recover_ledger(source, o.to);
+  if (!report) return report.error();
+  for (const auto& s : report->streams) {
+    const bool lost_known = s.known_steps && *s.known_steps > s.kept_steps;
+    if (g.json) {
+      Json j{{"stream", s.stream}, {"kept_steps", s.kept_steps}};
+      j["known_steps"] = s.known_steps ? Json(*s.known_steps) : Json(nullptr);
+      j["lost_from_step"] = s.complete() ? Json(nullptr) : Json(s.kept_steps + 1);
+      j["lost_to_step"] = lost_known ? Json(*s.known_steps) : Json(nullptr);
+      j["complete"] = s.complete();
+      j["problem"] = s.problem;
+      out << dump(j) << '\n';
+      continue;
+    }
+    out << "stream " << s.stream << ": ";
+    if (s.kept_steps == 0) {
+      out << "no steps kept";
+    } else {
+      out << "kept " << steps_text(1, s.kept_steps);
+    }
+    if (lost_known) {
+      out << "; lost " << steps_text(s.kept_steps + 1, *s.known_steps);
+    } else if (!s.complete()) {
+      out << "; later steps, if any, lost";
+    }
+    if (!s.problem.empty()) out << " (" << s.problem << ")";
+    out << '\n';
+  }
+  if (g.json) {
+    Json j{{"recovered_to", report->target},           {"source", report->source},
+           {"streams", report->streams.size()},        {"complete", report->complete()},
+           {"source_problem", report->source_problem}, {"other_keys_copied", report->other_keys_copied}};
+    out << dump(j) << '\n';
+  } else {
+    out << "recovered " << report->streams.size() << " stream(s) from " << report->source << " into "
+        << report->target << "; the new ledger passes verify\n";
+    if (!report->source_problem.empty())
+      out << "damage found in the source: " << report->source_problem << '\n';
+  }
+  out.flush();
+  if (!report->complete()) {
+    return storage_error(
+        "ledger " + source + " was damaged: " +
+        (report->source_problem.empty()
+             ? std::string("some decisions could not be proven and were not copied")
+             : std::string("decisions written after the damaged point may be lost, and not all "
+                           "such losses can be counted")) +
+        "; what could be proven is in " + o.to + " (see the lines above)");
+  }
+  return {};
+}
+
+}  // namespace
+
+void add_recover_command(CLI::App& app, CommandContext& ctx) {
+  auto o = std::make_shared<RecoverOptions>();
+  CLI::App* sub = app.add_subcommand(
+      "recover",
+      "copy every stream's configuration and every decision that can be proven from a damaged ledger "
+      "(--ledger) into a new folder; the damaged ledger is not changed");
+  sub->add_option("--to", o->to, "the new ledger folder: must not exist, or be empty")->required();
+  sub->callback([&ctx, o] { ctx.run = [&ctx, o] { return run_recover(*o, ctx.global, std::cout); }; });
+}
+
+}  // namespace alphaledger::cli

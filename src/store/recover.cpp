@@ -1,0 +1,254 @@
+// Recovering a damaged ledger into a new folder (include/alphaledger/recover.hpp).
+#include "alphaledger/recover.hpp"
+
+#include <stdlib.h>
+
+#include <bit>
+#include <filesystem>
+#include <set>
+
+#include "alphaledger/ledger.hpp"
+#include "alphaledger/rules.hpp"
+#include "alphaledger/store.hpp"
+#include "store/codec.hpp"
+
+namespace alphaledger {
+namespace {
+
+namespace fs = std::filesystem;
+
+bool same_bits(double a, double b) {
+  return std::bit_cast<std::uint64_t>(a) == std::bit_cast<std::uint64_t>(b);
+}
+
+// A scratch folder removed with everything in it at scope exit.
+class Scratch {
+ public:
+  explicit Scratch(std::string path) : path_(std::move(path)) {}
+  ~Scratch() {
+    std::error_code ec;
+    if (!path_.empty()) fs::remove_all(path_, ec);
+  }
+  Scratch(const Scratch&) = delete;
+  Scratch& operator=(const Scratch&) = delete;
+  const std::string& path() const { return path_; }
+
+ private:
+  std::string path_;
+};
+
+// Copies the regular files of `from` (not LOCK) into the existing folder `to`.
+Status copy_files(const std::string& from, const std::string& to) {
+  std::error_code ec;
+  for (const auto& entry : fs::directory_iterator(from, ec)) {
+    if (!entry.is_regular_file(ec)) continue;
+    const auto name = entry.path().filename();
+    if (name == "LOCK") continue;
+    fs::copy_file(entry.path(), fs::path(to) / name, fs::copy_options::overwrite_existing, ec);
+    if (ec) {
+      return storage_error("cannot copy " + entry.path().string() + " to the scratch folder " + to + ": " +
+                           ec.message());
+    }
+  }
+  if (ec) return storage_error("cannot list ledger folder " + from + ": " + ec.message());
+  return {};
+}
+
+// Writes `batch` when it has grown, or always with `force`.
+Status flush(Store& store, WriteBatch& batch, bool force) {
+  if (batch.empty() || (!force && batch.ops.size() < 4096)) return {};
+  auto s = store.write(batch, false);
+  batch.ops.clear();
+  return s;
+}
+
+// Copies one stream, stopping at its first unproven step.
+Status copy_stream(Store& from, Store& to, const std::string& name, const std::string& config_bytes,
+                   StreamRecovery& out) {
+  auto config = store::decode_config(config_bytes);
+  if (!config || config->name != name) {
+    out.problem = "the configuration cannot be read" +
+                  (config ? std::string(" (it names another stream)") : ": " + config.error().message);
+    return {};
+  }
+  if (auto head_bytes = from.get(store::head_key(name)); head_bytes && *head_bytes) {
+    if (auto head = store::decode_head(**head_bytes); head) out.known_steps = head->steps;
+  }
+  WriteBatch batch;
+  batch.put(store::config_key(name), config_bytes);
+  Rule rule(config->config);  // replays the steps as they are read
+  store::Digest prev = store::genesis_hash(config_bytes);
+  std::set<std::string> ids;
+  std::vector<double> kept_p;
+  for (std::uint64_t step = 1;; ++step) {
+    const std::string at = "step " + std::to_string(step) + ": ";
+    auto bytes = from.get(store::record_key(name, step));
+    if (!bytes) {
+      out.problem = at + bytes.error().message;
+      break;
+    }
+    if (!*bytes) {
+      if (out.known_steps && *out.known_steps >= step) out.problem = at + "the record is missing";
+      break;
+    }
+    auto rec = store::decode_record(**bytes);
+    if (!rec) {
+      out.problem = at + "the record cannot be read: " + rec.error().message;
+      break;
+    }
+    const DecisionRecord& r = rec->record;
+    if (r.step != step) {
+      out.problem = at + "the record stored there says step " + std::to_string(r.step);
+      break;
+    }
+    if (store::recompute_record_hash(**bytes) != rec->hash) {
+      out.problem = at + "the record's contents do not match its hash";
+      break;
+    }
+    if (rec->prev_hash != prev) {
+      out.problem = at + "the record does not link to the one before it";
+      break;
+    }
+    if (!validate_p_value(r.p_value) || ids.count(r.id)) {
+      out.problem =
+          at + (ids.count(r.id) ? "the test id was decided before" : "the stored p-value is invalid");
+      break;
+    }
+    const Outcome o = rule.record(r.p_value);
+    if (!same_bits(o.level, r.level) || o.rejected != r.rejected || !same_bits(o.wealth, r.wealth)) {
+      out.problem = at + "a replay of the rule does not give the stored level, decision and wealth";
+      break;
+    }
+    kept_p.push_back(r.p_value);
+    ids.insert(r.id);
+    prev = rec->hash;
+    out.kept_steps = step;
+    batch.put(store::record_key(name, step), std::move(**bytes));
+    batch.put(store::index_key(name, r.id), store::encode_step(step));
+    if (auto s = flush(to, batch, false); !s) return s;
+  }
+  // The rule's state after the kept steps only (the loop may have fed it one unproven step).
+  Rule kept_rule(config->config);
+  for (double p : kept_p) kept_rule.record(p);
+  store::StoredHead head;
+  head.steps = out.kept_steps;
+  head.last_hash = prev;
+  head.rule_state = kept_rule.encode_state();
+  batch.put(store::head_key(name), store::encode_head(head));
+  return flush(to, batch, true);
+}
+
+}  // namespace
+
+Result<RecoveryReport> recover_ledger(const std::string& source, const std::string& target) {
+  std::error_code ec;
+  RecoveryReport report;
+  report.source = source;
+  report.target = target;
+  if (fs::exists(target, ec)) {
+    if (!fs::is_directory(target, ec) || !fs::is_empty(target, ec)) {
+      return invalid_input("recover --to " + target +
+                           ": the target exists and is not an empty folder (give a new or empty folder; "
+                           "recover never writes over anything)");
+    }
+  }
+  if (fs::exists(source, ec) && fs::exists(target, ec) && fs::equivalent(source, target, ec)) {
+    return invalid_input("recover --to " + target + ": the target is the damaged ledger itself");
+  }
+  if (!fs::is_directory(source, ec)) {
+    return refused("no ledger at " + source + " (give the damaged ledger folder with --ledger DIR)");
+  }
+
+  // 1. The strict, read-only open: what damage is there? Writes nothing.
+  {
+    auto strict = open_rocksdb_store(source, RocksStoreOptions{
+                                                 .create_if_missing = false,
+                                                 .read_only = true,
+                                                 .check_all_files = true,
+                                             });
+    if (!strict) {
+      if (strict.error().kind == ErrorKind::kRefused) return strict.error();
+      report.source_problem = strict.error().message;
+    }
+  }
+
+  // 2. A scratch copy beside the target, salvaged there.
+  const fs::path target_path = fs::absolute(fs::path(target), ec);
+  const fs::path parent = target_path.parent_path();
+  fs::create_directories(parent, ec);
+  std::string tmpl = (parent / ".alphaledger-recover-XXXXXX").string();
+  if (::mkdtemp(tmpl.data()) == nullptr) {
+    return storage_error("cannot make a scratch folder in " + parent.string() +
+                         " for the copy of the damaged ledger (is the folder writable?)");
+  }
+  Scratch scratch(tmpl);
+  if (auto s = copy_files(source, scratch.path()); !s) return s.error();
+  auto from =
+      open_rocksdb_store(scratch.path(), RocksStoreOptions{.create_if_missing = false, .salvage_copy = true});
+  if (!from) {
+    Error e = from.error();
+    e.message = "cannot read anything from ledger " + source +
+                " (a copy was tried, the source is unchanged): " + e.message;
+    return e;
+  }
+
+  // 3. The new ledger.
+  {
+    auto to = open_rocksdb_store(target, RocksStoreOptions{.create_if_missing = true});
+    if (!to) return to.error();
+    WriteBatch batch;
+    batch.put(std::string(store::kFormatKey), store::encode_format_version(store::kFormatVersion));
+    if (auto s = (*to)->write(batch, true); !s) return s.error();
+
+    std::vector<std::pair<std::string, std::string>> configs;
+    auto s = (*from)->scan(store::kConfigPrefix, [&](std::string_view key, std::string_view value) {
+      configs.emplace_back(std::string(key.substr(store::kConfigPrefix.size())), std::string(value));
+      return true;
+    });
+    if (!s) {
+      report.source_problem += std::string(report.source_problem.empty() ? "" : "; ") +
+                               "the list of streams could not be read to the end: " + s.error().message;
+    }
+    for (const auto& [name, bytes] : configs) {
+      StreamRecovery sr;
+      sr.stream = name;
+      if (auto st = copy_stream(**from, **to, name, bytes, sr); !st) return st.error();
+      report.streams.push_back(std::move(sr));
+    }
+    // Keys outside the four stream prefixes and the format key (other ledger-level data), as they were.
+    WriteBatch other;
+    s = (*from)->scan("", [&](std::string_view key, std::string_view value) {
+      if (key == store::kFormatKey || key.starts_with("c/") || key.starts_with("h/") ||
+          key.starts_with("r/") || key.starts_with("i/"))
+        return true;
+      other.put(std::string(key), std::string(value));
+      ++report.other_keys_copied;
+      return true;
+    });
+    if (!s) {
+      report.source_problem += std::string(report.source_problem.empty() ? "" : "; ") +
+                               "some ledger-level keys could not be read: " + s.error().message;
+    }
+    if (auto st = flush(**to, other, true); !st) return st.error();
+    WriteBatch none;
+    none.put(std::string(store::kFormatKey), store::encode_format_version(store::kFormatVersion));
+    if (auto st = (*to)->write(none, true); !st) return st.error();  // a synced write covers all before it
+  }
+
+  // 4. The new ledger must pass verify, stream by stream.
+  auto check = Ledger::open(
+      target, RocksStoreOptions{.create_if_missing = false, .read_only = true, .check_all_files = true});
+  if (!check) return check.error();
+  for (const auto& sr : report.streams) {
+    if (!sr.problem.empty() && sr.problem.starts_with("the configuration")) continue;
+    auto v = (*check)->verify(sr.stream);
+    if (!v) return v.error();
+    if (!v->ok || v->steps != sr.kept_steps) {
+      return storage_error("the recovered ledger " + target + " fails verify for stream " + sr.stream + ": " +
+                           v->problem + " (this is a bug; the source is unchanged)");
+    }
+  }
+  return report;
+}
+
+}  // namespace alphaledger

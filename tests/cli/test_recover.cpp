@@ -1,0 +1,221 @@
+// Damaged ledgers through the command line: a changed byte in the write-ahead log is refused by
+// every command (exit 4, "corrupt", the file named, nothing changed), `recover --to NEWDIR` copies
+// what can be proven into a new folder and reports what was lost, and the read commands work
+// beside a process holding the ledger's lock (docs/ledger.md "Damaged files", "Reading beside a
+// writer", "Recovering a damaged ledger").
+#include <doctest/doctest.h>
+#include <fcntl.h>
+#include <sys/stat.h>
+
+#include <algorithm>
+#include <map>
+#include <nlohmann/json.hpp>
+
+#include "ledger_process.hpp"
+
+using ledger_test::complete_lines;
+using ledger_test::run_alphaledger;
+using ledger_test::ScratchDir;
+namespace fs = std::filesystem;
+
+namespace {
+
+std::vector<std::string> with_ledger(const std::string& db, std::vector<std::string> args) {
+  args.insert(args.begin(), {"--ledger", db});
+  return args;
+}
+
+// Ids t1..tn with p-values spread over (0, 1): a simple fixed log (numbers are not checked here).
+std::string make_log(std::size_t n) {
+  std::string out = "id,p_value\n";
+  for (std::size_t i = 1; i <= n; ++i) {
+    const double p = static_cast<double>((i * 7919) % 1000 + 1) / 1001.0 / (i % 5 == 0 ? 100.0 : 1.0);
+    char buf[64];
+    std::snprintf(buf, sizeof buf, "t%zu,%.17g\n", i, p);
+    out += buf;
+  }
+  return out;
+}
+
+std::string slurp(const fs::path& p) {
+  std::ifstream in(p, std::ios::binary);
+  return {std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>()};
+}
+
+// name -> (contents, mtime in ns) of every file in the folder but LOCK (empty; and closing a
+// descriptor of it would drop a lock this process holds on it).
+std::map<std::string, std::pair<std::string, std::int64_t>> snapshot(const std::string& folder) {
+  std::map<std::string, std::pair<std::string, std::int64_t>> out;
+  for (const auto& e : fs::directory_iterator(folder)) {
+    if (e.path().filename() == "LOCK") continue;
+    struct stat st {};
+    REQUIRE(::stat(e.path().c_str(), &st) == 0);
+    out[e.path().filename().string()] = {slurp(e.path()),
+                                         std::int64_t{st.st_mtim.tv_sec} * 1000000000 + st.st_mtim.tv_nsec};
+  }
+  return out;
+}
+
+fs::path live_log(const std::string& folder) {
+  std::vector<std::string> logs;
+  for (const auto& e : fs::directory_iterator(folder))
+    if (e.path().extension() == ".log") logs.push_back(e.path().filename().string());
+  REQUIRE_FALSE(logs.empty());
+  std::sort(logs.begin(), logs.end());
+  return fs::path(folder) / logs.back();
+}
+
+// Flips a payload byte of the record at about `fraction` of the log (RocksDB log format: 32 KiB
+// blocks, 7-byte record headers; db/log_format.h).
+void flip_log_record(const fs::path& log, double fraction) {
+  const std::string bytes = slurp(log);
+  std::vector<std::size_t> starts;
+  for (std::size_t pos = 0; pos + 7 <= bytes.size();) {
+    const std::size_t left = 32768 - pos % 32768;
+    if (left < 7) {
+      pos += left;
+      continue;
+    }
+    const std::size_t len = static_cast<unsigned char>(bytes[pos + 4]) |
+                            (static_cast<std::size_t>(static_cast<unsigned char>(bytes[pos + 5])) << 8);
+    if (len == 0 && bytes[pos + 6] == 0) break;
+    starts.push_back(pos);
+    pos += 7 + len;
+  }
+  REQUIRE(starts.size() > 4);
+  const std::size_t at =
+      starts[static_cast<std::size_t>(fraction * static_cast<double>(starts.size() - 1))] + 7 + 5;
+  std::fstream f(log, std::ios::in | std::ios::out | std::ios::binary);
+  f.seekg(static_cast<std::streamoff>(at));
+  char c = 0;
+  f.get(c);
+  f.seekp(static_cast<std::streamoff>(at));
+  f.put(static_cast<char>(c ^ 0x01));
+}
+
+// A ledger with stream "s" holding `n` decisions made by one decide --file run in groups of 50.
+std::string build(const ScratchDir& dir, const std::string& name, std::size_t n) {
+  const std::string db = dir.sub(name);
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lord++"})).exit_code == 0);
+  const std::string log = dir.write(name + ".csv", make_log(n));
+  auto r = run_alphaledger(with_ledger(db, {"decide", "s", "--file", log, "--sync-every", "50"}));
+  REQUIRE(r.exit_code == 0);
+  return db;
+}
+
+}  // namespace
+
+TEST_CASE("Recover: a changed byte in the log is refused by every command and changes nothing") {
+  ScratchDir dir;
+  const std::string db = build(dir, "ledger", 2000);
+  flip_log_record(live_log(db), 0.5);
+  const auto before = snapshot(db);
+  for (const std::vector<std::string>& cmd :
+       std::vector<std::vector<std::string>>{{"verify", "s"},
+                                             {"status", "s"},
+                                             {"history", "s"},
+                                             {"next", "s"},
+                                             {"streams"},
+                                             {"decide", "s", "--id", "t2000", "--p", "0.9"}}) {
+    auto r = run_alphaledger(with_ledger(db, cmd));
+    INFO(cmd[0] << ": " << r.err);
+    CHECK(r.exit_code == 4);
+    CHECK(r.err.find("is corrupt") != std::string::npos);
+    CHECK(r.err.find(live_log(db).filename().string()) != std::string::npos);
+    CHECK(r.err.find("Corruption:") == std::string::npos);  // our words, not RocksDB's
+    CHECK(r.out.empty());
+  }
+  CHECK(snapshot(db) == before);
+}
+
+TEST_CASE("Recover: recover --to copies the provable steps, reports the lost ones, and verifies") {
+  ScratchDir dir;
+  const std::string db = build(dir, "ledger", 2000);
+  flip_log_record(live_log(db), 0.5);
+  const auto before = snapshot(db);
+  const std::string to = dir.sub("recovered");
+  auto r = run_alphaledger(with_ledger(db, {"--json", "recover", "--to", to}));
+  INFO(r.err);
+  CHECK(r.exit_code == 4);
+  CHECK(snapshot(db) == before);
+  const auto lines = complete_lines(r.out);
+  REQUIRE(lines.size() == 2);
+  const auto s = nlohmann::json::parse(lines[0]);
+  CHECK(s["stream"] == "s");
+  const std::uint64_t kept = s["kept_steps"];
+  CHECK(kept > 0);
+  CHECK(kept < 2000);
+  CHECK(kept % 50 == 0);  // whole groups: each synced group is one log record
+  CHECK(s["lost_from_step"] == kept + 1);
+  CHECK(s["complete"] == false);
+  const auto summary = nlohmann::json::parse(lines[1]);
+  CHECK(summary["complete"] == false);
+  CHECK(summary["source_problem"].get<std::string>().find("is corrupt") != std::string::npos);
+  // No scratch folder is left behind.
+  for (const auto& e : fs::directory_iterator(dir.sub("")))
+    CHECK(e.path().filename().string().find(".alphaledger-recover") == std::string::npos);
+
+  auto v = run_alphaledger(with_ledger(to, {"--json", "verify", "s"}));
+  REQUIRE(v.exit_code == 0);
+  CHECK(nlohmann::json::parse(v.out)["steps"] == kept);
+  // The recovered ledger takes new decisions, and the lost ids are new to it.
+  auto d = run_alphaledger(with_ledger(to, {"--json", "decide", "s", "--id", "t2000", "--p", "0.5"}));
+  REQUIRE(d.exit_code == 0);
+  CHECK(nlohmann::json::parse(d.out)["step"] == kept + 1);
+
+  // Text form, into another folder.
+  auto t = run_alphaledger(with_ledger(db, {"recover", "--to", dir.sub("again")}));
+  CHECK(t.exit_code == 4);
+  CHECK(t.out.find("stream s: kept steps 1.." + std::to_string(kept)) != std::string::npos);
+}
+
+TEST_CASE("Recover: a healthy ledger is copied whole with exit 0; a used target is refused") {
+  ScratchDir dir;
+  const std::string db = build(dir, "ledger", 300);
+  const auto before = snapshot(db);
+  auto r = run_alphaledger(with_ledger(db, {"recover", "--to", dir.sub("copy")}));
+  INFO(r.err);
+  REQUIRE(r.exit_code == 0);
+  CHECK(r.out.find("stream s: kept steps 1..300\n") != std::string::npos);
+  CHECK(snapshot(db) == before);
+  auto a = run_alphaledger(with_ledger(db, {"--json", "verify", "s"}));
+  auto b = run_alphaledger(with_ledger(dir.sub("copy"), {"--json", "verify", "s"}));
+  REQUIRE(a.exit_code == 0);
+  REQUIRE(b.exit_code == 0);
+  CHECK(nlohmann::json::parse(a.out)["chain_hash"] == nlohmann::json::parse(b.out)["chain_hash"]);
+
+  fs::create_directories(dir.sub("used"));
+  dir.write("used/notes.txt", "x");
+  auto used = run_alphaledger(with_ledger(db, {"recover", "--to", dir.sub("used")}));
+  CHECK(used.exit_code == 2);
+  CHECK(used.err.find("not an empty folder") != std::string::npos);
+  auto none = run_alphaledger(with_ledger(dir.sub("absent"), {"recover", "--to", dir.sub("x")}));
+  CHECK(none.exit_code == 3);
+  CHECK_FALSE(fs::exists(dir.sub("x")));
+}
+
+// RocksDB locks <ledger>/LOCK with fcntl; this test holds that lock itself, as a running serve
+// would. The read commands take no lock and write nothing.
+TEST_CASE("Recover: read commands work while another process holds the ledger, and write nothing") {
+  ScratchDir dir;
+  const std::string db = build(dir, "ledger", 200);
+  const int fd = ::open((db + "/LOCK").c_str(), O_RDWR | O_CLOEXEC);
+  REQUIRE(fd >= 0);
+  struct flock fl {};
+  fl.l_type = F_WRLCK;
+  fl.l_whence = SEEK_SET;
+  REQUIRE(::fcntl(fd, F_SETLK, &fl) == 0);
+  const auto before = snapshot(db);
+  for (const std::vector<std::string>& cmd : std::vector<std::vector<std::string>>{
+           {"verify", "s"}, {"status", "s"}, {"history", "s"}, {"next", "s"}, {"streams"}}) {
+    auto r = run_alphaledger(with_ledger(db, cmd));
+    INFO(cmd[0] << ": " << r.err);
+    CHECK(r.exit_code == 0);
+    CHECK_FALSE(r.out.empty());
+  }
+  auto w = run_alphaledger(with_ledger(db, {"decide", "s", "--id", "x", "--p", "0.5"}));
+  CHECK(w.exit_code == 4);
+  CHECK(w.err.find("in use") != std::string::npos);
+  ::close(fd);
+  CHECK(snapshot(db) == before);
+}
