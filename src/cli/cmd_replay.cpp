@@ -3,6 +3,7 @@
 #include <nlohmann/json.hpp>
 
 #include "alphaledger/replay.hpp"
+#include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
 #include "harness/format.hpp"
 
@@ -33,7 +34,7 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
     if (!alt) return alt.error();
     read_options.alternative = *alt;
   }
-  auto log = read_test_log_file(o.file, forced, read_options);
+  auto log = read_log_argument(o.file, forced, read_options);
   if (!log) return log.error();
   const ReplayResult result = replay(*log, *procs);
   if (o.summary) {
@@ -82,15 +83,17 @@ void add_replay_command(CLI::App& app, CommandContext& ctx) {
   auto opts = std::make_shared<ReplayOptions>();
   CLI::App* sub = app.add_subcommand(
       "replay", "decide a whole log of finished tests with one or more rules, touching no ledger");
-  sub->add_option("file", opts->file, "log of tests: CSV with a header, or JSON Lines (docs/formats.md)")
+  sub->add_option("file", opts->file,
+                  "log of tests: CSV with a header, or JSON Lines (docs/formats.md); - reads standard input")
       ->required();
   sub->add_option("--rules", opts->rules,
                   "comma-separated rules: alpha-spending, alpha-investing, lond, lord++, saffron, addis, bh, "
                   "storey-bh; default lord++");
   sub->add_option("--format", opts->format, "csv or jsonl; default from the file extension")
       ->check(CLI::IsMember({"csv", "jsonl"}));
-  sub->add_option("--alternative", opts->alternative,
-                  "direction of tests computed from summary columns: two-sided, greater or less; default two-sided");
+  sub->add_option(
+      "--alternative", opts->alternative,
+      "direction of tests computed from summary columns: two-sided, greater or less; default two-sided");
   sub->add_flag("--summary", opts->summary,
                 "one row per rule: tests, rejections, false discoveries, fdp, power");
   add_rule_flags(sub, opts->flags);
