@@ -21,6 +21,12 @@ struct ReplayOptions {
 
 std::string opt_text(const std::optional<double>& v) { return v ? format_number(*v) : ""; }
 
+// One output line. An id with bytes that are not UTF-8 is written with U+FFFD instead of making
+// the JSON library throw half-way through the output.
+std::string json_line(const nlohmann::ordered_json& j) {
+  return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace) + '\n';
+}
+
 Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& out) {
   auto names = split_rule_list(o.rules);
   if (!names) return names.error();
@@ -47,7 +53,7 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
                                                      : nlohmann::ordered_json(nullptr);
         j["fdp"] = s.fdp ? nlohmann::ordered_json(*s.fdp) : nlohmann::ordered_json(nullptr);
         j["power"] = s.power ? nlohmann::ordered_json(*s.power) : nlohmann::ordered_json(nullptr);
-        out << j.dump() << '\n';
+        out << json_line(j);
       } else {
         out << s.rule << ',' << s.tests << ',' << s.rejections << ','
             << (s.false_discoveries ? std::to_string(*s.false_discoveries) : "") << ',' << opt_text(s.fdp)
@@ -67,7 +73,7 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
                                     {"id", r.id},       {"p_value", r.p_value},
                                     {"level", d.level}, {"rejected", d.rejected ? 1 : 0}};
         j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
-        out << j.dump() << '\n';
+        out << json_line(j);
       } else {
         out << name << ',' << d.step << ',' << csv_field(r.id) << ',' << format_number(r.p_value) << ','
             << format_number(d.level) << ',' << (d.rejected ? '1' : '0') << ',' << opt_text(d.wealth) << '\n';

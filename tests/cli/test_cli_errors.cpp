@@ -192,6 +192,23 @@ TEST_CASE("CliErrors: with --json, log lines on stderr are JSON objects too") {
   }
 }
 
+// An id with a byte that is not UTF-8 used to stop `replay --json` half-way with the JSON
+// library's exception text and exit 4. Whether such an id is refused as input (exit 2) or written
+// with a replacement character (exit 0), no library text reaches the user.
+TEST_CASE("CliErrors: replay --json never ends in a JSON library exception") {
+  Scratch s;
+  const auto r =
+      run_alphaledger({"--json", "replay", s.file("utf.csv", "id,p_value\nab\xff,0.01\nok,0.2\n")});
+  CHECK(r.exit_code != 4);
+  CHECK(r.err.find("json.exception") == std::string::npos);
+  if (r.exit_code == 0) {
+    for (const auto& line : lines_of(r.out)) CHECK(nlohmann::json::accept(line));
+  } else {
+    CHECK(r.exit_code == 2);
+    CHECK(nlohmann::json::parse(r.err)["error"]["code"] == "invalid_input");
+  }
+}
+
 // ---- usage mistakes ----------------------------------------------------------------------
 
 TEST_CASE("CliErrors: unknown commands and flags get 'did you mean'") {
