@@ -9,6 +9,7 @@
 
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/test_log.hpp"
+#include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
 #include "harness/format.hpp"
 
@@ -155,7 +156,7 @@ Status run_decide_file(const DecideOptions& o, const GlobalOptions& g, std::ostr
   ReadOptions read_options;
   read_options.allow_duplicate_ids = true;       // a repeated id is a retry: the ledger judges it
   read_options.alternative = info->alternative;  // summary rows in the stream's direction
-  auto log = read_test_log_file(*o.file, forced, read_options);
+  auto log = read_log_argument(*o.file, forced, read_options);
   if (!log) return log.error();
   std::vector<TestInput> inputs;
   inputs.reserve(log->records.size());
@@ -377,7 +378,7 @@ void add_ledger_commands(CLI::App& app, CommandContext& ctx) {
     sub->add_option("stream", o->stream, "stream name")->required();
     sub->add_option("--id", o->id, "test id: 1 to 256 bytes, no control characters; decided once");
     sub->add_option("--p", o->p, "the test's p-value, in [0, 1]");
-    sub->add_option("--file", o->file, "log of tests (replay format: CSV with a header, or JSON Lines)");
+    sub->add_option("--file", o->file, "log of tests (replay format: CSV with a header, or JSON Lines); - reads standard input");
     sub->add_option("--format", o->format, "csv or jsonl; default from the file extension")
         ->check(CLI::IsMember({"csv", "jsonl"}));
     sub->add_option("--sync-every", o->sync_every,

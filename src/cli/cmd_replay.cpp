@@ -3,6 +3,7 @@
 #include <nlohmann/json.hpp>
 
 #include "alphaledger/replay.hpp"
+#include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
 #include "harness/format.hpp"
 
@@ -20,6 +21,12 @@ struct ReplayOptions {
 
 std::string opt_text(const std::optional<double>& v) { return v ? format_number(*v) : ""; }
 
+// One output line. An id with bytes that are not UTF-8 is written with U+FFFD instead of making
+// the JSON library throw half-way through the output.
+std::string json_line(const nlohmann::ordered_json& j) {
+  return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace) + '\n';
+}
+
 Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& out) {
   auto names = split_rule_list(o.rules);
   if (!names) return names.error();
@@ -33,7 +40,7 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
     if (!alt) return alt.error();
     read_options.alternative = *alt;
   }
-  auto log = read_test_log_file(o.file, forced, read_options);
+  auto log = read_log_argument(o.file, forced, read_options);
   if (!log) return log.error();
   const ReplayResult result = replay(*log, *procs);
   if (o.summary) {
@@ -46,7 +53,7 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
                                                      : nlohmann::ordered_json(nullptr);
         j["fdp"] = s.fdp ? nlohmann::ordered_json(*s.fdp) : nlohmann::ordered_json(nullptr);
         j["power"] = s.power ? nlohmann::ordered_json(*s.power) : nlohmann::ordered_json(nullptr);
-        out << j.dump() << '\n';
+        out << json_line(j);
       } else {
         out << s.rule << ',' << s.tests << ',' << s.rejections << ','
             << (s.false_discoveries ? std::to_string(*s.false_discoveries) : "") << ',' << opt_text(s.fdp)
@@ -66,7 +73,7 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
                                     {"id", r.id},       {"p_value", r.p_value},
                                     {"level", d.level}, {"rejected", d.rejected ? 1 : 0}};
         j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
-        out << j.dump() << '\n';
+        out << json_line(j);
       } else {
         out << name << ',' << d.step << ',' << csv_field(r.id) << ',' << format_number(r.p_value) << ','
             << format_number(d.level) << ',' << (d.rejected ? '1' : '0') << ',' << opt_text(d.wealth) << '\n';
@@ -82,15 +89,17 @@ void add_replay_command(CLI::App& app, CommandContext& ctx) {
   auto opts = std::make_shared<ReplayOptions>();
   CLI::App* sub = app.add_subcommand(
       "replay", "decide a whole log of finished tests with one or more rules, touching no ledger");
-  sub->add_option("file", opts->file, "log of tests: CSV with a header, or JSON Lines (docs/formats.md)")
+  sub->add_option("file", opts->file,
+                  "log of tests: CSV with a header, or JSON Lines (docs/formats.md); - reads standard input")
       ->required();
   sub->add_option("--rules", opts->rules,
                   "comma-separated rules: alpha-spending, alpha-investing, lond, lord++, saffron, addis, bh, "
                   "storey-bh; default lord++");
   sub->add_option("--format", opts->format, "csv or jsonl; default from the file extension")
       ->check(CLI::IsMember({"csv", "jsonl"}));
-  sub->add_option("--alternative", opts->alternative,
-                  "direction of tests computed from summary columns: two-sided, greater or less; default two-sided");
+  sub->add_option(
+      "--alternative", opts->alternative,
+      "direction of tests computed from summary columns: two-sided, greater or less; default two-sided");
   sub->add_flag("--summary", opts->summary,
                 "one row per rule: tests, rejections, false discoveries, fdp, power");
   add_rule_flags(sub, opts->flags);

@@ -10,6 +10,7 @@
 
 #include "alphaledger/replay.hpp"
 #include "alphaledger/simulate.hpp"
+#include "alphaledger/test_log.hpp"
 #include "cli/command.hpp"
 #include "harness/simulate_report.hpp"
 
@@ -39,7 +40,7 @@ Result<std::uint64_t> parse_whole(const std::string& text, const char* flag, std
   auto [ptr, ec] = std::from_chars(text.data(), end, v);
   if (text.empty() || ec != std::errc() || ptr != end || v < lo || v > hi) {
     return invalid_input(std::string(flag) + " must be a whole number in [" + std::to_string(lo) + ", " +
-                         std::to_string(hi) + "], got '" + text + "'");
+                         std::to_string(hi) + "], got '" + excerpt(text) + "'");
   }
   return v;
 }

@@ -14,6 +14,7 @@
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/stats.hpp"
 #include "alphaledger/store.hpp"
+#include "alphaledger/test_log.hpp"
 #include "cli/command.hpp"
 #include "harness/format.hpp"
 
@@ -69,7 +70,7 @@ bool parse_real(const std::string& t, double& v) {
 Result<std::uint64_t> parse_whole(const std::string& text, const std::string& flag, const std::string& what) {
   double v = 0;
   if (!parse_real(text, v) || v < 0 || v != std::floor(v) || v > 9007199254740992.0) {
-    return invalid_input(flag + ": " + what + " must be a whole number >= 0, got '" + text + "'");
+    return invalid_input(flag + ": " + what + " must be a whole number >= 0, got '" + excerpt(text) + "'");
   }
   return static_cast<std::uint64_t>(v);
 }
@@ -78,7 +79,7 @@ Result<std::uint64_t> parse_whole(const std::string& text, const std::string& fl
 Result<ProportionArm> parse_proportion_arm(const std::string& text, const std::string& flag) {
   const auto parts = split_colon(text);
   if (parts.size() != 2) {
-    return invalid_input(flag + " must be USERS:CONVERSIONS, e.g. 1000:120, got '" + text + "'");
+    return invalid_input(flag + " must be USERS:CONVERSIONS, e.g. 1000:120, got '" + excerpt(text) + "'");
   }
   auto n = parse_whole(parts[0], flag, "the number of users");
   if (!n) return n.error();
@@ -91,16 +92,16 @@ Result<ProportionArm> parse_proportion_arm(const std::string& text, const std::s
 Result<MeanArm> parse_mean_arm(const std::string& text, const std::string& flag) {
   const auto parts = split_colon(text);
   if (parts.size() != 3) {
-    return invalid_input(flag + " must be USERS:MEAN:SD, e.g. 500:12.5:4.2, got '" + text + "'");
+    return invalid_input(flag + " must be USERS:MEAN:SD, e.g. 500:12.5:4.2, got '" + excerpt(text) + "'");
   }
   auto n = parse_whole(parts[0], flag, "the number of users");
   if (!n) return n.error();
   double mean = 0, sd = 0;
   if (!parse_real(parts[1], mean))
-    return invalid_input(flag + ": the mean must be a finite number, got '" + parts[1] + "'");
+    return invalid_input(flag + ": the mean must be a finite number, got '" + excerpt(parts[1]) + "'");
   if (!parse_real(parts[2], sd)) {
-    return invalid_input(flag + ": the standard deviation must be a finite number > 0, got '" + parts[2] +
-                         "'");
+    return invalid_input(flag + ": the standard deviation must be a finite number > 0, got '" +
+                         excerpt(parts[2]) + "'");
   }
   return MeanArm{*n, mean, sd};
 }
@@ -110,8 +111,9 @@ Result<Alternative> alternative_from(const std::string& s) { return parse_altern
 // Core messages name the summary field (control_sd, treatment_conversions, ...); say which flag
 // and value it came from.
 Error with_flag(Error e, const std::string& control, const std::string& treatment) {
-  if (e.message.rfind("control_", 0) == 0) e.message = "--control " + control + ": " + e.message;
-  if (e.message.rfind("treatment_", 0) == 0) e.message = "--treatment " + treatment + ": " + e.message;
+  if (e.message.rfind("control_", 0) == 0) e.message = "--control " + excerpt(control) + ": " + e.message;
+  if (e.message.rfind("treatment_", 0) == 0)
+    e.message = "--treatment " + excerpt(treatment) + ": " + e.message;
   return e;
 }
 
@@ -319,13 +321,18 @@ Result<StreamLevel> stream_level(const GlobalOptions& g, const std::string& stre
   return StreamLevel{info->next_level, info->tests + 1};
 }
 
-Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out) {
+// The level of a plan given neither --level nor --stream: the usual level of a single test. Said
+// on stderr (text) or in "level_source" (JSON), since a stream's tests get much smaller levels.
+constexpr double kDefaultPlanLevel = 0.05;
+
+Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out, std::ostream& note_out) {
   auto alt = alternative_from(o.alternative);
   if (!alt) return alt.error();
-  if (o.level.has_value() == o.stream.has_value()) {
+  if (o.level && o.stream) {
     return invalid_input(
-        "give exactly one of --level L (a level in (0, 1)) and --stream S (plan at the level the "
-        "stream's next test would get)");
+        "give at most one of --level L (a level in (0, 1)) and --stream S (plan at the level the "
+        "stream's next test would get); without either, the plan uses level " +
+        format_number(kDefaultPlanLevel));
   }
   PlanRequest request;
   request.alternative = *alt;
@@ -334,8 +341,8 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out)
   if (o.n_per_arm) {
     double n = 0;
     if (!parse_real(*o.n_per_arm, n) || n < 2 || n != std::floor(n) || n > 1e12) {
-      return invalid_input("--n-per-arm must be a whole number of users in [2, 1e12], got '" + *o.n_per_arm +
-                           "'");
+      return invalid_input("--n-per-arm must be a whole number of users in [2, 1e12], got '" +
+                           excerpt(*o.n_per_arm) + "'");
     }
     request.n_per_arm = static_cast<std::uint64_t>(n);
   }
@@ -351,8 +358,9 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out)
     from_stream = *s;
     request.level = s->level;
   } else {
-    request.level = *o.level;
+    request.level = o.level.value_or(kDefaultPlanLevel);
   }
+  const char* level_source = from_stream ? "stream" : o.level ? "given" : "default";
   auto plan =
       o.proportions ? plan_proportions(o.baseline_or_sd, request) : plan_means(o.baseline_or_sd, request);
   if (!plan) return plan.error();
@@ -366,6 +374,13 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out)
         "finish first";
   }
   const char* design = o.proportions ? "proportions" : "means";
+  if (!o.level && !from_stream && !g.json) {
+    note_out
+        << "alphaledger: note: no --level or --stream given, so the plan uses level "
+        << format_number(kDefaultPlanLevel)
+        << "; a test decided in a stream usually gets a much smaller level (plan at it with --stream S)\n";
+    note_out.flush();
+  }
   if (g.json) {
     Json j;
     j["design"] = design;
@@ -373,6 +388,7 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out)
     j["n_per_arm"] = plan->n_per_arm;
     if (plan->solved == PlanTarget::kSize) j["n_per_arm_exact"] = plan->n_exact;
     j["level"] = plan->level;
+    j["level_source"] = level_source;
     j["power"] = plan->power;
     j["achieved_power"] = plan->achieved_power;
     j["min_effect"] = plan->min_effect;
@@ -394,7 +410,9 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out)
                                      std::to_string(2 * plan->n_per_arm) + " users in both arms)"
                                : "  (given)"));
   t.add("level", format_rounded(plan->level, 6) +
-                     (from_stream ? "  (next level of stream " + *o.stream + ")" : std::string("  (given)")));
+                     (from_stream ? "  (next level of stream " + *o.stream + ")"
+                      : o.level   ? std::string("  (given)")
+                                  : std::string("  (default: no --level or --stream given)")));
   if (plan->solved == PlanTarget::kPower) {
     t.add("power", format_rounded(plan->power, 6) + "  (computed)");
   } else {
@@ -441,14 +459,16 @@ void add_plan_command(CLI::App* plan, CommandContext& ctx, bool proportions) {
       "--min-effect", o->min_effect,
       "the smallest difference worth detecting, treatment minus control (not 0); without it, give "
       "--n-per-arm to get the smallest detectable effect");
-  sub->add_option("--level", o->level, "the test's level, in (0, 1)");
+  sub->add_option("--level", o->level,
+                  "the test's level, in (0, 1); default 0.05 when --stream is not given either");
   sub->add_option("--stream", o->stream, "plan at the level the next test of this ledger stream would get");
   sub->add_option("--power", o->power, "the chance of detecting min_effect, in (0, 1); default 0.8");
   sub->add_option(
       "--n-per-arm", o->n_per_arm,
       "users per arm: with --min-effect, compute the power; alone, the smallest detectable effect");
   add_alternative(sub, o->alternative);
-  sub->callback([&ctx, o] { ctx.run = [&ctx, o] { return run_plan(*o, ctx.global, std::cout); }; });
+  sub->callback(
+      [&ctx, o] { ctx.run = [&ctx, o] { return run_plan(*o, ctx.global, std::cout, std::cerr); }; });
 }
 
 }  // namespace

@@ -1,10 +1,20 @@
 // alphaledger: online false discovery rate control for streams of hypothesis tests.
+#include <spdlog/sinks/base_sink.h>
 #include <spdlog/sinks/stdout_color_sinks.h>
 #include <spdlog/spdlog.h>
 
+#include <algorithm>
+#include <chrono>
 #include <cstdlib>
 #include <iostream>
+#include <memory>
+#include <mutex>
+#include <new>
+#include <nlohmann/json.hpp>
 
+#include "alphaledger/ledger.hpp"
+#include "alphaledger/test_log.hpp"
+#include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
 
 namespace alphaledger::cli {
@@ -42,21 +52,47 @@ void add_rule_flags(CLI::App* sub, RuleFlags& f) {
 
 }  // namespace alphaledger::cli
 
+namespace {
+
+// With --json, log lines on stderr are JSON objects too, so that everything on stderr is JSON:
+// {"time": ..., "level": ..., "message": ...}. A failure is the one line with an "error" key.
+class JsonLogSink final : public spdlog::sinks::base_sink<std::mutex> {
+ protected:
+  void sink_it_(const spdlog::details::log_msg& msg) override {
+    nlohmann::ordered_json j;
+    const auto ms =
+        std::chrono::duration_cast<std::chrono::milliseconds>(msg.time.time_since_epoch()).count();
+    j["time"] = alphaledger::format_timestamp(ms);
+    j["level"] = std::string(spdlog::level::to_string_view(msg.level).data(),
+                             spdlog::level::to_string_view(msg.level).size());
+    j["message"] = std::string(msg.payload.data(), msg.payload.size());
+    std::cerr << j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace) + '\n';  // one write
+  }
+  void flush_() override { std::cerr.flush(); }
+};
+
+}  // namespace
+
 int main(int argc, char** argv) {
   using namespace alphaledger;
   using namespace alphaledger::cli;
   CLI::App app{"alphaledger " ALPHALEDGER_VERSION
                ": decide each hypothesis test the moment it finishes, keeping the false discovery\n"
                "rate of the whole stream below a target (LORD++, SAFFRON, ADDIS, LOND, alpha-investing,\n"
-               "alpha-spending), with a durable, verifiable ledger.\n\n" +
-               std::string(kCaution)};
+               "alpha-spending), with a durable, verifiable ledger."};
+  app.footer(
+      "A FILE argument of '-' reads standard input. Exit codes: 0 success, 2 bad usage or input,\n"
+      "3 refused by the ledger, 4 storage failure; with --json a failure is one JSON object on\n"
+      "stderr (docs/errors.md).\n\n" +
+      std::string(kCaution));
   app.require_subcommand(1);
   app.fallthrough();
   app.set_version_flag("--version", ALPHALEDGER_VERSION);
   CommandContext ctx;
   app.add_option("--ledger", ctx.global.ledger,
                  "ledger folder; default $ALPHALEDGER_LEDGER, else ./alphaledger.db");
-  app.add_flag("--json", ctx.global.json, "machine-readable output, one JSON object per line");
+  app.add_flag("--json", ctx.global.json,
+               "machine-readable output, one JSON object per line; errors too, as one JSON object on stderr");
   app.add_option("--log-level", ctx.global.log_level, "trace|debug|info|warn|error|off; default warn")
       ->check(CLI::IsMember({"trace", "debug", "info", "warn", "error", "off"}));
 
@@ -67,27 +103,57 @@ int main(int argc, char** argv) {
   add_service_commands(app, ctx);
   add_recover_command(app, ctx);
 
+  const std::vector<std::string> args(argv + std::min(argc, 1), argv + argc);
+  if (const std::string problem = check_arguments(app, args); !problem.empty()) {
+    const Failure f = usage_failure(problem);
+    print_failure(std::cerr, f, wants_json(args));
+    return f.exit_code;
+  }
   try {
     app.parse(argc, argv);
+  } catch (const CLI::Success& e) {  // --help, --version
+    return app.exit(e);
   } catch (const CLI::ParseError& e) {
-    const int code = app.exit(e);
-    return code == 0 ? 0 : 2;
+    const Failure f = usage_failure(explain_usage_error(app, args, e));
+    print_failure(std::cerr, f, wants_json(args));
+    return f.exit_code;
   }
-  auto logger = spdlog::stderr_color_mt("alphaledger");
+  std::shared_ptr<spdlog::logger> logger;
+  if (ctx.global.json) {
+    logger = std::make_shared<spdlog::logger>("alphaledger", std::make_shared<JsonLogSink>());
+  } else {
+    logger = spdlog::stderr_color_mt("alphaledger");
+  }
   spdlog::set_default_logger(logger);
   spdlog::set_level(spdlog::level::from_str(ctx.global.log_level));
-  if (!ctx.run) return 2;
+  if (!ctx.run) {  // cannot happen: every leaf command sets it; say so rather than exit silently
+    const Failure f = usage_failure("no command given; see 'alphaledger --help'");
+    print_failure(std::cerr, f, ctx.global.json);
+    return f.exit_code;
+  }
   Status status;
   try {
     status = ctx.run();
+  } catch (const std::bad_alloc&) {
+    std::cout.flush();
+    const Failure f = internal_failure("out of memory; the ledger is as it was before the failed step");
+    print_failure(std::cerr, f, ctx.global.json);
+    return f.exit_code;
   } catch (const std::exception& e) {
-    std::cerr << "alphaledger: error: " << e.what() << "\n";
-    return 4;
+    // A library's exception text is not a message for people: keep it for --log-level debug.
+    spdlog::debug("unexpected exception: {}", excerpt(e.what(), 200));
+    std::cout.flush();
+    const Failure f = internal_failure(
+        "an unexpected internal failure stopped the command; the ledger keeps every decision printed "
+        "before it (run with --log-level debug for details)");
+    print_failure(std::cerr, f, ctx.global.json);
+    return f.exit_code;
   }
   std::cout.flush();
   if (!status) {
-    std::cerr << "alphaledger: error: " << status.error().message << "\n";
-    return static_cast<int>(status.error().kind);
+    const Failure f = failure_from(status.error());
+    print_failure(std::cerr, f, ctx.global.json);
+    return f.exit_code;
   }
   return 0;
 }

@@ -140,7 +140,9 @@ TEST_CASE("LedgerCli: refusals and bad input give the contract's exit codes and 
     CAPTURE(c.says);
     auto r = run_alphaledger(with_ledger(db, c.args));
     CHECK(r.exit_code == c.code);
-    CHECK(r.err.find("alphaledger: error: ") != std::string::npos);
+    // With --json the error is one JSON object on stderr (docs/errors.md).
+    const bool json = c.args.front() == "--json";
+    CHECK(r.err.find(json ? "{\"error\":{\"code\":\"conflict\"" : "alphaledger: error: ") != std::string::npos);
     CHECK(r.err.find(c.says) != std::string::npos);
     CHECK(r.out.empty());
   }

@@ -1,0 +1,66 @@
+// How the command line reports a failure (docs/errors.md): the one table from an error to its exit
+// code and code word, the text and JSON forms on stderr, clear messages for usage mistakes (with
+// "did you mean ...?"), and "-" as standard input for log arguments.
+#pragma once
+
+#include <CLI/CLI.hpp>
+#include <optional>
+#include <ostream>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "alphaledger/result.hpp"
+#include "alphaledger/test_log.hpp"
+
+namespace alphaledger::cli {
+
+// A failure as the user sees it: the process exit code, a short code word (the words of the HTTP
+// service where the meaning is the same) and the message.
+struct Failure {
+  int exit_code = 2;
+  std::string code;
+  std::string message;
+};
+
+// The one mapping from a library error to exit code and code word. Every command's error goes
+// through it (main.cpp), so the CLI has no other place that picks an exit code.
+//   kInvalidInput -> 2 invalid_input
+//   kRefused      -> 3 unknown_stream | no_ledger | verification_failed | conflict
+//   kStorage      -> 4 storage
+Failure failure_from(const Error& e);
+Failure usage_failure(std::string message);     // 2 usage: the command line itself is wrong
+Failure internal_failure(std::string message);  // 4 internal: an unexpected failure inside the tool
+
+// One line on `err`: "alphaledger: error: MESSAGE", or with `json` exactly one JSON object
+// {"error": {"code": CODE, "message": MESSAGE}}.
+void print_failure(std::ostream& err, const Failure& f, bool json);
+std::string failure_json(const Failure& f);
+
+// True when the arguments ask for --json (looked up before parsing, so that a command line that
+// cannot be parsed is still answered in JSON).
+bool wants_json(const std::vector<std::string>& args);
+
+// Checks the arguments before CLI11 parses them: unknown commands and options, missing values, and
+// values that are not numbers where numbers are expected (CLI11 would read "-1" for an unsigned
+// option as 2^64 - 1). Returns the message of the first problem, or "" when none is found (and
+// always for --help / --version).
+std::string check_arguments(const CLI::App& root, const std::vector<std::string>& args);
+
+// A message for a command line CLI11 refused: names the command, the flag or word, the value (as
+// an excerpt) and what is accepted; suggests close names for unknown commands and flags. Never
+// repeats CLI11's own text except as a last resort.
+std::string explain_usage_error(const CLI::App& root, const std::vector<std::string>& args,
+                                const CLI::ParseError& e);
+
+// Damerau-Levenshtein (optimal string alignment) distance.
+std::size_t edit_distance(std::string_view a, std::string_view b);
+// The names closest to `word` (at most 3, best first), or none when nothing is close.
+std::vector<std::string> closest_names(std::string_view word, const std::vector<std::string>& names);
+
+// read_test_log_file() for a command-line argument: "-" reads standard input, in the format given
+// by `forced` or, without it, JSON Lines when the first non-blank byte is '{' and CSV otherwise.
+Result<TestLog> read_log_argument(const std::string& path, std::optional<std::string_view> forced,
+                                  const ReadOptions& options = {});
+
+}  // namespace alphaledger::cli
