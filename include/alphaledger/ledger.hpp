@@ -4,7 +4,7 @@
 // append-only and hash-chained so `verify` can prove the history (docs/ledger.md,
 // docs/ledger-format.md).
 //
-// Example (the first level is methods.md 14.3's LORD++ check table, row 1):
+// Example (the first level is the LORD++ check table's row 1, tests/store/test_ledger.cpp):
 //   auto ledger = Ledger::open("alphaledger.db");
 //   (*ledger)->create_stream("checkout-team", *resolve_config({.rule = "lord++"}));
 //   auto d = (*ledger)->decide("checkout-team", "exp-0142", 0.0004);
@@ -18,8 +18,8 @@
 // serialised; different streams proceed in parallel. A second *process* opening the same folder
 // gets kStorage naming the lock holder.
 //
-// Failure: every fallible member returns an Error (kInvalidInput, kRefused or kStorage, the exit
-// codes of CONTRACT.md) and leaves the ledger as it was, except where a member says otherwise
+// Failure: every fallible member returns an Error (kInvalidInput, kRefused or kStorage: exit
+// codes 2, 3 and 4, docs/ledger.md) and leaves the ledger as it was, except where a member says otherwise
 // (decide_batch keeps the groups that were already durable).
 #pragma once
 
@@ -61,6 +61,8 @@ struct StreamInfo {
   std::uint64_t rejections = 0;
   double wealth = 0;
   double next_level = 0;
+  // Set once the stream is closed (Ledger::close_stream): the time it was closed.
+  std::optional<std::int64_t> closed_at_ms;
 };
 
 struct DecisionRecord {
@@ -90,15 +92,46 @@ struct TestInput {
 // first key "rule" holds it (decide --file rows, which carry replay's rule column).
 std::string decision_json(const DecideResult& d, std::string_view rule = {});
 
+// A chain hash noted earlier (from verify's output), to check that the ledger still holds it:
+// the record at `step` must have this chain hash. Step 0 names the configuration (the chain's
+// start); `closing` names the closing entry of a closed stream instead of a step.
+struct Anchor {
+  std::uint64_t step = 0;
+  bool closing = false;
+  std::string chain_hash;  // 64 lowercase hex digits
+  friend bool operator==(const Anchor&, const Anchor&) = default;
+};
+
+// Reads "STEP:HASH" (STEP a decimal step number, 0 for the configuration) or "closed:HASH", where
+// HASH is 64 hex digits in either case. Errors (kInvalidInput) say what is accepted and quote at
+// most an excerpt() of the text.
+// Example: parse_anchor("12:3FA9...") -> Anchor{12, false, "3fa9..."}.
+Result<Anchor> parse_anchor(std::string_view text);
+
+// How an anchor is written back, "STEP:HASH" or "closed:HASH" (parse_anchor reads it).
+std::string anchor_text(const Anchor& anchor);
+
 struct VerifyReport {
   std::uint64_t steps = 0;  // records checked
   bool ok = true;
   std::uint64_t first_bad_step = 0;
   std::string problem;  // what did not match, for the first bad step
-  // When ok: SHA-256 (hex) of the last record, or of the configuration when there is none. It
-  // commits to the whole history: keep it elsewhere to prove later that nothing up to here
-  // changed (docs/ledger.md "What verify proves").
+  // When ok: SHA-256 (hex) of the last record (step `steps`), or of the configuration when there
+  // is none. It commits to the whole history: note "steps:chain_hash" elsewhere and pass it back
+  // as an Anchor later to prove nothing up to here changed (docs/ledger.md "Anchors").
   std::string chain_hash;
+  // When ok and the stream is closed: when, and the hash of the closing entry, which commits to
+  // the whole history and to the closing ("closed:closing_hash" as an Anchor).
+  std::optional<std::int64_t> closed_at_ms;
+  std::string closing_hash;
+  std::size_t anchors_checked = 0;  // when ok: how many anchors were given, all of them matched
+};
+
+// One page of a stream's history (Ledger::history_page).
+struct HistoryPage {
+  std::vector<DecisionRecord> records;  // steps from_step, from_step + 1, ..., in order
+  std::uint64_t total = 0;              // records in the stream when the page was read
+  std::uint64_t next_step = 0;          // the from_step of the next page; 0 when this page reaches the end
 };
 
 class Ledger {
@@ -168,21 +201,50 @@ class Ledger {
                                                     std::size_t group_size,
                                                     const GroupCallback& on_durable) = 0;
 
-  // The level the next test will get; changes nothing. Unknown stream: kRefused.
+  // Closes a stream: it takes no more tests, and its history stays readable and verifiable. The
+  // closing time is hashed into the chain (docs/ledger-format.md "Closing"), so verify covers it.
+  // Closing a closed stream succeeds, changes nothing and returns newly_closed == false. Unknown
+  // stream: kRefused. Afterwards decide, decide_batch and next_level refuse the stream (kRefused,
+  // "stream X is closed since TIME"), repeats of earlier tests included.
+  struct Closing {
+    StreamInfo info;           // closed_at_ms is set
+    bool newly_closed = true;  // false: it was closed before; nothing changed
+    std::string closing_hash;  // SHA-256 (hex) of the closing entry: an anchor "closed:HASH"
+  };
+  virtual Result<Closing> close_stream(std::string_view stream) = 0;
+
+  // The level the next test will get; changes nothing. Unknown stream, closed stream: kRefused.
   virtual Result<double> next_level(std::string_view stream) = 0;
-  // Configuration, counts, wealth, next level, created time. Unknown stream: kRefused.
+  // Configuration, counts, wealth, next level, created time, closing time. Unknown stream: kRefused.
   virtual Result<StreamInfo> status(std::string_view stream) = 0;
   // Every stream, by name in byte order.
   virtual Result<std::vector<StreamInfo>> streams() = 0;
-  // Every decision in step order. Unknown stream: kRefused; an undecodable record: kStorage.
+  // Every decision in step order, in one vector (for_each_decision reads the same without holding
+  // them all). Unknown stream: kRefused; an undecodable or missing record: kStorage.
   virtual Result<std::vector<DecisionRecord>> history(std::string_view stream) = 0;
+  // At most `limit` records with step >= from_step, in step order, reading only those records
+  // (from_step 0 is taken as 1). A from_step past the last record gives an empty page. Unknown
+  // stream: kRefused; limit 0: kInvalidInput; an undecodable or missing record: kStorage.
+  virtual Result<HistoryPage> history_page(std::string_view stream, std::uint64_t from_step,
+                                           std::size_t limit) = 0;
+  // Calls visit(record) for each record with step >= from_step (0 is taken as 1) up to the last
+  // record at the time of the call, in step order, until visit returns false. Holds one record at
+  // a time and no lock while visiting, so visit may call back into this Ledger. Errors as
+  // history_page (an error after some records were visited stops the walk there).
+  using DecisionVisitor = std::function<bool(const DecisionRecord&)>;
+  virtual Status for_each_decision(std::string_view stream, std::uint64_t from_step,
+                                   const DecisionVisitor& visit) = 0;
   // Replays the stored history through a fresh Rule and checks, step by step: the record's own
   // hash, the chain link to the record before (the first links to the configuration), the step
   // number, the level, decision and wealth bit for bit, and the test id index; then the head
-  // (record count, last hash) and that the stored rule state equals the replayed state.
-  // ok == false names the first bad step (0: the configuration or head itself) and what did
-  // not match. Unknown stream: kRefused. Reads the store, never a cache: it sees what is on disk.
-  virtual Result<VerifyReport> verify(std::string_view stream) = 0;
+  // (record count, last hash, closing entry) and that the stored rule state equals the replayed
+  // state; and each anchor: its step must still be there with the same chain hash (a lost tail
+  // is caught even when the rest is consistent), a "closed" anchor needs the same closing entry.
+  // ok == false names the first bad step (0: the configuration or head itself; for an anchor,
+  // the anchor's step) and what did not match. Unknown stream: kRefused. Reads the store, never
+  // a cache, one record at a time. Memory: the rule's state, not the history.
+  virtual Result<VerifyReport> verify(std::string_view stream, const std::vector<Anchor>& anchors) = 0;
+  Result<VerifyReport> verify(std::string_view stream) { return verify(stream, {}); }
 
   // The chain hash at `step` (SHA-256 hex of that record, which commits to every record up to it),
   // as stored; run verify() to know it is consistent. Unknown stream: kRefused; step 0 or past the
@@ -191,6 +253,11 @@ class Ledger {
 
   // A short description of where the ledger lives (the folder path), for messages.
   virtual std::string location() const = 0;
+
+  // How many streams have their state held in memory. Only streams that exist are held (names
+  // asked for that do not exist are never kept), so this is at most the number of streams in the
+  // ledger. For tests and diagnostics.
+  virtual std::size_t cached_streams() const = 0;
 };
 
 }  // namespace alphaledger

@@ -1,5 +1,5 @@
-// The ledger commands: new, decide, next, status, streams, history, verify (CONTRACT.md "The
-// ledger"; docs/ledger.md). Each opens the ledger folder, does one thing, and closes it.
+// The ledger commands: new, decide, next, status, streams, history, verify, close (docs/ledger.md).
+// Each opens the ledger folder, does one thing, and closes it.
 #include <spdlog/spdlog.h>
 #include <unistd.h>
 
@@ -61,6 +61,8 @@ Json info_json(const StreamInfo& s) {
   j["rejections"] = s.rejections;
   j["wealth"] = s.wealth;
   j["next_level"] = s.next_level;
+  // Shown only for a closed stream, like alternative.
+  if (s.closed_at_ms) j["closed_at"] = format_timestamp(*s.closed_at_ms);
   return j;
 }
 
@@ -220,6 +222,7 @@ struct StreamOptions {
 Status run_next(const StreamOptions& o, const GlobalOptions& g, std::ostream& out) {
   auto ledger = open_for_reading(g);
   if (!ledger) return ledger.error();
+  if (auto level = (*ledger)->next_level(o.stream); !level) return level.error();  // e.g. closed
   auto info = (*ledger)->status(o.stream);
   if (!info) return info.error();
   if (g.json) {
@@ -246,8 +249,12 @@ Status run_status(const StreamOptions& o, const GlobalOptions& g, std::ostream& 
       << "created     " << format_timestamp(info->created_at_ms) << "\n"
       << "tests       " << info->tests << "\n"
       << "rejections  " << info->rejections << "\n"
-      << "wealth      " << format_rounded(info->wealth, 6) << "\n"
-      << "next level  " << format_rounded(info->next_level, 6) << "\n";
+      << "wealth      " << format_rounded(info->wealth, 6) << "\n";
+  if (info->closed_at_ms) {
+    out << "closed      " << format_timestamp(*info->closed_at_ms) << " (takes no more tests)\n";
+  } else {
+    out << "next level  " << format_rounded(info->next_level, 6) << "\n";
+  }
   return {};
 }
 
@@ -267,7 +274,9 @@ Status run_streams(const GlobalOptions& g, std::ostream& out) {
       out << dump(info_json(s)) << '\n';
     } else {
       out << s.name << "  " << rule_name(s.config.kind) << "  tests " << s.tests << "  rejections "
-          << s.rejections << "  wealth " << format_rounded(s.wealth, 6) << "\n";
+          << s.rejections << "  wealth " << format_rounded(s.wealth, 6);
+      if (s.closed_at_ms) out << "  closed " << format_timestamp(*s.closed_at_ms);
+      out << "\n";
     }
   }
   return {};
@@ -278,19 +287,22 @@ Status run_streams(const GlobalOptions& g, std::ostream& out) {
 struct HistoryOptions {
   std::string stream;
   std::string format = "csv";
+  std::uint64_t from = 1;
+  std::optional<std::uint64_t> limit;
 };
 
 Status run_history(const HistoryOptions& o, const GlobalOptions& g, std::ostream& out) {
+  if (o.limit && *o.limit == 0) return invalid_input("--limit must be at least 1, got 0");
   auto ledger = open_for_reading(g);
   if (!ledger) return ledger.error();
   auto info = (*ledger)->status(o.stream);
   if (!info) return info.error();
-  auto records = (*ledger)->history(o.stream);
-  if (!records) return records.error();
   const std::string rule(rule_name(info->config.kind));
   const bool json = g.json || o.format == "jsonl";
   if (!json) out << "rule,step,id,p_value,level,rejected,wealth,decided_at\n";
-  for (const auto& r : *records) {
+  // Row by row as the records are read: a long history is never held in memory.
+  std::uint64_t printed = 0;
+  auto s = (*ledger)->for_each_decision(o.stream, o.from, [&](const DecisionRecord& r) {
     if (json) {
       out << dump(Json{{"rule", rule},
                        {"step", r.step},
@@ -306,19 +318,28 @@ Status run_history(const HistoryOptions& o, const GlobalOptions& g, std::ostream
           << format_number(r.level) << ',' << (r.rejected ? '1' : '0') << ',' << format_number(r.wealth)
           << ',' << format_timestamp(r.decided_at_ms) << '\n';
     }
-  }
-  return {};
+    return !o.limit || ++printed < *o.limit;
+  });
+  out.flush();
+  return s;
 }
 
 struct VerifyOptions {
   std::string stream;
   std::optional<std::uint64_t> at_step;
+  std::vector<std::string> expect;
 };
 
 Status run_verify(const VerifyOptions& o, const GlobalOptions& g, std::ostream& out) {
+  std::vector<Anchor> anchors;
+  for (const auto& text : o.expect) {
+    auto a = parse_anchor(text);
+    if (!a) return invalid_input("--expect: " + a.error().message);
+    anchors.push_back(std::move(*a));
+  }
   auto ledger = open_for_reading(g, /*check_all_files=*/true);
   if (!ledger) return ledger.error();
-  auto report = (*ledger)->verify(o.stream);
+  auto report = (*ledger)->verify(o.stream, anchors);
   if (!report) return report.error();
   std::optional<std::string> hash_at;
   if (o.at_step && report->ok) {
@@ -330,6 +351,11 @@ Status run_verify(const VerifyOptions& o, const GlobalOptions& g, std::ostream& 
     Json j{{"stream", o.stream}, {"ok", report->ok}, {"steps", report->steps}};
     if (report->ok) {
       j["chain_hash"] = report->chain_hash;
+      if (report->closed_at_ms) {
+        j["closed_at"] = format_timestamp(*report->closed_at_ms);
+        j["closing_hash"] = report->closing_hash;
+      }
+      j["anchors_checked"] = report->anchors_checked;
       if (hash_at) {
         j["at_step"] = *o.at_step;
         j["chain_hash_at_step"] = *hash_at;
@@ -347,8 +373,42 @@ Status run_verify(const VerifyOptions& o, const GlobalOptions& g, std::ostream& 
   if (!g.json) {
     out << "ok: stream " << o.stream << ", " << report->steps
         << " records; hash chain, levels, decisions, wealth and rule state all match a replay\n"
-        << "chain hash " << report->chain_hash << "\n";
+        << "ends at step " << report->steps << ", chain hash " << report->chain_hash << "\n";
+    if (report->closed_at_ms) {
+      out << "closed since " << format_timestamp(*report->closed_at_ms) << ", closing hash "
+          << report->closing_hash << "\n";
+    }
+    if (report->anchors_checked > 0) out << "anchors: all " << report->anchors_checked << " match\n";
     if (hash_at) out << "chain hash at step " << *o.at_step << " " << *hash_at << "\n";
+    out << "to check this point later: alphaledger verify " << o.stream << " --expect "
+        << anchor_text(Anchor{report->steps, false, report->chain_hash});
+    if (report->closed_at_ms) out << " --expect " << anchor_text(Anchor{0, true, report->closing_hash});
+    out << "\n";
+  }
+  return {};
+}
+
+// ---- close --------------------------------------------------------------------------------
+
+Status run_close(const StreamOptions& o, const GlobalOptions& g, std::ostream& out) {
+  auto ledger = open_ledger(g, /*create=*/false);
+  if (!ledger) return ledger.error();
+  auto closing = (*ledger)->close_stream(o.stream);
+  if (!closing) return closing.error();
+  const StreamInfo& info = closing->info;
+  if (g.json) {
+    Json j = info_json(info);
+    j["closed_now"] = closing->newly_closed;
+    j["closing_hash"] = closing->closing_hash;
+    out << dump(j) << '\n';
+  } else if (closing->newly_closed) {
+    out << "closed stream " << o.stream << " at " << format_timestamp(*info.closed_at_ms) << " (tests "
+        << info.tests << ", rejections " << info.rejections << "); it takes no more tests\n"
+        << "closing hash " << closing->closing_hash << " (keep it: verify " << o.stream
+        << " --expect closed:HASH)\n";
+  } else {
+    out << "stream " << o.stream << " is already closed (since " << format_timestamp(*info.closed_at_ms)
+        << "); nothing changed\n";
   }
   return {};
 }
@@ -410,6 +470,8 @@ void add_ledger_commands(CLI::App& app, CommandContext& ctx) {
     sub->add_option("stream", o->stream, "stream name")->required();
     sub->add_option("--format", o->format, "csv or jsonl; default csv")
         ->check(CLI::IsMember({"csv", "jsonl"}));
+    sub->add_option("--from", o->from, "start at this step (default 1)");
+    sub->add_option("--limit", o->limit, "print at most this many decisions (default all)");
     sub->callback([&ctx, o] { ctx.run = [&ctx, o] { return run_history(*o, ctx.global, std::cout); }; });
   }
   {
@@ -419,7 +481,18 @@ void add_ledger_commands(CLI::App& app, CommandContext& ctx) {
     sub->add_option("stream", o->stream, "stream name")->required();
     sub->add_option("--at-step", o->at_step,
                     "also print the chain hash at this step (compare with one you kept)");
+    sub->add_option("--expect", o->expect,
+                    "STEP:HASH (or closed:HASH) noted from an earlier verify: the ledger must still hold "
+                    "that step with that chain hash; repeatable")
+        ->allow_extra_args(false);  // one anchor per --expect, so it never swallows the stream name
     sub->callback([&ctx, o] { ctx.run = [&ctx, o] { return run_verify(*o, ctx.global, std::cout); }; });
+  }
+  {
+    auto o = std::make_shared<StreamOptions>();
+    CLI::App* sub = app.add_subcommand(
+        "close", "close a stream: it takes no more tests; its history stays readable and verifiable");
+    sub->add_option("stream", o->stream, "stream name")->required();
+    sub->callback([&ctx, o] { ctx.run = [&ctx, o] { return run_close(*o, ctx.global, std::cout); }; });
   }
 }
 

@@ -262,9 +262,10 @@ Result<StoredConfig> decode_config(std::string_view bytes) {
 
 std::string encode_head(const StoredHead& h) {
   std::string out;
-  put_u8(out, kHeadVersion);
+  put_u8(out, h.closed_at_ms ? kClosedHeadVersion : kHeadVersion);
   put_u64(out, h.steps);
   out.append(as_bytes(h.last_hash));
+  if (h.closed_at_ms) put_u64(out, static_cast<std::uint64_t>(*h.closed_at_ms));
   put_u32(out, static_cast<std::uint32_t>(h.rule_state.size()));
   out.append(h.rule_state);
   return out;
@@ -274,13 +275,15 @@ Result<StoredHead> decode_head(std::string_view bytes) {
   Reader r{bytes};
   const auto version = r.u8();
   if (!r.ok) return storage_error("stream head is empty");
-  if (version != kHeadVersion) {
+  if (version != kHeadVersion && version != kClosedHeadVersion) {
     return storage_error("stream head has version " + std::to_string(version) +
-                         ", this build reads version " + std::to_string(kHeadVersion));
+                         ", this build reads versions " + std::to_string(kHeadVersion) + " and " +
+                         std::to_string(kClosedHeadVersion));
   }
   StoredHead h;
   h.steps = r.u64();
   h.last_hash = r.digest();
+  if (version == kClosedHeadVersion) h.closed_at_ms = static_cast<std::int64_t>(r.u64());
   const auto n = r.u32();
   h.rule_state = std::string(r.bytes(n));
   if (!r.ok || !r.in.empty()) return storage_error("stream head is truncated or has trailing bytes");
@@ -350,5 +353,39 @@ Result<std::uint64_t> decode_step(std::string_view bytes) {
 }
 
 Digest genesis_hash(std::string_view encoded_config) { return sha256(encoded_config); }
+
+std::string encode_closing(std::uint64_t steps, std::int64_t closed_at_ms, const Digest& last_record_hash) {
+  std::string out;
+  put_u8(out, kClosingVersion);
+  put_u64(out, steps);
+  put_u64(out, static_cast<std::uint64_t>(closed_at_ms));
+  out.append(as_bytes(last_record_hash));
+  return out;
+}
+
+Digest closing_hash(std::uint64_t steps, std::int64_t closed_at_ms, const Digest& last_record_hash) {
+  return sha256(encode_closing(steps, closed_at_ms, last_record_hash));
+}
+
+std::vector<std::string> record_range_prefixes(std::string_view stream, std::uint64_t lo, std::uint64_t hi) {
+  std::vector<std::string> out;
+  if (lo == 0 || lo > hi) return out;
+  const std::string base = record_prefix(stream);
+  while (true) {
+    // The widest block of 16^k steps that starts at lo and ends at or before hi: its keys are
+    // exactly those sharing the first 16 - k hex digits of lo.
+    int k = 0;
+    while (k < 15) {
+      const std::uint64_t size = std::uint64_t{1} << (4 * (k + 1));
+      if (lo % size != 0 || hi - lo < size - 1) break;
+      ++k;
+    }
+    out.push_back(base + hex16(lo).substr(0, static_cast<std::size_t>(16 - k)));
+    const std::uint64_t size = std::uint64_t{1} << (4 * k);
+    if (hi - lo < size) break;
+    lo += size;
+  }
+  return out;
+}
 
 }  // namespace alphaledger::store

@@ -6,8 +6,11 @@
 #pragma once
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <string_view>
+#include <utility>
+#include <vector>
 
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/result.hpp"
@@ -21,7 +24,9 @@ namespace alphaledger::store {
 inline constexpr std::uint32_t kFormatVersion = 1;
 // Value versions, stored on disk as the first byte of each value: do not change.
 inline constexpr std::uint8_t kConfigVersion = 1;
-inline constexpr std::uint8_t kHeadVersion = 1;
+inline constexpr std::uint8_t kHeadVersion = 1;        // an open stream's head
+inline constexpr std::uint8_t kClosedHeadVersion = 2;  // a closed stream's head (adds the closing time)
+inline constexpr std::uint8_t kClosingVersion = 1;     // the closing entry hashed into the chain
 inline constexpr std::uint8_t kRecordVersion = 1;
 
 inline constexpr std::string_view kFormatKey = "m/format";
@@ -54,12 +59,24 @@ std::string encode_config(const StoredConfig& c);
 // Checks every field, and that the configuration is one resolve_config() accepts. Errors: kStorage.
 Result<StoredConfig> decode_config(std::string_view bytes);
 
-// The stream's head: how many records, the hash of the last one (or of the configuration when
-// there is none), and the rule's state after the last record.
+// The stream's head: how many records, the hash of the last entry of the chain, and the rule's
+// state after the last record. The last entry is the last record (the configuration when there is
+// none); once the stream is closed it is the closing entry (closing_hash below), and the head
+// also holds the closing time. An open stream's head is written as value version 1, exactly as
+// before closing existed; a closed stream's head as version 2.
 struct StoredHead {
+  StoredHead() = default;
+  // Not an aggregate, so {steps, hash, state} (an open head) needs no closing time spelled out.
+  StoredHead(std::uint64_t steps_in, const Digest& last_hash_in, std::string rule_state_in,
+             std::optional<std::int64_t> closed_at_ms_in = std::nullopt)
+      : steps(steps_in),
+        last_hash(last_hash_in),
+        rule_state(std::move(rule_state_in)),
+        closed_at_ms(closed_at_ms_in) {}
   std::uint64_t steps = 0;
   Digest last_hash{};
   std::string rule_state;
+  std::optional<std::int64_t> closed_at_ms;  // set once the stream is closed
   friend bool operator==(const StoredHead&, const StoredHead&) = default;
 };
 std::string encode_head(const StoredHead& h);
@@ -84,5 +101,16 @@ Result<std::uint64_t> decode_step(std::string_view bytes);
 
 // The hash a stream's first record links to: SHA-256 of the encoded configuration.
 Digest genesis_hash(std::string_view encoded_config);
+
+// The closing entry, the chain's last link once a stream is closed: SHA-256 of u8 version (1),
+// u64 record count, i64 closing time (ms), and the hash of the last record (the genesis hash when
+// there is none). 49 bytes, so it can never be read as a record (at least 109 bytes).
+std::string encode_closing(std::uint64_t steps, std::int64_t closed_at_ms, const Digest& last_record_hash);
+Digest closing_hash(std::uint64_t steps, std::int64_t closed_at_ms, const Digest& last_record_hash);
+
+// Splits the steps lo..hi (1 <= lo <= hi) into the fewest key prefixes under record_prefix(stream)
+// whose keys are exactly the record keys of those steps, in ascending order. Scanning them in turn
+// reads the records lo..hi and nothing else.
+std::vector<std::string> record_range_prefixes(std::string_view stream, std::uint64_t lo, std::uint64_t hi);
 
 }  // namespace alphaledger::store

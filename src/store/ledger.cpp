@@ -4,9 +4,13 @@
 // guarded by the stream's mutex. A decision advances that copy, is written as one synced batch
 // (record, id index entry, head with the rule's new state), and only then is the copy trusted
 // again; if the write fails, the copy is marked stale and the stream is reloaded from the store
-// on next use, so the store is always the truth.
+// on next use, so the store is always the truth. Only streams that exist keep a copy: a name that
+// turns out not to exist is dropped from the cache before the call returns (SlotGuard).
+//
+// Reading records in ranges is in ledger_history.cpp, verification in ledger_verify.cpp.
 #include "alphaledger/ledger.hpp"
 
+#include <algorithm>
 #include <bit>
 #include <charconv>
 #include <chrono>
@@ -15,12 +19,12 @@
 #include <map>
 #include <mutex>
 #include <nlohmann/json.hpp>
-#include <set>
 #include <unordered_map>
 
 #include "alphaledger/test_log.hpp"
 #include "harness/format.hpp"
 #include "store/codec.hpp"
+#include "store/ledger_internal.hpp"
 
 namespace alphaledger {
 
@@ -43,21 +47,7 @@ std::string format_timestamp(std::int64_t ms) {
   return buf;
 }
 
-namespace {
-
-// For messages: the shortest text that reads back to the same double, in plain decimals when
-// that stays short (0.0005 rather than 5e-04).
-std::string readable_number(double v) {
-  const double a = std::fabs(v);
-  if (v == 0 || (a >= 1e-6 && a < 1e15)) {
-    char buf[64];
-    auto [ptr, ec] = std::to_chars(buf, buf + sizeof buf, v, std::chars_format::fixed);
-    if (ec == std::errc()) return std::string(buf, ptr);
-  }
-  return format_number(v);
-}
-
-}  // namespace
+using store::readable_number;
 
 std::string describe_config(const RuleConfig& c) {
   std::string out(rule_name(c.kind));
@@ -88,34 +78,31 @@ std::string decision_json(const DecideResult& d, std::string_view rule) {
   return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
 }
 
-namespace {
-
-using store::Digest;
-using store::StoredConfig;
-using store::StoredHead;
-
-bool same_bits(double a, double b) {
-  return std::bit_cast<std::uint64_t>(a) == std::bit_cast<std::uint64_t>(b);
-}
-
-std::string in_quotes(std::string_view s) {
-  // Built by append: GCC 12's -Wrestrict misfires on "'" + std::string(s) + "'" (GCC PR 105651).
-  std::string out;
-  out.reserve(s.size() + 2);
-  out.push_back('\'');
-  out.append(s);
-  out.push_back('\'');
-  return out;
-}
-
-Error unknown_stream(std::string_view name, const std::string& where) {
+Error store::unknown_stream(std::string_view name, const std::string& where) {
   return refused("no stream named " + in_quotes(name) + " in ledger " + where +
                  " (create it first: alphaledger new " + std::string(name) + " --rule RULE)");
 }
 
-// One stream's cached state. `mu` serialises every decision on the stream.
+namespace {
+
+using store::Digest;
+using store::in_quotes;
+using store::StoredConfig;
+using store::StoredHead;
+using store::unknown_stream;
+
+Error closed_stream(std::string_view name, std::int64_t closed_at_ms) {
+  return refused("stream " + in_quotes(name) + " is closed since " + format_timestamp(closed_at_ms) +
+                 "; it takes no more tests (its history stays readable: alphaledger history " +
+                 std::string(name) + "; for new tests create a new stream)");
+}
+
+// One stream's cached state. `mu` serialises every decision on the stream. A slot is in the
+// cache only while a call works on it or while it holds a stream that exists; `retired` marks a
+// slot dropped from the cache, which a caller still holding it must not use.
 struct StreamSlot {
   std::mutex mu;
+  bool retired = false;
   bool loaded = false;
   bool exists = false;
   StoredConfig config;
@@ -126,10 +113,17 @@ struct StreamSlot {
 
 class StoreLedger final : public Ledger {
  public:
+  using Ledger::verify;
+
   StoreLedger(std::unique_ptr<Store> store, Clock clock)
       : store_(std::move(store)), clock_(std::move(clock)) {}
 
   std::string location() const override { return store_->describe(); }
+
+  std::size_t cached_streams() const override {
+    std::lock_guard lock(slots_mu_);
+    return slots_.size();
+  }
 
   Result<Created> create_stream(std::string_view name, const RuleConfig& config) override {
     return create_stream_directed(name, config, Alternative::kTwoSided);
@@ -143,8 +137,7 @@ class StoreLedger final : public Ledger {
     if (auto check = store::decode_config(store::encode_config(candidate)); !check) {
       return invalid_input("the rule configuration is not valid: " + check.error().message);
     }
-    auto slot = slot_for(name);
-    std::lock_guard lock(slot->mu);
+    SlotGuard slot(*this, name);
     if (auto s = load(name, *slot); !s) return s.error();
     if (slot->exists) {
       if (slot->config.config == config && slot->config.alternative == alternative) {
@@ -185,10 +178,10 @@ class StoreLedger final : public Ledger {
     if (auto s = validate_test_id(id); !s) return s.error();
     if (auto s = validate_p_value(p_value); !s)
       return invalid_input("test " + in_quotes(id) + ": " + s.error().message);
-    auto slot = slot_for(stream);
-    std::lock_guard lock(slot->mu);
+    SlotGuard slot(*this, stream);
     if (auto s = load(stream, *slot); !s) return s.error();
     if (!slot->exists) return unknown_stream(stream, location());
+    if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
     auto prior = find_decided(stream, id);
     if (!prior) return prior.error();
     if (*prior) {
@@ -232,10 +225,10 @@ class StoreLedger final : public Ledger {
       }
     }
     if (group_size == 0) group_size = 1;
-    auto slot = slot_for(stream);
-    std::lock_guard lock(slot->mu);
+    SlotGuard slot(*this, stream);
     if (auto s = load(stream, *slot); !s) return s.error();
     if (!slot->exists) return unknown_stream(stream, location());
+    if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
 
     BatchResult out;
     // First pass, before anything is written: every id is looked up, so a conflict (with the
@@ -323,16 +316,39 @@ class StoreLedger final : public Ledger {
     return out;
   }
 
+  Result<Closing> close_stream(std::string_view stream) override {
+    if (auto s = store::validate_stream_name(stream); !s) return s.error();
+    SlotGuard slot(*this, stream);
+    if (auto s = load(stream, *slot); !s) return s.error();
+    if (!slot->exists) return unknown_stream(stream, location());
+    if (slot->head.closed_at_ms) return Closing{info_of(*slot), false, store::to_hex(slot->head.last_hash)};
+    // The closing entry links to the last record and becomes the chain's last link: the head
+    // carries its hash from now on (docs/ledger-format.md "Closing").
+    StoredHead head = slot->head;
+    head.closed_at_ms = clock_();
+    head.last_hash = store::closing_hash(head.steps, *head.closed_at_ms, slot->head.last_hash);
+    WriteBatch batch;
+    batch.put(store::head_key(stream), store::encode_head(head));
+    if (auto s = store_->write(batch, true); !s) {
+      slot->loaded = false;  // the write may have reached the disk: reload on next use
+      return s.error();
+    }
+    slot->head = std::move(head);
+    return Closing{info_of(*slot), true, store::to_hex(slot->head.last_hash)};
+  }
+
   Result<double> next_level(std::string_view stream) override {
-    auto info = status(stream);
-    if (!info) return info.error();
-    return info->next_level;
+    if (auto s = store::validate_stream_name(stream); !s) return s.error();
+    SlotGuard slot(*this, stream);
+    if (auto s = load(stream, *slot); !s) return s.error();
+    if (!slot->exists) return unknown_stream(stream, location());
+    if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
+    return slot->rule->next_level();
   }
 
   Result<StreamInfo> status(std::string_view stream) override {
     if (auto s = store::validate_stream_name(stream); !s) return s.error();
-    auto slot = slot_for(stream);
-    std::lock_guard lock(slot->mu);
+    SlotGuard slot(*this, stream);
     if (auto s = load(stream, *slot); !s) return s.error();
     if (!slot->exists) return unknown_stream(stream, location());
     return info_of(*slot);
@@ -361,151 +377,50 @@ class StoreLedger final : public Ledger {
   }
 
   Result<std::vector<DecisionRecord>> history(std::string_view stream) override {
-    if (auto s = status(stream); !s) return s.error();
     std::vector<DecisionRecord> out;
-    std::optional<Error> bad;
-    auto s = store_->scan(store::record_prefix(stream), [&](std::string_view key, std::string_view value) {
-      auto rec = store::decode_record(value);
-      if (!rec) {
-        bad = storage_error("ledger " + location() + ": record " + std::string(key) + " cannot be read: " +
-                            rec.error().message + " (run alphaledger verify " + std::string(stream) + ")");
-        return false;
-      }
-      out.push_back(std::move(rec->record));
+    auto s = for_each_decision(stream, 1, [&](const DecisionRecord& r) {
+      out.push_back(r);
       return true;
     });
     if (!s) return s.error();
-    if (bad) return *bad;
     return out;
   }
 
-  Result<VerifyReport> verify(std::string_view stream) override {
+  Result<HistoryPage> history_page(std::string_view stream, std::uint64_t from_step,
+                                   std::size_t limit) override {
     if (auto s = store::validate_stream_name(stream); !s) return s.error();
-    VerifyReport report;
-    auto fail = [&](std::uint64_t step, std::string problem) {
-      report.ok = false;
-      report.first_bad_step = step;
-      report.problem = std::move(problem);
-      return report;
-    };
-    auto config_bytes = store_->get(store::config_key(stream));
-    if (!config_bytes) return config_bytes.error();
-    if (!*config_bytes) return unknown_stream(stream, location());
-    auto config = store::decode_config(**config_bytes);
-    if (!config) return fail(0, "the configuration cannot be read: " + config.error().message);
-    if (config->name != stream) return fail(0, "the configuration names stream " + in_quotes(config->name));
-    auto head_bytes = store_->get(store::head_key(stream));
-    if (!head_bytes) return head_bytes.error();
-    if (!*head_bytes) return fail(0, "the stream has no head record");
-    auto head = store::decode_head(**head_bytes);
-    if (!head) return fail(0, "the head cannot be read: " + head.error().message);
+    if (limit == 0)
+      return invalid_input("a history page holds at least 1 record: limit must be at least 1, got 0");
+    auto info = status(stream);
+    if (!info) return info.error();
+    HistoryPage page;
+    page.total = info->tests;
+    if (from_step == 0) from_step = 1;
+    if (from_step > info->tests) return page;
+    // The last step of the page, without overflow for any limit.
+    const std::uint64_t last = info->tests - from_step < limit - 1 ? info->tests : from_step + (limit - 1);
+    page.records.reserve(static_cast<std::size_t>(std::min<std::uint64_t>(last - from_step + 1, 4096)));
+    auto s = store::visit_records(*store_, location(), stream, from_step, last, [&](const DecisionRecord& r) {
+      page.records.push_back(r);
+      return true;
+    });
+    if (!s) return s.error();
+    page.next_step = last < info->tests ? last + 1 : 0;
+    return page;
+  }
 
-    Rule rule(config->config);
-    Digest prev = store::genesis_hash(**config_bytes);
-    std::uint64_t expected = 1;
-    std::set<std::string> ids;
-    std::optional<VerifyReport> bad;
-    std::optional<Error> io_error;
-    auto s = store_->scan(store::record_prefix(stream), [&](std::string_view key, std::string_view value) {
-      const std::string step_text = "step " + std::to_string(expected);
-      if (key != store::record_key(stream, expected)) {
-        bad = fail(expected, "the record for " + step_text + " is missing (next stored key is " +
-                                 std::string(key) + ")");
-        return false;
-      }
-      auto rec = store::decode_record(value);
-      if (!rec) {
-        bad = fail(expected, "the record cannot be read: " + rec.error().message);
-        return false;
-      }
-      const DecisionRecord& r = rec->record;
-      if (r.step != expected) {
-        bad = fail(expected, "the record stored at " + step_text + " says step " + std::to_string(r.step) +
-                                 " (records were moved or reordered)");
-        return false;
-      }
-      if (store::recompute_record_hash(value) != rec->hash) {
-        bad = fail(expected, "the record's contents do not match its hash (the record was changed)");
-        return false;
-      }
-      if (rec->prev_hash != prev) {
-        if (expected == 1) {
-          bad = fail(1,
-                     "the first record does not link to the stream's configuration (the configuration "
-                     "or the first record was replaced)");
-        } else {
-          bad = fail(expected - 1, "the record does not match the hash stored in the record after it (step " +
-                                       std::to_string(expected - 1) + " was replaced)");
-        }
-        return false;
-      }
-      if (auto v = validate_p_value(r.p_value); !v) {
-        bad = fail(expected, "the stored " + v.error().message);
-        return false;
-      }
-      const Outcome o = rule.record(r.p_value);
-      if (!same_bits(o.level, r.level) || o.rejected != r.rejected || !same_bits(o.wealth, r.wealth)) {
-        bad = fail(expected, "replaying the rule gives level " + readable_number(o.level) + ", rejected " +
-                                 (o.rejected ? "1" : "0") + ", wealth " + readable_number(o.wealth) +
-                                 " but the record has level " + readable_number(r.level) + ", rejected " +
-                                 (r.rejected ? "1" : "0") + ", wealth " + readable_number(r.wealth));
-        return false;
-      }
-      auto index = store_->get(store::index_key(stream, r.id));
-      if (!index) {
-        io_error = index.error();
-        return false;
-      }
-      std::optional<std::uint64_t> indexed;
-      if (*index) {
-        if (auto st = store::decode_step(**index); st) indexed = *st;
-      }
-      if (!indexed || *indexed != expected) {
-        bad =
-            fail(expected, "the test id index for " + in_quotes(r.id) + " points to " +
-                               (indexed ? "step " + std::to_string(*indexed) : std::string("no valid step")) +
-                               (ids.count(r.id) ? " (the id appears twice in the history)" : ""));
-        return false;
-      }
-      ids.insert(r.id);
-      prev = rec->hash;
-      ++expected;
-      return true;
-    });
-    if (!s) return s.error();
-    if (io_error) return *io_error;
-    if (bad) return *bad;
-    const std::uint64_t steps = expected - 1;
-    report.steps = steps;
-    if (head->steps > steps) {
-      return fail(steps + 1, "the record for step " + std::to_string(steps + 1) +
-                                 " is missing (the head counts " + std::to_string(head->steps) + " records)");
-    }
-    if (head->steps < steps) {
-      return fail(head->steps + 1, "the history holds " + std::to_string(steps) +
-                                       " records but the head counts " + std::to_string(head->steps));
-    }
-    if (head->last_hash != prev) {
-      return fail(steps, steps == 0
-                             ? "the head does not link to the configuration"
-                             : "the last record does not match the hash in the head (it was replaced)");
-    }
-    if (head->rule_state != rule.encode_state()) {
-      return fail(steps, "the stored rule state does not equal the state replayed from the history");
-    }
-    std::optional<VerifyReport> index_bad;
-    s = store_->scan(store::index_prefix(stream), [&](std::string_view key, std::string_view) {
-      const std::string id(key.substr(store::index_prefix(stream).size()));
-      if (!ids.count(id)) {
-        index_bad = fail(0, "the test id index holds " + in_quotes(id) + ", which no record has");
-        return false;
-      }
-      return true;
-    });
-    if (!s) return s.error();
-    if (index_bad) return *index_bad;
-    report.chain_hash = store::to_hex(prev);
-    return report;
+  Status for_each_decision(std::string_view stream, std::uint64_t from_step,
+                           const DecisionVisitor& visit) override {
+    // The record count comes from the head (through the cache); the records themselves are
+    // immutable once written, so they are read without holding the stream's lock.
+    auto info = status(stream);
+    if (!info) return info.error();
+    return store::visit_records(*store_, location(), stream, from_step == 0 ? 1 : from_step, info->tests,
+                                visit);
+  }
+
+  Result<VerifyReport> verify(std::string_view stream, const std::vector<Anchor>& anchors) override {
+    return store::verify_stream(*store_, location(), stream, anchors);
   }
 
   Result<std::string> chain_hash_at(std::string_view stream, std::uint64_t step) override {
@@ -563,6 +478,40 @@ class StoreLedger final : public Ledger {
   }
 
  private:
+  // The locked slot of one stream: while it is held, no other call works on the stream. On
+  // release, a slot that does not hold an existing stream (an unknown name, a failed load or
+  // create) is dropped from the cache and retired, so names that do not exist never stay in
+  // memory. A caller that fetched a slot which was retired before it got the lock takes a fresh
+  // one, so a name never has two live slots. Lock order: a slot's mu, then slots_mu_.
+  class SlotGuard {
+   public:
+    SlotGuard(StoreLedger& ledger, std::string_view name) : ledger_(ledger), name_(name) {
+      while (true) {
+        slot_ = ledger_.slot_for(name);
+        lock_ = std::unique_lock(slot_->mu);
+        if (!slot_->retired) break;
+        lock_.unlock();
+      }
+    }
+    ~SlotGuard() {
+      if (slot_->exists) return;
+      std::lock_guard lock(ledger_.slots_mu_);
+      auto it = ledger_.slots_.find(name_);
+      if (it != ledger_.slots_.end() && it->second == slot_) ledger_.slots_.erase(it);
+      slot_->retired = true;
+    }
+    SlotGuard(const SlotGuard&) = delete;
+    SlotGuard& operator=(const SlotGuard&) = delete;
+    StreamSlot& operator*() { return *slot_; }
+    StreamSlot* operator->() { return slot_.get(); }
+
+   private:
+    StoreLedger& ledger_;
+    std::string_view name_;
+    std::shared_ptr<StreamSlot> slot_;
+    std::unique_lock<std::mutex> lock_;
+  };
+
   std::shared_ptr<StreamSlot> slot_for(std::string_view name) {
     std::lock_guard lock(slots_mu_);
     auto it = slots_.find(name);
@@ -613,6 +562,7 @@ class StoreLedger final : public Ledger {
     info.rejections = slot.rule->rejections();
     info.wealth = slot.rule->wealth();
     info.next_level = slot.rule->next_level();
+    info.closed_at_ms = slot.head.closed_at_ms;
     return info;
   }
 
@@ -667,7 +617,7 @@ class StoreLedger final : public Ledger {
 
   std::unique_ptr<Store> store_;
   Clock clock_;
-  std::mutex slots_mu_;
+  mutable std::mutex slots_mu_;
   std::map<std::string, std::shared_ptr<StreamSlot>, std::less<>> slots_;
 };
 

@@ -29,6 +29,13 @@ std::string num(double v) {
   return s.str();
 }
 
+// a + b, built by append: GCC 12's -Wrestrict misfires on "literal" + std::string (GCC PR 105651).
+std::string cat(std::string_view a, std::string_view b) {
+  std::string out(a);
+  out.append(b);
+  return out;
+}
+
 std::vector<std::string> with_ledger(const std::string& ledger, std::vector<std::string> args) {
   args.insert(args.begin(), {"--ledger", ledger});
   return args;
@@ -265,4 +272,174 @@ TEST_CASE("LedgerCli: a stream's direction applies to the summary rows it decide
   auto bad = run_alphaledger(with_ledger(db, {"new", "x", "--rule", "lord++", "--alternative", "sideways"}));
   CHECK(bad.exit_code == 2);
   CHECK(bad.err.find("--alternative") != std::string::npos);
+}
+
+// Closing a stream (docs/ledger.md "Closing a stream"): decisions are refused with exit 3 naming
+// the closing time, closing again changes nothing, status and streams show it, and verify covers
+// it with the closing hash the close command printed (common practice, no source).
+TEST_CASE("LedgerCli: a closed stream refuses tests and still verifies") {
+  ScratchDir dir;
+  const std::string db = dir.sub("ledger");
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lord++"})).exit_code == 0);
+  for (int i = 0; i < 3; ++i) {
+    REQUIRE(run_alphaledger(with_ledger(db, {"decide", "s", "--id", cat("e", std::to_string(i)), "--p",
+                                             num(kStream[static_cast<std::size_t>(i)])}))
+                .exit_code == 0);
+  }
+  const std::string history_before = run_alphaledger(with_ledger(db, {"history", "s"})).out;
+  auto closed = run_alphaledger(with_ledger(db, {"close", "s"}));
+  REQUIRE(closed.exit_code == 0);
+  CHECK(closed.out.find("closed stream s at ") != std::string::npos);
+  CHECK(closed.out.find("tests 3") != std::string::npos);
+  auto again = run_alphaledger(with_ledger(db, {"--json", "close", "s"}));
+  REQUIRE(again.exit_code == 0);
+  auto cj = nlohmann::json::parse(again.out);
+  CHECK(cj["closed_now"] == false);
+  CHECK(cj["tests"] == 3);
+  const std::string closed_at = cj["closed_at"].get<std::string>();
+  CHECK(closed.out.find(closed_at) != std::string::npos);  // the same closing, not a new one
+  const std::string closing_hash = cj["closing_hash"].get<std::string>();
+  CHECK(closing_hash.size() == 64);
+  CHECK(closed.out.find(closing_hash) != std::string::npos);
+
+  const std::string file = dir.write("more.csv", "id,p_value\nx1,0.001\n");
+  const std::vector<std::vector<std::string>> refused_args = {
+      {"decide", "s", "--id", "late", "--p", "0.001"},
+      {"--json", "decide", "s", "--id", "e0", "--p", num(kStream[0])},  // a repeat, refused too
+      {"decide", "s", "--file", file},
+      {"next", "s"},
+  };
+  for (const auto& args : refused_args) {
+    CAPTURE(args[args[0] == "--json" ? 1 : 0]);
+    auto r = run_alphaledger(with_ledger(db, args));
+    CHECK(r.exit_code == 3);
+    CHECK(r.err.find(cat("stream 's' is closed since ", closed_at)) != std::string::npos);
+  }
+  CHECK(run_alphaledger(with_ledger(db, {"history", "s"})).out == history_before);
+
+  auto status = run_alphaledger(with_ledger(db, {"--json", "status", "s"}));
+  REQUIRE(status.exit_code == 0);
+  CHECK(nlohmann::json::parse(status.out)["closed_at"] == closed_at);
+  auto text_status = run_alphaledger(with_ledger(db, {"status", "s"}));
+  CHECK(text_status.out.find(cat("closed      ", closed_at)) != std::string::npos);
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "open-one", "--rule", "lond"})).exit_code == 0);
+  auto streams = run_alphaledger(with_ledger(db, {"--json", "streams"}));
+  const auto lines = complete_lines(streams.out);
+  REQUIRE(lines.size() == 2);
+  CHECK_FALSE(nlohmann::json::parse(lines[0]).contains("closed_at"));  // open-one
+  CHECK(nlohmann::json::parse(lines[1])["closed_at"] == closed_at);    // s
+  CHECK(run_alphaledger(with_ledger(db, {"streams"})).out.find(cat("closed ", closed_at)) !=
+        std::string::npos);
+
+  auto verify = run_alphaledger(with_ledger(db, {"verify", "s"}));
+  REQUIRE(verify.exit_code == 0);
+  CHECK(verify.out.find("ends at step 3, chain hash ") != std::string::npos);
+  CHECK(verify.out.find(cat("closing hash ", closing_hash)) != std::string::npos);
+  auto vj = nlohmann::json::parse(run_alphaledger(with_ledger(db, {"--json", "verify", "s"})).out);
+  CHECK(vj["closing_hash"] == closing_hash);
+  CHECK(vj["closed_at"] == closed_at);
+  auto anchored = run_alphaledger(with_ledger(db, {"verify", "s", "--expect", cat("closed:", closing_hash)}));
+  CHECK(anchored.exit_code == 0);
+  CHECK(anchored.out.find("anchors: all 1 match") != std::string::npos);
+  auto open_anchor =
+      run_alphaledger(with_ledger(db, {"verify", "open-one", "--expect", cat("closed:", closing_hash)}));
+  CHECK(open_anchor.exit_code == 3);
+  CHECK(open_anchor.err.find("not closed") != std::string::npos);
+
+  CHECK(run_alphaledger(with_ledger(db, {"close", "nope"})).exit_code == 3);
+  CHECK(run_alphaledger(with_ledger(db, {"close", "a/b"})).exit_code == 2);
+  auto missing = run_alphaledger(with_ledger(dir.sub("absent"), {"close", "s"}));
+  CHECK(missing.exit_code == 3);
+  CHECK(missing.err.find("no ledger at") != std::string::npos);
+  CHECK_FALSE(std::filesystem::exists(dir.sub("absent")));
+}
+
+// The auditor's case end to end: the ledger folder is replaced by an older copy (a restore that
+// lost the last five decisions). What remains is consistent, so plain verify passes; the anchor
+// noted from verify's output before the loss makes verify exit 3 naming its step (common
+// practice, no source).
+TEST_CASE("LedgerCli: verify --expect catches a ledger that lost its last decisions") {
+  ScratchDir dir;
+  const std::string db = dir.sub("ledger");
+  const std::string backup = dir.sub("backup");
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "saffron"})).exit_code == 0);
+  auto decide_range = [&](std::size_t from, std::size_t to) {
+    std::string rows = "id,p_value\n";
+    for (std::size_t i = from; i < to; ++i)
+      rows += cat(cat("e", std::to_string(i)), ",") + num(kStream[i]) + "\n";
+    const std::string file = dir.write("rows.csv", rows);
+    REQUIRE(run_alphaledger(with_ledger(db, {"decide", "s", "--file", file})).exit_code == 0);
+  };
+  decide_range(0, 5);
+  std::filesystem::copy(db, backup, std::filesystem::copy_options::recursive);
+  decide_range(5, 10);
+
+  auto noted = run_alphaledger(with_ledger(db, {"verify", "s"}));
+  REQUIRE(noted.exit_code == 0);
+  const std::string marker = "--expect ";
+  const auto at = noted.out.find(marker);
+  REQUIRE(at != std::string::npos);
+  const std::string anchor10 = noted.out.substr(at + marker.size(), 3 + 64);
+  REQUIRE(anchor10.rfind("10:", 0) == 0);
+  auto at3 = nlohmann::json::parse(
+      run_alphaledger(with_ledger(db, {"--json", "verify", "s", "--at-step", "3"})).out);
+  const std::string anchor3 = cat("3:", at3["chain_hash_at_step"].get<std::string>());
+  CHECK(run_alphaledger(with_ledger(db, {"verify", "--expect", anchor10, "s", "--expect", anchor3}))
+            .exit_code == 0);
+
+  std::filesystem::remove_all(db);
+  std::filesystem::copy(backup, db, std::filesystem::copy_options::recursive);
+  auto plain = run_alphaledger(with_ledger(db, {"verify", "s"}));
+  CHECK(plain.exit_code == 0);  // the older copy is consistent by itself
+  CHECK(plain.out.find("ends at step 5,") != std::string::npos);
+  CHECK(run_alphaledger(with_ledger(db, {"verify", "s", "--expect", anchor3})).exit_code == 0);
+  auto lost = run_alphaledger(with_ledger(db, {"verify", "s", "--expect", anchor3, "--expect", anchor10}));
+  CHECK(lost.exit_code == 3);
+  CHECK(lost.err.find("fails verification at step 10") != std::string::npos);
+  CHECK(lost.err.find("holds only 5 records") != std::string::npos);
+  auto lost_json = run_alphaledger(with_ledger(db, {"--json", "verify", "s", "--expect", anchor10}));
+  CHECK(lost_json.exit_code == 3);
+  auto lj = nlohmann::json::parse(lost_json.out);
+  CHECK(lj["ok"] == false);
+  CHECK(lj["first_bad_step"] == 10);
+
+  for (const std::string& bad :
+       std::vector<std::string>{"10", cat("ten:", anchor10.substr(3)), "10:abc", std::string(5000, '9')}) {
+    CAPTURE(bad.substr(0, 20));
+    auto r = run_alphaledger(with_ledger(db, {"verify", "s", "--expect", bad}));
+    CHECK(r.exit_code == 2);
+    CHECK(r.err.find("--expect") != std::string::npos);
+    CHECK(r.err.size() < 700);  // an excerpt of the value, not all of it
+  }
+}
+
+// history --from and --limit print a slice, row by row, with the header once (common practice,
+// no source); the rows equal the matching rows of the whole history.
+TEST_CASE("LedgerCli: history prints a slice with --from and --limit") {
+  ScratchDir dir;
+  const std::string db = dir.sub("ledger");
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lond"})).exit_code == 0);
+  std::string rows = "id,p_value\n";
+  for (std::size_t i = 0; i < kStream.size(); ++i)
+    rows += cat(cat("e", std::to_string(i)), ",") + num(kStream[i]) + "\n";
+  REQUIRE(
+      run_alphaledger(with_ledger(db, {"decide", "s", "--file", dir.write("rows.csv", rows)})).exit_code ==
+      0);
+  const auto all = complete_lines(run_alphaledger(with_ledger(db, {"history", "s"})).out);
+  REQUIRE(all.size() == 11);
+  auto slice = run_alphaledger(with_ledger(db, {"history", "s", "--from", "4", "--limit", "3"}));
+  REQUIRE(slice.exit_code == 0);
+  CHECK(complete_lines(slice.out) == std::vector<std::string>{all[0], all[4], all[5], all[6]});
+  auto tail = run_alphaledger(with_ledger(db, {"--json", "history", "s", "--from", "9"}));
+  REQUIRE(tail.exit_code == 0);
+  const auto tail_lines = complete_lines(tail.out);
+  REQUIRE(tail_lines.size() == 2);
+  CHECK(nlohmann::json::parse(tail_lines[0])["step"] == 9);
+  CHECK(nlohmann::json::parse(tail_lines[1])["step"] == 10);
+  auto past = run_alphaledger(with_ledger(db, {"history", "s", "--from", "11"}));
+  CHECK(past.exit_code == 0);
+  CHECK(complete_lines(past.out).size() == 1);  // the header only
+  auto zero = run_alphaledger(with_ledger(db, {"history", "s", "--limit", "0"}));
+  CHECK(zero.exit_code == 2);
+  CHECK(zero.err.find("--limit") != std::string::npos);
 }

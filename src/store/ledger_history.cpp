@@ -1,0 +1,53 @@
+// Reading a stream's records in step order, a range at a time (Ledger::history_page,
+// Ledger::for_each_decision, Ledger::history).
+#include <optional>
+
+#include "store/codec.hpp"
+#include "store/ledger_internal.hpp"
+
+namespace alphaledger::store {
+
+Status visit_records(Store& store, const std::string& where, std::string_view stream, std::uint64_t lo,
+                     std::uint64_t hi, const Ledger::DecisionVisitor& visit) {
+  if (lo == 0 || lo > hi) return {};
+  auto problem = [&](std::uint64_t step, const std::string& what) {
+    return storage_error("ledger " + where + ", stream " + in_quotes(stream) + ": the record for step " +
+                         std::to_string(step) + " " + what + " (run alphaledger verify " +
+                         std::string(stream) + ")");
+  };
+  std::uint64_t expected = lo;
+  std::optional<Error> bad;
+  bool stopped = false;
+  // One scan per key block (record_range_prefixes): the store reads the records lo..hi and no
+  // others, however long the stream.
+  for (const auto& prefix : record_range_prefixes(stream, lo, hi)) {
+    auto s = store.scan(prefix, [&](std::string_view key, std::string_view value) {
+      if (key != record_key(stream, expected)) {
+        bad = problem(expected, "is missing");
+        return false;
+      }
+      auto rec = decode_record(value);
+      if (!rec) {
+        bad = problem(expected, "cannot be read: " + rec.error().message);
+        return false;
+      }
+      if (rec->record.step != expected) {
+        bad = problem(expected, "says step " + std::to_string(rec->record.step));
+        return false;
+      }
+      ++expected;
+      if (!visit(rec->record)) {
+        stopped = true;
+        return false;
+      }
+      return true;
+    });
+    if (!s) return s.error();
+    if (bad) return *bad;
+    if (stopped) return {};
+  }
+  if (expected <= hi) return problem(expected, "is missing");
+  return {};
+}
+
+}  // namespace alphaledger::store
