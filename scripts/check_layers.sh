@@ -31,43 +31,42 @@ complain() {
   problems=$((problems + 1))
 }
 
-# Layer of a public header name (X.hpp); empty if unknown.
+# Sets $found_layer to the layer of a public header name (X.hpp); empty if unknown.
+# (No command substitution here or below: forks are slow on a loaded machine.)
 layer_of_header() {
-  local name="$1"
-  if [[ -n "${header_layer[$name]:-}" ]]; then
-    echo "${header_layer[$name]}"
-    return
-  fi
-  local stem="${name%.hpp}" found=()
+  local name="$1" stem="${1%.hpp}" count=0 layer
+  found_layer="${header_layer[$name]:-}"
+  [[ -n "$found_layer" ]] && return
   for layer in "${layers[@]}"; do
-    [[ -e "src/$layer/$stem.cpp" ]] && found+=("$layer")
+    if [[ -e "src/$layer/$stem.cpp" ]]; then
+      found_layer="$layer"
+      count=$((count + 1))
+    fi
   done
-  if [[ ${#found[@]} -eq 1 ]]; then echo "${found[0]}"; fi
+  ((count == 1)) || found_layer=""
 }
 
 # Files to check, each with its own layer.
-files=()
-file_layers=()
+declare -A file_layer=()
+shopt -s nullglob globstar
 for dir in src/*/; do
-  layer="$(basename "$dir")"
+  layer="${dir#src/}"
+  layer="${layer%/}"
   if [[ -z "${rank[$layer]:-}" ]]; then
     complain "src/$layer/ is not a known layer (known: ${layers[*]}); add it to scripts/check_layers.sh"
     continue
   fi
-  while IFS= read -r f; do
-    files+=("$f")
-    file_layers+=("$layer")
-  done < <(find "$dir" -type f \( -name '*.cpp' -o -name '*.hpp' -o -name '*.h' \) | sed 's|^\./||; s|//|/|' | sort)
+  for f in "$dir"**/*.cpp "$dir"**/*.hpp "$dir"**/*.h; do
+    file_layer["$f"]="$layer"
+  done
 done
 for f in include/alphaledger/*.hpp; do
-  [[ -e "$f" ]] || continue
-  layer="$(layer_of_header "$(basename "$f")")"
-  if [[ -z "$layer" ]]; then
+  layer_of_header "${f##*/}"
+  if [[ -z "$found_layer" ]]; then
     complain "$f: no layer known for this public header; add it to header_layer in scripts/check_layers.sh"
     continue
   fi
-  files+=("$f")
-  file_layers+=("$layer")
+  file_layer["$f"]="$found_layer"
 done
 
 declare -A allowed=()
@@ -79,18 +78,21 @@ if [[ -f scripts/check_layers.allow ]]; then
   done <scripts/check_layers.allow
 fi
 
-for i in "${!files[@]}"; do
-  f="${files[$i]}"
-  own="${file_layers[$i]}"
-  line_no=0
-  while IFS= read -r line; do
-    line_no=$((line_no + 1))
-    [[ "$line" =~ ^[[:space:]]*#[[:space:]]*include[[:space:]]*[\"\<]([^\"\>]+)[\"\>] ]] || continue
+include_re='^[[:space:]]*#[[:space:]]*include[[:space:]]*["<]([^">]+)[">]'
+if ((${#file_layer[@]} > 0)); then
+  # One grep over every file: lines "FILE:LINE:TEXT".
+  while IFS= read -r hit; do
+    f="${hit%%:*}"
+    rest="${hit#*:}"
+    line_no="${rest%%:*}"
+    line="${rest#*:}"
+    [[ "$line" =~ $include_re ]] || continue
     included="${BASH_REMATCH[1]}"
-    target=""
+    own="${file_layer[$f]}"
     case "$included" in
       alphaledger/*)
-        target="$(layer_of_header "${included#alphaledger/}")"
+        layer_of_header "${included#alphaledger/}"
+        target="$found_layer"
         if [[ -z "$target" ]]; then
           complain "$f:$line_no: includes $included, which has no known layer; add it to header_layer in scripts/check_layers.sh"
           continue
@@ -106,8 +108,8 @@ for i in "${!files[@]}"; do
         complain "$f:$line_no: a $own file includes $included, which belongs to the higher layer $target (order: $order)"
       fi
     fi
-  done <"$f"
-done
+  done < <(grep -nHE '^[[:space:]]*#[[:space:]]*include' "${!file_layer[@]}" || true)
+fi
 
 for entry in "${!allowed[@]}"; do
   if [[ -z "${allowed_used[$entry]:-}" ]]; then
@@ -119,4 +121,4 @@ if ((problems > 0)); then
   echo "check_layers: $problems problem(s)" >&2
   exit 1
 fi
-echo "check_layers: ok (${#files[@]} files, ${#allowed_used[@]} allowed exception(s))"
+echo "check_layers: ok (${#file_layer[@]} files, ${#allowed_used[@]} allowed exception(s))"
