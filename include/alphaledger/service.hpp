@@ -120,8 +120,9 @@ struct PipeSummary {
   bool stopped = false;       // stopped by stop_fd before the end of input
 };
 
-// Reads JSON Lines from `in_fd` until end of input (or until `stop_fd`, if >= 0, becomes
-// readable), and writes one line per input line to `out`, flushed per line, in input order:
+// Reads JSON Lines from `in_fd` (lines end with LF, CRLF or a lone CR; each line is read as a
+// JSON Lines row of docs/formats.md, summary rows in the stream's frozen direction) until end of
+// input (or until `stop_fd`, if >= 0, becomes readable), and writes one line per input line to `out`, flushed per line, in input order:
 // the decision object (decision_json) or {"line": N, "error": "..."}. Lines are counted from
 // 1; every line is answered, a blank one too. Lines that arrive together are decided with one
 // synced write per group; each answer is written only after its decision is durable.

@@ -82,7 +82,8 @@ bool parse_iso(std::string_view s, double& out) {
   // YYYY-MM-DD[(T| )hh:mm[:ss[.fff]][Z|(+|-)hh:mm]]
   if (s.size() < 10 || s[4] != '-' || s[7] != '-') return false;
   int y, mo, d;
-  if (!parse_digits(s.substr(0, 4), y) || !parse_digits(s.substr(5, 2), mo) || !parse_digits(s.substr(8, 2), d))
+  if (!parse_digits(s.substr(0, 4), y) || !parse_digits(s.substr(5, 2), mo) ||
+      !parse_digits(s.substr(8, 2), d))
     return false;
   static constexpr int kDays[] = {31, 29, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31};
   if (mo < 1 || mo > 12 || d < 1 || d > kDays[mo - 1]) return false;
@@ -213,7 +214,8 @@ NumberText read_number(std::string_view t, double& v) {
   return NumberText::kOk;
 }
 
-std::string number_error(NumberText kind, std::string_view field, std::string_view accepted, std::string_view t) {
+std::string number_error(NumberText kind, std::string_view field, std::string_view accepted,
+                         std::string_view t) {
   const std::string f(field);
   switch (kind) {
     case NumberText::kTooSmall:
@@ -224,7 +226,8 @@ std::string number_error(NumberText kind, std::string_view field, std::string_vi
       return f + " must be " + std::string(accepted) + ", got " + excerpt(t) +
              ", too large to be held as a number";
     default:
-      return f + " must be " + std::string(accepted) + " (written like 0.01 or 1e-8), got '" + excerpt(t) + "'";
+      return f + " must be " + std::string(accepted) + ", got '" + excerpt(t) +
+             "' (write it like 0.01 or 1e-8)";
   }
 }
 
@@ -251,19 +254,17 @@ namespace {
 
 // A JSON value as it may appear in a message: its type, and an excerpt of its text.
 std::string describe_json(const nlohmann::json& v) {
-  const std::string text = excerpt(v.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
-  if (v.is_string()) return "a string " + text;
-  if (v.is_array()) return "an array " + text;
-  if (v.is_object()) return "an object " + text;
-  return text;
+  return excerpt(v.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
 }
 
 }  // namespace
 
 Result<double> p_value_from_json(const nlohmann::json& value) {
-  if (!value.is_number()) return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(value));
+  if (!value.is_number())
+    return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(value));
   double v = value.get<double>();
-  if (!(v >= 0.0 && v <= 1.0)) return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(value));
+  if (!(v >= 0.0 && v <= 1.0))
+    return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(value));
   if (v == 0) v = 0.0;  // -0 is 0
   return v;
 }
@@ -292,7 +293,8 @@ Status validate_test_id(std::string_view id) {
     if (len == 0)
       return invalid_input("id must be valid UTF-8 text, got '" + excerpt(id) + "' (bad byte at offset " +
                            std::to_string(i) + ")");
-    if (is_control(cp)) return invalid_input("id must not contain control characters, got '" + excerpt(id) + "'");
+    if (is_control(cp))
+      return invalid_input("id must not contain control characters, got '" + excerpt(id) + "'");
     i += len;
   }
   const auto space = [](char c) { return c == ' ' || c == '\t'; };
@@ -313,7 +315,8 @@ bool is_summary_column(std::string_view name) {
 // summary columns (docs/formats.md, "Summary columns"; alphaledger/stats.hpp). Summary cells are
 // read by parse_number_text first, so the statistics layer sees only canonical number text (and
 // never a megabyte cell to quote).
-Result<double> row_p_value(const std::map<std::string, std::string>& fields, std::optional<Alternative> direction) {
+Result<double> row_p_value(const std::map<std::string, std::string>& fields,
+                           std::optional<Alternative> direction) {
   auto it = fields.find("p_value");
   if (it != fields.end() && !trim(it->second).empty()) return parse_p_value_text(it->second);
   bool any_summary = false;
@@ -326,15 +329,17 @@ Result<double> row_p_value(const std::map<std::string, std::string>& fields, std
     summary[name] = format_number(*v);
   }
   if (!direction) {
-    return invalid_input(any_summary ? "missing p_value (a number in [0, 1]); summary columns are not read here"
-                                     : "missing p_value (a number in [0, 1])");
+    return invalid_input(
+        any_summary ? "missing field 'p_value' (a number in [0, 1]); summary columns are not read here"
+                    : "missing field 'p_value' (a number in [0, 1])");
   }
   return p_value_from_summary(summary, *direction);
 }
 
 }  // namespace
 
-Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields, Alternative alternative) {
+Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields,
+                                   Alternative alternative) {
   return row_p_value(fields, alternative);
 }
 
@@ -364,10 +369,11 @@ namespace {
 
 // Turns one row's fields into a record (line 0, no location in messages): common to CSV, JSON
 // Lines, pipe and HTTP.
-Result<TestRecord> make_record(const std::map<std::string, std::string>& f, std::optional<Alternative> direction) {
+Result<TestRecord> make_record(const std::map<std::string, std::string>& f,
+                               std::optional<Alternative> direction) {
   TestRecord r;
   auto id = f.find("id");
-  if (id == f.end() || id->second.empty()) return invalid_input("missing id (a text of 1 to 256 bytes)");
+  if (id == f.end()) return invalid_input("missing field 'id' (a text of 1 to 256 bytes)");
   if (auto s = validate_test_id(id->second); !s) return s.error();
   r.id = id->second;
   auto p = row_p_value(f, direction);
@@ -375,7 +381,7 @@ Result<TestRecord> make_record(const std::map<std::string, std::string>& f, std:
   r.p_value = *p;
   if (auto t = f.find("finished_at"); t != f.end() && !trim(t->second).empty()) {
     auto v = parse_time_text(t->second);
-    if (!v) return invalid_input("test '" + r.id + "': " + v.error().message);
+    if (!v) return v.error();
     r.finished_at = *v;
   }
   if (auto n = f.find("is_null"); n != f.end() && !trim(n->second).empty()) {
@@ -385,8 +391,7 @@ Result<TestRecord> make_record(const std::map<std::string, std::string>& f, std:
     else if (v == "0" || v == "false")
       r.is_null = false;
     else
-      return invalid_input("test '" + r.id + "': is_null must be 0 or 1 (or true or false), got '" + excerpt(v) +
-                           "'");
+      return invalid_input("is_null must be 0 or 1 (or true or false), got '" + excerpt(v) + "'");
   }
   return r;
 }
@@ -407,7 +412,8 @@ Result<std::map<std::string, std::string>> json_fields(const nlohmann::json& obj
         return invalid_input("id must be a JSON string (or an integer), got " + describe_json(v));
     } else if (key == "p_value") {
       if (v.is_null()) continue;  // absent: summary columns
-      if (!v.is_number()) return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(v));
+      if (!v.is_number())
+        return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(v));
       f[key] = format_number(v.get<double>());
     } else if (key == "finished_at") {
       if (v.is_null()) continue;
@@ -416,7 +422,8 @@ Result<std::map<std::string, std::string>> json_fields(const nlohmann::json& obj
       else if (v.is_number())
         f[key] = format_number(v.get<double>());
       else
-        return invalid_input("finished_at must be a JSON string (ISO 8601) or a number, got " + describe_json(v));
+        return invalid_input("finished_at must be a JSON string (ISO 8601) or a number, got " +
+                             describe_json(v));
     } else if (key == "is_null") {
       if (v.is_null()) continue;
       if (v.is_boolean())
@@ -432,7 +439,8 @@ Result<std::map<std::string, std::string>> json_fields(const nlohmann::json& obj
       else if (v.is_number())
         f[key] = format_number(v.get<double>());
       else
-        return invalid_input(key + " must be a JSON number (or a string holding one), got " + describe_json(v));
+        return invalid_input(key + " must be a JSON number (or a string holding one), got " +
+                             describe_json(v));
     }
     // Other keys are ignored, whatever their type.
   }
@@ -458,7 +466,8 @@ bool read_line(std::streambuf& in, std::string& line) {
 
 }  // namespace
 
-Result<TestRecord> test_record_from_json(const nlohmann::json& object, std::optional<Alternative> summary_direction) {
+Result<TestRecord> test_record_from_json(const nlohmann::json& object,
+                                         std::optional<Alternative> summary_direction) {
   if (!object.is_object())
     return invalid_input("expected a JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}, got " +
                          describe_json(object));
@@ -483,7 +492,8 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
     if (trim(line).empty()) continue;
     std::map<std::string, std::string> fields;
     if (format == LogFormat::kCsv) {
-      if (!split_csv(line, cells)) return invalid_input(where(source, line_no) + "unbalanced quote in CSV row");
+      if (!split_csv(line, cells))
+        return invalid_input(where(source, line_no) + "unbalanced quote in CSV row");
       if (!have_header) {
         header = cells;
         have_header = true;
@@ -548,7 +558,8 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
       if (log.records[i].finished_at) last = *log.records[i].finished_at;
       keys.emplace_back(last, i);
     }
-    std::stable_sort(keys.begin(), keys.end(), [](const auto& a, const auto& b) { return a.first < b.first; });
+    std::stable_sort(keys.begin(), keys.end(),
+                     [](const auto& a, const auto& b) { return a.first < b.first; });
     std::vector<TestRecord> sorted;
     sorted.reserve(log.records.size());
     for (const auto& k : keys) sorted.push_back(std::move(log.records[k.second]));
@@ -733,12 +744,13 @@ Result<nlohmann::json> parse_json_object(std::string_view text) {
   }
   const nlohmann::json& j = builder.root_;
   if (!j.is_object()) {
-    return invalid_input(std::string("expected a JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}, got ") +
-                         (j.is_array()     ? "an array"
-                          : j.is_string()  ? "a string"
-                          : j.is_number()  ? "a number"
-                          : j.is_boolean() ? "a boolean"
-                                           : "null"));
+    return invalid_input(
+        std::string("expected a JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}, got ") +
+        (j.is_array()     ? "an array"
+         : j.is_string()  ? "a string"
+         : j.is_number()  ? "a number"
+         : j.is_boolean() ? "a boolean"
+                          : "null"));
   }
   return std::move(builder.root_);
 }

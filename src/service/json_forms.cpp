@@ -70,7 +70,8 @@ Result<StreamRequest> stream_request_from_json(const nlohmann::json& j) {
   static constexpr std::string_view kNumbers[] = {"alpha", "initial_wealth", "candidate_threshold",
                                                   "discard_threshold", "payout"};
   static constexpr std::string_view kTexts[] = {"name", "rule", "spending", "evaluation"};
-  if (!j.is_object()) return invalid_input("expected a JSON object such as " + std::string(kStreamRequestExample));
+  if (!j.is_object())
+    return invalid_input("expected a JSON object such as " + std::string(kStreamRequestExample));
   for (auto it = j.begin(); it != j.end(); ++it) {
     const std::string& key = it.key();
     const bool numeric = std::find(std::begin(kNumbers), std::end(kNumbers), key) != std::end(kNumbers);
@@ -83,7 +84,8 @@ Result<StreamRequest> stream_request_from_json(const nlohmann::json& j) {
     if (it.value().is_null()) continue;
     const std::string shown =
         excerpt(it.value().dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
-    if (numeric && !it.value().is_number()) return invalid_input(key + " must be a JSON number, got " + shown);
+    if (numeric && !it.value().is_number())
+      return invalid_input(key + " must be a JSON number, got " + shown);
     if (text && !it.value().is_string()) return invalid_input(key + " must be a JSON string, got " + shown);
   }
   auto text = [&](const char* key) -> std::optional<std::string> {

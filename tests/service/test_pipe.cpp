@@ -337,14 +337,16 @@ TEST_CASE("Pipe: a storage failure answers the line it hit, stops, and nothing u
   CHECK(f.memory.dump() == before);  // the ledger is as it was
 }
 
-
 // ---- one meaning for each input: pipe lines read as JSON Lines rows are (docs/formats.md) -------
 
 TEST_CASE("Pipe: a line nested 200,000 deep is answered with an error and the next line is decided") {
   PipeFixture f;
   const std::string deep = std::string(200000, '[') + std::string(200000, ']');
-  auto [summary, answers] =
-      f.run(std::string(R"({"id": "x", "p_value": 0.1, "extra": )").append(deep).append("}\n").append(test_line("b", 0.3)).append("\n"));
+  auto [summary, answers] = f.run(std::string(R"({"id": "x", "p_value": 0.1, "extra": )")
+                                      .append(deep)
+                                      .append("}\n")
+                                      .append(test_line("b", 0.3))
+                                      .append("\n"));
   REQUIRE(summary.ok());
   REQUIRE(answers.size() == 2);
   auto first = nlohmann::json::parse(answers[0]);
@@ -411,8 +413,10 @@ TEST_CASE("Pipe: lines may end with LF, CRLF or a lone CR, also when a CRLF is s
 
 TEST_CASE("Pipe: summary rows are decided in the stream's frozen direction") {
   PipeFixture f;
-  REQUIRE(f.ledger->create_stream_directed("up", *resolve_config(RuleSpec{.rule = "lord++"}), Alternative::kGreater)
-              .ok());
+  REQUIRE(
+      f.ledger
+          ->create_stream_directed("up", *resolve_config(RuleSpec{.rule = "lord++"}), Alternative::kGreater)
+          .ok());
   const std::map<std::string, std::string> counts = {{"control_n", "1000"},
                                                      {"control_conversions", "50"},
                                                      {"treatment_n", "1000"},
@@ -437,14 +441,16 @@ TEST_CASE("Pipe: summary rows are decided in the stream's frozen direction") {
   CHECK(answer["p_value"].get<double>() == *greater);
 }
 
-TEST_CASE("test_from_json: one reading with the JSON Lines reader; the single-argument form takes p_value only") {
+TEST_CASE(
+    "test_from_json: one reading with the JSON Lines reader; the single-argument form takes p_value only") {
   const auto j = nlohmann::json::parse(R"({"id": 7, "p_value": 0.25, "finished_at": "2025-01-01"})");
   auto t = test_from_json(j);
   REQUIRE(t.ok());
   CHECK(t->id == "7");
   CHECK(t->p_value == 0.25);
   // A bad finished_at is refused here too, as in a log (one meaning for each key).
-  CHECK_FALSE(test_from_json(nlohmann::json::parse(R"({"id": "a", "p_value": 0.25, "finished_at": "soon"})")).ok());
+  CHECK_FALSE(
+      test_from_json(nlohmann::json::parse(R"({"id": "a", "p_value": 0.25, "finished_at": "soon"})")).ok());
   const auto counts = nlohmann::json::parse(
       R"({"id": "c", "control_n": 1000, "control_conversions": 50, "treatment_n": 1000, "treatment_conversions": 70})");
   CHECK_FALSE(test_from_json(counts).ok());
@@ -452,16 +458,20 @@ TEST_CASE("test_from_json: one reading with the JSON Lines reader; the single-ar
 }
 
 TEST_CASE("stream_request_from_json: known keys with one type each; unknown keys refused by name") {
-  auto ok = stream_request_from_json(nlohmann::json::parse(R"({"name": "s1", "rule": "saffron", "alpha": -0.0})"));
+  auto ok =
+      stream_request_from_json(nlohmann::json::parse(R"({"name": "s1", "rule": "saffron", "alpha": -0.0})"));
   REQUIRE(ok.ok());
   CHECK(ok->name == "s1");
   CHECK(ok->spec.rule == "saffron");
   REQUIRE(ok->spec.alpha.has_value());
   CHECK_FALSE(std::signbit(*ok->spec.alpha));
-  auto unknown = stream_request_from_json(nlohmann::json::parse(R"({"name": "s1", "rule": "lond", "alhpa": 0.1})"));
+  auto unknown =
+      stream_request_from_json(nlohmann::json::parse(R"({"name": "s1", "rule": "lond", "alhpa": 0.1})"));
   REQUIRE_FALSE(unknown.ok());
   CHECK(unknown.error().message.find("'alhpa'") != std::string::npos);
-  CHECK_FALSE(stream_request_from_json(nlohmann::json::parse(R"({"name": "s1", "rule": "lond", "alpha": "0.1"})")).ok());
+  CHECK_FALSE(
+      stream_request_from_json(nlohmann::json::parse(R"({"name": "s1", "rule": "lond", "alpha": "0.1"})"))
+          .ok());
   CHECK_FALSE(stream_request_from_json(nlohmann::json::parse(R"({"rule": "lond"})")).ok());
   const std::string long_key(100000, 'k');
   auto big = stream_request_from_json(nlohmann::json{{long_key, 1}});
@@ -472,7 +482,8 @@ TEST_CASE("stream_request_from_json: known keys with one type each; unknown keys
 TEST_CASE("replay reads standard input when the file is '-'") {
   TempDir dir;
   write_file(dir.file("in.csv"), "id,p_value\ra,0.001\rb,0.5\r");  // CR-only line ends, too
-  Child child({"replay", "-", "--format", "csv"}, {dir.file("in.csv"), dir.file("out.csv"), dir.file("err.txt")});
+  Child child({"replay", "-", "--format", "csv"},
+              {dir.file("in.csv"), dir.file("out.csv"), dir.file("err.txt")});
   const auto code = child.wait();
   REQUIRE(code.has_value());
   CHECK_MESSAGE(*code == 0, read_file(dir.file("err.txt")));
