@@ -7,7 +7,7 @@
 #   scripts/fuzz.sh --build-only
 #   scripts/fuzz.sh --runs 20000 --seed 1 fuzz_codec   one target
 #
-# The seed corpus is only read: inputs a run finds go to build-fuzz/corpus/<target>/. An input that
+# The seed corpus is only read: inputs a timed run finds go to build-fuzz/corpus/<target>/. An input that
 # breaks a target is saved as build-fuzz/artifacts/<target>-crash-... and the script exits 1.
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -47,16 +47,25 @@ mkdir -p build-fuzz/artifacts
 export ASAN_OPTIONS="${ASAN_OPTIONS:-detect_leaks=1:abort_on_error=1}"
 export UBSAN_OPTIONS="${UBSAN_OPTIONS:-print_stacktrace=1:halt_on_error=1}"
 for t in "${targets[@]}"; do
-  mkdir -p "build-fuzz/corpus/$t"
+  # A run counted in runs starts from the seeds alone, so the same seed gives the same run; a timed
+  # run keeps what it finds in build-fuzz/corpus/ for the next one.
+  work="build-fuzz/corpus/$t"
   limit=(-runs="$runs")
-  if [ -n "$seconds" ]; then limit=(-max_total_time="$seconds"); fi
+  if [ -n "$seconds" ]; then
+    limit=(-max_total_time="$seconds")
+  else
+    work="build-fuzz/corpus-seeded/$t"
+    rm -rf "$work"
+  fi
+  mkdir -p "$work"
   dict=()
   if [ -f "fuzz/dict/$t.dict" ]; then dict=(-dict="fuzz/dict/$t.dict"); fi
   echo "== $t ${limit[*]} -seed=$seed" >&2
   log="build-fuzz/$t.log"
+  echo "(log: $log)" >&2
   if ! "build-fuzz/fuzz/$t" "${limit[@]}" -seed="$seed" -max_len=8192 -timeout=20 -rss_limit_mb=2048 \
        -print_final_stats=1 "${dict[@]}" -artifact_prefix="build-fuzz/artifacts/$t-" \
-       "build-fuzz/corpus/$t" "fuzz/corpus/$t" >"$log" 2>&1; then
+       "$work" "fuzz/corpus/$t" >"$log" 2>&1; then
     tail -n 40 "$log" >&2
     echo "fuzz.sh: $t found a failing input (build-fuzz/artifacts/$t-*)" >&2
     exit 1

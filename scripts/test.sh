@@ -8,5 +8,5 @@ cmake -S . -B build -G Ninja -DCMAKE_BUILD_TYPE=Release -DALPHALEDGER_TESTS=ON -
 cmake --build build -j "$(nproc)"
 ctest --test-dir build --output-on-failure -j 2
 if [ "${ALPHALEDGER_SKIP_FUZZ:-0}" != 1 ]; then
-  scripts/fuzz.sh --runs 20000 --seed 1
+  scripts/fuzz.sh --runs 5000 --seed 1
 fi
