@@ -333,7 +333,15 @@ Result<double> row_p_value(const std::map<std::string, std::string>& fields,
         any_summary ? "missing field 'p_value' (a number in [0, 1]); summary columns are not read here"
                     : "missing field 'p_value' (a number in [0, 1])");
   }
-  return p_value_from_summary(summary, *direction);
+  auto p = p_value_from_summary(summary, *direction);
+  // Extreme summaries (a standard deviation of 8e131, say) overflow the test's arithmetic; the
+  // statistics layer can then return NaN. Refuse rather than decide on it.
+  if (p && !(*p >= 0.0 && *p <= 1.0)) {
+    return invalid_input(
+        "the summary columns give no p-value: their values are too large to compute with "
+        "(a standard deviation or mean near the limits of a double?)");
+  }
+  return p;
 }
 
 }  // namespace

@@ -291,3 +291,14 @@ TEST_CASE("TestLog: '-' reads standard input, and needs --format") {
   REQUIRE(log->records.size() == 1);
   CHECK(log->records[0].id == "a");
 }
+
+TEST_CASE("TestLog: a summary whose arithmetic overflows is refused, not decided as NaN (fuzz_summary finding)") {
+  // Found by fuzz_summary (docs/fuzzing.md): Welch's test with sd 8e131 squares past the largest
+  // double, and the p-value came back NaN (outside [0, 1]) instead of an error.
+  auto log = read_csv(
+      "id,control_n,control_mean,control_sd,treatment_n,treatment_mean,treatment_sd\n"
+      "a,500,13.4,8e131,5000,.9,8\n",
+      {.alternative = Alternative::kGreater});
+  REQUIRE_FALSE(log.ok());
+  CHECK(has(log.error().message, "t.csv:2: test 'a': the summary columns give no p-value"));
+}
