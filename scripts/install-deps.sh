@@ -3,7 +3,8 @@
 # Needs root (or sudo). Safe to run again: it does nothing when everything is there.
 set -euo pipefail
 packages=(g++ cmake ninja-build libboost-math-dev libspdlog-dev libcli11-dev librocksdb-dev
-          doctest-dev nlohmann-json3-dev libcpp-httplib-dev pkgconf)
+          doctest-dev nlohmann-json3-dev libcpp-httplib-dev pkgconf
+          clang-14 libclang-rt-14-dev)  # the last two: libFuzzer and sanitizers for scripts/fuzz.sh
 if [ "${1:-}" = "--with-references" ]; then
   # Only to regenerate reference values in tests/data (R's stats, SciPy).
   packages+=(r-base-core python3-scipy)

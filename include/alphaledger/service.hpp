@@ -51,11 +51,27 @@ nlohmann::ordered_json stream_to_json(const StreamInfo& s);
 // Text of any JSON value, with invalid UTF-8 replaced (never throws).
 std::string dump_json(const nlohmann::ordered_json& j);
 
-// A test read from a JSON object {"id": ..., "p_value": ...}: id is a string (or an integer,
-// taken as its decimal text, as replay's JSON Lines reader does); p_value a JSON number in [0, 1].
-// Other keys are ignored. Errors are kInvalidInput naming the field, the value and what is
-// accepted.
+// A test read from a JSON object {"id": ..., "p_value": ...}, by the one reading of
+// test_record_from_json (alphaledger/test_log.hpp, docs/formats.md): id a string (or an integer,
+// taken as its decimal text) passing validate_test_id; p_value a JSON number in [0, 1]. Other keys
+// are ignored. Errors are kInvalidInput naming the field, an excerpt of the value and what is
+// accepted. The one-argument form takes p_value only; the second form also reads summary columns
+// (docs/formats.md) in `summary_direction`, the stream's frozen direction (pipe does this).
 Result<TestInput> test_from_json(const nlohmann::json& object);
+Result<TestInput> test_from_json(const nlohmann::json& object, Alternative summary_direction);
+
+// The body of a stream creation (POST /v1/streams): name and rule (strings) plus the optional
+// rule parameters (numbers: alpha, initial_wealth, candidate_threshold, discard_threshold,
+// payout; strings: spending, evaluation; null means absent). Unknown keys are refused, so a
+// misspelt parameter cannot silently fall back to its default. The spec is not yet checked
+// against the rule: resolve_config() does that.
+struct StreamRequest {
+  std::string name;
+  RuleSpec spec;
+};
+inline constexpr std::string_view kStreamRequestExample =
+    R"({"name": "checkout-team", "rule": "lord++", "alpha": 0.05})";
+Result<StreamRequest> stream_request_from_json(const nlohmann::json& object);
 
 // ---- Deciding many tests in arrival order ----------------------------------------------------
 
@@ -109,8 +125,9 @@ struct PipeSummary {
   bool stopped = false;       // stopped by stop_fd before the end of input
 };
 
-// Reads JSON Lines from `in_fd` until end of input (or until `stop_fd`, if >= 0, becomes
-// readable), and writes one line per input line to `out`, flushed per line, in input order:
+// Reads JSON Lines from `in_fd` (lines end with LF, CRLF or a lone CR; each line is read as a
+// JSON Lines row of docs/formats.md, summary rows in the stream's frozen direction) until end of
+// input (or until `stop_fd`, if >= 0, becomes readable), and writes one line per input line to `out`, flushed per line, in input order:
 // the decision object (decision_json) or {"line": N, "error": "..."}. Lines are counted from
 // 1; every line is answered, a blank one too. Lines that arrive together are decided with one
 // synced write per group; each answer is written only after its decision is durable.

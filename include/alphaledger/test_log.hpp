@@ -1,12 +1,15 @@
 // Reading logs of finished tests (the replay format of docs/formats.md): CSV with a header row, or
-// JSON Lines. Used by replay, decide --file and pipe.
+// JSON Lines. Used by replay, decide --file, pipe and the HTTP routes: every input of a test, in
+// any of these forms, goes through the functions of this header, so a value has one meaning
+// everywhere (docs/formats.md, "One meaning for each input").
 //
 // Columns / keys: id (required), p_value (required unless summary columns are given, see
 // docs/formats.md), finished_at (optional: ISO 8601 date or date-time, or a number), is_null
 // (optional 0/1). Other columns are ignored.
 //
-// Every error is kInvalidInput and names the file, line, field, value and what is accepted, e.g.
-//   "demo.csv:17: p_value must be a number in [0, 1], got 1.3"
+// Every error is kInvalidInput and names the file, line, field, value (as excerpt()) and what is
+// accepted, e.g.
+//   "demo.csv:17: test 'LO-0017': p_value must be a number in [0, 1], got 1.3"
 // Thread-safety: free functions, no shared state.
 #pragma once
 
@@ -49,19 +52,45 @@ struct ReadOptions {
   Alternative alternative = Alternative::kTwoSided;
 };
 
-// Chooses the format from the extension (.csv / .jsonl / .ndjson); `forced` overrides.
+// Chooses the format from the extension (.csv / .jsonl / .ndjson); `forced` overrides. The path
+// "-" (standard input) has no extension: it needs `forced`.
 Result<LogFormat> log_format_for(std::string_view path, std::optional<std::string_view> forced);
 
 // Parses a whole log. On error returns kInvalidInput with file:line; nothing is partially returned.
+// Lines end with LF, CRLF or a lone CR (all three may appear in one file).
 Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogFormat format,
                               const ReadOptions& options = {});
+// `path` "-" reads standard input (its name in messages is "stdin").
 Result<TestLog> read_test_log_file(const std::string& path, std::optional<std::string_view> forced_format,
                                    const ReadOptions& options = {});
 
-// Parses one field as used in logs and requests. Errors name `field` and the accepted form.
+// ---- One meaning for each input (docs/formats.md) --------------------------------------------
+// Every form of input (CSV cell, JSON Lines row, pipe line, HTTP body, `decide --p`) goes through
+// these. Errors name the field and the accepted form and quote at most excerpt() of the value.
+
+// A number written as text: a decimal such as 0.01, .5, 1e-8 or -3 (surrounding spaces and tabs
+// are ignored); no '+' sign, hex, inf or nan. A number too large for a double, or one that is not
+// zero but too small to be held (below about 4.9e-324), is refused, never rounded to infinity or
+// 0. Negative zero is read as 0. `field` names the value in messages.
+Result<double> parse_number_text(std::string_view text, std::string_view field);
+// A p-value written as text (CSV cell, `decide --p`): parse_number_text, then within [0, 1].
 Result<double> parse_p_value_text(std::string_view text);
+// A p-value given as a JSON value: a JSON number in [0, 1] (not a string, not null); negative
+// zero is read as 0. parse_json_object() has already refused numbers a double cannot hold.
+Result<double> p_value_from_json(const nlohmann::json& value);
 Result<double> parse_time_text(std::string_view text);  // ISO 8601 date / date-time, or a number
-Status validate_test_id(std::string_view id);           // 1..256 bytes, no control characters
+// 1..256 bytes of valid UTF-8, without control characters (C0, DEL, C1) and without white space
+// at either end. One rule for every input: CSV, JSON Lines, pipe, HTTP, `decide --id`, the ledger.
+Status validate_test_id(std::string_view id);
+
+// One test given as a JSON object (a JSON Lines row, a pipe line, an HTTP body): id (a JSON
+// string, or an integer taken as its decimal text), p_value (a JSON number in [0, 1]; null or
+// absent: summary columns), finished_at (string or number), is_null (true, false, 0 or 1),
+// summary columns (numbers, or strings holding numbers). Other keys are ignored. Summary columns
+// are read only when `summary_direction` is given (the stream's frozen direction, or a replay's);
+// without it a row without p_value is refused. The record's `line` is 0; the caller adds where.
+Result<TestRecord> test_record_from_json(const nlohmann::json& object,
+                                         std::optional<Alternative> summary_direction);
 
 // The deepest nesting of arrays and objects accepted in any JSON input (request bodies, pipe lines,
 // JSON Lines rows). Deeper text is refused before it is parsed, so no input can exhaust the stack.
@@ -69,7 +98,10 @@ inline constexpr int kMaxJsonDepth = 32;
 
 // Parses one JSON text that must be an object: the one JSON reader of every input. Errors
 // (kInvalidInput), none of which quotes more than excerpt() of the input: not valid JSON (with the
-// byte offset), nested deeper than kMaxJsonDepth, not an object (names the type found).
+// byte offset), NaN or Infinity (not JSON numbers), a number too large for a double or not zero
+// but too small to be held, a key given twice in one object (names the key), nested deeper than
+// kMaxJsonDepth, not an object (names the type found). A UTF-8 byte-order mark at the start is
+// skipped.
 Result<nlohmann::json> parse_json_object(std::string_view text);
 
 // A value as it may appear in a message: at most `max_bytes` of it (then "...(N bytes)"), with

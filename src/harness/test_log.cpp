@@ -1,10 +1,12 @@
-// Reading logs of finished tests (docs/formats.md).
+// Reading logs of finished tests (docs/formats.md), and the one reading of each input value that
+// every other input path (pipe, HTTP, decide --p) shares.
 #include "alphaledger/test_log.hpp"
 
 #include <algorithm>
 #include <charconv>
 #include <cmath>
 #include <fstream>
+#include <iostream>
 #include <nlohmann/json.hpp>
 #include <set>
 #include <sstream>
@@ -55,9 +57,15 @@ bool split_csv(std::string_view line, std::vector<std::string>& out) {
   return true;
 }
 
-bool parse_int(std::string_view s, int& v) {
-  auto [p, ec] = std::from_chars(s.data(), s.data() + s.size(), v);
-  return ec == std::errc() && p == s.data() + s.size() && !s.empty();
+// A fixed-width run of ASCII digits (no sign, no spaces).
+bool parse_digits(std::string_view s, int& v) {
+  if (s.empty()) return false;
+  v = 0;
+  for (char c : s) {
+    if (c < '0' || c > '9') return false;
+    v = v * 10 + (c - '0');
+  }
+  return true;
 }
 
 // Days since 1970-01-01 of a proleptic Gregorian date (H. Hinnant's days_from_civil algorithm).
@@ -74,7 +82,8 @@ bool parse_iso(std::string_view s, double& out) {
   // YYYY-MM-DD[(T| )hh:mm[:ss[.fff]][Z|(+|-)hh:mm]]
   if (s.size() < 10 || s[4] != '-' || s[7] != '-') return false;
   int y, mo, d;
-  if (!parse_int(s.substr(0, 4), y) || !parse_int(s.substr(5, 2), mo) || !parse_int(s.substr(8, 2), d))
+  if (!parse_digits(s.substr(0, 4), y) || !parse_digits(s.substr(5, 2), mo) ||
+      !parse_digits(s.substr(8, 2), d))
     return false;
   static constexpr int kDays[] = {31, 29, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31};
   if (mo < 1 || mo > 12 || d < 1 || d > kDays[mo - 1]) return false;
@@ -87,20 +96,21 @@ bool parse_iso(std::string_view s, double& out) {
     if (rest[0] != 'T' && rest[0] != ' ') return false;
     rest.remove_prefix(1);
     int hh, mm, ss = 0;
-    if (rest.size() < 5 || rest[2] != ':' || !parse_int(rest.substr(0, 2), hh) ||
-        !parse_int(rest.substr(3, 2), mm))
+    if (rest.size() < 5 || rest[2] != ':' || !parse_digits(rest.substr(0, 2), hh) ||
+        !parse_digits(rest.substr(3, 2), mm))
       return false;
     rest.remove_prefix(5);
     double frac = 0;
     if (!rest.empty() && rest[0] == ':') {
-      if (rest.size() < 3 || !parse_int(rest.substr(1, 2), ss)) return false;
+      if (rest.size() < 3 || !parse_digits(rest.substr(1, 2), ss)) return false;
       rest.remove_prefix(3);
       if (!rest.empty() && rest[0] == '.') {
         std::size_t n = 1;
         while (n < rest.size() && rest[n] >= '0' && rest[n] <= '9') ++n;
         if (n == 1) return false;
-        std::string f = "0" + std::string(rest.substr(0, n));
-        frac = std::stod(f);
+        // Digits past the 18th cannot change a double of seconds below 1; they are checked, not used.
+        const std::string f = "0." + std::string(rest.substr(1, std::min<std::size_t>(n - 1, 18)));
+        std::from_chars(f.data(), f.data() + f.size(), frac);
         rest.remove_prefix(n);
       }
     }
@@ -110,7 +120,8 @@ bool parse_iso(std::string_view s, double& out) {
       if (rest == "Z") {
       } else if ((rest[0] == '+' || rest[0] == '-') && rest.size() == 6 && rest[3] == ':') {
         int oh, om;
-        if (!parse_int(rest.substr(1, 2), oh) || !parse_int(rest.substr(4, 2), om)) return false;
+        if (!parse_digits(rest.substr(1, 2), oh) || !parse_digits(rest.substr(4, 2), om)) return false;
+        if (oh > 23 || om > 59) return false;
         const double off = oh * 3600.0 + om * 60.0;
         secs += rest[0] == '+' ? -off : off;
       } else {
@@ -126,47 +137,218 @@ std::string where(std::string_view source, std::size_t line) {
   return std::string(source) + ":" + std::to_string(line) + ": ";
 }
 
+// Decodes one UTF-8 sequence at s[i] strictly (no overlong forms, no surrogates, at most
+// U+10FFFF). Returns its length, or 0 when the bytes there are not valid UTF-8.
+std::size_t utf8_length(std::string_view s, std::size_t i, char32_t& cp) {
+  const auto b0 = static_cast<unsigned char>(s[i]);
+  if (b0 < 0x80) {
+    cp = b0;
+    return 1;
+  }
+  std::size_t len;
+  char32_t min;
+  if ((b0 & 0xE0) == 0xC0) {
+    len = 2, cp = b0 & 0x1F, min = 0x80;
+  } else if ((b0 & 0xF0) == 0xE0) {
+    len = 3, cp = b0 & 0x0F, min = 0x800;
+  } else if ((b0 & 0xF8) == 0xF0) {
+    len = 4, cp = b0 & 0x07, min = 0x10000;
+  } else {
+    return 0;
+  }
+  if (i + len > s.size()) return 0;
+  for (std::size_t k = 1; k < len; ++k) {
+    const auto b = static_cast<unsigned char>(s[i + k]);
+    if ((b & 0xC0) != 0x80) return 0;
+    cp = (cp << 6) | (b & 0x3F);
+  }
+  if (cp < min || cp > 0x10FFFF || (cp >= 0xD800 && cp <= 0xDFFF)) return 0;
+  return len;
+}
+
+bool is_control(char32_t cp) { return cp < 0x20 || (cp >= 0x7F && cp <= 0x9F); }
+
+enum class NumberText { kOk, kSyntax, kTooLarge, kTooSmall };
+
+// The one reading of a number written as text (docs/formats.md, "Numbers").
+NumberText read_number(std::string_view t, double& v) {
+  if (t.empty()) return NumberText::kSyntax;
+  // from_chars also reads "inf", "nan" and "infinity": only digits, '.', 'e'/'E' and '-' are allowed.
+  for (char c : t) {
+    if (!((c >= '0' && c <= '9') || c == '.' || c == 'e' || c == 'E' || c == '-')) return NumberText::kSyntax;
+  }
+  auto [p, ec] = std::from_chars(t.data(), t.data() + t.size(), v);
+  if (p != t.data() + t.size()) return NumberText::kSyntax;
+  if (ec == std::errc::result_out_of_range) {
+    // Out of range both ways: tell which from the decimal magnitude of the text.
+    std::size_t i = t[0] == '-' ? 1 : 0;
+    long long lead = 0;  // power of ten of the first non-zero digit, before the exponent
+    bool seen_point = false, seen_nonzero = false;
+    long long int_digits = 0, zeros_after_point = 0;
+    for (; i < t.size() && t[i] != 'e' && t[i] != 'E'; ++i) {
+      if (t[i] == '.') {
+        seen_point = true;
+      } else if (!seen_nonzero) {
+        if (t[i] != '0') {
+          seen_nonzero = true;
+        } else if (seen_point) {
+          ++zeros_after_point;
+        }
+      } else if (!seen_point) {
+        ++int_digits;
+      }
+    }
+    lead = seen_point && int_digits == 0 ? -(zeros_after_point + 1) : int_digits;
+    long long exponent = 0;
+    if (i < t.size()) {
+      std::size_t k = i + 1;
+      const bool negative = k < t.size() && t[k] == '-';
+      if (negative) ++k;
+      for (; k < t.size(); ++k) exponent = std::min<long long>(exponent * 10 + (t[k] - '0'), 1LL << 40);
+      if (negative) exponent = -exponent;
+    }
+    return lead + exponent < 0 ? NumberText::kTooSmall : NumberText::kTooLarge;
+  }
+  if (ec != std::errc()) return NumberText::kSyntax;
+  if (v == 0) v = 0.0;  // -0 is 0
+  return NumberText::kOk;
+}
+
+std::string number_error(NumberText kind, std::string_view field, std::string_view accepted,
+                         std::string_view t) {
+  const std::string f(field);
+  switch (kind) {
+    case NumberText::kTooSmall:
+      return f + " " + excerpt(t) +
+             " is not zero but too small to be held as a number (the smallest is about 4.9e-324); "
+             "write 0 if zero is meant";
+    case NumberText::kTooLarge:
+      return f + " must be " + std::string(accepted) + ", got " + excerpt(t) +
+             ", too large to be held as a number";
+    default:
+      return f + " must be " + std::string(accepted) + ", got '" + excerpt(t) +
+             "' (write it like 0.01 or 1e-8)";
+  }
+}
+
 }  // namespace
+
+Result<double> parse_number_text(std::string_view text, std::string_view field) {
+  const std::string t = trim(text);
+  double v = 0;
+  const NumberText kind = read_number(t, v);
+  if (kind != NumberText::kOk) return invalid_input(number_error(kind, field, "a number", t));
+  return v;
+}
 
 Result<double> parse_p_value_text(std::string_view text) {
   const std::string t = trim(text);
   double v = 0;
-  auto [p, ec] = std::from_chars(t.data(), t.data() + t.size(), v);
-  if (t.empty() || ec != std::errc() || p != t.data() + t.size()) {
-    return invalid_input("p_value must be a number in [0, 1], got '" + t + "'");
-  }
-  if (!(v >= 0.0 && v <= 1.0)) return invalid_input("p_value must be a number in [0, 1], got " + t);
+  const NumberText kind = read_number(t, v);
+  if (kind != NumberText::kOk) return invalid_input(number_error(kind, "p_value", "a number in [0, 1]", t));
+  if (!(v >= 0.0 && v <= 1.0)) return invalid_input("p_value must be a number in [0, 1], got " + excerpt(t));
+  return v;
+}
+
+namespace {
+
+// A JSON value as it may appear in a message: its type, and an excerpt of its text.
+std::string describe_json(const nlohmann::json& v) {
+  return excerpt(v.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
+}
+
+}  // namespace
+
+Result<double> p_value_from_json(const nlohmann::json& value) {
+  if (!value.is_number())
+    return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(value));
+  double v = value.get<double>();
+  if (!(v >= 0.0 && v <= 1.0))
+    return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(value));
+  if (v == 0) v = 0.0;  // -0 is 0
   return v;
 }
 
 Result<double> parse_time_text(std::string_view text) {
   const std::string t = trim(text);
   double v = 0;
-  auto [p, ec] = std::from_chars(t.data(), t.data() + t.size(), v);
-  if (!t.empty() && ec == std::errc() && p == t.data() + t.size() && std::isfinite(v)) return v;
+  const NumberText kind = read_number(t, v);
+  if (kind == NumberText::kOk) return v;
+  if (kind != NumberText::kSyntax) return invalid_input(number_error(kind, "finished_at", "a number", t));
   if (parse_iso(t, v)) return v;
   return invalid_input(
       "finished_at must be an ISO 8601 date (2025-03-14) or date-time "
       "(2025-03-14T09:30:00Z), or a number, got '" +
-      t + "'");
+      excerpt(t) + "'");
 }
 
 Status validate_test_id(std::string_view id) {
   if (id.empty()) return invalid_input("id must not be empty");
-  if (id.size() > 256) return invalid_input("id must be at most 256 bytes, got " + std::to_string(id.size()));
-  for (char c : id) {
-    const auto u = static_cast<unsigned char>(c);
-    if (u < 0x20 || u == 0x7f) return invalid_input("id must not contain control characters");
+  if (id.size() > 256)
+    return invalid_input("id must be at most 256 bytes, got " + std::to_string(id.size()) + " bytes: '" +
+                         excerpt(id) + "'");
+  for (std::size_t i = 0; i < id.size();) {
+    char32_t cp = 0;
+    const std::size_t len = utf8_length(id, i, cp);
+    if (len == 0)
+      return invalid_input("id must be valid UTF-8 text, got '" + excerpt(id) + "' (bad byte at offset " +
+                           std::to_string(i) + ")");
+    if (is_control(cp))
+      return invalid_input("id must not contain control characters, got '" + excerpt(id) + "'");
+    i += len;
   }
+  const auto space = [](char c) { return c == ' ' || c == '\t'; };
+  if (space(id.front()) || space(id.back()))
+    return invalid_input("id must not begin or end with white space, got '" + excerpt(id) + "'");
   return {};
 }
 
-// A non-empty p_value is used as given; otherwise the row's summary columns are turned into a
-// p-value in the given direction (docs/formats.md, "Summary columns"; alphaledger/stats.hpp).
-Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields, Alternative alternative) {
+namespace {
+
+bool is_summary_column(std::string_view name) {
+  return name == kControlNColumn || name == kControlConversionsColumn || name == kTreatmentNColumn ||
+         name == kTreatmentConversionsColumn || name == kControlMeanColumn || name == kControlSdColumn ||
+         name == kTreatmentMeanColumn || name == kTreatmentSdColumn;
+}
+
+// The p-value of a row: a non-empty p_value as given; otherwise, when `direction` is given, the
+// summary columns (docs/formats.md, "Summary columns"; alphaledger/stats.hpp). Summary cells are
+// read by parse_number_text first, so the statistics layer sees only canonical number text (and
+// never a megabyte cell to quote).
+Result<double> row_p_value(const std::map<std::string, std::string>& fields,
+                           std::optional<Alternative> direction) {
   auto it = fields.find("p_value");
   if (it != fields.end() && !trim(it->second).empty()) return parse_p_value_text(it->second);
-  return p_value_from_summary(fields, alternative);
+  bool any_summary = false;
+  std::map<std::string, std::string> summary;
+  for (const auto& [name, text] : fields) {
+    if (!is_summary_column(name) || trim(text).empty()) continue;
+    any_summary = true;
+    auto v = parse_number_text(text, name);
+    if (!v) return v.error();
+    summary[name] = format_number(*v);
+  }
+  if (!direction) {
+    return invalid_input(
+        any_summary ? "missing field 'p_value' (a number in [0, 1]); summary columns are not read here"
+                    : "missing field 'p_value' (a number in [0, 1])");
+  }
+  auto p = p_value_from_summary(summary, *direction);
+  // Extreme summaries (a standard deviation of 8e131, say) overflow the test's arithmetic; the
+  // statistics layer can then return NaN. Refuse rather than decide on it.
+  if (p && !(*p >= 0.0 && *p <= 1.0)) {
+    return invalid_input(
+        "the summary columns give no p-value: their values are too large to compute with "
+        "(a standard deviation or mean near the limits of a double?)");
+  }
+  return p;
+}
+
+}  // namespace
+
+Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields,
+                                   Alternative alternative) {
+  return row_p_value(fields, alternative);
 }
 
 Result<double> p_value_from_fields(const std::map<std::string, std::string>& fields) {
@@ -177,8 +359,10 @@ Result<LogFormat> log_format_for(std::string_view path, std::optional<std::strin
   if (forced) {
     if (*forced == "csv") return LogFormat::kCsv;
     if (*forced == "jsonl") return LogFormat::kJsonLines;
-    return invalid_input("format must be csv or jsonl, got '" + std::string(*forced) + "'");
+    return invalid_input("format must be csv or jsonl, got '" + excerpt(*forced) + "'");
   }
+  if (path == "-")
+    return invalid_input("reading standard input ('-'): give its format with --format csv or --format jsonl");
   auto ends = [&](std::string_view ext) {
     return path.size() >= ext.size() && path.substr(path.size() - ext.size()) == ext;
   };
@@ -191,23 +375,21 @@ Result<LogFormat> log_format_for(std::string_view path, std::optional<std::strin
 
 namespace {
 
-// Turns one row's fields into a record; common to CSV and JSON Lines.
-Result<TestRecord> make_record(const std::map<std::string, std::string>& f, std::string_view source,
-                               std::size_t line, Alternative alternative) {
+// Turns one row's fields into a record (line 0, no location in messages): common to CSV, JSON
+// Lines, pipe and HTTP.
+Result<TestRecord> make_record(const std::map<std::string, std::string>& f,
+                               std::optional<Alternative> direction) {
   TestRecord r;
-  r.line = line;
   auto id = f.find("id");
-  if (id == f.end() || id->second.empty())
-    return invalid_input(where(source, line) + "missing id (a non-empty text of at most 256 bytes)");
-  if (auto s = validate_test_id(id->second); !s)
-    return invalid_input(where(source, line) + s.error().message);
+  if (id == f.end()) return invalid_input("missing field 'id' (a text of 1 to 256 bytes)");
+  if (auto s = validate_test_id(id->second); !s) return s.error();
   r.id = id->second;
-  auto p = p_value_from_fields(f, alternative);
-  if (!p) return invalid_input(where(source, line) + "test '" + r.id + "': " + p.error().message);
+  auto p = row_p_value(f, direction);
+  if (!p) return invalid_input("test '" + r.id + "': " + p.error().message);
   r.p_value = *p;
   if (auto t = f.find("finished_at"); t != f.end() && !trim(t->second).empty()) {
     auto v = parse_time_text(t->second);
-    if (!v) return invalid_input(where(source, line) + v.error().message);
+    if (!v) return v.error();
     r.finished_at = *v;
   }
   if (auto n = f.find("is_null"); n != f.end() && !trim(n->second).empty()) {
@@ -217,21 +399,90 @@ Result<TestRecord> make_record(const std::map<std::string, std::string>& f, std:
     else if (v == "0" || v == "false")
       r.is_null = false;
     else
-      return invalid_input(where(source, line) + "is_null must be 0 or 1, got '" + v + "'");
+      return invalid_input("is_null must be 0 or 1 (or true or false), got '" + excerpt(v) + "'");
   }
   return r;
 }
 
-std::string json_field_text(const nlohmann::json& v) {
-  if (v.is_string()) return v.get<std::string>();
-  if (v.is_boolean()) return v.get<bool>() ? "1" : "0";
-  if (v.is_number_integer() || v.is_number_unsigned()) return v.dump();
-  if (v.is_number_float()) return format_number(v.get<double>());
-  if (v.is_null()) return "";
-  return v.dump();
+// The JSON types each known key accepts, turned into the text a CSV cell would hold, so that CSV
+// and JSON rows then go through the same make_record.
+Result<std::map<std::string, std::string>> json_fields(const nlohmann::json& object) {
+  std::map<std::string, std::string> f;
+  for (auto it = object.begin(); it != object.end(); ++it) {
+    const std::string& key = it.key();
+    const nlohmann::json& v = it.value();
+    if (key == "id") {
+      if (v.is_string())
+        f[key] = v.get<std::string>();
+      else if (v.is_number_integer() || v.is_number_unsigned())
+        f[key] = v.dump();
+      else
+        return invalid_input("id must be a JSON string (or an integer), got " + describe_json(v));
+    } else if (key == "p_value") {
+      if (v.is_null()) continue;  // absent: summary columns
+      if (!v.is_number())
+        return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(v));
+      f[key] = format_number(v.get<double>());
+    } else if (key == "finished_at") {
+      if (v.is_null()) continue;
+      if (v.is_string())
+        f[key] = v.get<std::string>();
+      else if (v.is_number())
+        f[key] = format_number(v.get<double>());
+      else
+        return invalid_input("finished_at must be a JSON string (ISO 8601) or a number, got " +
+                             describe_json(v));
+    } else if (key == "is_null") {
+      if (v.is_null()) continue;
+      if (v.is_boolean())
+        f[key] = v.get<bool>() ? "1" : "0";
+      else if (v.is_number())
+        f[key] = format_number(v.get<double>());
+      else
+        return invalid_input("is_null must be true, false, 0 or 1, got " + describe_json(v));
+    } else if (is_summary_column(key)) {
+      if (v.is_null()) continue;
+      if (v.is_string())
+        f[key] = v.get<std::string>();
+      else if (v.is_number())
+        f[key] = format_number(v.get<double>());
+      else
+        return invalid_input(key + " must be a JSON number (or a string holding one), got " +
+                             describe_json(v));
+    }
+    // Other keys are ignored, whatever their type.
+  }
+  return f;
+}
+
+// Reads one line ending in LF, CRLF or a lone CR (the end is not kept). False at the end of input.
+bool read_line(std::streambuf& in, std::string& line) {
+  line.clear();
+  bool any = false;
+  for (;;) {
+    const int c = in.sbumpc();
+    if (c == std::char_traits<char>::eof()) return any;
+    any = true;
+    if (c == '\n') return true;
+    if (c == '\r') {
+      if (in.sgetc() == '\n') in.sbumpc();
+      return true;
+    }
+    line.push_back(static_cast<char>(c));
+  }
 }
 
 }  // namespace
+
+Result<TestRecord> test_record_from_json(const nlohmann::json& object,
+                                         std::optional<Alternative> summary_direction) {
+  if (!object.is_object())
+    return invalid_input("expected a JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}, got " +
+                         describe_json(object));
+  auto fields = json_fields(object);
+  if (!fields) return fields.error();
+  return make_record(*fields, summary_direction);
+}
 
 Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogFormat format,
                               const ReadOptions& options) {
@@ -241,9 +492,11 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
   std::size_t line_no = 0;
   std::vector<std::string> header, cells;
   bool have_header = false;
-  while (std::getline(in, line)) {
+  std::streambuf* buf = in.rdbuf();
+  if (buf == nullptr) return invalid_input(std::string(source) + ": cannot read");
+  while (read_line(*buf, line)) {
     ++line_no;
-    if (!line.empty() && line.back() == '\r') line.pop_back();
+    if (line_no == 1 && line.rfind("\xEF\xBB\xBF", 0) == 0) line.erase(0, 3);  // a UTF-8 byte-order mark
     if (trim(line).empty()) continue;
     std::map<std::string, std::string> fields;
     if (format == LogFormat::kCsv) {
@@ -251,9 +504,18 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
         return invalid_input(where(source, line_no) + "unbalanced quote in CSV row");
       if (!have_header) {
         header = cells;
-        if (!header.empty() && header[0].rfind("\xEF\xBB\xBF", 0) == 0) header[0] = header[0].substr(3);
         have_header = true;
-        if (std::find(header.begin(), header.end(), "id") == header.end()) {
+        std::map<std::string_view, std::size_t> seen;
+        for (std::size_t i = 0; i < header.size(); ++i) {
+          if (header[i].empty()) continue;  // an unnamed column is ignored
+          auto [at, inserted] = seen.emplace(header[i], i + 1);
+          if (!inserted) {
+            return invalid_input(where(source, line_no) + "the header names column '" + excerpt(header[i]) +
+                                 "' twice (columns " + std::to_string(at->second) + " and " +
+                                 std::to_string(i + 1) + "); each column may appear once");
+          }
+        }
+        if (seen.find("id") == seen.end()) {
           return invalid_input(where(source, line_no) +
                                "the header has no 'id' column; required columns: id, p_value (or summary "
                                "columns, see docs/formats.md)");
@@ -264,21 +526,19 @@ Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogForm
         return invalid_input(where(source, line_no) + "expected " + std::to_string(header.size()) +
                              " fields as in the header, got " + std::to_string(cells.size()));
       }
-      for (std::size_t i = 0; i < header.size(); ++i) fields[header[i]] = cells[i];
+      for (std::size_t i = 0; i < header.size(); ++i) {
+        if (!header[i].empty()) fields[header[i]] = cells[i];
+      }
     } else {
       auto parsed = parse_json_object(line);
       if (!parsed) return invalid_input(where(source, line_no) + parsed.error().message);
-      const nlohmann::json& j = *parsed;
-      for (auto it = j.begin(); it != j.end(); ++it) {
-        if (it.key() == "p_value" && !it.value().is_number() && !it.value().is_null()) {
-          return invalid_input(where(source, line_no) + "p_value must be a JSON number in [0, 1], got " +
-                               excerpt(it.value().dump(-1, ' ', false, nlohmann::json::error_handler_t::replace)));
-        }
-        fields[it.key()] = json_field_text(it.value());
-      }
+      auto f = json_fields(*parsed);
+      if (!f) return invalid_input(where(source, line_no) + f.error().message);
+      fields = std::move(f).value();
     }
-    auto rec = make_record(fields, source, line_no, options.alternative);
-    if (!rec) return rec.error();
+    auto rec = make_record(fields, options.alternative);
+    if (!rec) return invalid_input(where(source, line_no) + rec.error().message);
+    rec->line = line_no;
     log.records.push_back(std::move(rec).value());
   }
   if (in.bad()) return invalid_input(std::string(source) + ": read error");
@@ -320,37 +580,131 @@ Result<TestLog> read_test_log_file(const std::string& path, std::optional<std::s
                                    const ReadOptions& options) {
   auto format = log_format_for(path, forced_format);
   if (!format) return format.error();
+  if (path == "-") return read_test_log(std::cin, "stdin", *format, options);
   std::ifstream in(path, std::ios::binary);
   if (!in) return invalid_input(path + ": cannot open the file (does it exist, can it be read?)");
   return read_test_log(in, path, *format, options);
 }
 
-}  // namespace alphaledger
-
-namespace alphaledger {
 namespace {
 
-// Nesting depth of a JSON text, counting brackets outside strings; stops counting past `limit`.
-int json_depth(std::string_view text, int limit) {
-  int depth = 0, deepest = 0;
-  bool in_string = false, escaped = false;
-  for (char c : text) {
-    if (in_string) {
-      if (escaped) escaped = false;
-      else if (c == '\\') escaped = true;
-      else if (c == '"') in_string = false;
-      continue;
+// Builds the document of parse_json_object, refusing what a plain parse would accept or answer
+// with library text: keys given twice, nesting deeper than kMaxJsonDepth, numbers that underflow
+// to 0. Containers are built in place, as nlohmann's own DOM builder does: a pointer to an open
+// container stays valid because its parent grows only after the container is closed.
+class StrictBuilder {
+ public:
+  using Json = nlohmann::json;
+  explicit StrictBuilder(std::string_view text) : text_(text) {}
+
+  bool null() { return put(nullptr) != nullptr; }
+  bool boolean(bool v) { return put(v) != nullptr; }
+  bool number_integer(Json::number_integer_t v) { return put(v) != nullptr; }
+  bool number_unsigned(Json::number_unsigned_t v) { return put(v) != nullptr; }
+  bool number_float(Json::number_float_t v, const Json::string_t& text) {
+    if (v == 0 && nonzero_mantissa(text)) {
+      error_ = "the number " + excerpt(text) +
+               " is not zero but too small to be held as a number (the smallest is about 4.9e-324); write 0 "
+               "if zero is meant";
+      return false;
     }
-    if (c == '"') in_string = true;
-    else if (c == '[' || c == '{') {
-      deepest = std::max(deepest, ++depth);
-      if (deepest > limit) return deepest;
-    } else if (c == ']' || c == '}') {
-      --depth;
-    }
+    return put(v) != nullptr;
   }
-  return deepest;
-}
+  bool string(Json::string_t& v) { return put(std::move(v)) != nullptr; }
+  bool binary(Json::binary_t&) {
+    error_ = "not valid JSON (binary values are not JSON text)";
+    return false;
+  }
+  bool start_object(std::size_t) { return open(Json::object()); }
+  bool key(Json::string_t& k) {
+    Json* object = stack_.back();
+    if (object->contains(k)) {
+      error_ = "the key '" + excerpt(k) + "' appears twice in one object; give each key once";
+      return false;
+    }
+    slot_ = &(*object)[k];
+    return true;
+  }
+  bool end_object() {
+    stack_.pop_back();
+    return true;
+  }
+  bool start_array(std::size_t) { return open(Json::array()); }
+  bool end_array() {
+    stack_.pop_back();
+    return true;
+  }
+  bool parse_error(std::size_t position, const std::string&, const nlohmann::json::exception& ex) {
+    const std::size_t at = std::min(position, text_.size());
+    const std::string word = word_near(at);
+    if (ex.id == 406) {
+      error_ = "the number " + excerpt(word) + " near byte " + std::to_string(at) +
+               " is too large to be held as a number";
+    } else if (is_non_number(word)) {
+      error_ = "not valid JSON near byte " + std::to_string(at) + ": " + excerpt(word) +
+               " is not a JSON number (JSON has no NaN or Infinity); give a number such as 0.01";
+    } else {
+      error_ = "not valid JSON (at byte " + std::to_string(at) + ")";
+    }
+    return false;
+  }
+
+  std::string error_;
+  Json root_;
+
+ private:
+  static bool nonzero_mantissa(std::string_view text) {
+    for (char c : text) {
+      if (c == 'e' || c == 'E') break;
+      if (c >= '1' && c <= '9') return true;
+    }
+    return false;
+  }
+  static bool is_non_number(std::string word) {
+    if (!word.empty() && (word[0] == '-' || word[0] == '+')) word.erase(0, 1);
+    std::transform(word.begin(), word.end(), word.begin(),
+                   [](char c) { return static_cast<char>(c >= 'A' && c <= 'Z' ? c - 'A' + 'a' : c); });
+    return word.rfind("nan", 0) == 0 || word.rfind("inf", 0) == 0;
+  }
+  // The run of letters, digits, signs and dots around byte `at` (the token the error is in).
+  std::string word_near(std::size_t at) const {
+    const auto part = [](char c) {
+      return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-' ||
+             c == '+' || c == '.';
+    };
+    std::size_t b = at, e = at;
+    if (b > 0 && b == text_.size()) --b, --e;
+    while (b > 0 && part(text_[b - 1])) --b;
+    while (e < text_.size() && part(text_[e])) ++e;
+    return std::string(text_.substr(b, e - b));
+  }
+  Json* put(Json v) {
+    if (stack_.empty()) {
+      root_ = std::move(v);
+      return &root_;
+    }
+    Json* parent = stack_.back();
+    if (parent->is_array()) {
+      parent->push_back(std::move(v));
+      return &parent->back();
+    }
+    *slot_ = std::move(v);
+    return slot_;
+  }
+  bool open(Json container) {
+    if (stack_.size() >= static_cast<std::size_t>(kMaxJsonDepth)) {
+      error_ = "JSON nested deeper than " + std::to_string(kMaxJsonDepth) +
+               " levels; expected one flat object such as {\"id\": \"t1\", \"p_value\": 0.01}";
+      return false;
+    }
+    stack_.push_back(put(std::move(container)));
+    return true;
+  }
+
+  std::string_view text_;
+  std::vector<Json*> stack_;
+  Json* slot_ = nullptr;
+};
 
 }  // namespace
 
@@ -359,44 +713,54 @@ std::string excerpt(std::string_view value, std::size_t max_bytes) {
   const std::size_t n = std::min(value.size(), max_bytes);
   std::size_t i = 0;
   while (i < n) {
-    const auto c = static_cast<unsigned char>(value[i]);
-    std::size_t len = c < 0x80 ? 1 : (c >> 5) == 0x6 ? 2 : (c >> 4) == 0xE ? 3 : (c >> 3) == 0x1E ? 4 : 0;
-    bool valid = len > 0 && i + len <= value.size();
-    for (std::size_t k = 1; valid && k < len; ++k)
-      valid = (static_cast<unsigned char>(value[i + k]) & 0xC0) == 0x80;
-    if (valid && len == 1 && (c < 0x20 || c == 0x7F)) valid = false;
-    if (!valid) {
-      static const char* kHex = "0123456789abcdef";
-      out += "\\x";
-      out.push_back(kHex[c >> 4]);
-      out.push_back(kHex[c & 0xF]);
-      ++i;
+    char32_t cp = 0;
+    const std::size_t len = utf8_length(value, i, cp);
+    if (len > 0 && i + len > n) break;  // a character cut by the limit is left out
+    if (len == 0 || is_control(cp)) {
+      // Not valid UTF-8, or a control character: each byte as \xHH.
+      const std::size_t bytes = len == 0 ? 1 : len;
+      for (std::size_t k = 0; k < bytes; ++k, ++i) {
+        static const char* kHex = "0123456789abcdef";
+        const auto c = static_cast<unsigned char>(value[i]);
+        out += "\\x";
+        out.push_back(kHex[c >> 4]);
+        out.push_back(kHex[c & 0xF]);
+      }
       continue;
     }
     out.append(value.substr(i, len));
     i += len;
   }
-  if (value.size() > n || i < value.size()) out += "...(" + std::to_string(value.size()) + " bytes)";
+  if (value.size() > n) out += "...(" + std::to_string(value.size()) + " bytes)";
   return out;
 }
 
 Result<nlohmann::json> parse_json_object(std::string_view text) {
-  if (json_depth(text, kMaxJsonDepth) > kMaxJsonDepth) {
-    return invalid_input("JSON nested deeper than " + std::to_string(kMaxJsonDepth) +
-                         " levels; expected one flat object such as {\"id\": \"t1\", \"p_value\": 0.01}");
-  }
-  nlohmann::json j;
+  StrictBuilder builder(text);
+  bool ok = false;
   try {
-    j = nlohmann::json::parse(text);
-  } catch (const nlohmann::json::parse_error& e) {
-    return invalid_input("not valid JSON (at byte " + std::to_string(e.byte) +
-                         "); expected one object such as {\"id\": \"t1\", \"p_value\": 0.01}");
+    ok = nlohmann::json::sax_parse(text, &builder, nlohmann::json::input_format_t::json, /*strict=*/true,
+                                   /*ignore_comments=*/false);
+  } catch (const std::exception&) {
+    ok = false;
   }
+  if (!ok) {
+    if (builder.error_.empty()) builder.error_ = "not valid JSON";
+    if (builder.error_.rfind("not valid JSON", 0) == 0)
+      builder.error_ += "; expected one object such as {\"id\": \"t1\", \"p_value\": 0.01}";
+    return invalid_input(builder.error_);
+  }
+  const nlohmann::json& j = builder.root_;
   if (!j.is_object()) {
-    return invalid_input(std::string("expected a JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}, got ") +
-                         (j.is_array() ? "an array" : j.is_string() ? "a string" : j.is_number() ? "a number" : j.is_boolean() ? "a boolean" : "null"));
+    return invalid_input(
+        std::string("expected a JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}, got ") +
+        (j.is_array()     ? "an array"
+         : j.is_string()  ? "a string"
+         : j.is_number()  ? "a number"
+         : j.is_boolean() ? "a boolean"
+                          : "null"));
   }
-  return j;
+  return std::move(builder.root_);
 }
 
 }  // namespace alphaledger

@@ -1,5 +1,7 @@
 // The JSON objects shared by `decide --json`, `pipe` and the HTTP routes (docs/http.md).
+#include <algorithm>
 #include <cmath>
+#include <iterator>
 
 #include "alphaledger/service.hpp"
 #include "alphaledger/stats.hpp"
@@ -56,34 +58,67 @@ std::string dump_json(const nlohmann::ordered_json& j) {
 }
 
 Result<TestInput> test_from_json(const nlohmann::json& object) {
-  if (!object.is_object()) {
-    return invalid_input("expected a JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}, got " +
-                         nlohmann::json(object.type_name()).get<std::string>());
+  auto r = test_record_from_json(object, std::nullopt);
+  if (!r) return r.error();
+  return TestInput{std::move(r->id), r->p_value};
+}
+
+Result<TestInput> test_from_json(const nlohmann::json& object, Alternative summary_direction) {
+  auto r = test_record_from_json(object, summary_direction);
+  if (!r) return r.error();
+  return TestInput{std::move(r->id), r->p_value};
+}
+
+Result<StreamRequest> stream_request_from_json(const nlohmann::json& j) {
+  static constexpr std::string_view kNumbers[] = {"alpha", "initial_wealth", "candidate_threshold",
+                                                  "discard_threshold", "payout"};
+  static constexpr std::string_view kTexts[] = {"name", "rule", "spending", "evaluation"};
+  if (!j.is_object())
+    return invalid_input("expected a JSON object such as " + std::string(kStreamRequestExample));
+  for (auto it = j.begin(); it != j.end(); ++it) {
+    const std::string& key = it.key();
+    const bool numeric = std::find(std::begin(kNumbers), std::end(kNumbers), key) != std::end(kNumbers);
+    const bool text = std::find(std::begin(kTexts), std::end(kTexts), key) != std::end(kTexts);
+    if (!numeric && !text) {
+      return invalid_input("unknown field '" + excerpt(key) +
+                           "'; accepted: name, rule, alpha, initial_wealth, "
+                           "candidate_threshold, discard_threshold, payout, spending, evaluation");
+    }
+    if (it.value().is_null()) continue;
+    const std::string shown =
+        excerpt(it.value().dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
+    if (numeric && !it.value().is_number())
+      return invalid_input(key + " must be a JSON number, got " + shown);
+    if (text && !it.value().is_string()) return invalid_input(key + " must be a JSON string, got " + shown);
   }
-  TestInput t;
-  auto id = object.find("id");
-  if (id == object.end()) return invalid_input("missing field 'id' (a text of 1 to 256 bytes)");
-  if (id->is_string()) {
-    t.id = id->get<std::string>();
-  } else if (id->is_number_integer() || id->is_number_unsigned()) {
-    t.id = id->dump();
-  } else {
-    return invalid_input("id must be a JSON string (or an integer), got " +
-                         id->dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
-  }
-  if (auto s = validate_test_id(t.id); !s) return s.error();
-  auto p = object.find("p_value");
-  if (p == object.end())
-    return invalid_input("test '" + t.id + "': missing field 'p_value' (a JSON number in [0, 1])");
-  if (!p->is_number()) {
-    return invalid_input("test '" + t.id + "': p_value must be a JSON number in [0, 1], got " +
-                         p->dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
-  }
-  t.p_value = p->get<double>();
-  if (!(t.p_value >= 0.0 && t.p_value <= 1.0)) {
-    return invalid_input("test '" + t.id + "': p_value must be a JSON number in [0, 1], got " + p->dump());
-  }
-  return t;
+  auto text = [&](const char* key) -> std::optional<std::string> {
+    auto it = j.find(key);
+    if (it == j.end() || it->is_null()) return std::nullopt;
+    return it->get<std::string>();
+  };
+  auto num = [&](const char* key) -> std::optional<double> {
+    auto it = j.find(key);
+    if (it == j.end() || it->is_null()) return std::nullopt;
+    const double v = it->get<double>();
+    return v == 0 ? 0.0 : v;  // -0 is 0, as everywhere
+  };
+  StreamRequest r;
+  auto name = text("name");
+  if (!name) return invalid_input("missing field 'name' (1 to 128 letters, digits, '-', '_' or '.')");
+  auto rule = text("rule");
+  if (!rule)
+    return invalid_input(
+        "missing field 'rule' (alpha-spending, alpha-investing, lond, lord++, saffron or addis)");
+  r.name = *name;
+  r.spec.rule = *rule;
+  r.spec.alpha = num("alpha");
+  r.spec.initial_wealth = num("initial_wealth");
+  r.spec.candidate_threshold = num("candidate_threshold");
+  r.spec.discard_threshold = num("discard_threshold");
+  r.spec.payout = num("payout");
+  r.spec.spending = text("spending");
+  r.spec.evaluation = text("evaluation");
+  return r;
 }
 
 }  // namespace alphaledger

@@ -24,7 +24,7 @@ std::string trim_ws(std::string_view s) {
   return std::string(s);
 }
 
-LineWork parse_line(std::uint64_t line_no, std::string_view text) {
+LineWork parse_line(std::uint64_t line_no, std::string_view text, Alternative direction) {
   LineWork w;
   w.line = line_no;
   const std::string t = trim_ws(text);
@@ -37,7 +37,7 @@ LineWork parse_line(std::uint64_t line_no, std::string_view text) {
     w.error = j.error().message;
     return w;
   }
-  auto input = test_from_json(*j);
+  auto input = test_from_json(*j, direction);  // summary rows in the stream's frozen direction
   if (!input) {
     w.error = input.error().message;
     return w;
@@ -119,11 +119,14 @@ class PipeRun {
 
 Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd, std::ostream& out,
                              int stop_fd) {
-  if (auto s = ledger.status(stream); !s) return s.error();
+  auto info = ledger.status(stream);
+  if (!info) return info.error();
+  const Alternative direction = info->alternative;
   PipeRun run(ledger, stream, out);
   std::string buffer;  // bytes read but not yet split into lines
   std::uint64_t line_no = 0;
   bool skipping_long = false;  // inside a line already answered as too long
+  bool after_cr = false;       // the last line ended with CR at the end of the buffer: skip one LF
   bool eof = false;
   char chunk[65536];
   while (!eof) {
@@ -149,23 +152,35 @@ Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd,
     }
     if (!stop && (fds[0].revents & POLLNVAL) != 0)
       return storage_error("cannot read the input: not an open file descriptor");
-    // Split off every complete line (and, at the end of input, the last unterminated one).
+    // Split off every complete line (and, at the end of input, the last unterminated one). A line
+    // ends with LF, CRLF or a lone CR, as in logs (docs/formats.md).
+    if (after_cr && !buffer.empty()) {
+      if (buffer[0] == '\n') buffer.erase(0, 1);
+      after_cr = false;
+    }
     std::vector<LineWork> work;
     std::size_t start = 0;
     while (true) {
-      const std::size_t nl = buffer.find('\n', start);
-      if (nl == std::string::npos) break;
+      const std::size_t end = buffer.find_first_of("\r\n", start);
+      if (end == std::string::npos) break;
       if (skipping_long) {
         skipping_long = false;  // the rest of an over-long line: already answered
       } else {
         ++line_no;
-        if (nl - start > kMaxPipeLineBytes) {
+        if (end - start > kMaxPipeLineBytes) {
           work.push_back(too_long(line_no));
         } else {
-          work.push_back(parse_line(line_no, std::string_view(buffer).substr(start, nl - start)));
+          work.push_back(parse_line(line_no, std::string_view(buffer).substr(start, end - start), direction));
         }
       }
-      start = nl + 1;
+      start = end + 1;
+      if (buffer[end] == '\r') {
+        if (start < buffer.size()) {
+          if (buffer[start] == '\n') ++start;
+        } else {
+          after_cr = true;  // the LF of a CRLF may arrive with the next read
+        }
+      }
     }
     buffer.erase(0, start);
     if (!skipping_long && buffer.size() > kMaxPipeLineBytes) {
@@ -178,7 +193,7 @@ Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd,
     }
     if (eof && !buffer.empty() && !skipping_long) {
       ++line_no;
-      work.push_back(parse_line(line_no, buffer));
+      work.push_back(parse_line(line_no, buffer, direction));
       buffer.clear();
     }
     if (!work.empty()) {

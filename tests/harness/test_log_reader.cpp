@@ -1,6 +1,8 @@
 // The log reader (docs/formats.md): CSV quoting, ordering by finished_at, ISO 8601 dates.
 #include <doctest/doctest.h>
 
+#include <cmath>
+#include <iostream>
 #include <sstream>
 
 #include "alphaledger/test_log.hpp"
@@ -60,4 +62,243 @@ TEST_CASE("TestLog: is_null marks the truth only when every row has it") {
   REQUIRE(partial.ok());
   CHECK_FALSE(partial->has_truth);
   CHECK_FALSE(read_csv("id,p_value,is_null\na,0.1,maybe\n").ok());
+}
+
+// ---- one meaning for each input (docs/formats.md, "One meaning for each input") ---------------
+// The rules checked here are our own choices (the strict reading), so none has an outside source.
+
+namespace {
+Result<TestLog> read_jsonl(const std::string& text, ReadOptions options = {}) {
+  std::istringstream in(text);
+  return read_test_log(in, "t.jsonl", LogFormat::kJsonLines, options);
+}
+std::string message_of(const Result<TestLog>& r) {
+  return r.ok() ? std::string("(no error)") : r.error().message;
+}
+bool has(const std::string& text, std::string_view part) { return text.find(part) != std::string::npos; }
+}  // namespace
+
+TEST_CASE(
+    "TestLog: a JSON Lines row nested 200,000 deep, even in an ignored field, is refused without a crash") {
+  const std::string deep = std::string(200000, '[') + std::string(200000, ']');
+  auto log = read_jsonl("{\"id\": \"a\", \"p_value\": 0.1, \"note\": " + deep + "}\n");
+  REQUIRE_FALSE(log.ok());
+  CHECK(has(log.error().message, "t.jsonl:1: JSON nested deeper than 32 levels"));
+  CHECK(log.error().message.size() < 300);
+  // Exactly kMaxJsonDepth levels are still read; one more is not.
+  const std::string ok_depth = std::string(31, '[') + std::string(31, ']');  // 31 + the row's object
+  CHECK(parse_json_object("{\"x\": " + ok_depth + "}").ok());
+  CHECK_FALSE(parse_json_object("{\"x\": [" + ok_depth + "]}").ok());
+  std::string objects_text;
+  for (int k = 0; k < 100000; ++k) objects_text += "{\"a\":";
+  auto objects = parse_json_object(objects_text);
+  REQUIRE_FALSE(objects.ok());
+  CHECK(has(objects.error().message, "nested deeper"));
+}
+
+TEST_CASE("TestLog: a megabyte cell is quoted as an excerpt in every message") {
+  const std::string big(1 << 20, '7');
+  const std::string bad = "x" + big;
+  for (const std::string& header :
+       {std::string("p_value"), std::string("finished_at"), std::string("is_null")}) {
+    INFO(header);
+    std::string text = "id,p_value" + (header == "p_value" ? std::string() : "," + header) + "\n";
+    text += "a," + (header == "p_value" ? bad : "0.5" + std::string(",") + bad) + "\n";
+    auto log = read_csv(text);
+    REQUIRE_FALSE(log.ok());
+    CHECK(log.error().message.size() < 400);
+    CHECK(has(log.error().message, "(1048577 bytes)"));
+  }
+  auto summary = read_csv("id,control_n,control_conversions,treatment_n,treatment_conversions\na,1" + big +
+                          "x,1,100,2\n");
+  REQUIRE_FALSE(summary.ok());
+  CHECK(has(summary.error().message, "control_n"));
+  CHECK(summary.error().message.size() < 400);
+  auto id = read_csv("id,p_value\n" + std::string(100000, 'i') + ",0.5\n");
+  REQUIRE_FALSE(id.ok());
+  CHECK(id.error().message.size() < 400);
+  CHECK(excerpt(std::string(100, 'a'), 10) == "aaaaaaaaaa...(100 bytes)");
+  CHECK(excerpt("a\nb\xff") == "a\\x0ab\\xff");
+  CHECK(excerpt("\xc3\xa9t\xc3\xa9", 2) == "\xc3\xa9...(5 bytes)");  // never cuts a character in two
+}
+
+TEST_CASE("TestLog: 1e-400 is refused as a p-value by every reader, not rounded to 0") {
+  for (const std::string& text : {std::string("1e-400"), std::string("0.") + std::string(400, '0') + "1"}) {
+    auto p = parse_p_value_text(text);
+    REQUIRE_FALSE(p.ok());
+    CHECK(has(p.error().message, "too small to be held"));
+  }
+  CHECK(has(message_of(read_csv("id,p_value\na,1e-400\n")), "too small"));
+  CHECK(has(message_of(read_jsonl("{\"id\": \"a\", \"p_value\": 1e-400}\n")), "too small"));
+  CHECK(test_record_from_json(nlohmann::json::parse("{\"id\": \"a\", \"p_value\": 1e-300}"), std::nullopt)
+            .ok());
+  // The smallest positive double (4.9e-324, IEEE 754 binary64) is held, and accepted everywhere.
+  CHECK(*parse_p_value_text("4.9e-324") > 0);
+  auto tiny = read_jsonl("{\"id\": \"a\", \"p_value\": 4.9e-324}\n");
+  REQUIRE(tiny.ok());
+  CHECK(tiny->records[0].p_value > 0);
+  // Too large: refused with its own reason.
+  auto big = parse_p_value_text("1e400");
+  REQUIRE_FALSE(big.ok());
+  CHECK(has(big.error().message, "too large"));
+  CHECK_FALSE(parse_p_value_text("inf").ok());
+  CHECK_FALSE(parse_p_value_text("nan").ok());
+  CHECK_FALSE(parse_p_value_text("+0.5").ok());
+  CHECK_FALSE(parse_p_value_text("0x1p-3").ok());
+  CHECK(*parse_p_value_text(" .5 ") == 0.5);
+}
+
+TEST_CASE("TestLog: negative zero is read as 0 everywhere") {
+  auto p = parse_p_value_text("-0");
+  REQUIRE(p.ok());
+  CHECK_FALSE(std::signbit(*p));
+  CHECK_FALSE(std::signbit(*parse_p_value_text("-0.0e5")));
+  auto csv = read_csv("id,p_value\na,-0\n");
+  REQUIRE(csv.ok());
+  CHECK_FALSE(std::signbit(csv->records[0].p_value));
+  auto jsonl = read_jsonl("{\"id\": \"a\", \"p_value\": -0.0}\n");
+  REQUIRE(jsonl.ok());
+  CHECK_FALSE(std::signbit(jsonl->records[0].p_value));
+  auto j = p_value_from_json(nlohmann::json(-0.0));
+  REQUIRE(j.ok());
+  CHECK_FALSE(std::signbit(*j));
+  CHECK_FALSE(std::signbit(*parse_time_text("-0")));
+}
+
+TEST_CASE("TestLog: NaN, Infinity and 1e400 in JSON get a message that says what is wrong") {
+  for (const std::string& v :
+       {std::string("NaN"), std::string("Infinity"), std::string("-Infinity"), std::string("nan")}) {
+    auto r = parse_json_object("{\"id\": \"a\", \"p_value\": " + v + "}");
+    REQUIRE_FALSE(r.ok());
+    INFO(r.error().message);
+    CHECK(has(r.error().message, "is not a JSON number"));
+    CHECK_FALSE(has(r.error().message, "expected a JSON object"));
+  }
+  auto big = parse_json_object("{\"id\": \"a\", \"p_value\": 1e400}");
+  REQUIRE_FALSE(big.ok());
+  CHECK(has(big.error().message, "1e400"));
+  CHECK(has(big.error().message, "too large"));
+  CHECK_FALSE(has(big.error().message, "expected a JSON object"));
+  // No library text in any message.
+  for (const std::string& text :
+       {std::string("{\"a\": 1e400}"), std::string("{\"a\": tru}"), std::string("{"),
+        std::string("{\"a\": \"\\udc00\"}"), std::string("[1]")}) {
+    auto r = parse_json_object(text);
+    REQUIRE_FALSE(r.ok());
+    CHECK_FALSE(has(r.error().message, "json.exception"));
+    CHECK_FALSE(has(r.error().message, "parse_error"));
+    CHECK_FALSE(has(r.error().message, "last read"));
+  }
+}
+
+TEST_CASE("TestLog: CSV with CR, LF or CRLF line ends reads every row") {
+  for (const std::string& end : {std::string("\r"), std::string("\n"), std::string("\r\n")}) {
+    auto log = read_csv("id,p_value" + end + "a,0.1" + end + "b,0.2" + end + "c,0.3" + end);
+    REQUIRE(log.ok());
+    CHECK(log->records.size() == 3);
+  }
+  auto mixed = read_csv("id,p_value\ra,0.1\nb,0.2\r\nc,0.3");
+  REQUIRE(mixed.ok());
+  CHECK(mixed->records.size() == 3);
+  // Line numbers count CR-only line ends too.
+  auto bad = read_csv("id,p_value\ra,0.1\rb,2\r");
+  REQUIRE_FALSE(bad.ok());
+  CHECK(has(bad.error().message, "t.csv:3:"));
+  auto jsonl = read_jsonl("{\"id\": \"a\", \"p_value\": 0.1}\r{\"id\": \"b\", \"p_value\": 0.2}\r");
+  REQUIRE(jsonl.ok());
+  CHECK(jsonl->records.size() == 2);
+}
+
+TEST_CASE("TestLog: a column named twice in the header, or a JSON key given twice, is refused by name") {
+  auto csv = read_csv("id,p_value,p_value\na,0.1,0.9\n");
+  REQUIRE_FALSE(csv.ok());
+  CHECK(has(csv.error().message, "'p_value' twice (columns 2 and 3)"));
+  CHECK(read_csv("id,,p_value,\na,x,0.1,y\n").ok());  // unnamed columns are ignored, not duplicates
+  auto jsonl = read_jsonl("{\"id\": \"a\", \"p_value\": 0.1, \"p_value\": 0.9}\n");
+  REQUIRE_FALSE(jsonl.ok());
+  CHECK(has(jsonl.error().message, "the key 'p_value' appears twice"));
+  auto nested = parse_json_object("{\"meta\": {\"k\": 1, \"k\": 2}}");
+  REQUIRE_FALSE(nested.ok());
+  CHECK(has(nested.error().message, "'k' appears twice"));
+  CHECK(parse_json_object("{\"a\": {\"k\": 1}, \"b\": {\"k\": 2}}").ok());  // same key in two objects
+}
+
+TEST_CASE("TestLog: one id rule in CSV, JSON Lines and JSON objects") {
+  // Ids JSON Lines used to turn into text: floats, booleans, null, arrays, objects.
+  for (const std::string& id : {std::string("1.5"), std::string("true"), std::string("null"),
+                                std::string("[1]"), std::string("{\"x\": 1}")}) {
+    INFO(id);
+    CHECK_FALSE(read_jsonl("{\"id\": " + id + ", \"p_value\": 0.1}\n").ok());
+    CHECK_FALSE(
+        test_record_from_json(nlohmann::json::parse("{\"id\": " + id + ", \"p_value\": 0.1}"), std::nullopt)
+            .ok());
+  }
+  auto integer = read_jsonl("{\"id\": 42, \"p_value\": 0.1}\n");
+  REQUIRE(integer.ok());
+  CHECK(integer->records[0].id == "42");
+  // Invalid UTF-8 (a lone continuation byte, an overlong form, a surrogate) and C1 controls.
+  for (const std::string& id : {std::string("a\x80"), std::string("\xc0\xaf"), std::string("\xed\xa0\x80"),
+                                std::string("a\xc2\x85"), std::string(" lead"), std::string("trail\t")}) {
+    INFO(excerpt(id));
+    CHECK_FALSE(validate_test_id(id).ok());
+    CHECK_FALSE(read_csv("id,p_value\n\"" + id + "\",0.1\n").ok());
+  }
+  CHECK(validate_test_id("caf\xc3\xa9-\xe2\x82\xac-\xf0\x9f\x98\x80").ok());  // é, €, an emoji
+  CHECK(validate_test_id("inner space").ok());
+}
+
+TEST_CASE("TestLog: JSON keys take one type each") {
+  CHECK_FALSE(read_jsonl("{\"id\": \"a\", \"p_value\": \"0.1\"}\n").ok());
+  CHECK_FALSE(read_jsonl("{\"id\": \"a\", \"p_value\": 0.1, \"is_null\": \"1\"}\n").ok());
+  CHECK_FALSE(read_jsonl("{\"id\": \"a\", \"p_value\": 0.1, \"finished_at\": [1]}\n").ok());
+  CHECK_FALSE(read_jsonl("{\"id\": \"a\", \"control_n\": [100]}\n").ok());
+  auto ok =
+      read_jsonl("{\"id\": \"a\", \"p_value\": 0.1, \"is_null\": true, \"finished_at\": 5, \"x\": [1]}\n");
+  REQUIRE(ok.ok());
+  CHECK(ok->records[0].is_null == true);
+  // Without a direction (the single-argument test_from_json), summary columns are not read.
+  auto no_direction = test_record_from_json(
+      nlohmann::json::parse(
+          R"({"id": "a", "control_n": 100, "control_conversions": 5, "treatment_n": 100, "treatment_conversions": 9})"),
+      std::nullopt);
+  REQUIRE_FALSE(no_direction.ok());
+  CHECK(has(no_direction.error().message, "missing field 'p_value'"));
+}
+
+TEST_CASE("TestLog: dates take digits only, and a long fraction is read without library text") {
+  CHECK_FALSE(parse_time_text("2000-01-01T-1:00").ok());
+  CHECK_FALSE(parse_time_text("2000-01-01T+1:00").ok());
+  CHECK_FALSE(parse_time_text("2000-01-01T00:00+24:00").ok());
+  // 500 zeros then a 1: used to throw std::out_of_range("stod").
+  auto t = parse_time_text("2000-03-01T00:00:00." + std::string(500, '0') + "1Z");
+  REQUIRE(t.ok());
+  CHECK(*t == 951868800.0);  // POSIX time of 2000-03-01 (`date -u -d 2000-03-01 +%s`)
+  auto too_small = parse_time_text("1e-400");
+  REQUIRE_FALSE(too_small.ok());
+  CHECK(has(too_small.error().message, "too small"));
+}
+
+TEST_CASE("TestLog: '-' reads standard input, and needs --format") {
+  auto no_format = read_test_log_file("-", std::nullopt);
+  REQUIRE_FALSE(no_format.ok());
+  CHECK(has(no_format.error().message, "--format"));
+  std::istringstream fake("id,p_value\na,0.1\n");
+  std::streambuf* saved = std::cin.rdbuf(fake.rdbuf());
+  auto log = read_test_log_file("-", "csv");
+  std::cin.rdbuf(saved);
+  REQUIRE(log.ok());
+  CHECK(log->source == "stdin");
+  REQUIRE(log->records.size() == 1);
+  CHECK(log->records[0].id == "a");
+}
+
+TEST_CASE("TestLog: a summary whose arithmetic overflows is refused, not decided as NaN (fuzz_summary finding)") {
+  // Found by fuzz_summary (docs/fuzzing.md): Welch's test with sd 8e131 squares past the largest
+  // double, and the p-value came back NaN (outside [0, 1]) instead of an error.
+  auto log = read_csv(
+      "id,control_n,control_mean,control_sd,treatment_n,treatment_mean,treatment_sd\n"
+      "a,500,13.4,8e131,5000,.9,8\n",
+      {.alternative = Alternative::kGreater});
+  REQUIRE_FALSE(log.ok());
+  CHECK(has(log.error().message, "t.csv:2: test 'a': the summary columns give no p-value"));
 }

@@ -3,6 +3,7 @@
 #include <doctest/doctest.h>
 
 #include <cmath>
+#include <map>
 #include <random>
 
 #include "alphaledger/service.hpp"
@@ -334,6 +335,162 @@ TEST_CASE("Pipe: a storage failure answers the line it hit, stops, and nothing u
   CHECK(j["line"] == 1);
   CHECK(j["error"].get<std::string>().find("No space left") != std::string::npos);
   CHECK(f.memory.dump() == before);  // the ledger is as it was
+}
+
+// ---- one meaning for each input: pipe lines read as JSON Lines rows are (docs/formats.md) -------
+
+TEST_CASE("Pipe: a line nested 200,000 deep is answered with an error and the next line is decided") {
+  PipeFixture f;
+  const std::string deep = std::string(200000, '[') + std::string(200000, ']');
+  auto [summary, answers] = f.run(std::string(R"({"id": "x", "p_value": 0.1, "extra": )")
+                                      .append(deep)
+                                      .append("}\n")
+                                      .append(test_line("b", 0.3))
+                                      .append("\n"));
+  REQUIRE(summary.ok());
+  REQUIRE(answers.size() == 2);
+  auto first = nlohmann::json::parse(answers[0]);
+  CHECK(first["error"].get<std::string>().find("nested deeper") != std::string::npos);
+  CHECK(answers[0].size() < 400);
+  CHECK(nlohmann::json::parse(answers[1])["id"] == "b");
+}
+
+TEST_CASE("Pipe: 1e-400 is refused, -0 is stored as 0, and NaN, duplicate keys and bad ids are named") {
+  PipeFixture f;
+  auto [summary, answers] = f.run(
+      "{\"id\": \"tiny\", \"p_value\": 1e-400}\n"
+      "{\"id\": \"zero\", \"p_value\": -0.0}\n"
+      "{\"id\": \"nan\", \"p_value\": NaN}\n"
+      "{\"id\": \"dup\", \"p_value\": 0.1, \"p_value\": 0.9}\n"
+      "{\"id\": \" padded\", \"p_value\": 0.1}\n"
+      "{\"id\": 1.5, \"p_value\": 0.1}\n");
+  REQUIRE(summary.ok());
+  REQUIRE(answers.size() == 6);
+  auto error_of = [&](std::size_t k) {
+    auto j = nlohmann::json::parse(answers[k]);
+    return j.contains("error") ? j["error"].get<std::string>() : std::string();
+  };
+  CHECK(error_of(0).find("too small") != std::string::npos);
+  CHECK(error_of(1).empty());
+  CHECK(error_of(2).find("not a JSON number") != std::string::npos);
+  CHECK(error_of(3).find("'p_value' appears twice") != std::string::npos);
+  CHECK(error_of(4).find("white space") != std::string::npos);
+  CHECK(error_of(5).find("id must be a JSON string") != std::string::npos);
+  auto h = f.ledger->history("s");
+  REQUIRE(h.ok());
+  REQUIRE(h->size() == 1);
+  CHECK(h->at(0).id == "zero");
+  CHECK_FALSE(std::signbit(h->at(0).p_value));
+}
+
+TEST_CASE("Pipe: lines may end with LF, CRLF or a lone CR, also when a CRLF is split between reads") {
+  PipeFixture f;
+  auto [summary, answers] =
+      f.run(test_line("a", 0.2) + "\r" + test_line("b", 0.3) + "\r\n" + test_line("c", 0.4) + "\n");
+  REQUIRE(summary.ok());
+  CHECK(summary->bad == 0);
+  CHECK(answers.size() == 3);
+
+  // CR at the end of one read, LF at the start of the next: one line end, not two.
+  int fds[2];
+  REQUIRE(::pipe(fds) == 0);
+  std::thread writer([&] {
+    const std::string first = test_line("d", 0.5) + "\r";
+    const std::string second = std::string("\n").append(test_line("e", 0.6)).append("\n");
+    CHECK(::write(fds[1], first.data(), first.size()) == static_cast<ssize_t>(first.size()));
+    std::this_thread::sleep_for(std::chrono::milliseconds(100));
+    CHECK(::write(fds[1], second.data(), second.size()) == static_cast<ssize_t>(second.size()));
+    ::close(fds[1]);
+  });
+  std::ostringstream out;
+  auto split = run_pipe(*f.ledger, "s", fds[0], out);
+  writer.join();
+  ::close(fds[0]);
+  REQUIRE(split.ok());
+  CHECK(split->bad == 0);
+  CHECK(split_lines(out.str()).size() == 2);
+}
+
+TEST_CASE("Pipe: summary rows are decided in the stream's frozen direction") {
+  PipeFixture f;
+  REQUIRE(
+      f.ledger
+          ->create_stream_directed("up", *resolve_config(RuleSpec{.rule = "lord++"}), Alternative::kGreater)
+          .ok());
+  const std::map<std::string, std::string> counts = {{"control_n", "1000"},
+                                                     {"control_conversions", "50"},
+                                                     {"treatment_n", "1000"},
+                                                     {"treatment_conversions", "70"}};
+  // The p-value the statistics layer gives these counts (pooled z-test, docs/statistics.md).
+  auto greater = p_value_from_summary(counts, Alternative::kGreater);
+  auto two_sided = p_value_from_summary(counts, Alternative::kTwoSided);
+  REQUIRE(greater.ok());
+  REQUIRE(two_sided.ok());
+  REQUIRE(*greater != *two_sided);
+  const std::string row =
+      R"({"id": "counts", "control_n": 1000, "control_conversions": 50, "treatment_n": 1000, "treatment_conversions": "70"})";
+  write_file(f.dir.file("in"), row + "\n");
+  const int fd = ::open(f.dir.file("in").c_str(), O_RDONLY);
+  REQUIRE(fd >= 0);
+  std::ostringstream out;
+  auto summary = run_pipe(*f.ledger, "up", fd, out);
+  ::close(fd);
+  REQUIRE(summary.ok());
+  CHECK(summary->decided == 1);
+  auto answer = nlohmann::json::parse(split_lines(out.str()).at(0));
+  CHECK(answer["p_value"].get<double>() == *greater);
+}
+
+TEST_CASE(
+    "test_from_json: one reading with the JSON Lines reader; the single-argument form takes p_value only") {
+  const auto j = nlohmann::json::parse(R"({"id": 7, "p_value": 0.25, "finished_at": "2025-01-01"})");
+  auto t = test_from_json(j);
+  REQUIRE(t.ok());
+  CHECK(t->id == "7");
+  CHECK(t->p_value == 0.25);
+  // A bad finished_at is refused here too, as in a log (one meaning for each key).
+  CHECK_FALSE(
+      test_from_json(nlohmann::json::parse(R"({"id": "a", "p_value": 0.25, "finished_at": "soon"})")).ok());
+  const auto counts = nlohmann::json::parse(
+      R"({"id": "c", "control_n": 1000, "control_conversions": 50, "treatment_n": 1000, "treatment_conversions": 70})");
+  CHECK_FALSE(test_from_json(counts).ok());
+  CHECK(test_from_json(counts, Alternative::kTwoSided).ok());
+}
+
+TEST_CASE("stream_request_from_json: known keys with one type each; unknown keys refused by name") {
+  auto ok =
+      stream_request_from_json(nlohmann::json::parse(R"({"name": "s1", "rule": "saffron", "alpha": -0.0})"));
+  REQUIRE(ok.ok());
+  CHECK(ok->name == "s1");
+  CHECK(ok->spec.rule == "saffron");
+  REQUIRE(ok->spec.alpha.has_value());
+  CHECK_FALSE(std::signbit(*ok->spec.alpha));
+  auto unknown =
+      stream_request_from_json(nlohmann::json::parse(R"({"name": "s1", "rule": "lond", "alhpa": 0.1})"));
+  REQUIRE_FALSE(unknown.ok());
+  CHECK(unknown.error().message.find("'alhpa'") != std::string::npos);
+  CHECK_FALSE(
+      stream_request_from_json(nlohmann::json::parse(R"({"name": "s1", "rule": "lond", "alpha": "0.1"})"))
+          .ok());
+  CHECK_FALSE(stream_request_from_json(nlohmann::json::parse(R"({"rule": "lond"})")).ok());
+  const std::string long_key(100000, 'k');
+  auto big = stream_request_from_json(nlohmann::json{{long_key, 1}});
+  REQUIRE_FALSE(big.ok());
+  CHECK(big.error().message.size() < 400);
+}
+
+TEST_CASE("replay reads standard input when the file is '-'") {
+  TempDir dir;
+  write_file(dir.file("in.csv"), "id,p_value\ra,0.001\rb,0.5\r");  // CR-only line ends, too
+  Child child({"replay", "-", "--format", "csv"},
+              {dir.file("in.csv"), dir.file("out.csv"), dir.file("err.txt")});
+  const auto code = child.wait();
+  REQUIRE(code.has_value());
+  CHECK_MESSAGE(*code == 0, read_file(dir.file("err.txt")));
+  const auto lines = split_lines(read_file(dir.file("out.csv")));
+  REQUIRE(lines.size() == 3);  // the header and two rows
+  CHECK(lines[1].find(",a,") != std::string::npos);
+  CHECK(lines[2].find(",b,") != std::string::npos);
 }
 
 }  // namespace
