@@ -13,6 +13,17 @@ namespace {
 
 constexpr std::uint8_t kStateVersion = 1;  // stored on disk: bump when the layout changes
 
+// Exact mode sums for a window of future clocks at once. A window of n lanes costs n times one
+// sum, so a Rule that decides one test (a ledger opened for one decision) starts small.
+constexpr std::size_t kMinLanes = 8;
+constexpr std::size_t kMaxLanes = 1024;
+
+// lanes[i] += c * g[i]: one deposit's term added to every lane. Each lane is its own running sum
+// (no reassociation), so the loop vectorises and every lane stays bit-identical to a scalar sum.
+void add_scaled(double* __restrict lanes, double c, const double* __restrict g, std::size_t n) {
+  for (std::size_t i = 0; i < n; ++i) lanes[i] += c * g[i];
+}
+
 struct RuleNameEntry {
   RuleKind kind;
   std::string_view name;
@@ -204,9 +215,8 @@ Status validate_p_value(double p) {
 
 Rule::Rule(const RuleConfig& config) : config_(config) {
   if (config_.kind != RuleKind::kAlphaInvesting) {
-    auto seq = SpendingSequence::parse(config_.spending);
     // resolve_config() validated the spec; a failure here is a programming error.
-    sequence_ = std::make_shared<const SpendingSequence>(std::move(seq).value());
+    sequence_ = SpendingSequence::shared(config_.spending).value();
     if (is_deposit_rule(config_.kind) && config_.evaluation == Evaluation::kFast) {
       mixture_ = &sequence_->mixture();
     }
@@ -261,6 +271,8 @@ double Rule::mixture_sum() const {
 }
 
 double Rule::exact_sum() const {
+  if (clock_ >= window_start_ && clock_ - window_start_ < window_.size())
+    return window_[clock_ - window_start_];
   const double w0 = config_.initial_wealth;
   const double a = config_.alpha;
   double s = 0;
@@ -269,6 +281,33 @@ double Rule::exact_sum() const {
     s += c * sequence_->gamma(1 + clock_ - deposit_clock_[d]);
   }
   return s;
+}
+
+void Rule::fill_window() {
+  const std::size_t lanes = next_lanes_;
+  next_lanes_ = std::min(kMaxLanes, 2 * lanes);
+  const std::uint64_t t0 = clock_;
+  // Lane i, deposit d: gamma(1 + t0 + i - clock_d) = table[t0 + i - clock_d].
+  gamma_table_ = sequence_->table(t0 + lanes);
+  const double* table = gamma_table_->data();
+  window_.assign(lanes, 0.0);
+  window_start_ = t0;
+  double* w = window_.data();
+  const double w0 = config_.initial_wealth;
+  const double a = config_.alpha;
+  const std::size_t n = deposit_clock_.size();
+  for (std::size_t d = 0; d < n; ++d) {
+    const double c = d == 0 ? w0 : (d == 1 ? a - w0 : a);
+    add_scaled(w, c, table + (t0 - deposit_clock_[d]), lanes);
+  }
+}
+
+void Rule::add_to_window(double c_new) {
+  if (window_.empty() || clock_ < window_start_ || clock_ - window_start_ >= window_.size()) return;
+  // Appending the newest deposit's term to each lane keeps the order of exact_sum(): lanes of
+  // clocks before clock_ are never read again.
+  const std::size_t first = clock_ - window_start_;
+  add_scaled(window_.data() + first, c_new, gamma_table_->data(), window_.size() - first);
 }
 
 double Rule::next_level() const {
@@ -320,12 +359,19 @@ void Rule::advance(bool tick, bool rejected) {
     if (tick || rejected) fast_sum_ = mixture_sum();  // unchanged state keeps its sum
   } else {
     if (tick) ++clock_;
-    if (rejected) deposit_clock_.push_back(clock_);
+    if (rejected) {
+      deposit_clock_.push_back(clock_);
+      add_to_window(c_new);
+    }
   }
   if (rejected) wealth_ += c_new;
 }
 
 Outcome Rule::record(double p) {
+  if (is_deposit_rule(config_.kind) && mixture_ == nullptr &&
+      !(clock_ >= window_start_ && clock_ - window_start_ < window_.size())) {
+    fill_window();
+  }
   Outcome o;
   o.level = next_level();
   o.rejected = p <= o.level;
@@ -423,6 +469,9 @@ Status Rule::restore_state(std::string_view bytes) {
     return storage_error("rule state is inconsistent: deposit count does not match rejections");
   }
   if (next.mixture_ != nullptr) next.fast_sum_ = next.mixture_sum();
+  next.window_.clear();
+  next.gamma_table_.reset();
+  next.next_lanes_ = kMinLanes;
   *this = std::move(next);
   return {};
 }
