@@ -127,6 +127,7 @@ class Rule {
   double exact_sum() const;    // over the deposit list with the published gamma
   double mixture_sum() const;  // over the head slots and accumulators, fixed order
   void advance(bool tick, bool rejected);
+  void set_head_mask();              // fast mode: head_mask_ from head_
   void fill_window();                // exact mode: window_ for the clocks from clock_ on
   void add_to_window(double c_new);  // exact mode: a deposit made at clock_
 
@@ -143,6 +144,7 @@ class Rule {
   std::vector<double> head_;                  // fast mode: coefficient at each head index 1..L
   std::vector<double> accumulator_;           // fast mode: A_k
   double fast_sum_ = 0;                       // fast mode: mixture_sum() of the current state
+  std::uint64_t head_mask_ = 0;  // fast mode: bit i set iff head_[i] != 0 (every bit for heads of 64+)
 
   // Exact mode: window_[i] is exact_sum() at clock window_start_ + i, each lane summed over the
   // deposits in the same order as exact_sum(), so bit-identical to it (docs/rules.md, "Exact

@@ -79,6 +79,75 @@ struct Reader {
   double f64() { return std::bit_cast<double>(u64()); }
 };
 
+// Fast mode's sums: four partial sums (lane i & 3 gets term i, in order), as four lanes of one
+// vector. Lane-wise IEEE operations in the same order as the scalar loop give the same bits on any
+// instruction set; the compiler makes a clone for AVX2 and picks it at run time.
+#pragma GCC diagnostic push
+#pragma GCC diagnostic ignored "-Wpsabi"  // internal functions: the vector ABI does not matter
+using V4 = double __attribute__((vector_size(32)));
+
+inline V4 load4(const double* p) {
+  V4 v;
+  std::memcpy(&v, p, sizeof v);
+  return v;
+}
+inline void store4(double* p, V4 v) { std::memcpy(p, &v, sizeof v); }
+
+// part[i & 3] += x[i] * y[i] for i = 0 .. n-1, in order.
+inline void add_products(V4& part, const double* x, const double* y, std::size_t n) {
+  std::size_t i = 0;
+  for (; i + 4 <= n; i += 4) part += load4(x + i) * load4(y + i);
+  for (; i < n; ++i) part[i & 3] += x[i] * y[i];
+}
+
+inline double finish_parts(V4 part) { return (part[0] + part[1]) + (part[2] + part[3]); }
+
+// sum_i head[i] * weight[i] + sum_k coef[k] * acc[k] in the four fixed partial sums.
+[[gnu::target_clones("avx2", "default")]] double mixture_dot(const double* head, const double* head_weight,
+                                                             std::size_t l, const double* coef,
+                                                             const double* acc, std::size_t n) {
+  V4 part = {0, 0, 0, 0};
+  add_products(part, head, head_weight, l);
+  add_products(part, coef, acc, n);
+  return finish_parts(part);
+}
+
+// One clock tick of every accumulator, A_k <- A_k r_k + leaving r_k^L, fused with the sum of the
+// new state (head already shifted). When nothing leaves the head the second product is +0 and
+// adding it changes no bit (every A_k r_k >= +0), so it is skipped.
+[[gnu::target_clones("avx2", "default")]] double tick_and_dot(const double* head, const double* head_weight,
+                                                              std::size_t l, const double* coef,
+                                                              const double* ratio, const double* ratio_head,
+                                                              double leaving, double* acc, std::size_t n) {
+  V4 part = {0, 0, 0, 0};
+  add_products(part, head, head_weight, l);
+  std::size_t k = 0;
+  if (leaving == 0.0) {
+    for (; k + 4 <= n; k += 4) {
+      const V4 a = load4(acc + k) * load4(ratio + k);
+      store4(acc + k, a);
+      part += load4(coef + k) * a;
+    }
+    for (; k < n; ++k) {
+      acc[k] = acc[k] * ratio[k];
+      part[k & 3] += coef[k] * acc[k];
+    }
+  } else {
+    const V4 out = {leaving, leaving, leaving, leaving};
+    for (; k + 4 <= n; k += 4) {
+      const V4 a = load4(acc + k) * load4(ratio + k) + out * load4(ratio_head + k);
+      store4(acc + k, a);
+      part += load4(coef + k) * a;
+    }
+    for (; k < n; ++k) {
+      acc[k] = acc[k] * ratio[k] + leaving * ratio_head[k];
+      part[k & 3] += coef[k] * acc[k];
+    }
+  }
+  return finish_parts(part);
+}
+#pragma GCC diagnostic pop
+
 }  // namespace
 
 std::string_view rule_name(RuleKind kind) {
@@ -238,6 +307,7 @@ Rule::Rule(const RuleConfig& config) : config_(config) {
           std::fill(accumulator_.begin(), accumulator_.end(), config_.initial_wealth);
         } else {
           head_[0] = config_.initial_wealth;
+          set_head_mask();
         }
         fast_sum_ = mixture_sum();
       } else {
@@ -253,21 +323,18 @@ double Rule::deposit_sum() const {
 
 double Rule::mixture_sum() const {
   // Four partial sums in a fixed order: deterministic, and four times the instruction-level
-  // parallelism of one running sum.
-  double part[4] = {0, 0, 0, 0};
-  for (std::size_t i = 0; i < head_.size(); ++i) part[i & 3] += head_[i] * mixture_->head[i];
-  const double* coef = mixture_->coefficient.data();
-  const double* acc = accumulator_.data();
-  const std::size_t k_count = accumulator_.size();
-  std::size_t k = 0;
-  for (; k + 4 <= k_count; k += 4) {
-    part[0] += coef[k] * acc[k];
-    part[1] += coef[k + 1] * acc[k + 1];
-    part[2] += coef[k + 2] * acc[k + 2];
-    part[3] += coef[k + 3] * acc[k + 3];
+  // parallelism of one running sum. Head terms first (term i in part i & 3), then the
+  // accumulators (term k in part k & 3).
+  return mixture_dot(head_.data(), mixture_->head.data(), head_.size(), mixture_->coefficient.data(),
+                     accumulator_.data(), accumulator_.size());
+}
+
+void Rule::set_head_mask() {
+  head_mask_ = 0;
+  for (std::size_t i = 0; i < head_.size(); ++i) {
+    if (head_[i] == 0.0) continue;
+    head_mask_ |= head_.size() >= 64 ? ~std::uint64_t{0} : std::uint64_t{1} << i;
   }
-  for (; k < k_count; ++k) part[k & 3] += coef[k] * acc[k];
-  return (part[0] + part[1]) + (part[2] + part[3]);
 }
 
 double Rule::exact_sum() const {
@@ -341,22 +408,34 @@ void Rule::advance(bool tick, bool rejected) {
   const double c_new = rejections_ == 0 ? config_.alpha - config_.initial_wealth : config_.alpha;
   if (mixture_ != nullptr) {
     if (tick) {
+      // Only a head holding a deposit moves; an empty head adds only +0 terms, which change no
+      // bit of the sum, so it is skipped.
       const std::size_t l = head_.size();
-      const double leaving = l > 0 ? head_[l - 1] : 0.0;
-      for (std::size_t k = 0; k < accumulator_.size(); ++k) {
-        accumulator_[k] = accumulator_[k] * mixture_->ratio[k] + leaving * mixture_->ratio_head[k];
+      double leaving = 0.0;
+      std::size_t live = 0;
+      if (head_mask_ != 0) {
+        leaving = head_[l - 1];
+        for (std::size_t i = l; i-- > 1;) head_[i] = head_[i - 1];
+        head_[0] = 0.0;
+        head_mask_ = l >= 64 ? ~std::uint64_t{0} : (head_mask_ << 1) & ((std::uint64_t{1} << l) - 1);
+        live = head_mask_ != 0 ? l : 0;
       }
-      for (std::size_t i = l; i-- > 1;) head_[i] = head_[i - 1];
-      if (l > 0) head_[0] = 0.0;
+      // The update of every A_k and the new sum in one pass; a deposit changes the state again,
+      // so a tick with a rejection sums after it (below).
+      const double sum = tick_and_dot(head_.data(), mixture_->head.data(), live, mixture_->coefficient.data(),
+                                      mixture_->ratio.data(), mixture_->ratio_head.data(), leaving,
+                                      accumulator_.data(), accumulator_.size());
+      if (!rejected) fast_sum_ = sum;
     }
     if (rejected) {
       if (head_.empty()) {
         for (double& acc : accumulator_) acc += c_new;
       } else {
         head_[0] += c_new;
+        if (head_[0] != 0.0) head_mask_ |= 1;
       }
     }
-    if (tick || rejected) fast_sum_ = mixture_sum();  // unchanged state keeps its sum
+    if (rejected) fast_sum_ = mixture_sum();  // a test that neither ticks nor rejects keeps its sum
   } else {
     if (tick) ++clock_;
     if (rejected) {
@@ -468,7 +547,10 @@ Status Rule::restore_state(std::string_view bytes) {
   if (exact_deposits && (nd != next.rejections_ + 1)) {
     return storage_error("rule state is inconsistent: deposit count does not match rejections");
   }
-  if (next.mixture_ != nullptr) next.fast_sum_ = next.mixture_sum();
+  if (next.mixture_ != nullptr) {
+    next.fast_sum_ = next.mixture_sum();
+    next.set_head_mask();
+  }
   next.window_.clear();
   next.gamma_table_.reset();
   next.next_lanes_ = kMinLanes;
