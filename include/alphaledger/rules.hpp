@@ -147,8 +147,8 @@ class Rule {
   std::uint64_t head_mask_ = 0;  // fast mode: bit i set iff head_[i] != 0 (every bit for heads of 64+)
 
   // Exact mode: window_[i] is exact_sum() at clock window_start_ + i, each lane summed over the
-  // deposits in the same order as exact_sum(), so bit-identical to it (docs/rules.md, "Exact
-  // evaluation, fast"). Empty when no window is filled; never part of the encoded state.
+  // deposits in the same order as exact_sum(), so bit-identical to it (docs/benchmarks.md,
+  // "How exact evaluation is fast"). Empty when no window is filled; never part of the encoded state.
   std::vector<double> window_;
   std::uint64_t window_start_ = 0;
   std::size_t next_lanes_ = 8;  // lanes of the next window: doubles per fill, up to a bound

@@ -20,7 +20,8 @@ constexpr std::size_t kMaxLanes = 1024;
 
 // lanes[i] += c * g[i]: one deposit's term added to every lane. Each lane is its own running sum
 // (no reassociation), so the loop vectorises and every lane stays bit-identical to a scalar sum.
-void add_scaled(double* __restrict lanes, double c, const double* __restrict g, std::size_t n) {
+[[gnu::target_clones("avx2", "default")]] void add_scaled(double* __restrict lanes, double c,
+                                                          const double* __restrict g, std::size_t n) {
   for (std::size_t i = 0; i < n; ++i) lanes[i] += c * g[i];
 }
 
