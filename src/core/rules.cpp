@@ -13,6 +13,14 @@ namespace {
 
 constexpr std::uint8_t kStateVersion = 1;  // stored on disk: bump when the layout changes
 
+// Hot loops get an AVX2 clone, chosen at run time, on x86-64. The clones do the same IEEE
+// operations in the same order, so they give the same bits as the baseline code.
+#if defined(__x86_64__) && defined(__GNUC__) && defined(__linux__)
+#define ALPHALEDGER_VECTOR_CLONES [[gnu::target_clones("avx2", "default")]]
+#else
+#define ALPHALEDGER_VECTOR_CLONES
+#endif
+
 // Exact mode sums for a window of future clocks at once. A window of n lanes costs n times one
 // sum, so a Rule that decides one test (a ledger opened for one decision) starts small.
 constexpr std::size_t kMinLanes = 8;
@@ -20,8 +28,8 @@ constexpr std::size_t kMaxLanes = 1024;
 
 // lanes[i] += c * g[i]: one deposit's term added to every lane. Each lane is its own running sum
 // (no reassociation), so the loop vectorises and every lane stays bit-identical to a scalar sum.
-[[gnu::target_clones("avx2", "default")]] void add_scaled(double* __restrict lanes, double c,
-                                                          const double* __restrict g, std::size_t n) {
+ALPHALEDGER_VECTOR_CLONES void add_scaled(double* __restrict lanes, double c, const double* __restrict g,
+                                          std::size_t n) {
   for (std::size_t i = 0; i < n; ++i) lanes[i] += c * g[i];
 }
 
@@ -104,9 +112,8 @@ inline void add_products(V4& part, const double* x, const double* y, std::size_t
 inline double finish_parts(V4 part) { return (part[0] + part[1]) + (part[2] + part[3]); }
 
 // sum_i head[i] * weight[i] + sum_k coef[k] * acc[k] in the four fixed partial sums.
-[[gnu::target_clones("avx2", "default")]] double mixture_dot(const double* head, const double* head_weight,
-                                                             std::size_t l, const double* coef,
-                                                             const double* acc, std::size_t n) {
+ALPHALEDGER_VECTOR_CLONES double mixture_dot(const double* head, const double* head_weight, std::size_t l,
+                                             const double* coef, const double* acc, std::size_t n) {
   V4 part = {0, 0, 0, 0};
   add_products(part, head, head_weight, l);
   add_products(part, coef, acc, n);
@@ -116,10 +123,10 @@ inline double finish_parts(V4 part) { return (part[0] + part[1]) + (part[2] + pa
 // One clock tick of every accumulator, A_k <- A_k r_k + leaving r_k^L, fused with the sum of the
 // new state (head already shifted). When nothing leaves the head the second product is +0 and
 // adding it changes no bit (every A_k r_k >= +0), so it is skipped.
-[[gnu::target_clones("avx2", "default")]] double tick_and_dot(const double* head, const double* head_weight,
-                                                              std::size_t l, const double* coef,
-                                                              const double* ratio, const double* ratio_head,
-                                                              double leaving, double* acc, std::size_t n) {
+ALPHALEDGER_VECTOR_CLONES double tick_and_dot(const double* head, const double* head_weight, std::size_t l,
+                                              const double* coef, const double* ratio,
+                                              const double* ratio_head, double leaving, double* acc,
+                                              std::size_t n) {
   V4 part = {0, 0, 0, 0};
   add_products(part, head, head_weight, l);
   std::size_t k = 0;
