@@ -127,6 +127,9 @@ class Rule {
   double exact_sum() const;    // over the deposit list with the published gamma
   double mixture_sum() const;  // over the head slots and accumulators, fixed order
   void advance(bool tick, bool rejected);
+  void set_head_mask();              // fast mode: head_mask_ from head_
+  void fill_window();                // exact mode: window_ for the clocks from clock_ on
+  void add_to_window(double c_new);  // exact mode: a deposit made at clock_
 
   RuleConfig config_;
   std::shared_ptr<const SpendingSequence> sequence_;
@@ -141,6 +144,15 @@ class Rule {
   std::vector<double> head_;                  // fast mode: coefficient at each head index 1..L
   std::vector<double> accumulator_;           // fast mode: A_k
   double fast_sum_ = 0;                       // fast mode: mixture_sum() of the current state
+  std::uint64_t head_mask_ = 0;  // fast mode: bit i set iff head_[i] != 0 (every bit for heads of 64+)
+
+  // Exact mode: window_[i] is exact_sum() at clock window_start_ + i, each lane summed over the
+  // deposits in the same order as exact_sum(), so bit-identical to it (docs/benchmarks.md,
+  // "How exact evaluation is fast"). Empty when no window is filled; never part of the encoded state.
+  std::vector<double> window_;
+  std::uint64_t window_start_ = 0;
+  std::size_t next_lanes_ = 8;  // lanes of the next window: doubles per fill, up to a bound
+  std::shared_ptr<const std::vector<double>> gamma_table_;  // covers every lane of window_
 };
 
 // Checks a p-value: finite and in [0, 1]. The message names the field and the value.

@@ -13,6 +13,9 @@
 // Example:
 //   auto seq = SpendingSequence::parse("power:1.6");
 //   seq->gamma(1);   // 0.4374901658... (= 1 / zeta(1.6))
+//
+// Rules get their sequence from SpendingSequence::shared(), so every Rule of one specification in
+// the process shares one gamma table (grown on demand) and one fitted mixture.
 #pragma once
 
 #include <cstdint>
@@ -57,8 +60,19 @@ class SpendingSequence {
   // condition, e.g. "power:S needs S > 1, got 0.9".
   static Result<SpendingSequence> parse(std::string_view spec);
 
+  // The sequence of a specification, shared by the whole process: parsed once, and kept while
+  // anything uses it. Copies of the returned pointer share the gamma table and the mixture.
+  // Thread-safe. Fails as parse() does.
+  static Result<std::shared_ptr<const SpendingSequence>> shared(std::string_view spec);
+
   // gamma_j for j >= 1 (the published closed form); 0 for j == 0.
   double gamma(std::uint64_t j) const;
+
+  // gamma_1 .. gamma_n at index j - 1, with n >= at_least: the same bits gamma(j) returns,
+  // computed once per sequence (shared by all its copies) and grown on demand, at least doubling.
+  // The returned snapshot never changes; a later, longer snapshot starts with the same values.
+  // Thread-safe.
+  std::shared_ptr<const std::vector<double>> table(std::uint64_t at_least) const;
 
   SpendingKind kind() const { return kind_; }
   double parameter() const { return parameter_; }    // C for jm, S for power and power-shift
@@ -75,8 +89,12 @@ class SpendingSequence {
   double parameter_ = 0;
   double normaliser_ = 0;
   std::string spec_;
-  std::vector<double> table_;  // gamma_j for j <= table_.size() (65536), precomputed
-  struct LazyMixture;          // fitted on first use, once, thread-safe
+  double closed_form(std::uint64_t j) const;  // gamma_j from the formula, j >= 1
+
+  std::shared_ptr<const std::vector<double>> table_;  // gamma_j for j <= 65536, precomputed
+  struct GrowingTable;                                // longer tables, grown on demand, thread-safe
+  std::shared_ptr<GrowingTable> grown_;
+  struct LazyMixture;  // fitted on first use, once, thread-safe
   std::shared_ptr<LazyMixture> mixture_;
 };
 

@@ -5,6 +5,7 @@
 #include <charconv>
 #include <cmath>
 #include <limits>
+#include <map>
 #include <numeric>
 
 #include "core/math_policy.hpp"
@@ -262,6 +263,16 @@ double jm_shape_sum() {
   return sum + comp + integral + jm_shape(n) / 2 - deriv / 12;
 }
 
+struct SpendingSequence::GrowingTable {
+  std::mutex mutex;
+  std::shared_ptr<const std::vector<double>> current;
+};
+
+struct SpendingSequence::LazyMixture {
+  std::once_flag once;
+  GeometricMixture value;
+};
+
 Result<SpendingSequence> SpendingSequence::parse(std::string_view spec) {
   SpendingSequence seq;
   const auto colon = spec.find(':');
@@ -306,30 +317,17 @@ Result<SpendingSequence> SpendingSequence::parse(std::string_view spec) {
   } else {
     return invalid_input("unknown spending sequence '" + std::string(spec) + "'; " + kAccepted);
   }
-  seq.table_.reserve(kTableSize);
-  for (std::uint64_t j = 1; j <= kTableSize; ++j) {
-    const double x = static_cast<double>(j);
-    double v = 0;
-    switch (seq.kind_) {
-      case SpendingKind::kJm:
-        v = seq.normaliser_ * jm_shape(x);
-        break;
-      case SpendingKind::kPower:
-        v = seq.normaliser_ * std::pow(x, -seq.parameter_);
-        break;
-      case SpendingKind::kPowerShift:
-        v = seq.normaliser_ * std::pow(x + 1.0, -seq.parameter_);
-        break;
-    }
-    seq.table_.push_back(v);
-  }
+  std::vector<double> table;
+  table.reserve(kTableSize);
+  for (std::uint64_t j = 1; j <= kTableSize; ++j) table.push_back(seq.closed_form(j));
+  seq.table_ = std::make_shared<const std::vector<double>>(std::move(table));
+  seq.grown_ = std::make_shared<GrowingTable>();
+  seq.grown_->current = seq.table_;
   seq.mixture_ = std::make_shared<LazyMixture>();
   return seq;
 }
 
-double SpendingSequence::gamma(std::uint64_t j) const {
-  if (j == 0) return 0.0;
-  if (j <= table_.size()) return table_[j - 1];
+double SpendingSequence::closed_form(std::uint64_t j) const {
   const double x = static_cast<double>(j);
   switch (kind_) {
     case SpendingKind::kJm:
@@ -342,10 +340,42 @@ double SpendingSequence::gamma(std::uint64_t j) const {
   return 0.0;
 }
 
-struct SpendingSequence::LazyMixture {
-  std::once_flag once;
-  GeometricMixture value;
-};
+double SpendingSequence::gamma(std::uint64_t j) const {
+  if (j == 0) return 0.0;
+  if (j <= table_->size()) return (*table_)[j - 1];
+  return closed_form(j);
+}
+
+std::shared_ptr<const std::vector<double>> SpendingSequence::table(std::uint64_t at_least) const {
+  std::lock_guard lock(grown_->mutex);
+  const auto& current = grown_->current;
+  if (current->size() >= at_least) return current;
+  // At least double, in whole pages of 4,096 values, so a growing stream grows the table rarely.
+  std::uint64_t n = std::max<std::uint64_t>(at_least, 2 * current->size());
+  n = (n + 4095) / 4096 * 4096;
+  std::vector<double> next;
+  next.reserve(n);
+  next.assign(current->begin(), current->end());
+  for (std::uint64_t j = current->size() + 1; j <= n; ++j) next.push_back(closed_form(j));
+  grown_->current = std::make_shared<const std::vector<double>>(std::move(next));
+  return grown_->current;
+}
+
+Result<std::shared_ptr<const SpendingSequence>> SpendingSequence::shared(std::string_view spec) {
+  // Never destroyed: Rules may outlive static destruction order at exit.
+  static auto* mutex = new std::mutex;
+  static auto* known = new std::map<std::string, std::weak_ptr<const SpendingSequence>, std::less<>>;
+  std::lock_guard lock(*mutex);
+  if (auto it = known->find(spec); it != known->end()) {
+    if (auto alive = it->second.lock()) return alive;
+  }
+  auto seq = parse(spec);
+  if (!seq) return seq.error();
+  auto made = std::make_shared<const SpendingSequence>(std::move(seq).value());
+  if (known->size() >= 64) std::erase_if(*known, [](const auto& e) { return e.second.expired(); });
+  (*known)[std::string(spec)] = made;
+  return made;
+}
 
 const GeometricMixture& SpendingSequence::mixture() const {
   std::call_once(mixture_->once, [this] {
