@@ -3,6 +3,7 @@
 #include <iostream>
 #include <nlohmann/json.hpp>
 
+#include "alphaledger/ledger.hpp"
 #include "alphaledger/recover.hpp"
 #include "cli/command.hpp"
 
@@ -28,13 +29,23 @@ Status run_recover(const RecoverOptions& o, const GlobalOptions& g, std::ostream
   if (!report) return report.error();
   for (const auto& s : report->streams) {
     const bool lost_known = s.known_steps && *s.known_steps > s.kept_steps;
+    // Steps may be lost (a closing that was not proven alone loses none).
+    const bool steps_lost = lost_known || !s.problem.empty() || !s.head_problem.empty();
     if (g.json) {
       Json j{{"stream", s.stream}, {"kept_steps", s.kept_steps}};
       j["known_steps"] = s.known_steps ? Json(*s.known_steps) : Json(nullptr);
-      j["lost_from_step"] = s.complete() ? Json(nullptr) : Json(s.kept_steps + 1);
+      j["lost_from_step"] = !steps_lost ? Json(nullptr) : Json(s.kept_steps + 1);
       j["lost_to_step"] = lost_known ? Json(*s.known_steps) : Json(nullptr);
       j["complete"] = s.complete();
       j["problem"] = s.problem;
+      // Only for a stream that is closed in the new ledger, as status --json shows closed_at.
+      if (s.closed_at_ms) {
+        j["closed_at"] = format_timestamp(*s.closed_at_ms);
+        j["closing_hash"] = s.closing_hash;
+        j["closing_proven"] = s.closing_proven;
+        j["closing_problem"] = s.closing_problem;
+      }
+      if (!s.head_problem.empty()) j["head_problem"] = s.head_problem;
       out << dump(j) << '\n';
       continue;
     }
@@ -46,29 +57,52 @@ Status run_recover(const RecoverOptions& o, const GlobalOptions& g, std::ostream
     }
     if (lost_known) {
       out << "; lost " << steps_text(s.kept_steps + 1, *s.known_steps);
-    } else if (!s.complete()) {
+    } else if (steps_lost) {
       out << "; later steps, if any, lost";
     }
     if (!s.problem.empty()) out << " (" << s.problem << ")";
+    if (!s.head_problem.empty()) out << "; " << s.head_problem;
+    if (s.closed_at_ms) {
+      out << "; closed since " << format_timestamp(*s.closed_at_ms);
+      if (s.closing_proven) {
+        out << ", closing kept (closing hash " << s.closing_hash << ")";
+      } else {
+        out << ", closing NOT proven: " << s.closing_problem << " (new closing hash " << s.closing_hash
+            << ")";
+      }
+    }
     out << '\n';
   }
+  std::string other_names;
+  for (const auto& k : report->other_key_names) other_names += (other_names.empty() ? "" : ", ") + k;
+  if (report->other_keys_copied > report->other_key_names.size()) other_names += ", ...";
   if (g.json) {
     Json j{{"recovered_to", report->target},           {"source", report->source},
            {"streams", report->streams.size()},        {"complete", report->complete()},
            {"source_problem", report->source_problem}, {"other_keys_copied", report->other_keys_copied}};
+    j["other_keys_verified"] = false;  // copied as they were: the format says nothing about them
+    j["other_key_names"] = report->other_key_names;
+    j["streams_without_configuration"] = report->streams_without_configuration;
     out << dump(j) << '\n';
   } else {
     out << "recovered " << report->streams.size() << " stream(s) from " << report->source << " into "
         << report->target << "; the new ledger passes verify\n";
     if (!report->source_problem.empty())
       out << "damage found in the source: " << report->source_problem << '\n';
+    if (report->other_keys_copied > 0)
+      out << report->other_keys_copied
+          << " key(s) that are no part of the ledger format were copied as they were, NOT verified: "
+          << other_names << '\n';
+    for (const auto& name : report->streams_without_configuration)
+      out << "stream " << name
+          << ": records or a head without a configuration; nothing of it can be proven, nothing copied\n";
   }
   out.flush();
   if (!report->complete()) {
     return storage_error(
         "ledger " + source + " was damaged: " +
         (report->source_problem.empty()
-             ? std::string("some decisions could not be proven and were not copied")
+             ? std::string("some of it (decisions, a closing, a stream) could not be proven")
              : std::string("decisions written after the damaged point may be lost, and not all "
                            "such losses can be counted")) +
         "; what could be proven is in " + o.to + " (see the lines above)");

@@ -90,7 +90,55 @@ constexpr std::string_view kCreateExample = R"({"name": "checkout-team", "rule":
 constexpr std::string_view kDecideExample = R"({"id": "exp-0142", "p_value": 0.0004})";
 constexpr std::string_view kRouteList =
     "routes: GET /v1/health, GET|POST /v1/streams, GET /v1/streams/{name}, GET /v1/streams/{name}/next, POST "
-    "/v1/streams/{name}/tests, GET /v1/streams/{name}/history, GET /v1/streams/{name}/verify";
+    "/v1/streams/{name}/tests, GET /v1/streams/{name}/history?from=STEP&limit=N, GET "
+    "/v1/streams/{name}/verify?expect=STEP:HASH, POST /v1/streams/{name}/close";
+
+// History pages (docs/http.md "History"): without `limit`, kDefaultPage records; never more than
+// kMaxPage in one answer, so one request never holds a whole long history in memory.
+constexpr std::uint64_t kDefaultPage = 1000;
+constexpr std::uint64_t kMaxPage = 10000;
+constexpr std::uint64_t kMaxStep = std::uint64_t{1} << 62;
+
+struct PageQuery {
+  std::uint64_t from = 1;
+  std::uint64_t limit = kDefaultPage;
+};
+
+// `from=STEP&limit=N` (either, both or none, each at most once). Errors name the parameter, an
+// excerpt of the value and the accepted range.
+Result<PageQuery> page_query(std::string_view query) {
+  PageQuery out;
+  bool seen_from = false, seen_limit = false;
+  while (!query.empty()) {
+    const std::size_t amp = query.find('&');
+    const std::string_view pair = query.substr(0, amp);
+    query = amp == std::string_view::npos ? std::string_view() : query.substr(amp + 1);
+    if (pair.empty()) continue;
+    const std::size_t eq = pair.find('=');
+    const std::string_view key = pair.substr(0, eq);
+    const std::string_view value = eq == std::string_view::npos ? std::string_view() : pair.substr(eq + 1);
+    const bool is_from = key == "from", is_limit = key == "limit";
+    if (!is_from && !is_limit) {
+      return invalid_input("unknown query parameter '" + excerpt(key) +
+                           "'; accepted: from=STEP (a step, 1 or more) and limit=N (1 to " +
+                           std::to_string(kMaxPage) + ")");
+    }
+    if ((is_from && seen_from) || (is_limit && seen_limit))
+      return invalid_input("query parameter '" + std::string(key) + "' is given twice; give it once");
+    (is_from ? seen_from : seen_limit) = true;
+    const std::string range = is_from ? "a whole number from 1 to " + std::to_string(kMaxStep)
+                                      : "a whole number from 1 to " + std::to_string(kMaxPage);
+    std::uint64_t v = 0;
+    const auto [end, ec] = std::from_chars(value.data(), value.data() + value.size(), v);
+    if (value.empty() || ec != std::errc() || end != value.data() + value.size() || v == 0 ||
+        v > (is_from ? kMaxStep : kMaxPage)) {
+      return invalid_input(std::string(key) + "=" + excerpt(value) + " is not accepted; " + std::string(key) +
+                           " must be " + range);
+    }
+    (is_from ? out.from : out.limit) = v;
+  }
+  return out;
+}
 
 struct CreateRequest {
   std::string name;
@@ -185,6 +233,33 @@ std::optional<std::string> percent_decode(std::string_view s) {
   return out;
 }
 
+// `expect=STEP:HASH` or `expect=closed:HASH`, repeatable (at most kMaxAnchors); nothing else.
+constexpr std::size_t kMaxAnchors = 64;
+Result<std::vector<Anchor>> anchor_query(std::string_view query) {
+  std::vector<Anchor> out;
+  while (!query.empty()) {
+    const std::size_t amp = query.find('&');
+    const std::string_view pair = query.substr(0, amp);
+    query = amp == std::string_view::npos ? std::string_view() : query.substr(amp + 1);
+    if (pair.empty()) continue;
+    const std::size_t eq = pair.find('=');
+    const std::string_view key = pair.substr(0, eq);
+    if (key != "expect") {
+      return invalid_input("unknown query parameter '" + excerpt(key) +
+                           "'; accepted: expect=STEP:HASH or expect=closed:HASH, repeatable");
+    }
+    if (out.size() == kMaxAnchors)
+      return invalid_input("more than " + std::to_string(kMaxAnchors) +
+                           " expect= anchors; give at most that many");
+    auto decoded = percent_decode(eq == std::string_view::npos ? std::string_view() : pair.substr(eq + 1));
+    if (!decoded) return invalid_input("expect= has a bad %-escape");
+    auto a = parse_anchor(*decoded);
+    if (!a) return invalid_input("expect=: " + a.error().message);
+    out.push_back(*a);
+  }
+  return out;
+}
+
 // The routes over one ledger; one member function per route.
 class Routes {
  public:
@@ -240,8 +315,9 @@ class Routes {
         if (n == 3 && m == "GET") return stream_status(parts[2]);
         if (n == 4 && parts[3] == "next" && m == "GET") return next_level(parts[2]);
         if (n == 4 && parts[3] == "tests" && m == "POST") return decide(parts[2], req);
-        if (n == 4 && parts[3] == "history" && m == "GET") return history(parts[2]);
-        if (n == 4 && parts[3] == "verify" && m == "GET") return verify(parts[2]);
+        if (n == 4 && parts[3] == "history" && m == "GET") return history(parts[2], req.query);
+        if (n == 4 && parts[3] == "verify" && m == "GET") return verify(parts[2], req.query);
+        if (n == 4 && parts[3] == "close" && m == "POST") return close(parts[2], req);
       }
     }
     return error_response(
@@ -330,11 +406,20 @@ class Routes {
     return json_response(200, stream_to_json(*s));
   }
 
+  // 409 for a closed stream asked for a level or given a test.
+  static Response closed_answer(const StreamInfo& s) {
+    return error_response(409, "stream_closed",
+                          "stream '" + excerpt(s.name) + "' is closed since " +
+                              format_timestamp(*s.closed_at_ms) +
+                              "; it takes no more tests (its history and verify stay readable)");
+  }
+
   // GET /v1/streams/{name}/next
   Response next_level(const std::string& name) {
     Response error;
     auto s = find_stream(name, error);
     if (!s) return error;
+    if (s->closed_at_ms) return closed_answer(*s);
     Json j;
     j["stream"] = name;
     j["step"] = s->tests + 1;
@@ -349,7 +434,9 @@ class Routes {
     if (!body) return error;
     auto input = test_from_json(*body);
     if (!input) return error_response(400, "invalid_input", input.error().message);
-    if (!find_stream(name, error)) return error;
+    auto s = find_stream(name, error);
+    if (!s) return error;
+    if (s->closed_at_ms) return closed_answer(*s);
     auto d = queue_.decide(name, input->id, input->p_value);
     if (!d) {
       note_write(&d.error());
@@ -359,26 +446,71 @@ class Routes {
     return Response{d->repeat ? 200 : 201, decision_json(*d) + "\n", {}, false};
   }
 
-  // GET /v1/streams/{name}/history
-  Response history(const std::string& name) {
+  // GET /v1/streams/{name}/history?from=STEP&limit=N: one page (docs/http.md "History").
+  Response history(const std::string& name, const std::string& query) {
+    auto page_asked = page_query(query);
+    if (!page_asked) return error_response(400, "invalid_input", page_asked.error().message);
     Response error;
     auto s = find_stream(name, error);
     if (!s) return error;
-    auto h = ledger_.history(name);
-    if (!h) return ledger_error(h.error());
+    auto page = ledger_.history_page(name, page_asked->from, static_cast<std::size_t>(page_asked->limit));
+    if (!page) return ledger_error(page.error());
     const std::string_view rule = rule_name(s->config.kind);
     Json j;
     j["stream"] = name;
+    j["from"] = page_asked->from;
+    j["limit"] = page_asked->limit;
+    j["total"] = page->total;
+    j["next_step"] = page->next_step == 0 ? Json(nullptr) : Json(page->next_step);
     j["decisions"] = Json::array();
-    for (const auto& r : *h) j["decisions"].push_back(history_row_to_json(r, rule));
+    for (const auto& r : page->records) j["decisions"].push_back(history_row_to_json(r, rule));
+    Response res = json_response(200, j);
+    if (page->next_step != 0) {
+      // Where the next page is, as a path the client can ask for as it is.
+      res.headers.emplace_back("X-Next-Page", "/v1/streams/" + name +
+                                                  "/history?from=" + std::to_string(page->next_step) +
+                                                  "&limit=" + std::to_string(page_asked->limit));
+    }
+    return res;
+  }
+
+  // POST /v1/streams/{name}/close: Ledger::close_stream. 200 with the stream object plus
+  // closed_now (false: it was closed before, nothing changed) and closing_hash. The body is empty
+  // or {} (the route takes no fields).
+  Response close(const std::string& name, const Request& req) {
+    bool blank = true;
+    for (char c : req.body) blank = blank && (c == ' ' || c == '\t' || c == '\r' || c == '\n');
+    if (!blank) {
+      Response error;
+      auto body = json_body(req, "an empty body or {}", error);
+      if (!body) return error;
+      if (!body->empty())
+        return error_response(
+            400, "invalid_input",
+            "close takes no fields, got '" + excerpt(body->begin().key()) + "'; send an empty body or {}");
+    }
+    Response error;
+    if (!find_stream(name, error)) return error;
+    auto closing = ledger_.close_stream(name);
+    if (!closing) {
+      note_write(&closing.error());
+      return ledger_error(closing.error());
+    }
+    if (closing->newly_closed) note_write(nullptr);
+    Json j = stream_to_json(closing->info);
+    j["closed_now"] = closing->newly_closed;
+    j["closing_hash"] = closing->closing_hash;
     return json_response(200, j);
   }
 
-  // GET /v1/streams/{name}/verify: Ledger::verify as JSON; 200 when ok, 409 when not.
-  Response verify(const std::string& name) {
+  // GET /v1/streams/{name}/verify?expect=STEP:HASH&expect=closed:HASH: Ledger::verify with those
+  // anchors, as JSON; 200 when ok, 409 when not.
+  Response verify(const std::string& name, const std::string& query) {
+    auto anchors = anchor_query(query);
+    if (!anchors) return error_response(400, "invalid_input", anchors.error().message);
     Response error;
     if (!find_stream(name, error)) return error;
-    auto v = ledger_.verify(name);
+    auto v = ledger_.verify(name, *anchors);
     if (!v) return ledger_error(v.error());
     Json j;
     j["stream"] = name;
@@ -388,6 +520,11 @@ class Routes {
       j["first_bad_step"] = nullptr;
       j["problem"] = nullptr;
       j["chain_hash"] = v->chain_hash;
+      if (v->closed_at_ms) {
+        j["closed_at"] = format_timestamp(*v->closed_at_ms);
+        j["closing_hash"] = v->closing_hash;
+      }
+      j["anchors_checked"] = v->anchors_checked;
     } else {
       j["first_bad_step"] = v->first_bad_step;
       j["problem"] = v->problem;

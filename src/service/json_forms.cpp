@@ -44,12 +44,15 @@ nlohmann::ordered_json stream_to_json(const StreamInfo& s) {
   if (rule_takes(c.kind, "spending")) j["spending"] = c.spending;
   if (rule_takes(c.kind, "evaluation")) j["evaluation"] = std::string(evaluation_name(c.evaluation));
   // As `status --json`: the direction of summary rows, shown only when it is not two-sided.
-  if (s.alternative != Alternative::kTwoSided) j["alternative"] = std::string(alternative_name(s.alternative));
+  if (s.alternative != Alternative::kTwoSided)
+    j["alternative"] = std::string(alternative_name(s.alternative));
   j["created_at"] = format_timestamp(s.created_at_ms);
   j["tests"] = s.tests;
   j["rejections"] = s.rejections;
   j["wealth"] = number(s.wealth);
   j["next_level"] = number(s.next_level);
+  // As `status --json`: shown only for a closed stream, after next_level.
+  if (s.closed_at_ms) j["closed_at"] = format_timestamp(*s.closed_at_ms);
   return j;
 }
 

@@ -10,6 +10,7 @@
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/rules.hpp"
 #include "alphaledger/store.hpp"
+#include "alphaledger/test_log.hpp"
 #include "store/codec.hpp"
 
 namespace alphaledger {
@@ -71,9 +72,22 @@ Status copy_stream(Store& from, Store& to, const std::string& name, const std::s
                   (config ? std::string(" (it names another stream)") : ": " + config.error().message);
     return {};
   }
-  if (auto head_bytes = from.get(store::head_key(name)); head_bytes && *head_bytes) {
-    if (auto head = store::decode_head(**head_bytes); head) out.known_steps = head->steps;
+  // The source's head: how many steps it counted, and whether (and when) the stream was closed.
+  std::optional<store::StoredHead> source_head;
+  if (auto head_bytes = from.get(store::head_key(name)); !head_bytes) {
+    out.head_problem = "the head cannot be read: " + head_bytes.error().message;
+  } else if (!*head_bytes) {
+    out.head_problem = "the head is missing";
+  } else if (auto head = store::decode_head(**head_bytes); !head) {
+    out.head_problem = "the head cannot be read: " + head.error().message;
+  } else {
+    source_head = *head;
+    out.known_steps = head->steps;
   }
+  if (!out.head_problem.empty())
+    out.head_problem +=
+        " (how many steps it held and whether it was closed are unknown; it is open in the "
+        "new ledger)";
   WriteBatch batch;
   batch.put(store::config_key(name), config_bytes);
   Rule rule(config->config);  // replays the steps as they are read
@@ -134,6 +148,31 @@ Status copy_stream(Store& from, Store& to, const std::string& name, const std::s
   head.steps = out.kept_steps;
   head.last_hash = prev;
   head.rule_state = kept_rule.encode_state();
+  if (source_head && source_head->closed_at_ms) {
+    // A closed stream stays closed. Its closing entry is proven when it covers exactly the kept
+    // steps and hashes to what the source's head holds; otherwise it is closed again over the
+    // kept steps, at the same time, and the report says the old closing hash no longer applies.
+    const std::int64_t closed_at = *source_head->closed_at_ms;
+    const store::Digest closing = store::closing_hash(out.kept_steps, closed_at, prev);
+    if (source_head->steps != out.kept_steps) {
+      out.closing_problem = "the closing covered " + std::to_string(source_head->steps) +
+                            " step(s) but only " + std::to_string(out.kept_steps) + " were kept";
+    } else if (closing != source_head->last_hash) {
+      out.closing_problem =
+          "the closing entry rebuilt from the kept steps and the closing time does not hash to the "
+          "closing hash in the head (the head or its closing time was changed)";
+    } else {
+      out.closing_proven = true;
+    }
+    if (!out.closing_proven)
+      out.closing_problem +=
+          "; closed again at the same time with a new closing hash (an anchor "
+          "closed:HASH noted before no longer matches)";
+    out.closed_at_ms = closed_at;
+    out.closing_hash = store::to_hex(closing);
+    head.last_hash = closing;
+    head.closed_at_ms = closed_at;
+  }
   batch.put(store::head_key(name), store::encode_head(head));
   return flush(to, batch, true);
 }
@@ -215,16 +254,28 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
       if (auto st = copy_stream(**from, **to, name, bytes, sr); !st) return st.error();
       report.streams.push_back(std::move(sr));
     }
-    // Keys outside the four stream prefixes and the format key (other ledger-level data), as they were.
+    // Keys outside the four stream prefixes and the format key: no part of the format, so they are
+    // copied as they were and named in the report as not verified. Keys under a stream prefix whose
+    // stream has no configuration cannot be proven and are not copied; their streams are named.
+    std::set<std::string> with_config;
+    for (const auto& c : configs) with_config.insert(c.first);
+    std::set<std::string> orphans;
     WriteBatch other;
     s = (*from)->scan("", [&](std::string_view key, std::string_view value) {
-      if (key == store::kFormatKey || key.starts_with("c/") || key.starts_with("h/") ||
-          key.starts_with("r/") || key.starts_with("i/"))
+      if (key == store::kFormatKey) return true;
+      if (key.starts_with("c/") || key.starts_with("h/") || key.starts_with("r/") || key.starts_with("i/")) {
+        std::string_view rest = key.substr(2);
+        const std::string stream(rest.substr(0, rest.find('/')));
+        if (!with_config.count(stream) && orphans.size() < 1000) orphans.insert(stream);
         return true;
+      }
       other.put(std::string(key), std::string(value));
+      if (report.other_key_names.size() < RecoveryReport::kShownKeys)
+        report.other_key_names.push_back(excerpt(key, 40));
       ++report.other_keys_copied;
       return true;
     });
+    for (const auto& o : orphans) report.streams_without_configuration.push_back(excerpt(o, 128));
     if (!s) {
       report.source_problem += std::string(report.source_problem.empty() ? "" : "; ") +
                                "some ledger-level keys could not be read: " + s.error().message;
@@ -241,7 +292,10 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
   if (!check) return check.error();
   for (const auto& sr : report.streams) {
     if (!sr.problem.empty() && sr.problem.starts_with("the configuration")) continue;
-    auto v = (*check)->verify(sr.stream);
+    // A proven closing must still be the source's: the closing hash is checked as an anchor.
+    std::vector<Anchor> anchors;
+    if (sr.closing_proven) anchors.push_back(Anchor{0, true, sr.closing_hash});
+    auto v = (*check)->verify(sr.stream, anchors);
     if (!v) return v.error();
     if (!v->ok || v->steps != sr.kept_steps) {
       return storage_error("the recovered ledger " + target + " fails verify for stream " + sr.stream + ": " +

@@ -219,3 +219,51 @@ TEST_CASE("Recover: read commands work while another process holds the ledger, a
   ::close(fd);
   CHECK(snapshot(db) == before);
 }
+
+TEST_CASE("Recover: a closed stream stays closed with its closing hash when the closing is intact") {
+  ScratchDir dir;
+  const std::string db = build(dir, "ledger", 300);
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "still-open", "--rule", "saffron"})).exit_code == 0);
+  auto closed = run_alphaledger(with_ledger(db, {"--json", "close", "s"}));
+  REQUIRE(closed.exit_code == 0);
+  const auto cj = nlohmann::json::parse(closed.out);
+  const std::string closed_at = cj["closed_at"], closing_hash = cj["closing_hash"];
+
+  const std::string to = dir.sub("copy");
+  auto r = run_alphaledger(with_ledger(db, {"--json", "recover", "--to", to}));
+  INFO(r.err);
+  REQUIRE(r.exit_code == 0);
+  const auto lines = complete_lines(r.out);
+  REQUIRE(lines.size() == 3);
+  const auto s = nlohmann::json::parse(lines[0]);
+  CHECK(s["stream"] == "s");
+  CHECK(s["kept_steps"] == 300);
+  CHECK(s["complete"] == true);
+  CHECK(s["closed_at"] == closed_at);
+  CHECK(s["closing_hash"] == closing_hash);
+  CHECK(s["closing_proven"] == true);
+  CHECK(s["closing_problem"] == "");
+  const auto open = nlohmann::json::parse(lines[1]);
+  CHECK(open["stream"] == "still-open");
+  CHECK_FALSE(open.contains("closed_at"));
+  const auto summary = nlohmann::json::parse(lines[2]);
+  CHECK(summary["other_keys_copied"] == 0);
+  CHECK(summary["other_keys_verified"] == false);
+  CHECK(summary["streams_without_configuration"].empty());
+
+  // The copy holds the same closing: the anchor noted at the closing matches, status shows it,
+  // and the stream still takes no tests.
+  CHECK(run_alphaledger(with_ledger(to, {"verify", "s", "--expect", "closed:" + closing_hash})).exit_code ==
+        0);
+  CHECK(nlohmann::json::parse(run_alphaledger(with_ledger(to, {"--json", "status", "s"})).out)["closed_at"] ==
+        closed_at);
+  auto d = run_alphaledger(with_ledger(to, {"decide", "s", "--id", "later", "--p", "0.5"}));
+  CHECK(d.exit_code == 3);
+  CHECK(d.err.find("closed since " + closed_at) != std::string::npos);
+  CHECK(run_alphaledger(with_ledger(to, {"decide", "still-open", "--id", "x", "--p", "0.5"})).exit_code == 0);
+
+  auto text = run_alphaledger(with_ledger(db, {"recover", "--to", dir.sub("copy-text")}));
+  REQUIRE(text.exit_code == 0);
+  CHECK(text.out.find("stream s: kept steps 1..300; closed since " + closed_at +
+                      ", closing kept (closing hash " + closing_hash + ")\n") != std::string::npos);
+}

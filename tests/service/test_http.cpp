@@ -234,6 +234,33 @@ std::string cli_output(const TempDir& dir, const std::vector<std::string>& args)
   return read_file(dir.file("cli.out"));
 }
 
+TEST_CASE("Server: a closed stream's object and a repeated close answer byte for byte what the CLI prints") {
+  TempDir dir;
+  const std::string db = dir.file("db");
+  std::string status, closed_again, listed;
+  {
+    ServerProcess server(db, dir.file("server.log"));
+    Api api(server.port());
+    REQUIRE(api.post("/v1/streams", R"({"name": "ends", "rule": "saffron", "alternative": "less"})").status ==
+            201);
+    REQUIRE(api.decide("ends", "a", 0.0001).status == 201);
+    const Reply first = api.post("/v1/streams/ends/close", "");
+    REQUIRE(first.status == 200);
+    CHECK(first.body["closed_now"] == true);
+    status = api.get("/v1/streams/ends").raw;
+    closed_again = api.post("/v1/streams/ends/close", "").raw;
+    listed = api.get("/v1/streams").raw;
+    api.close();
+    REQUIRE(server.stop() == std::optional<int>(0));
+  }
+  CHECK(status.find("\"closed_at\":") != std::string::npos);
+  CHECK(status == cli_output(dir, {"--ledger", db, "--json", "status", "ends"}));
+  CHECK(nlohmann::ordered_json::parse(listed)["streams"][0].dump() + "\n" ==
+        cli_output(dir, {"--ledger", db, "--json", "streams"}));
+  // `close --json` on the closed stream: the same object, closed_now false, the same closing hash.
+  CHECK(closed_again == cli_output(dir, {"--ledger", db, "--json", "close", "ends"}));
+}
+
 TEST_CASE(
     "Server: status, next, history and a repeated decision answer byte for byte what the CLI prints with "
     "--json") {
