@@ -9,10 +9,12 @@
 //   3. decide_batch: group commit with groups of 16, 256 and 4096 decisions per synced write.
 //   4. open: Ledger::open + close of the folder, the fixed cost a one-shot CLI process pays (the
 //      first open after the run, which replays the write-ahead log, reported on its own).
-//   5. decide on the in-memory store: the CPU cost of a decision without any disk.
+//   5. decide on the in-memory store: the CPU cost of a decision without any disk, one at a time
+//      and in groups of 4096 (memory_throughput below), for LORD++ fast and exact.
 // Prints the set-up, then per measurement: operations, seconds, microseconds per op, ops/s.
 //
-// Usage: ledger_bench [FOLDER] [SECONDS-PER-MEASUREMENT]   (defaults: ./ledger-bench.tmp, 3)
+// Usage: ledger_bench [FOLDER] [SECONDS-PER-MEASUREMENT] [memory]   (defaults: ./ledger-bench.tmp, 3)
+// With the word memory last, only the in-memory group measurements run (for profiling).
 // The folder is created and removed; put it on the disk you want to measure.
 #include <fcntl.h>
 #include <unistd.h>
@@ -20,6 +22,7 @@
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
+#include <ctime>
 #include <filesystem>
 #include <random>
 #include <string>
@@ -40,6 +43,21 @@ double seconds_since(SteadyClock::time_point t0) {
 void report(const char* what, std::size_t ops, double secs) {
   std::printf("%-34s %9zu ops %8.3f s %10.1f us/op %11.0f ops/s\n", what, ops, secs,
               1e6 * secs / static_cast<double>(ops), static_cast<double>(ops) / secs);
+  std::fflush(stdout);
+}
+
+// CPU time of the whole process (all threads, RocksDB's included; measured around decide_batch
+// only): on a loaded machine it says
+// what a decision costs when the wall clock cannot.
+double cpu_seconds() {
+  timespec ts{};
+  clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
+  return static_cast<double>(ts.tv_sec) + 1e-9 * static_cast<double>(ts.tv_nsec);
+}
+
+void report_cpu(std::size_t ops, double cpu_secs) {
+  std::printf("  CPU time: %.2f us per op (%.0f ops per CPU second)\n",
+              1e6 * cpu_secs / static_cast<double>(ops), static_cast<double>(ops) / cpu_secs);
   std::fflush(stdout);
 }
 
@@ -95,6 +113,73 @@ std::unique_ptr<Ledger> must(Result<std::unique_ptr<Ledger>> r) {
 // growth of exact mode's deposit list (rules_bench measures that).
 RuleConfig lord() { return resolve_config({.rule = "lord++", .evaluation = "fast"}).value(); }
 
+std::string bench_id(std::size_t i) {
+  std::string s = "exp-";
+  s.append(std::to_string(i));
+  return s;
+}
+
+// The ledger's CPU cost per decision without a disk: decide_batch on the in-memory store, 4096
+// decisions per write, with the rule `config` (ids and p-values built before the clock starts).
+void memory_batch(const std::vector<double>& p, double seconds, const RuleConfig& config, const char* label) {
+  MemoryStore mem;
+  auto ledger = must(Ledger::open(borrow_store(mem)));
+  if (!ledger->create_stream("bench", config)) std::exit(1);
+  constexpr std::size_t kGroup = 4096;
+  std::size_t done = 0;
+  double busy = 0;
+  double cpu = 0;
+  while (busy < seconds) {
+    std::vector<TestInput> inputs;
+    inputs.reserve(kGroup * 4);
+    for (std::size_t k = 0; k < kGroup * 4; ++k, ++done)
+      inputs.push_back({bench_id(done), p[done % p.size()]});
+    const auto t0 = SteadyClock::now();
+    const double cpu0 = cpu_seconds();
+    auto r = ledger->decide_batch("bench", inputs, kGroup);
+    cpu += cpu_seconds() - cpu0;
+    busy += seconds_since(t0);
+    if (!r || r->error) {
+      std::fprintf(stderr, "ledger_bench: in-memory batch failed\n");
+      std::exit(1);
+    }
+  }
+  report(label, done, busy);
+  report_cpu(done, cpu);
+}
+
+// What the id check of decide_batch costs in RocksDB: one get of an index key per new test,
+// which finds nothing. Measured on the ledger the run has filled, after it is closed.
+void id_lookups(const std::string& ledger_path, std::size_t decided, double seconds) {
+  auto store = open_rocksdb_store(ledger_path, RocksStoreOptions{});
+  if (!store) {
+    std::fprintf(stderr, "ledger_bench: %s\n", store.error().message.c_str());
+    std::exit(1);
+  }
+  for (const bool present : {false, true}) {
+    std::size_t ops = 0;
+    const double cpu0 = cpu_seconds();
+    const auto t0 = SteadyClock::now();
+    while (seconds_since(t0) < seconds) {
+      const std::size_t n = present ? (ops * 7919) % decided : decided + ops;
+      auto v = (*store)->get("i/bench/" + bench_id(n));
+      if (!v || v->has_value() != present) {
+        std::fprintf(stderr, "ledger_bench: unexpected id lookup result\n");
+        std::exit(1);
+      }
+      ++ops;
+    }
+    report(present ? "store get, id present" : "store get, id absent (a new test)", ops, seconds_since(t0));
+    report_cpu(ops, cpu_seconds() - cpu0);
+  }
+}
+
+void memory_throughput(const std::vector<double>& p, double seconds) {
+  memory_batch(p, seconds, lord(), "decide_batch 4096, in-memory, fast");
+  memory_batch(p, seconds, resolve_config({.rule = "lord++", .evaluation = "exact"}).value(),
+               "decide_batch 4096, in-memory, exact");
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -104,6 +189,11 @@ int main(int argc, char** argv) {
   std::filesystem::create_directories(folder);
   const std::string ledger_path = folder + "/ledger";
   const auto p = p_values(2'000'000);
+  if (argc > 3 && std::string(argv[3]) == "memory") {
+    memory_throughput(p, seconds);
+    std::filesystem::remove_all(folder);
+    return 0;
+  }
 
   std::printf("ledger_bench: folder %s (absolute %s), %.1f s per measurement, rule %s\n", folder.c_str(),
               std::filesystem::absolute(folder).c_str(), seconds, describe_config(lord()).c_str());
@@ -138,13 +228,16 @@ int main(int argc, char** argv) {
 
     for (std::size_t group : {16u, 256u, 4096u}) {
       std::size_t done = 0;
+      double cpu = 0;
       const auto t1 = SteadyClock::now();
       while (seconds_since(t1) < seconds) {
         std::vector<TestInput> inputs;
         inputs.reserve(group * 4);
         for (std::size_t k = 0; k < group * 4; ++k, ++next)
           inputs.push_back({id_of(next), p[next % p.size()]});
+        const double cpu0 = cpu_seconds();
         auto r = ledger->decide_batch("bench", inputs, group);
+        cpu += cpu_seconds() - cpu0;
         if (!r || r->error) {
           std::fprintf(stderr, "ledger_bench: batch failed\n");
           return 1;
@@ -156,6 +249,7 @@ int main(int argc, char** argv) {
       std::snprintf(label, sizeof label, "decide_batch, %zu per synced write", group);
       report(label, done, secs2);
       std::printf("  ratio to raw fdatasync: %.1f\n", static_cast<double>(done) / secs2 / fdatasync_rate);
+      report_cpu(done, cpu);
     }
     auto verify_t0 = SteadyClock::now();
     auto v = ledger->verify("bench");
@@ -195,6 +289,8 @@ int main(int argc, char** argv) {
     }
     report("decide, in-memory store (no disk)", ops, seconds_since(t0));
   }
+  id_lookups(ledger_path, next, seconds);
+  memory_throughput(p, seconds);
   std::filesystem::remove_all(folder);
   return 0;
 }

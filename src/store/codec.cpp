@@ -86,6 +86,9 @@ std::string hex16(std::uint64_t v) {
 }
 
 constexpr std::size_t kRecordHashSize = 32;
+// An encoded record without its id bytes: version, step, id length, p-value, level, rejected,
+// wealth, time, previous hash, hash.
+constexpr std::size_t kRecordFixedSize = 1 + 8 + 2 + 8 + 8 + 1 + 8 + 8 + 32 + kRecordHashSize;
 
 }  // namespace
 
@@ -117,12 +120,31 @@ Status validate_stream_name(std::string_view name) {
 std::string config_key(std::string_view stream) { return "c/" + std::string(stream); }
 std::string head_key(std::string_view stream) { return "h/" + std::string(stream); }
 std::string record_prefix(std::string_view stream) { return "r/" + std::string(stream) + "/"; }
+// The keys written for every decision are built in one allocation each.
 std::string record_key(std::string_view stream, std::uint64_t step) {
-  return record_prefix(stream) + hex16(step);
+  std::string out;
+  out.reserve(stream.size() + 3 + 16);
+  out.append("r/").append(stream).push_back('/');
+  out.append(16, '0');
+  set_record_key_step(out, step);
+  return out;
+}
+void set_record_key_step(std::string& key, std::uint64_t step) {
+  static constexpr char kHex[] = "0123456789abcdef";
+  char* end = key.data() + key.size();
+  for (int i = 1; i <= 16; ++i, step >>= 4) end[-i] = kHex[step & 15];
 }
 std::string index_prefix(std::string_view stream) { return "i/" + std::string(stream) + "/"; }
 std::string index_key(std::string_view stream, std::string_view id) {
-  return index_prefix(stream) + std::string(id);
+  std::string out;
+  assign_index_key(out, stream, id);
+  return out;
+}
+void assign_index_key(std::string& out, std::string_view stream, std::string_view id) {
+  out.clear();
+  out.reserve(stream.size() + 3 + id.size());
+  out.append("i/").append(stream).push_back('/');
+  out.append(id);
 }
 
 std::string encode_format_version(std::uint32_t version) {
@@ -291,19 +313,28 @@ Result<StoredHead> decode_head(std::string_view bytes) {
 }
 
 std::string encode_record(const DecisionRecord& rec, const Digest& prev_hash, Digest* hash) {
-  std::string out;
-  out.reserve(80 + rec.id.size());
-  put_u8(out, kRecordVersion);
-  put_u64(out, rec.step);
-  put_text16(out, rec.id);
-  put_f64(out, rec.p_value);
-  put_f64(out, rec.level);
-  put_u8(out, rec.rejected ? 1 : 0);
-  put_f64(out, rec.wealth);
-  put_u64(out, static_cast<std::uint64_t>(rec.decided_at_ms));
-  out.append(as_bytes(prev_hash));
-  const Digest h = sha256(out);
-  out.append(as_bytes(h));
+  // Written field by field into a buffer of the exact size (the layout of docs/ledger-format.md),
+  // then hashed in place: one allocation per record.
+  const std::size_t size = kRecordFixedSize + rec.id.size();
+  std::string out(size, '\0');
+  char* p = out.data();
+  auto put = [&p](std::uint64_t v, int bytes) {
+    for (int i = 0; i < bytes; ++i) *p++ = static_cast<char>(v >> (8 * i));
+  };
+  put(kRecordVersion, 1);
+  put(rec.step, 8);
+  put(rec.id.size(), 2);
+  std::memcpy(p, rec.id.data(), rec.id.size());
+  p += rec.id.size();
+  put(std::bit_cast<std::uint64_t>(rec.p_value), 8);
+  put(std::bit_cast<std::uint64_t>(rec.level), 8);
+  put(rec.rejected ? 1 : 0, 1);
+  put(std::bit_cast<std::uint64_t>(rec.wealth), 8);
+  put(static_cast<std::uint64_t>(rec.decided_at_ms), 8);
+  std::memcpy(p, prev_hash.data(), prev_hash.size());
+  p += prev_hash.size();
+  const Digest h = sha256(std::string_view(out.data(), size - kRecordHashSize));
+  std::memcpy(p, h.data(), h.size());
   if (hash != nullptr) *hash = h;
   return out;
 }

@@ -40,8 +40,12 @@ std::string config_key(std::string_view stream);                      // "c/<str
 std::string head_key(std::string_view stream);                        // "h/<stream>"
 std::string record_prefix(std::string_view stream);                   // "r/<stream>/"
 std::string record_key(std::string_view stream, std::uint64_t step);  // "r/<stream>/<16 hex digits>"
+// Rewrites the last 16 characters of a record key (one record_key() made) for another step.
+void set_record_key_step(std::string& key, std::uint64_t step);
 std::string index_prefix(std::string_view stream);                    // "i/<stream>/"
 std::string index_key(std::string_view stream, std::string_view id);  // "i/<stream>/<id bytes>"
+// index_key() into `out`, reusing its storage.
+void assign_index_key(std::string& out, std::string_view stream, std::string_view id);
 inline constexpr std::string_view kConfigPrefix = "c/";
 
 std::string encode_format_version(std::uint32_t version);

@@ -233,9 +233,15 @@ class StoreLedger final : public Ledger {
     BatchResult out;
     // First pass, before anything is written: every id is looked up, so a conflict (with the
     // ledger, or between two rows of the batch) refuses the batch with the ledger unchanged.
-    std::vector<std::optional<DecisionRecord>> stored(tests.size());
+    // first_row[i] is i for a row that decides a new id, the first such row for a later row with
+    // the same new id, and kStoredRow for an id the ledger already holds (its record in `stored`).
+    constexpr std::size_t kStoredRow = static_cast<std::size_t>(-1);
+    std::vector<std::size_t> first_row(tests.size());
+    std::unordered_map<std::size_t, DecisionRecord> stored;  // row -> record already in the ledger
     {
       std::unordered_map<std::string_view, std::size_t> first_new;  // id -> first index, new ids
+      first_new.reserve(tests.size());
+      std::string key;  // the index key, built in one reused buffer
       for (std::size_t i = 0; i < tests.size(); ++i) {
         const auto& t = tests[i];
         if (auto it = first_new.find(t.id); it != first_new.end()) {
@@ -249,9 +255,10 @@ class StoreLedger final : public Ledger {
             out.stopped_at = i;
             return out;
           }
+          first_row[i] = it->second;
           continue;
         }
-        auto found = find_decided(stream, t.id);
+        auto found = find_decided(stream, t.id, key);
         if (!found) return found.error();
         if (*found) {
           if (auto r = repeat_or_conflict(stream, **found, t.p_value); !r) {
@@ -259,21 +266,27 @@ class StoreLedger final : public Ledger {
             out.stopped_at = i;
             return out;
           }
-          stored[i] = std::move(*found);
+          first_row[i] = kStoredRow;
+          stored.emplace(i, std::move(**found));
         } else {
           first_new.emplace(t.id, i);
+          first_row[i] = i;
         }
       }
     }
 
     // As in decide(): the cached state advances in place and counts as loaded only after each
-    // successful write.
+    // successful write. Every row gives one result, in input order, so row j's result is
+    // out.decided[j] once its group is durable and group[j - out.decided.size()] before.
     Rule& rule = *slot->rule;
     StoredHead& head = slot->head;
+    const std::size_t group_capacity = std::min(group_size, tests.size());
     WriteBatch batch;
+    batch.ops.reserve(2 * group_capacity + 1);
     std::vector<DecideResult> group;
+    group.reserve(group_capacity);
+    out.decided.reserve(tests.size());
     std::size_t group_start = 0;
-    std::unordered_map<std::string, DecisionRecord> decided_here;  // new ids decided in this batch
 
     // Writes the group (if it decided anything), then publishes it. Returns false on failure,
     // having recorded the error in `out`.
@@ -291,21 +304,22 @@ class StoreLedger final : public Ledger {
       if (on_durable && !group.empty()) on_durable(group);
       for (auto& d : group) out.decided.push_back(std::move(d));
       group.clear();
-      batch = WriteBatch{};
+      batch.ops.clear();  // keeps the capacity for the next group
       return true;
     };
 
     for (std::size_t i = 0; i < tests.size(); ++i) {
       const auto& t = tests[i];
-      if (stored[i]) {
-        group.push_back(DecideResult{std::string(stream), *stored[i], true});
-      } else if (auto it = decided_here.find(t.id); it != decided_here.end()) {
-        group.push_back(DecideResult{std::string(stream), it->second, true});
+      const std::size_t first = first_row[i];
+      if (first == kStoredRow) {
+        group.push_back(DecideResult{std::string(stream), stored.at(i), true});
+      } else if (first != i) {
+        const DecisionRecord& earlier =
+            first < out.decided.size() ? out.decided[first].record : group[first - out.decided.size()].record;
+        group.push_back(DecideResult{std::string(stream), earlier, true});
       } else {
         slot->loaded = false;
-        DecideResult d = decide_into(stream, rule, head, t.id, t.p_value, batch);
-        decided_here.emplace(t.id, d.record);
-        group.push_back(std::move(d));
+        group.push_back(decide_into(stream, rule, head, t.id, t.p_value, batch));
       }
       if (group.size() >= group_size) {
         if (!flush()) return out;
@@ -568,7 +582,14 @@ class StoreLedger final : public Ledger {
 
   // The stored decision for `id`, if any.
   Result<std::optional<DecisionRecord>> find_decided(std::string_view stream, std::string_view id) {
-    auto index = store_->get(store::index_key(stream, id));
+    std::string key;
+    return find_decided(stream, id, key);
+  }
+  // The same, building the index key in `key` (a buffer the caller reuses across calls).
+  Result<std::optional<DecisionRecord>> find_decided(std::string_view stream, std::string_view id,
+                                                     std::string& key) {
+    store::assign_index_key(key, stream, id);
+    auto index = store_->get(key);
     if (!index) return index.error();
     if (!*index) return std::optional<DecisionRecord>{};
     const std::string where =

@@ -16,13 +16,14 @@ Status visit_records(Store& store, const std::string& where, std::string_view st
                          std::string(stream) + ")");
   };
   std::uint64_t expected = lo;
+  std::string expected_key = record_key(stream, lo);  // rewritten in place for each next step
   std::optional<Error> bad;
   bool stopped = false;
   // One scan per key block (record_range_prefixes): the store reads the records lo..hi and no
   // others, however long the stream.
   for (const auto& prefix : record_range_prefixes(stream, lo, hi)) {
     auto s = store.scan(prefix, [&](std::string_view key, std::string_view value) {
-      if (key != record_key(stream, expected)) {
+      if (key != expected_key) {
         bad = problem(expected, "is missing");
         return false;
       }
@@ -36,6 +37,7 @@ Status visit_records(Store& store, const std::string& where, std::string_view st
         return false;
       }
       ++expected;
+      set_record_key_step(expected_key, expected);
       if (!visit(rec->record)) {
         stopped = true;
         return false;

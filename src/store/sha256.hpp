@@ -21,7 +21,9 @@ class Sha256 {
   Digest finish();
 
  private:
-  void compress(const std::uint8_t* block);
+  // Processes `blocks` whole 64-byte blocks: with the CPU's SHA instructions when it has them,
+  // otherwise the portable code of FIPS 180-4 6.2.2. Both give the same digest.
+  void compress(const std::uint8_t* data, std::size_t blocks);
 
   std::array<std::uint32_t, 8> h_;
   std::array<std::uint8_t, 64> buffer_{};
@@ -30,6 +32,10 @@ class Sha256 {
 };
 
 Digest sha256(std::string_view bytes);
+// For tests: the digest computed with the portable code only, and whether sha256() uses the CPU's
+// SHA instructions on this machine (x86-64 SHA extensions).
+Digest sha256_portable(std::string_view bytes);
+bool sha256_uses_cpu_instructions();
 std::string to_hex(const Digest& d);
 std::string_view as_bytes(const Digest& d);
 

@@ -112,6 +112,52 @@ TEST_CASE("Codec: record layout matches docs/ledger-format.md") {
   CHECK(encode_format_version(1) == std::string("\x01\0\0\0", 4));
 }
 
+// The keys and record bytes built in place (one allocation each) equal the plain definitions of
+// docs/ledger-format.md; the record hash is SHA-256 of the bytes before it, computed with the
+// portable code (FIPS 180-4) as well as the CPU path. Expected values: from the format document.
+TEST_CASE("Codec: keys and records built in place match the layout, for any step and id") {
+  CHECK(record_key("s", 0) == "r/s/0000000000000000");
+  CHECK(record_key("s", 0xffffffffffffffffULL) == "r/s/ffffffffffffffff");
+  CHECK(record_key("stream.name-1", 0xabcdef0123456789ULL) == "r/stream.name-1/abcdef0123456789");
+  std::string key = record_key("s", 1);
+  set_record_key_step(key, 0x10);
+  CHECK(key == "r/s/0000000000000010");
+  set_record_key_step(key, 0xfedcba9876543210ULL);
+  CHECK(key == record_key("s", 0xfedcba9876543210ULL));
+  std::string buffer = "left over from a longer key, to be replaced";
+  assign_index_key(buffer, "s", "exp-7");
+  CHECK(buffer == "i/s/exp-7");
+  CHECK(buffer == index_key("s", "exp-7"));
+
+  for (std::size_t id_size : {1u, 2u, 15u, 16u, 17u, 40u, 200u, 256u}) {
+    CAPTURE(id_size);
+    const std::string id(id_size, 'q');
+    DecisionRecord r{0x0102030405060708ULL, id, 0.03, 0.0125, true, 0.25, -5};
+    Digest prev{};
+    prev.fill(0x5a);
+    Digest hash{};
+    const std::string b = encode_record(r, prev, &hash);
+    REQUIRE(b.size() == 76 + id_size + 32);
+    CHECK(b.substr(1, 8) == std::string("\x08\x07\x06\x05\x04\x03\x02\x01", 8));
+    CHECK(static_cast<unsigned char>(b[9]) == (id_size & 0xff));
+    CHECK(static_cast<unsigned char>(b[10]) == (id_size >> 8));
+    CHECK(b.substr(11, id_size) == id);
+    CHECK(b[11 + id_size + 16] == 1);  // rejected
+    // decided_at -5 as a two's-complement u64.
+    CHECK(b.substr(11 + id_size + 25, 8) == std::string("\xfb\xff\xff\xff\xff\xff\xff\xff", 8));
+    CHECK(b.substr(11 + id_size + 33, 32) == std::string(32, '\x5a'));
+    const Digest portable = sha256_portable(std::string_view(b).substr(0, b.size() - 32));
+    CHECK(hash == portable);
+    CHECK(b.substr(b.size() - 32) == std::string(as_bytes(portable)));
+    auto back = decode_record(b);
+    REQUIRE(back.ok());
+    CHECK(back->record.id == id);
+    CHECK(back->record.step == r.step);
+    CHECK(back->record.decided_at_ms == -5);
+    CHECK(back->hash == portable);
+  }
+}
+
 TEST_CASE("Codec: damaged and newer values are refused with a storage error") {
   const auto c = sample_configs()[3];
   const std::string bytes = encode_config(c);

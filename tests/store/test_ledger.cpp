@@ -752,3 +752,49 @@ TEST_CASE("Ledger: decision_json has the contract's keys and round-trips numbers
   auto with_rule = nlohmann::ordered_json::parse(decision_json(*d, "lord++"));
   CHECK(with_rule.begin().key() == "rule");
 }
+
+// A batch that repeats ids: a later row with the same new id gets the earlier row's record whether
+// that row's group is already written or still open, and an id the ledger holds is reported as a
+// repeat each time. The new decisions equal deciding the new ids one at a time (bit for bit; the
+// reference is decide() on a second ledger, common practice, no outside source).
+TEST_CASE("Ledger: decide_batch repeats within a batch, across and inside groups") {
+  const RuleConfig config = config_of({.rule = "lord++"});
+  MemoryStore mem;
+  auto ledger = open_over(mem);
+  REQUIRE(ledger->create_stream("s", config).ok());
+  REQUIRE(ledger->decide("s", "old", 0.5).ok());
+  const std::vector<TestInput> inputs{{"a", 0.001}, {"b", 0.2},   {"c", 0.0001}, {"a", 0.001}, {"d", 0.4},
+                                      {"d", 0.4},   {"old", 0.5}, {"old", 0.5},  {"e", 0.003}, {"c", 0.0001}};
+  auto r = ledger->decide_batch("s", inputs, 2);
+  REQUIRE(r.ok());
+  REQUIRE_FALSE(r->error.has_value());
+  REQUIRE(r->decided.size() == inputs.size());
+  const std::vector<bool> repeat{false, false, false, true, false, true, true, true, false, true};
+  const std::vector<std::uint64_t> step{2, 3, 4, 2, 5, 5, 1, 1, 6, 4};
+  for (std::size_t i = 0; i < inputs.size(); ++i) {
+    CAPTURE(i);
+    CHECK(r->decided[i].repeat == repeat[i]);
+    CHECK(r->decided[i].record.step == step[i]);
+    CHECK(r->decided[i].record.id == inputs[i].id);
+    CHECK(r->decided[i].stream == "s");
+  }
+
+  MemoryStore mem2;
+  auto one_by_one = open_over(mem2);
+  REQUIRE(one_by_one->create_stream("s", config).ok());
+  for (const auto& [id, p] : std::vector<TestInput>{
+           {"old", 0.5}, {"a", 0.001}, {"b", 0.2}, {"c", 0.0001}, {"d", 0.4}, {"e", 0.003}}) {
+    auto d = one_by_one->decide("s", id, p);
+    REQUIRE(d.ok());
+    for (const auto& got : r->decided) {
+      if (got.record.id != id) continue;
+      CHECK(same_bits(got.record.level, d->record.level));
+      CHECK(got.record.rejected == d->record.rejected);
+      CHECK(same_bits(got.record.wealth, d->record.wealth));
+    }
+  }
+  auto v = ledger->verify("s");
+  REQUIRE(v.ok());
+  CHECK(v->ok);
+  CHECK(v->steps == 6);
+}
