@@ -62,12 +62,14 @@ Result<TestInput> test_from_json(const nlohmann::json& object, Alternative summa
 
 // The body of a stream creation (POST /v1/streams): name and rule (strings) plus the optional
 // rule parameters (numbers: alpha, initial_wealth, candidate_threshold, discard_threshold,
-// payout; strings: spending, evaluation; null means absent). Unknown keys are refused, so a
+// payout; strings: spending, evaluation, alternative; null means absent). Unknown keys are refused, so a
 // misspelt parameter cannot silently fall back to its default. The spec is not yet checked
 // against the rule: resolve_config() does that.
 struct StreamRequest {
   std::string name;
   RuleSpec spec;
+  // The direction of summary rows (`alternative`: two-sided, greater or less), as `new` takes it.
+  Alternative alternative = Alternative::kTwoSided;
 };
 inline constexpr std::string_view kStreamRequestExample =
     R"({"name": "checkout-team", "rule": "lord++", "alpha": 0.05})";

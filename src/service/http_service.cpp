@@ -140,69 +140,6 @@ Result<PageQuery> page_query(std::string_view query) {
   return out;
 }
 
-struct CreateRequest {
-  std::string name;
-  RuleSpec spec;
-  Alternative alternative = Alternative::kTwoSided;
-};
-
-// The create body: name and rule (strings) plus the optional rule parameters and the direction of
-// summary rows (`alternative`), as `alphaledger new` takes them. Unknown keys are refused so that
-// a misspelt parameter cannot silently fall back to its default.
-Result<CreateRequest> create_request(const nlohmann::json& j) {
-  static const char* kNumbers[] = {"alpha", "initial_wealth", "candidate_threshold", "discard_threshold",
-                                   "payout"};
-  static const char* kTexts[] = {"name", "rule", "spending", "evaluation", "alternative"};
-  for (auto it = j.begin(); it != j.end(); ++it) {
-    const std::string& key = it.key();
-    bool numeric = false, text = false;
-    for (const char* k : kNumbers) numeric = numeric || key == k;
-    for (const char* k : kTexts) text = text || key == k;
-    if (!numeric && !text) {
-      return invalid_input("unknown field '" + excerpt(key) +
-                           "'; accepted: name, rule, alpha, initial_wealth, candidate_threshold, "
-                           "discard_threshold, payout, spending, evaluation, alternative");
-    }
-    if (it.value().is_null()) continue;
-    if (numeric && !it.value().is_number())
-      return invalid_input(key + " must be a JSON number, got " + shown(it.value()));
-    if (text && !it.value().is_string())
-      return invalid_input(key + " must be a JSON string, got " + shown(it.value()));
-  }
-  auto text = [&](const char* key) -> std::optional<std::string> {
-    auto it = j.find(key);
-    if (it == j.end() || it->is_null()) return std::nullopt;
-    return it->get<std::string>();
-  };
-  auto num = [&](const char* key) -> std::optional<double> {
-    auto it = j.find(key);
-    if (it == j.end() || it->is_null()) return std::nullopt;
-    return it->get<double>();
-  };
-  CreateRequest out;
-  auto name = text("name");
-  if (!name) return invalid_input("missing field 'name' (1 to 128 letters, digits, '-', '_' or '.')");
-  auto rule = text("rule");
-  if (!rule)
-    return invalid_input(
-        "missing field 'rule' (alpha-spending, alpha-investing, lond, lord++, saffron or addis)");
-  out.name = *name;
-  out.spec.rule = *rule;
-  out.spec.alpha = num("alpha");
-  out.spec.initial_wealth = num("initial_wealth");
-  out.spec.candidate_threshold = num("candidate_threshold");
-  out.spec.discard_threshold = num("discard_threshold");
-  out.spec.payout = num("payout");
-  out.spec.spending = text("spending");
-  out.spec.evaluation = text("evaluation");
-  if (auto a = text("alternative")) {
-    auto parsed = parse_alternative(*a);
-    if (!parsed) return invalid_input("alternative: " + parsed.error().message);
-    out.alternative = *parsed;
-  }
-  return out;
-}
-
 // "%41" -> "A". nullopt for a bad escape.
 std::optional<std::string> percent_decode(std::string_view s) {
   std::string out;
@@ -371,7 +308,7 @@ class Routes {
     Response error;
     auto body = json_body(req, kCreateExample, error);
     if (!body) return error;
-    auto parsed = create_request(*body);
+    auto parsed = stream_request_from_json(*body);
     if (!parsed) return error_response(400, "invalid_input", parsed.error().message);
     auto config = resolve_config(parsed->spec);
     if (!config) return error_response(400, "invalid_input", config.error().message);

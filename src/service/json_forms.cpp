@@ -75,7 +75,7 @@ Result<TestInput> test_from_json(const nlohmann::json& object, Alternative summa
 Result<StreamRequest> stream_request_from_json(const nlohmann::json& j) {
   static constexpr std::string_view kNumbers[] = {"alpha", "initial_wealth", "candidate_threshold",
                                                   "discard_threshold", "payout"};
-  static constexpr std::string_view kTexts[] = {"name", "rule", "spending", "evaluation"};
+  static constexpr std::string_view kTexts[] = {"name", "rule", "spending", "evaluation", "alternative"};
   if (!j.is_object())
     return invalid_input("expected a JSON object such as " + std::string(kStreamRequestExample));
   for (auto it = j.begin(); it != j.end(); ++it) {
@@ -85,7 +85,8 @@ Result<StreamRequest> stream_request_from_json(const nlohmann::json& j) {
     if (!numeric && !text) {
       return invalid_input("unknown field '" + excerpt(key) +
                            "'; accepted: name, rule, alpha, initial_wealth, "
-                           "candidate_threshold, discard_threshold, payout, spending, evaluation");
+                           "candidate_threshold, discard_threshold, payout, spending, evaluation, "
+                           "alternative");
     }
     if (it.value().is_null()) continue;
     const std::string shown =
@@ -121,6 +122,11 @@ Result<StreamRequest> stream_request_from_json(const nlohmann::json& j) {
   r.spec.payout = num("payout");
   r.spec.spending = text("spending");
   r.spec.evaluation = text("evaluation");
+  if (auto a = text("alternative")) {
+    auto parsed = parse_alternative(*a);
+    if (!parsed) return invalid_input("alternative: " + parsed.error().message);
+    r.alternative = *parsed;
+  }
   return r;
 }
 
