@@ -3,7 +3,7 @@
 // implementation, and the hindsight baselines bh / storey-bh of offline.hpp); the realized FDR,
 // mFDR, FWER and power are averaged over the streams, with Monte Carlo standard errors.
 //
-// The model (docs/simulate.md; CONTRACT.md "Simulate"): test t is non-null with probability
+// The model (docs/simulate.md; docs/cli.md "Simulate"): test t is non-null with probability
 // share_t (the non-null fraction, or a pattern over time with that average). A non-null test has
 // mean mu ~ Normal(effect, effect_sd), drawn per test; a null test has mean null_mean (negative
 // means conservative nulls). z_t = mean_t + e_t with e_t ~ Normal(0, 1), independent or positively
@@ -205,7 +205,7 @@ enum class ErrorMetric { kFdr, kMfdrEta, kFwer };
 std::string_view error_metric_name(ErrorMetric metric);  // "FDR", "mFDR_eta", "FWER"
 ErrorMetric promised_metric(const Procedure& procedure);
 
-// One output row (CONTRACT.md columns plus the extras the table and --json show).
+// One output row (docs/cli.md columns plus the extras the table and --json show).
 struct ProcedureSummary {
   std::string rule;
   std::optional<Evaluation> evaluation;  // lord++, saffron, addis only

@@ -1,5 +1,5 @@
 // alphaledger simulate [--rules R1,R2,...] [rule flags] --tests T --runs N [model flags] [--table]
-// (CONTRACT.md "Simulate"; docs/simulate.md).
+// (docs/cli.md "Simulate"; docs/simulate.md).
 #include <spdlog/spdlog.h>
 #include <unistd.h>
 

@@ -1,5 +1,5 @@
 // alphaledger pvalue proportions|means|statistic and alphaledger plan proportions|means
-// (CONTRACT.md "Experiment statistics"; docs/statistics.md). The math is in the core
+// (docs/cli.md "Experiment statistics"; docs/statistics.md). The math is in the core
 // (alphaledger/stats.hpp); this file parses flags, reads a stream's next level from the ledger for
 // plan --stream, and prints.
 #include <charconv>
@@ -36,7 +36,7 @@ std::string text_number(std::optional<double> v, int digits = 4) {
   return format_rounded(*v, digits);
 }
 
-// Aligned "label  value" lines; labels are the JSON keys (CONTRACT.md).
+// Aligned "label  value" lines; labels are the JSON keys (docs/cli.md).
 class TextBlock {
  public:
   void add(std::string label, std::string value) { lines_.emplace_back(std::move(label), std::move(value)); }

@@ -1,6 +1,6 @@
-// The thin CLI layer (STYLE.md 10): per subcommand an options struct, a setup function that
+// The thin CLI layer (DEVELOPERS.md): per subcommand an options struct, a setup function that
 // registers it on the app, and a run function that returns a Status and writes results to the
-// given stream. main() maps errors to the exit codes of CONTRACT.md.
+// given stream. main() maps errors to the exit codes of docs/cli.md.
 #pragma once
 
 #include <CLI/CLI.hpp>
@@ -29,7 +29,7 @@ struct CommandContext {
 // --ledger, else $ALPHALEDGER_LEDGER, else ./alphaledger.db
 std::string ledger_path(const GlobalOptions& global);
 
-// Rule flags shared by replay, new and simulate (CONTRACT.md "Rules and their parameters").
+// Rule flags shared by replay, new and simulate (docs/cli.md "Rules and their parameters").
 struct RuleFlags {
   std::optional<double> alpha, initial_wealth, candidate_threshold, discard_threshold, payout;
   std::optional<std::string> spending, evaluation;

@@ -1,6 +1,6 @@
 // The one Boost.Math error policy of the library: errors become values we check (NaN or +-inf
 // returned, errno untouched), never exceptions, so the core stays exception-free. Callers
-// validate inputs before calling (STYLE.md 8).
+// validate inputs before calling (DEVELOPERS.md).
 #pragma once
 
 #include <boost/math/policies/policy.hpp>

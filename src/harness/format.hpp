@@ -1,5 +1,5 @@
 // Number formatting shared by every output: the shortest text that reads back to the identical
-// double (std::to_chars), as CONTRACT.md requires for CSV and JSON.
+// double (std::to_chars), as docs/cli.md requires for CSV and JSON.
 #pragma once
 
 #include <charconv>

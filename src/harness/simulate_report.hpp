@@ -1,4 +1,4 @@
-// Writing simulate's results: the CSV of CONTRACT.md, one JSON object per rule row (--json), and
+// Writing simulate's results: the CSV of docs/cli.md, one JSON object per rule row (--json), and
 // a table for people with standard errors and a plain flag on any rule whose realized error rate
 // is above its target by more than 3 standard errors (docs/simulate.md). Internal to the project.
 #pragma once

@@ -1,5 +1,5 @@
 // The RocksDB store: the only file that includes RocksDB headers; rocksdb::Status is translated
-// to Error here and nowhere else (STYLE.md 7).
+// to Error here and nowhere else (DEVELOPERS.md).
 //
 // Damage is refused, never repaired on the quiet (docs/ledger.md "Damaged files"):
 //   - every open first opens the folder read-only (nothing written, no lock, no info LOG) with

@@ -1,4 +1,4 @@
-// The ledger commands as a user runs them: one process per command (CONTRACT.md "The ledger").
+// The ledger commands as a user runs them: one process per command (docs/cli.md "The ledger").
 #include <doctest/doctest.h>
 
 #include <cmath>
@@ -113,7 +113,7 @@ TEST_CASE("LedgerCli: a stream decided one test per process matches methods.md 1
   CHECK(vj["chain_hash"].get<std::string>().size() == 64);
 }
 
-// CONTRACT.md exit codes: 3 for refusals (conflict, unknown stream, other configuration), 2 for
+// docs/cli.md exit codes: 3 for refusals (conflict, unknown stream, other configuration), 2 for
 // invalid input, each with a message on stderr; the history is unchanged after every failure.
 TEST_CASE("LedgerCli: refusals and bad input give the contract's exit codes and change nothing") {
   ScratchDir dir;

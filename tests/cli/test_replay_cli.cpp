@@ -1,4 +1,4 @@
-// alphaledger replay, end to end through the executable (CONTRACT.md "Replay").
+// alphaledger replay, end to end through the executable (docs/cli.md "Replay").
 #include <doctest/doctest.h>
 
 #include <algorithm>

@@ -1,4 +1,4 @@
-// alphaledger simulate, end to end through the executable (CONTRACT.md "Simulate").
+// alphaledger simulate, end to end through the executable (docs/cli.md "Simulate").
 #include <doctest/doctest.h>
 
 #include <algorithm>

@@ -1,5 +1,5 @@
 // alphaledger pvalue / plan and summary columns, end to end through the executable
-// (CONTRACT.md "Experiment statistics"; docs/statistics.md, docs/formats.md "Summary columns").
+// (docs/cli.md "Experiment statistics"; docs/statistics.md, docs/formats.md "Summary columns").
 #include <doctest/doctest.h>
 #include <unistd.h>
 

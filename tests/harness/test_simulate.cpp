@@ -440,7 +440,7 @@ TEST_CASE("Simulate: every procedure decides the identical stream (paired design
 // Metrics and output.
 
 TEST_CASE("Simulate: metrics follow the contract's definitions on hand-made tallies") {
-  // CONTRACT.md "Simulate": fdr = mean V/max(R,1); mfdr = sum V / sum max(R,1); power = mean share of
+  // docs/cli.md "Simulate": fdr = mean V/max(R,1); mfdr = sum V / sum max(R,1); power = mean share of
   // non-nulls rejected; fwer = share of runs with V >= 1; se = sample sd / sqrt(n).
   MetricTotals t;
   t.add({.rejections = 4, .false_discoveries = 1, .nonnulls = 6});  // fdp 0.25, power 0.5
@@ -490,7 +490,7 @@ TEST_CASE("Simulate: CSV has exactly the contract's columns; JSON one object per
   std::istringstream lines(csv.str());
   std::string header;
   std::getline(lines, header);
-  CHECK(header == "rule,runs,tests,mean_rejections,fdr,fdr_se,mfdr,power,power_se,fwer");  // CONTRACT.md
+  CHECK(header == "rule,runs,tests,mean_rejections,fdr,fdr_se,mfdr,power,power_se,fwer");  // docs/cli.md
   int n = 0;
   for (std::string line; std::getline(lines, line); ++n)
     CHECK(std::count(line.begin(), line.end(), ',') == 9);

@@ -180,7 +180,7 @@ TEST_CASE(
 }
 
 TEST_CASE("Pipe: LORD++ levels and decisions equal the check values of methods.md 14.3") {
-  // Source: /work/shared/docs/methods.md section 14.3 (LORD++ as displayed in Ramdas et al. 2017,
+  // Source: docs/methods.md section 14.3 (LORD++ as displayed in Ramdas et al. 2017,
   // "Online control of the false discovery rate with decaying memory", section 5.2; W0 = alpha/2,
   // Javanmard-Montanari gamma, alpha = 0.05), 10 significant digits.
   const double p[10] = {0.0004, 0.0012, 0.36, 0.0009, 0.78, 0.0032, 0.17, 0.0011, 0.44, 0.0100};

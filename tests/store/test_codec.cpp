@@ -38,7 +38,7 @@ std::vector<StoredConfig> sample_configs() {
 
 }  // namespace
 
-// Round trip (STYLE.md 11, leveldb version_edit_test's EncodeTo/DecodeFrom pattern): decoding
+// Round trip (DEVELOPERS.md, leveldb version_edit_test's EncodeTo/DecodeFrom pattern): decoding
 // and re-encoding gives identical bytes and an equal value. Property of our format, no outside
 // reference needed beyond the byte-level comparison.
 TEST_CASE("Codec: configurations round-trip to identical bytes") {

@@ -184,7 +184,7 @@ TEST_CASE("Ledger: restored state continues bit-identically to an uninterrupted 
   }
 }
 
-// CONTRACT.md "The ledger": same id and p-value -> the stored decision, repeat = true, nothing
+// docs/cli.md "The ledger": same id and p-value -> the stored decision, repeat = true, nothing
 // changes; same id, other p-value -> refused (exit 3), nothing changes. Checked on the whole
 // store contents before and after.
 TEST_CASE("Ledger: a test id is decided once; repeats change nothing and conflicts are refused") {
@@ -218,7 +218,7 @@ TEST_CASE("Ledger: a test id is decided once; repeats change nothing and conflic
   CHECK(ledger->decide("s", "exp-3", 0.5)->record.step == 3);
 }
 
-// Issue 3, item 6 and CONTRACT.md exit codes: each bad input is refused with the right kind and a
+// Issue 3, item 6 and docs/cli.md exit codes: each bad input is refused with the right kind and a
 // message naming the problem, and the store is byte-for-byte unchanged.
 TEST_CASE("Ledger: bad input and unknown streams are refused and change nothing") {
   MemoryStore store;
@@ -265,7 +265,7 @@ TEST_CASE("Ledger: bad input and unknown streams are refused and change nothing"
   CHECK(store.dump() == before);
 }
 
-// CONTRACT.md "new": same configuration -> succeeds and changes nothing; another -> refused.
+// docs/cli.md "new": same configuration -> succeeds and changes nothing; another -> refused.
 TEST_CASE("Ledger: a stream's configuration is frozen at creation") {
   MemoryStore store;
   auto ledger = open_over(store);
@@ -313,7 +313,7 @@ TEST_CASE("Ledger: a stream's direction is frozen with its configuration") {
   CHECK(ledger->status("t")->alternative == Alternative::kTwoSided);
 }
 
-// STYLE.md 11 / leveldb fault_injection_test: fail the Nth write; the failed decision leaves no
+// DEVELOPERS.md / leveldb fault_injection_test: fail the Nth write; the failed decision leaves no
 // trace in the store, is reported as kStorage, and a retry continues exactly as an uninterrupted
 // run would (reference: replay of the same p-values).
 TEST_CASE("Ledger: a failed write leaves no trace and is reported") {
@@ -382,7 +382,7 @@ TEST_CASE("Ledger: a full disk refuses every change with a storage error") {
 
 // Group commit: each group is one write; on_durable sees a group only after it is in the store;
 // a storage failure part-way keeps exactly the earlier groups; a conflict anywhere refuses the
-// whole batch with the store unchanged (CONTRACT.md "Any failure leaves the ledger as it was").
+// whole batch with the store unchanged (docs/cli.md "Any failure leaves the ledger as it was").
 TEST_CASE("Ledger: decide_batch writes groups, reports them only when durable, and refuses conflicts whole") {
   const auto p = store_test::random_p_values(11, 50);
   const RuleConfig config = config_of({.rule = "saffron"});
@@ -691,7 +691,7 @@ TEST_CASE("Ledger: a kept chain hash can be checked later at its step") {
   CHECK(reopened->chain_hash_at("s", 10).value() != kept);
 }
 
-// The on-disk format version is checked on open (STYLE.md 5; docs/ledger-format.md).
+// The on-disk format version is checked on open (DEVELOPERS.md; docs/ledger-format.md).
 TEST_CASE("Ledger: open checks the format version") {
   {
     MemoryStore mem;
@@ -729,7 +729,7 @@ TEST_CASE("Ledger: timestamps print as ISO 8601 UTC") {
   CHECK(format_timestamp(0) == "1970-01-01T00:00:00.000Z");
 }
 
-// decide --json / HTTP object (CONTRACT.md "decide": step, id, p_value, level, rejected, wealth,
+// decide --json / HTTP object (docs/cli.md "decide": step, id, p_value, level, rejected, wealth,
 // stream, decided_at, repeat): keys in that order; numbers read back to the identical double
 // (nlohmann::json 3.11 parser as the reader).
 TEST_CASE("Ledger: decision_json has the contract's keys and round-trips numbers") {
