@@ -274,6 +274,11 @@ std::optional<std::string> check_seal(const std::string& folder, std::uint64_t s
   if (seal->options_number != 0) {
     const fs::path opts = fs::path(folder) / options_file_name(seal->options_number);
     auto content = read_file(opts);
+    // A read-write open writes a new OPTIONS file (RocksDB keeps the newest two) before it updates
+    // the seal; one stopped in between (kill -9) leaves the seal naming an older file, which the
+    // next such open removes. So the file may be gone only if a newer one exists. Both are
+    // RocksDB's record of settings the ledger sets in code; it never reads them back.
+    if (!content && newest_options_number(folder) > seal->options_number) return std::nullopt;
     if (!content) return "file " + opts.string() + " (OPTIONS file) is missing";
     if (store::sha256(*content) != seal->options_hash)
       return "file " + opts.string() + " (OPTIONS file) was changed since the ledger wrote it";
