@@ -66,11 +66,6 @@ bool iequals(std::string_view a, std::string_view b) {
   return true;
 }
 
-// A JSON value as a message may show it: its text, cut to excerpt() length.
-std::string shown(const nlohmann::json& v) {
-  return excerpt(v.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
-}
-
 // Parses a request body that must be a JSON object (parse_json_object bounds the depth and never
 // echoes more than an excerpt). On failure, the error answer.
 Result<nlohmann::json> json_body(const Request& req, std::string_view example, Response& error) {

@@ -44,6 +44,11 @@ constexpr const char* kSealFile = "ALPHALEDGER-SEAL";
 constexpr std::string_view kSealMagic{"alseal1\0", 8};
 // magic, sequence, newest table file number, OPTIONS number, its hash, check
 constexpr std::size_t kSealSize = 8 + 8 + 8 + 8 + 32 + 8;
+// A writer that leaves at least this many entries in memory writes them to a table file when it
+// closes; see ~RocksStore. A decision writes two or three entries, so this is 5,000 to 8,000
+// decisions; a read-only open replays at most that much log (about 1 MB, about 25 ms of CPU on our
+// loaded machine). (RocksDB's memtable size in bytes is no measure: it counts whole arena blocks.)
+constexpr std::uint64_t kFlushOnCloseEntries = 16384;
 
 // Who holds the fcntl lock RocksDB takes on <path>/LOCK: asks the kernel with F_GETLK, which
 // reports another process's lock (never our own). Only called when RocksDB said the lock is held
@@ -269,6 +274,11 @@ std::optional<std::string> check_seal(const std::string& folder, std::uint64_t s
   if (seal->options_number != 0) {
     const fs::path opts = fs::path(folder) / options_file_name(seal->options_number);
     auto content = read_file(opts);
+    // A read-write open writes a new OPTIONS file (RocksDB keeps the newest two) before it updates
+    // the seal; one stopped in between (kill -9) leaves the seal naming an older file, which the
+    // next such open removes. So the file may be gone only if a newer one exists. Both are
+    // RocksDB's record of settings the ledger sets in code; it never reads them back.
+    if (!content && newest_options_number(folder) > seal->options_number) return std::nullopt;
     if (!content) return "file " + opts.string() + " (OPTIONS file) is missing";
     if (store::sha256(*content) != seal->options_hash)
       return "file " + opts.string() + " (OPTIONS file) was changed since the ledger wrote it";
@@ -391,6 +401,15 @@ rocksdb::Options base_options(bool read_only) {
   o.wal_recovery_mode = rocksdb::WALRecoveryMode::kTolerateCorruptedTailRecords;
   // Closed logs are listed in the MANIFEST with their sizes: a removed or cut one is an error.
   o.track_and_verify_wals_in_manifest = true;
+  // The fixed cost of one CLI process (docs/benchmarks.md "Ledger"). None of these skips a check:
+  //  - table files are opened (footer, index, unique id checked) by one thread, not by 16 new
+  //    threads created for each open: a ledger has a handful of table files;
+  //  - no statistics timer thread, and no statistics read from every table file at open (they
+  //    only guide compaction);
+  o.max_file_opening_threads = 1;
+  o.stats_dump_period_sec = 0;
+  o.stats_persist_period_sec = 0;
+  o.skip_stats_update_on_db_open = true;
   return o;
 }
 
@@ -410,7 +429,22 @@ class RocksStore final : public Store {
       g_open_for_writing.erase(canonical_key(path_));
     }
     if (db_) {
-      // Close flushes nothing we rely on: every acknowledged write was synced to the WAL.
+      // Every acknowledged write was synced to the write-ahead log already. A writer still moves
+      // what it wrote into a table file before it closes, so that the next read-only open (which
+      // cannot do that itself) does not replay a long log into memory: after 10,000 decisions by
+      // one `decide --file`, that replay was most of a `next`'s time. The next read-write open
+      // would write the same table file anyway; a failure here loses nothing (the log stays).
+      // A short log (one `decide --id`, a small `decide --file`) is left to that open: replaying
+      // it costs little, and flushing here would add four syncs to every single decision.
+      if (!read_only_ && !failing_) {
+        std::uint64_t in_memory = 0;
+        if (db_->GetIntProperty(rocksdb::DB::Properties::kNumEntriesActiveMemTable, &in_memory) &&
+            in_memory >= kFlushOnCloseEntries) {
+          rocksdb::FlushOptions fo;
+          fo.wait = true;
+          (void)db_->Flush(fo);
+        }
+      }
       (void)db_->Close();
     }
   }
@@ -447,11 +481,14 @@ class RocksStore final : public Store {
           op.erase ? wb.Delete(key) : wb.Put(key, rocksdb::Slice(op.value.data(), op.value.size()));
       if (!s.ok()) return translate(s, "cannot prepare a write to ledger " + path_, path_);
     }
-    std::lock_guard lock(write_mu_);
+    std::unique_lock lock(write_mu_);
     // A failed write leaves RocksDB stopped (a background error) until it is resumed. We first
     // ask it to resume; if it will not, or if a write fails again after resuming, we close and
     // reopen the database (its own recovery replays the log). So the ledger works again once the
-    // disk has room (or is writable) again, without restarting the process.
+    // disk has room (or is writable) again, without restarting the process. While failing, writes
+    // are made one at a time (under write_mu_); when healthy, write_mu_ is released before the
+    // write, so that concurrent synced writes (different streams in `serve`) reach RocksDB together
+    // and share one log sync (its write group) instead of queueing for one sync each.
     if (failing_) {
       auto r = db_->Resume();
       for (int i = 0; i < 10 && (r.IsBusy() || r.IsTryAgain()); ++i) {
@@ -465,26 +502,39 @@ class RocksStore final : public Store {
         }
       }
       resumed_once_ = true;
+    } else {
+      lock.unlock();
     }
     rocksdb::WriteOptions wo;
     wo.sync = sync;
     rocksdb::Status s;
+    std::uint64_t synced_up_to = 0;
     {
+      // Synced writes may run together; an unsynced one runs alone. So when a synced write
+      // returns, every write RocksDB has published was synced, and the latest sequence number is
+      // one the seal may record (the seal must never run ahead of the synced log).
+      std::shared_lock sync_shared(sync_mu_, std::defer_lock);
+      std::unique_lock sync_alone(sync_mu_, std::defer_lock);
+      if (sync) {
+        sync_shared.lock();
+      } else {
+        sync_alone.lock();
+      }
       std::shared_lock db_lock(db_mu_);
       if (!db_) return storage_error("cannot write to ledger " + path_ + ": it could not be reopened");
       s = db_->Write(wo, &wb);
+      if (s.ok() && sync) synced_up_to = db_->GetLatestSequenceNumber();
     }
+    if (!lock.owns_lock()) lock.lock();
     if (!s.ok()) {
       failing_ = "writes to ledger " + path_ + " fail: " + cause_of(s, path_);
       return storage_error("cannot write to ledger " + path_ + ": " + cause_of(s, path_));
     }
     failing_.reset();
     resumed_once_ = false;
-    if (sync && seal_) {
-      // Everything up to this sequence is now on stable storage.
-      std::shared_lock db_lock(db_mu_);
-      seal_->note_sequence(db_->GetLatestSequenceNumber());
-    }
+    lock.unlock();
+    // Everything up to this sequence is now on stable storage.
+    if (sync && seal_) seal_->note_sequence(synced_up_to);
     return {};
   }
 
@@ -545,7 +595,8 @@ class RocksStore final : public Store {
   bool resumed_once_ = false;
   std::string path_;
   bool read_only_ = false;
-  mutable std::mutex write_mu_;
+  mutable std::mutex write_mu_;  // failing_, resumed_once_, and writes while failing
+  std::shared_mutex sync_mu_;    // shared: synced writes; exclusive: an unsynced write
   std::optional<std::string> failing_;
   std::shared_ptr<SealKeeper> seal_;  // null when read-only or salvaging
 };
