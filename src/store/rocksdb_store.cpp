@@ -113,14 +113,36 @@ std::string file_kind(const std::string& name) {
 
 // The first ledger file named in RocksDB's text (a path inside `folder`, or a bare numbered file
 // name), as "file <path> (<kind>)"; empty when none is named.
+// Whether `name` is one of the files a ledger folder holds (RocksDB's numbered files, MANIFEST,
+// CURRENT, OPTIONS, IDENTITY, LOCK, our seal), so that a RocksDB source file named in its message
+// (e.g. "db_impl/db_impl_open.cc") is never taken for a ledger file.
+bool is_ledger_file_name(const std::string& name) {
+  for (const char* ext : {".log", ".sst", ".ldb", ".blob"}) {
+    if (name.ends_with(ext)) {
+      const auto stem = name.substr(0, name.size() - std::string_view(ext).size());
+      return !stem.empty() && stem.find_first_not_of("0123456789") == std::string::npos;
+    }
+  }
+  return name.starts_with("MANIFEST-") || name.starts_with("OPTIONS-") || name == "CURRENT" ||
+         name == "IDENTITY" || name == "LOCK" || name == kSealFile;
+}
+
 std::string named_file(const std::string& text, const std::string& folder) {
   std::string name;
   const std::string prefix = folder + "/";
-  if (auto at = text.find(prefix); at != std::string::npos) {
+  for (auto at = text.find(prefix); at != std::string::npos; at = text.find(prefix, at + 1)) {
+    if (at > 0 && text[at - 1] != ' ' && text[at - 1] != ':' && text[at - 1] != '\'' &&
+        text[at - 1] != '"' && text[at - 1] != '\t' && text[at - 1] != '\n' && text[at - 1] != '(')
+      continue;  // "l/" inside a longer path such as "db_impl/..."
     auto end = text.find_first_of(" :,;\n\t)", at + prefix.size());
-    name = text.substr(at + prefix.size(),
-                       end == std::string::npos ? std::string::npos : end - at - prefix.size());
-  } else {
+    std::string candidate = text.substr(at + prefix.size(),
+                                        end == std::string::npos ? std::string::npos : end - at - prefix.size());
+    if (is_ledger_file_name(candidate)) {
+      name = std::move(candidate);
+      break;
+    }
+  }
+  if (name.empty()) {
     // e.g. "... 000012.sst ..." or "MANIFEST-000005"
     for (const char* pattern : {".sst", ".log", "MANIFEST-", "OPTIONS-"}) {
       auto at = text.find(pattern);
@@ -128,7 +150,9 @@ std::string named_file(const std::string& text, const std::string& folder) {
       auto begin = text.find_last_of(" :/\t\n", at);
       begin = begin == std::string::npos ? 0 : begin + 1;
       auto end = text.find_first_of(" :,;\n\t)", at);
-      name = text.substr(begin, end == std::string::npos ? std::string::npos : end - begin);
+      std::string candidate = text.substr(begin, end == std::string::npos ? std::string::npos : end - begin);
+      if (!is_ledger_file_name(candidate)) continue;
+      name = std::move(candidate);
       break;
     }
   }
@@ -693,9 +717,21 @@ Result<std::unique_ptr<Store>> open_salvage_copy(const std::string& path) {
   o.info_log = std::make_shared<SilentLogger>();
   o.paranoid_checks = false;
   o.track_and_verify_wals_in_manifest = false;
+  // First skip damaged log records, so that records after the damage (such as the stream's
+  // later head, which tells how many steps existed) are still seen; the hash chain then proves how
+  // far the copy goes. If RocksDB cannot apply what follows the damage ("write batch content
+  // corrupted": without checksums it applies a damaged batch), keep everything before the first
+  // damaged record, with checksums on. Last, table files alone.
   o.wal_recovery_mode = rocksdb::WALRecoveryMode::kSkipAnyCorruptedRecords;
   rocksdb::DB* raw = nullptr;
   auto s = rocksdb::DB::Open(o, path, &raw);
+  if (!s.ok()) {
+    o.wal_recovery_mode = rocksdb::WALRecoveryMode::kPointInTimeRecovery;
+    o.paranoid_checks = true;
+    raw = nullptr;
+    s = rocksdb::DB::Open(o, path, &raw);
+    o.paranoid_checks = false;
+  }
   if (!s.ok()) {
     o.best_efforts_recovery = true;
     raw = nullptr;
