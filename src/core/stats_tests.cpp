@@ -276,7 +276,8 @@ Result<Comparison> compare_means(const MeanArm& control, const MeanArm& treatmen
     df = (v0 + v1) * (v0 + v1) / (v0 * v0 / (n0 - 1.0) + v1 * v1 / (n1 - 1.0));
   }
   const double diff = treatment.mean - control.mean;
-  if (!std::isfinite(diff) || !(se > 0.0) || !std::isfinite(se)) {
+  // df overflows (v0 * v0 past the largest double) before se does: refuse that too, never a NaN.
+  if (!std::isfinite(diff) || !(se > 0.0) || !std::isfinite(se) || !std::isfinite(df) || !(df > 0.0)) {
     return invalid_input("the means and standard deviations are too large to combine in double precision");
   }
   Comparison c;

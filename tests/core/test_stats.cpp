@@ -201,6 +201,9 @@ TEST_CASE("compare_means and ready statistics: bad input is refused, naming the 
   CHECK(contains(error_of(compare_means({10, INFINITY, 1.0}, {10, 2.0, 1.0})), "control_mean"));
   CHECK(contains(error_of(compare_means({10, 1.0, 1.0}, {10, 2.0, 1.0}, false, Alternative::kLess, 1.0)),
                  "confidence"));
+  // A standard deviation of 8e131 squares twice past the largest double in the Welch degrees of
+  // freedom (found by the summary fuzz target): refused, never a NaN df or interval.
+  CHECK(contains(error_of(compare_means({10, 1.0, 8e131}, {10, 2.0, 1.0})), "too large to combine"));
   CHECK(contains(error_of(test_from_z(NAN)), "z must be"));
   CHECK(contains(error_of(test_from_t(2.0, 0.0)), "df must be"));
   CHECK(contains(error_of(test_from_t(INFINITY, 3.0)), "t must be"));
