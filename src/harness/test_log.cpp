@@ -612,10 +612,22 @@ void order_by_time(CompactLog& log) {
     keys.emplace_back(last, i);
   }
   std::stable_sort(keys.begin(), keys.end(), [](const auto& a, const auto& b) { return a.first < b.first; });
-  std::vector<CompactRecord> sorted;
-  sorted.reserve(log.records.size());
-  for (const auto& k : keys) sorted.push_back(log.records[k.second]);
-  log.records = std::move(sorted);
+  // Moves the records into place along the permutation's cycles: no second copy of the log.
+  constexpr std::size_t kDone = static_cast<std::size_t>(-1);
+  for (std::size_t i = 0; i < keys.size(); ++i) {
+    if (keys[i].second == kDone) continue;
+    const CompactRecord first = log.records[i];
+    for (std::size_t j = i;;) {
+      const std::size_t from = keys[j].second;
+      keys[j].second = kDone;
+      if (from == i) {
+        log.records[j] = first;
+        break;
+      }
+      log.records[j] = log.records[from];
+      j = from;
+    }
+  }
 }
 
 // Reads a CSV data row into `log` without building a map: the columns were found once in the

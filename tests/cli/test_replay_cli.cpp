@@ -132,7 +132,7 @@ TEST_CASE("Replay: standard input gives the output of the same file, blank lines
   // in messages still count them (common practice, no source).
   const std::string text = "id,p_value\na,0.0004\nb,0.0012\nc,0.36\n";
   const auto from_file = run_alphaledger({"replay", write_temp("stdin.csv", text), "--rules", "lord++,bh"});
-  const auto from_stdin = run_alphaledger({"replay", "-", "--rules", "lord++,bh"}, "\n \r\n" + text);
+  const auto from_stdin = run_alphaledger({"replay", "-", "--rules", "lord++,bh"}, std::string("\n \r\n").append(text));
   REQUIRE(from_file.exit_code == 0);
   REQUIRE(from_stdin.exit_code == 0);
   CHECK(from_stdin.out == from_file.out);
@@ -147,8 +147,14 @@ TEST_CASE("Replay: a long log in time order and the same log shuffled give the s
   std::string ordered = "id,finished_at,p_value\n", shuffled = ordered;
   const int n = 20000;
   auto row = [](int i) {
-    return "t" + std::to_string(i) + "," + std::to_string(1700000000 + i) + "," +
-           std::to_string(((i * 7919) % 1000) / 1000.0) + "\n";
+    std::string r = "t";
+    r += std::to_string(i);
+    r += ',';
+    r += std::to_string(1700000000 + i);
+    r += ',';
+    r += std::to_string(((i * 7919) % 1000) / 1000.0);
+    r += '\n';
+    return r;
   };
   for (int i = 0; i < n; ++i) ordered += row(i);
   for (int i = 0; i < n; ++i) shuffled += row((i * 7919) % n);  // 7919 is prime: a permutation
