@@ -28,17 +28,17 @@ for n in "${sizes[@]}"; do
     for (i = 1; i <= n; i++) printf "t%09d,%.6g,%d\n", i, rand() ^ 3, 1700000000 + (i * 7919) % n }' >"$work/shuffled.csv"
   echo "== $n rows, $(du -m "$work/ordered.csv" | cut -f1) MB"
   for f in ordered shuffled; do
-    echo "-- $f: peak RSS awk $(peak awk -F, '{s+=$2} END {print s}' "$work/$f.csv"), replay --summary $(peak "$bin" replay "$work/$f.csv" --summary), replay $(peak "$bin" replay "$work/$f.csv")"
+    echo "-- $f: peak RSS awk $(peak awk -F, '{s+=$2} END {print s}' "$work/$f.csv"), replay --summary $(peak "$bin" replay "$work/$f.csv" --rules alpha-spending --summary), replay $(peak "$bin" replay "$work/$f.csv" --rules alpha-spending)"
   done
   hyperfine --warmup 1 --runs 3 --export-markdown "$work/times.md" \
     "awk -F, '{s+=\$2} END {print s}' $work/ordered.csv" \
-    "$bin replay $work/ordered.csv --summary" \
-    "$bin replay $work/shuffled.csv --summary" \
-    "$bin replay $work/ordered.csv >/dev/null" >/dev/null
+    "$bin replay $work/ordered.csv --rules alpha-spending --summary" \
+    "$bin replay $work/shuffled.csv --rules alpha-spending --summary" \
+    "$bin replay $work/ordered.csv --rules alpha-spending >/dev/null" >/dev/null
   cat "$work/times.md"
   if [ "$n" -le 1000000 ]; then
     rm -rf "$work/ledger"
-    "$bin" --ledger "$work/ledger" new bench --rule lord++ >/dev/null
+    "$bin" --ledger "$work/ledger" new bench --rule alpha-spending >/dev/null
     start=$(date +%s.%N)
     echo "-- decide --file: peak RSS $(peak "$bin" --ledger "$work/ledger" decide bench --file "$work/ordered.csv"), $(echo "$(date +%s.%N) - $start" | bc) s"
   fi
