@@ -9,6 +9,7 @@
 #pragma once
 
 #include <cstdint>
+#include <functional>
 #include <optional>
 #include <string>
 #include <variant>
@@ -69,5 +70,13 @@ struct ReplaySummary {
 };
 
 std::vector<ReplaySummary> summarize(const ReplayResult& result, const TestLog& log);
+
+// The same decisions without holding them: decides `log` with one procedure and hands each
+// decision to `each(index, decision)`, in log order. An online rule needs no memory beyond the
+// log; bh and storey-bh need the p-values at once (8 bytes a test, plus a bit a test).
+void replay_each(const CompactLog& log, const Procedure& procedure,
+                 const std::function<void(std::size_t, const Decision&)>& each);
+// summarize(replay(log, procedures), log) for a compact log, one procedure at a time.
+std::vector<ReplaySummary> summarize(const CompactLog& log, const std::vector<Procedure>& procedures);
 
 }  // namespace alphaledger

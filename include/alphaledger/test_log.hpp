@@ -52,6 +52,43 @@ struct ReadOptions {
   Alternative alternative = Alternative::kTwoSided;
 };
 
+// ---- A log held compactly -------------------------------------------------------------------
+// What replay and decide --file read: one fixed-size row per test (40 bytes) and every id in one
+// text arena, with no per-row strings or maps, so 10^6 rows cost about 50 MB. read_test_log()
+// reads through the same path and expands the rows into a TestLog.
+struct CompactRecord {
+  static constexpr std::uint8_t kHasTime = 1, kHasTruth = 2, kIsNull = 4;
+  std::uint64_t id_offset = 0;  // into CompactLog::ids
+  std::uint16_t id_size = 0;    // an id is at most 256 bytes (validate_test_id)
+  std::uint8_t flags = 0;
+  double p_value = 0;
+  double finished_at = 0;  // meaningful only with kHasTime
+  std::uint64_t line = 0;  // 1-based line in the source
+};
+
+struct CompactLog {
+  std::string source;                  // file name used in messages
+  std::string ids;                     // every id, back to back
+  std::vector<CompactRecord> records;  // in decision order (see ReadOptions::order_by_finished_at)
+  bool has_truth = false;              // every row had is_null
+
+  std::size_t size() const { return records.size(); }
+  std::string_view id(const CompactRecord& r) const {
+    return std::string_view(ids).substr(r.id_offset, r.id_size);
+  }
+  std::string_view id(std::size_t i) const { return id(records[i]); }
+  TestRecord record(std::size_t i) const;  // the row as a TestRecord
+};
+
+// The readers behind read_test_log / read_test_log_file: same rules, same messages, same order.
+// A log already in time order (or without finished_at) is not sorted; duplicate ids are found
+// with one hash table of row numbers.
+Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, LogFormat format,
+                                    const ReadOptions& options = {});
+Result<CompactLog> read_compact_log_file(const std::string& path,
+                                         std::optional<std::string_view> forced_format,
+                                         const ReadOptions& options = {});
+
 // Chooses the format from the extension (.csv / .jsonl / .ndjson); `forced` overrides. The path
 // "-" (standard input) has no extension: it needs `forced`.
 Result<LogFormat> log_format_for(std::string_view path, std::optional<std::string_view> forced);

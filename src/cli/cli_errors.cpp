@@ -67,22 +67,56 @@ bool wants_json(const std::vector<std::string>& args) {
   return false;
 }
 
-Result<TestLog> read_log_argument(const std::string& path, std::optional<std::string_view> forced,
-                                  const ReadOptions& options) {
-  if (path != "-") return read_test_log_file(path, forced, options);
-  const std::string text((std::istreambuf_iterator<char>(std::cin)), std::istreambuf_iterator<char>());
-  if (std::cin.bad()) return invalid_input("stdin: could not be read");
+namespace {
+
+// Standard input with the blank bytes already taken from it (to find the format) put back in front.
+class PrefixedInput : public std::streambuf {
+ public:
+  PrefixedInput(std::string prefix, std::streambuf& rest) : prefix_(std::move(prefix)), rest_(rest) {
+    setg(prefix_.data(), prefix_.data(), prefix_.data() + prefix_.size());
+  }
+
+ protected:
+  int_type underflow() override {
+    if (gptr() < egptr()) return traits_type::to_int_type(*gptr());
+    const std::streamsize n = rest_.sgetn(block_, sizeof block_);
+    if (n <= 0) return traits_type::eof();
+    setg(block_, block_, block_ + n);
+    return traits_type::to_int_type(*gptr());
+  }
+
+ private:
+  std::string prefix_;
+  std::streambuf& rest_;
+  char block_[1 << 16];
+};
+
+}  // namespace
+
+Result<CompactLog> read_log_argument(const std::string& path, std::optional<std::string_view> forced,
+                                     const ReadOptions& options) {
+  if (path != "-") return read_compact_log_file(path, forced, options);
+  std::streambuf& in = *std::cin.rdbuf();
+  std::string blank;
   LogFormat format = LogFormat::kCsv;
   if (forced) {
     auto f = log_format_for("stdin", forced);
     if (!f) return f.error();
     format = *f;
   } else {
-    const auto first = text.find_first_not_of(" \t\r\n");
-    if (first != std::string::npos && text[first] == '{') format = LogFormat::kJsonLines;
+    for (int c = in.sgetc(); c != std::char_traits<char>::eof(); c = in.snextc()) {
+      if (c != ' ' && c != '\t' && c != '\r' && c != '\n') {
+        if (c == '{') format = LogFormat::kJsonLines;
+        break;
+      }
+      blank.push_back(static_cast<char>(c));
+    }
   }
-  std::istringstream in(text);
-  return read_test_log(in, "stdin", format, options);
+  PrefixedInput buffer(std::move(blank), in);
+  std::istream stream(&buffer);
+  auto log = read_compact_log(stream, "stdin", format, options);
+  if (std::cin.bad()) return invalid_input("stdin: could not be read");
+  return log;
 }
 
 }  // namespace alphaledger::cli

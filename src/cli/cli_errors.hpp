@@ -58,9 +58,10 @@ std::size_t edit_distance(std::string_view a, std::string_view b);
 // The names closest to `word` (at most 3, best first), or none when nothing is close.
 std::vector<std::string> closest_names(std::string_view word, const std::vector<std::string>& names);
 
-// read_test_log_file() for a command-line argument: "-" reads standard input, in the format given
-// by `forced` or, without it, JSON Lines when the first non-blank byte is '{' and CSV otherwise.
-Result<TestLog> read_log_argument(const std::string& path, std::optional<std::string_view> forced,
+// read_compact_log_file() for a command-line argument: "-" reads standard input, in the format
+// given by `forced` or, without it, JSON Lines when the first non-blank byte is '{' and CSV
+// otherwise. Standard input is read as it comes, not copied whole into memory first.
+Result<CompactLog> read_log_argument(const std::string& path, std::optional<std::string_view> forced,
                                   const ReadOptions& options = {});
 
 }  // namespace alphaledger::cli

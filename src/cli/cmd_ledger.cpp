@@ -161,8 +161,9 @@ Status run_decide_file(const DecideOptions& o, const GlobalOptions& g, std::ostr
   auto log = read_log_argument(*o.file, forced, read_options);
   if (!log) return log.error();
   std::vector<TestInput> inputs;
-  inputs.reserve(log->records.size());
-  for (const auto& r : log->records) inputs.push_back({r.id, r.p_value});
+  inputs.reserve(log->size());
+  for (const auto& r : log->records) inputs.push_back({std::string(log->id(r)), r.p_value});
+  log->ids = {};  // the inputs hold the ids now; the records keep the line numbers for messages
 
   const bool progress = ::isatty(STDERR_FILENO) != 0;
   std::size_t done = 0, repeats = 0;
@@ -189,7 +190,7 @@ Status run_decide_file(const DecideOptions& o, const GlobalOptions& g, std::ostr
   if (progress) std::fprintf(stderr, "\n");
   if (!batch) return batch.error();
   if (batch->error) {
-    const TestRecord& at = log->records[batch->stopped_at];
+    const CompactRecord& at = log->records[batch->stopped_at];
     Error e = *batch->error;
     e.message = log->source + ":" + std::to_string(at.line) + ": " + e.message;
     if (e.kind == ErrorKind::kStorage && !batch->decided.empty()) {

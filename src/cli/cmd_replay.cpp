@@ -1,4 +1,6 @@
 // alphaledger replay FILE [--rules R1,R2,...] [rule flags] [--summary]
+#include <charconv>
+#include <cmath>
 #include <iostream>
 #include <nlohmann/json.hpp>
 
@@ -21,6 +23,17 @@ struct ReplayOptions {
 
 std::string opt_text(const std::optional<double>& v) { return v ? format_number(*v) : ""; }
 
+// format_number() and std::to_string() written straight onto `row` (no temporary strings).
+void append_double(std::string& row, double v) {
+  if (std::isnan(v)) return;
+  char buf[64];
+  row.append(buf, std::to_chars(buf, buf + sizeof buf, v).ptr);
+}
+void append_number(std::string& row, std::uint64_t v) {
+  char buf[24];
+  row.append(buf, std::to_chars(buf, buf + sizeof buf, v).ptr);
+}
+
 // One output line. An id with bytes that are not UTF-8 is written with U+FFFD instead of making
 // the JSON library throw half-way through the output.
 std::string json_line(const nlohmann::ordered_json& j) {
@@ -42,9 +55,8 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
   }
   auto log = read_log_argument(o.file, forced, read_options);
   if (!log) return log.error();
-  const ReplayResult result = replay(*log, *procs);
   if (o.summary) {
-    const auto rows = summarize(result, *log);
+    const auto rows = summarize(*log, *procs);
     if (!g.json) out << "rule,tests,rejections,false_discoveries,fdp,power\n";
     for (const auto& s : rows) {
       if (g.json) {
@@ -62,24 +74,44 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
     }
     return {};
   }
+  // Each procedure in turn over the read log; decisions are written as they are made.
   if (!g.json) out << "rule,step,id,p_value,level,rejected,wealth\n";
-  for (std::size_t i = 0; i < result.procedures.size(); ++i) {
-    const std::string& name = result.procedures[i].name;
-    for (std::size_t k = 0; k < log->records.size(); ++k) {
-      const Decision& d = result.decisions[i][k];
-      const TestRecord& r = log->records[k];
+  std::string row;
+  for (const Procedure& proc : *procs) {
+    const std::string& name = proc.name;
+    replay_each(*log, proc, [&](std::size_t k, const Decision& d) {
+      const CompactRecord& r = log->records[k];
       if (g.json) {
-        nlohmann::ordered_json j = {{"rule", name},     {"step", d.step},
-                                    {"id", r.id},       {"p_value", r.p_value},
-                                    {"level", d.level}, {"rejected", d.rejected ? 1 : 0}};
+        nlohmann::ordered_json j = {
+            {"rule", name},         {"step", d.step},   {"id", std::string(log->id(r))},
+            {"p_value", r.p_value}, {"level", d.level}, {"rejected", d.rejected ? 1 : 0}};
         j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
-        out << json_line(j);
+        row += json_line(j);
       } else {
-        out << name << ',' << d.step << ',' << csv_field(r.id) << ',' << format_number(r.p_value) << ','
-            << format_number(d.level) << ',' << (d.rejected ? '1' : '0') << ',' << opt_text(d.wealth) << '\n';
+        row += name;
+        row += ',';
+        append_number(row, d.step);
+        row += ',';
+        const std::string_view id = log->id(r);
+        if (id.find_first_of(",\"\n\r") == std::string_view::npos)
+          row += id;
+        else
+          row += csv_field(std::string(id));
+        row += ',';
+        append_double(row, r.p_value);
+        row += ',';
+        append_double(row, d.level);
+        row += d.rejected ? ",1," : ",0,";
+        if (d.wealth) append_double(row, *d.wealth);
+        row += '\n';
       }
-    }
+      if (row.size() >= (1 << 16)) {  // written in blocks: one call per row would dominate
+        out << row;
+        row.clear();
+      }
+    });
   }
+  out << row;
   return {};
 }
 

@@ -156,4 +156,53 @@ std::vector<ReplaySummary> summarize(const ReplayResult& result, const TestLog& 
   return out;
 }
 
+void replay_each(const CompactLog& log, const Procedure& procedure,
+                 const std::function<void(std::size_t, const Decision&)>& each) {
+  if (const auto* rc = std::get_if<RuleConfig>(&procedure.config)) {
+    Rule rule(*rc);
+    for (std::size_t i = 0; i < log.size(); ++i) {
+      const Outcome o = rule.record(log.records[i].p_value);
+      each(i, Decision{o.step, o.level, o.rejected, o.wealth});
+    }
+    return;
+  }
+  std::vector<double> p;
+  p.reserve(log.size());
+  for (const auto& r : log.records) p.push_back(r.p_value);
+  const auto& oc = std::get<OfflineConfig>(procedure.config);
+  const OfflineDecisions od = oc.method == OfflineMethod::kBh
+                                  ? benjamini_hochberg(p, oc.alpha)
+                                  : storey_bh(p, oc.alpha, oc.candidate_threshold);
+  p = {};
+  for (std::size_t i = 0; i < log.size(); ++i)
+    each(i, Decision{i + 1, od.threshold, od.rejected[i], std::nullopt});
+}
+
+std::vector<ReplaySummary> summarize(const CompactLog& log, const std::vector<Procedure>& procedures) {
+  std::vector<ReplaySummary> out;
+  const auto is_null = [&](std::size_t k) { return (log.records[k].flags & CompactRecord::kIsNull) != 0; };
+  std::uint64_t nonnull = 0;
+  for (const auto& r : log.records) {
+    nonnull += (r.flags & CompactRecord::kHasTruth) != 0 && (r.flags & CompactRecord::kIsNull) == 0 ? 1 : 0;
+  }
+  for (const auto& proc : procedures) {
+    ReplaySummary s;
+    s.rule = proc.name;
+    std::uint64_t v = 0, true_disc = 0;
+    replay_each(log, proc, [&](std::size_t k, const Decision& d) {
+      ++s.tests;
+      if (!d.rejected) return;
+      ++s.rejections;
+      if (log.has_truth) (is_null(k) ? v : true_disc) += 1;
+    });
+    if (log.has_truth) {
+      s.false_discoveries = v;
+      s.fdp = static_cast<double>(v) / static_cast<double>(std::max<std::uint64_t>(s.rejections, 1));
+      if (nonnull > 0) s.power = static_cast<double>(true_disc) / static_cast<double>(nonnull);
+    }
+    out.push_back(std::move(s));
+  }
+  return out;
+}
+
 }  // namespace alphaledger

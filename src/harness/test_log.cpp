@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <charconv>
 #include <cmath>
+#include <cstring>
 #include <fstream>
 #include <iostream>
 #include <nlohmann/json.hpp>
@@ -455,24 +456,248 @@ Result<std::map<std::string, std::string>> json_fields(const nlohmann::json& obj
   return f;
 }
 
-// Reads one line ending in LF, CRLF or a lone CR (the end is not kept). False at the end of input.
-bool read_line(std::streambuf& in, std::string& line) {
-  line.clear();
-  bool any = false;
+// Hands out the lines of a stream, each ending in LF, CRLF or a lone CR (the end is not kept),
+// reading it in large blocks. A line is a view into the buffer, valid until the next call.
+class LineReader {
+ public:
+  explicit LineReader(std::streambuf& in) : in_(in), buf_(1 << 16) {}
+
+  // False at the end of input. A last line without an end is still a line.
+  bool next(std::string_view& line) {
+    std::size_t scanned = 0;  // bytes after begin_ known to hold no line end
+    for (;;) {
+      const char* from = buf_.data() + begin_ + scanned;
+      const std::size_t avail = end_ - begin_ - scanned;
+      const char* nl = static_cast<const char*>(std::memchr(from, '\n', avail));
+      const std::size_t upto = nl != nullptr ? static_cast<std::size_t>(nl - from) : avail;
+      const char* cr = static_cast<const char*>(std::memchr(from, '\r', upto));
+      const char* eol = cr != nullptr ? cr : nl;
+      if (eol != nullptr) {
+        const std::size_t len = static_cast<std::size_t>(eol - (buf_.data() + begin_));
+        const bool is_cr = *eol == '\r';
+        // A CR at the end of the buffer: read on to see whether an LF follows (a CRLF counts once).
+        // fill() may move the bytes: from here on only offsets from begin_ are used.
+        if (is_cr && begin_ + len + 1 == end_) fill();
+        line = std::string_view(buf_.data() + begin_, len);
+        std::size_t after = begin_ + len + 1;
+        if (is_cr && after < end_ && buf_[after] == '\n') ++after;
+        begin_ = after;
+        return true;
+      }
+      scanned = end_ - begin_;
+      if (!fill()) {
+        if (begin_ == end_) return false;
+        line = std::string_view(buf_.data() + begin_, end_ - begin_);
+        begin_ = end_;
+        return true;
+      }
+    }
+  }
+
+ private:
+  // Moves the unread bytes to the front and reads more. False when there is no more input.
+  bool fill() {
+    if (eof_) return false;
+    if (begin_ > 0) {
+      std::memmove(buf_.data(), buf_.data() + begin_, end_ - begin_);
+      end_ -= begin_;
+      begin_ = 0;
+    }
+    if (end_ == buf_.size()) buf_.resize(buf_.size() * 2);  // a line longer than the buffer
+    const std::streamsize n = in_.sgetn(buf_.data() + end_, static_cast<std::streamsize>(buf_.size() - end_));
+    if (n <= 0) {
+      eof_ = true;
+      return false;
+    }
+    end_ += static_cast<std::size_t>(n);
+    return true;
+  }
+
+  std::streambuf& in_;
+  std::vector<char> buf_;
+  std::size_t begin_ = 0, end_ = 0;
+  bool eof_ = false;
+};
+
+std::string_view trim_view(std::string_view s) {
+  while (!s.empty() && (s.front() == ' ' || s.front() == '\t')) s.remove_prefix(1);
+  while (!s.empty() && (s.back() == ' ' || s.back() == '\t' || s.back() == '\r')) s.remove_suffix(1);
+  return s;
+}
+
+// Splits a CSV row into views. A row without quotes is cut at commas and each cell trimmed, as
+// split_csv does; a row with a quote goes through split_csv (its cells are kept in `owned`).
+bool split_csv_views(std::string_view line, std::vector<std::string>& owned,
+                     std::vector<std::string_view>& out) {
+  out.clear();
+  if (line.find('"') != std::string_view::npos) {
+    if (!split_csv(line, owned)) return false;
+    for (const auto& c : owned) out.emplace_back(c);
+    return true;
+  }
+  std::size_t start = 0;
   for (;;) {
-    const int c = in.sbumpc();
-    if (c == std::char_traits<char>::eof()) return any;
-    any = true;
-    if (c == '\n') return true;
-    if (c == '\r') {
-      if (in.sgetc() == '\n') in.sbumpc();
+    const std::size_t comma = line.find(',', start);
+    if (comma == std::string_view::npos) {
+      out.push_back(trim_view(line.substr(start)));
       return true;
     }
-    line.push_back(static_cast<char>(c));
+    out.push_back(trim_view(line.substr(start, comma - start)));
+    start = comma + 1;
   }
 }
 
+// Appends one record to the compact log.
+void append_record(CompactLog& log, const TestRecord& r) {
+  CompactRecord c;
+  c.id_offset = log.ids.size();
+  c.id_size = static_cast<std::uint16_t>(r.id.size());
+  log.ids.append(r.id);
+  c.p_value = r.p_value;
+  if (r.finished_at) {
+    c.flags |= CompactRecord::kHasTime;
+    c.finished_at = *r.finished_at;
+  }
+  if (r.is_null) c.flags |= CompactRecord::kHasTruth | (*r.is_null ? CompactRecord::kIsNull : 0);
+  c.line = r.line;
+  log.records.push_back(c);
+}
+
+// Refuses the first row (in file order) whose id an earlier row has, naming both lines. One
+// open-addressing table of row numbers (0 = empty), at most half full; ids compare in the arena.
+template <typename Slot>
+Status check_unique_ids(const CompactLog& log, std::string_view source) {
+  std::size_t cap = 16;
+  while (cap < 2 * log.records.size()) cap *= 2;
+  std::vector<Slot> table(cap, 0);
+  const std::hash<std::string_view> hash;
+  for (std::size_t i = 0; i < log.records.size(); ++i) {
+    const std::string_view id = log.id(i);
+    std::size_t at = hash(id) & (cap - 1);
+    for (;; at = (at + 1) & (cap - 1)) {
+      if (table[at] == 0) {
+        table[at] = static_cast<Slot>(i + 1);
+        break;
+      }
+      const CompactRecord& first = log.records[table[at] - 1];
+      if (log.id(first) == id) {
+        return invalid_input(where(source, log.records[i].line) + "duplicate id '" + std::string(id) +
+                             "' (first at line " + std::to_string(first.line) +
+                             "); ids must be unique in a log");
+      }
+    }
+  }
+  return {};
+}
+
+// A row without finished_at keeps its place right after the row before it (docs/formats.md). A
+// log whose times already ascend keeps its order without sorting (a stable sort would too).
+void order_by_time(CompactLog& log) {
+  double last = -INFINITY;
+  bool ascending = true;
+  for (const auto& r : log.records) {
+    if ((r.flags & CompactRecord::kHasTime) == 0) continue;
+    if (r.finished_at < last) {
+      ascending = false;
+      break;
+    }
+    last = r.finished_at;
+  }
+  if (ascending) return;
+  std::vector<std::pair<double, std::size_t>> keys;
+  keys.reserve(log.records.size());
+  last = -INFINITY;
+  for (std::size_t i = 0; i < log.records.size(); ++i) {
+    if (log.records[i].flags & CompactRecord::kHasTime) last = log.records[i].finished_at;
+    keys.emplace_back(last, i);
+  }
+  std::stable_sort(keys.begin(), keys.end(), [](const auto& a, const auto& b) { return a.first < b.first; });
+  // Moves the records into place along the permutation's cycles: no second copy of the log.
+  constexpr std::size_t kDone = static_cast<std::size_t>(-1);
+  for (std::size_t i = 0; i < keys.size(); ++i) {
+    if (keys[i].second == kDone) continue;
+    const CompactRecord first = log.records[i];
+    for (std::size_t j = i;;) {
+      const std::size_t from = keys[j].second;
+      keys[j].second = kDone;
+      if (from == i) {
+        log.records[j] = first;
+        break;
+      }
+      log.records[j] = log.records[from];
+      j = from;
+    }
+  }
+}
+
+// Reads a CSV data row into `log` without building a map: the columns were found once in the
+// header. Every check and message is make_record's; a row without a p_value (summary columns)
+// goes through make_record itself.
+struct CsvColumns {
+  std::vector<std::string> header;
+  std::ptrdiff_t id = -1, p_value = -1, finished_at = -1, is_null = -1;
+};
+
+Status csv_row(CompactLog& log, const CsvColumns& cols, const std::vector<std::string_view>& cells,
+               std::optional<Alternative> direction, std::size_t line_no) {
+  const auto cell = [&](std::ptrdiff_t i) {
+    return i < 0 ? std::string_view() : cells[static_cast<std::size_t>(i)];
+  };
+  const std::string_view p_text = cell(cols.p_value);
+  if (cols.p_value < 0 || trim_view(p_text).empty()) {
+    std::map<std::string, std::string> fields;
+    for (std::size_t i = 0; i < cols.header.size(); ++i) {
+      if (!cols.header[i].empty()) fields[cols.header[i]] = std::string(cells[i]);
+    }
+    auto rec = make_record(fields, direction);
+    if (!rec) return invalid_input(where(log.source, line_no) + rec.error().message);
+    rec->line = line_no;
+    append_record(log, *rec);
+    return {};
+  }
+  const std::string_view id = cell(cols.id);
+  if (auto s = validate_test_id(id); !s) return invalid_input(where(log.source, line_no) + s.error().message);
+  CompactRecord c;
+  auto p = parse_p_value_text(p_text);
+  if (!p) {
+    return invalid_input(where(log.source, line_no) + "test '" + std::string(id) + "': " + p.error().message);
+  }
+  c.p_value = *p;
+  if (const std::string_view t = cell(cols.finished_at); !trim_view(t).empty()) {
+    auto v = parse_time_text(t);
+    if (!v) return invalid_input(where(log.source, line_no) + v.error().message);
+    c.flags |= CompactRecord::kHasTime;
+    c.finished_at = *v;
+  }
+  if (const std::string_view n = trim_view(cell(cols.is_null)); !n.empty()) {
+    if (n == "1" || n == "true")
+      c.flags |= CompactRecord::kHasTruth | CompactRecord::kIsNull;
+    else if (n == "0" || n == "false")
+      c.flags |= CompactRecord::kHasTruth;
+    else
+      return invalid_input(where(log.source, line_no) + "is_null must be 0 or 1 (or true or false), got '" +
+                           excerpt(n) + "'");
+  }
+  c.id_offset = log.ids.size();
+  c.id_size = static_cast<std::uint16_t>(id.size());
+  log.ids.append(id);
+  c.line = line_no;
+  log.records.push_back(c);
+  return {};
+}
+
 }  // namespace
+
+TestRecord CompactLog::record(std::size_t i) const {
+  const CompactRecord& c = records[i];
+  TestRecord r;
+  r.id = std::string(id(c));
+  r.p_value = c.p_value;
+  if (c.flags & CompactRecord::kHasTime) r.finished_at = c.finished_at;
+  if (c.flags & CompactRecord::kHasTruth) r.is_null = (c.flags & CompactRecord::kIsNull) != 0;
+  r.line = c.line;
+  return r;
+}
 
 Result<TestRecord> test_record_from_json(const nlohmann::json& object,
                                          std::optional<Alternative> summary_direction) {
@@ -484,106 +709,123 @@ Result<TestRecord> test_record_from_json(const nlohmann::json& object,
   return make_record(*fields, summary_direction);
 }
 
-Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogFormat format,
-                              const ReadOptions& options) {
-  TestLog log;
+Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, LogFormat format,
+                                    const ReadOptions& options) {
+  CompactLog log;
   log.source = std::string(source);
-  std::string line;
-  std::size_t line_no = 0;
-  std::vector<std::string> header, cells;
-  bool have_header = false;
   std::streambuf* buf = in.rdbuf();
   if (buf == nullptr) return invalid_input(std::string(source) + ": cannot read");
-  while (read_line(*buf, line)) {
+  LineReader reader(*buf);
+  std::string_view line;
+  std::size_t line_no = 0;
+  CsvColumns cols;
+  std::vector<std::string> owned;
+  std::vector<std::string_view> cells;
+  bool have_header = false;
+  while (reader.next(line)) {
     ++line_no;
-    if (line_no == 1 && line.rfind("\xEF\xBB\xBF", 0) == 0) line.erase(0, 3);  // a UTF-8 byte-order mark
-    if (trim(line).empty()) continue;
-    std::map<std::string, std::string> fields;
+    if (line_no == 1 && line.substr(0, 3) == "\xEF\xBB\xBF")
+      line.remove_prefix(3);  // a UTF-8 byte-order mark
+    if (trim_view(line).empty()) continue;
     if (format == LogFormat::kCsv) {
-      if (!split_csv(line, cells))
+      if (!split_csv_views(line, owned, cells))
         return invalid_input(where(source, line_no) + "unbalanced quote in CSV row");
       if (!have_header) {
-        header = cells;
+        cols.header.assign(cells.begin(), cells.end());
         have_header = true;
         std::map<std::string_view, std::size_t> seen;
-        for (std::size_t i = 0; i < header.size(); ++i) {
-          if (header[i].empty()) continue;  // an unnamed column is ignored
-          auto [at, inserted] = seen.emplace(header[i], i + 1);
+        for (std::size_t i = 0; i < cols.header.size(); ++i) {
+          const std::string& name = cols.header[i];
+          if (name.empty()) continue;  // an unnamed column is ignored
+          auto [at, inserted] = seen.emplace(name, i + 1);
           if (!inserted) {
-            return invalid_input(where(source, line_no) + "the header names column '" + excerpt(header[i]) +
+            return invalid_input(where(source, line_no) + "the header names column '" + excerpt(name) +
                                  "' twice (columns " + std::to_string(at->second) + " and " +
                                  std::to_string(i + 1) + "); each column may appear once");
           }
+          const auto index = static_cast<std::ptrdiff_t>(i);
+          if (name == "id") cols.id = index;
+          if (name == "p_value") cols.p_value = index;
+          if (name == "finished_at") cols.finished_at = index;
+          if (name == "is_null") cols.is_null = index;
         }
-        if (seen.find("id") == seen.end()) {
+        if (cols.id < 0) {
           return invalid_input(where(source, line_no) +
                                "the header has no 'id' column; required columns: id, p_value (or summary "
                                "columns, see docs/formats.md)");
         }
         continue;
       }
-      if (cells.size() != header.size()) {
-        return invalid_input(where(source, line_no) + "expected " + std::to_string(header.size()) +
+      if (cells.size() != cols.header.size()) {
+        return invalid_input(where(source, line_no) + "expected " + std::to_string(cols.header.size()) +
                              " fields as in the header, got " + std::to_string(cells.size()));
       }
-      for (std::size_t i = 0; i < header.size(); ++i) {
-        if (!header[i].empty()) fields[header[i]] = cells[i];
-      }
+      if (auto s = csv_row(log, cols, cells, options.alternative, line_no); !s) return s.error();
     } else {
       auto parsed = parse_json_object(line);
       if (!parsed) return invalid_input(where(source, line_no) + parsed.error().message);
       auto f = json_fields(*parsed);
       if (!f) return invalid_input(where(source, line_no) + f.error().message);
-      fields = std::move(f).value();
+      auto rec = make_record(*f, options.alternative);
+      if (!rec) return invalid_input(where(source, line_no) + rec.error().message);
+      rec->line = line_no;
+      append_record(log, *rec);
     }
-    auto rec = make_record(fields, options.alternative);
-    if (!rec) return invalid_input(where(source, line_no) + rec.error().message);
-    rec->line = line_no;
-    log.records.push_back(std::move(rec).value());
   }
   if (in.bad()) return invalid_input(std::string(source) + ": read error");
   if (format == LogFormat::kCsv && !have_header)
     return invalid_input(std::string(source) + ": empty file; expected a header row with id and p_value");
 
   if (!options.allow_duplicate_ids) {
-    std::map<std::string_view, std::size_t> seen;
-    for (const auto& r : log.records) {
-      auto [it, inserted] = seen.emplace(r.id, r.line);
-      if (!inserted) {
-        return invalid_input(where(source, r.line) + "duplicate id '" + r.id + "' (first at line " +
-                             std::to_string(it->second) + "); ids must be unique in a log");
-      }
-    }
+    const Status unique = log.records.size() < (std::size_t{1} << 31)
+                              ? check_unique_ids<std::uint32_t>(log, source)
+                              : check_unique_ids<std::uint64_t>(log, source);
+    if (!unique) return unique.error();
   }
   log.has_truth =
-      !log.records.empty() && std::all_of(log.records.begin(), log.records.end(),
-                                          [](const TestRecord& r) { return r.is_null.has_value(); });
-  if (options.order_by_finished_at) {
-    // A row without finished_at keeps its place right after the row before it (docs/formats.md).
-    std::vector<std::pair<double, std::size_t>> keys;
-    double last = -INFINITY;
-    for (std::size_t i = 0; i < log.records.size(); ++i) {
-      if (log.records[i].finished_at) last = *log.records[i].finished_at;
-      keys.emplace_back(last, i);
-    }
-    std::stable_sort(keys.begin(), keys.end(),
-                     [](const auto& a, const auto& b) { return a.first < b.first; });
-    std::vector<TestRecord> sorted;
-    sorted.reserve(log.records.size());
-    for (const auto& k : keys) sorted.push_back(std::move(log.records[k.second]));
-    log.records = std::move(sorted);
-  }
+      !log.records.empty() && std::all_of(log.records.begin(), log.records.end(), [](const CompactRecord& r) {
+        return (r.flags & CompactRecord::kHasTruth) != 0;
+      });
+  if (options.order_by_finished_at) order_by_time(log);
   return log;
+}
+
+Result<CompactLog> read_compact_log_file(const std::string& path,
+                                         std::optional<std::string_view> forced_format,
+                                         const ReadOptions& options) {
+  auto format = log_format_for(path, forced_format);
+  if (!format) return format.error();
+  if (path == "-") return read_compact_log(std::cin, "stdin", *format, options);
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return invalid_input(path + ": cannot open the file (does it exist, can it be read?)");
+  return read_compact_log(in, path, *format, options);
+}
+
+namespace {
+
+TestLog expand(CompactLog&& compact) {
+  TestLog log;
+  log.source = std::move(compact.source);
+  log.has_truth = compact.has_truth;
+  log.records.reserve(compact.size());
+  for (std::size_t i = 0; i < compact.size(); ++i) log.records.push_back(compact.record(i));
+  return log;
+}
+
+}  // namespace
+
+Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogFormat format,
+                              const ReadOptions& options) {
+  auto compact = read_compact_log(in, source, format, options);
+  if (!compact) return compact.error();
+  return expand(std::move(compact).value());
 }
 
 Result<TestLog> read_test_log_file(const std::string& path, std::optional<std::string_view> forced_format,
                                    const ReadOptions& options) {
-  auto format = log_format_for(path, forced_format);
-  if (!format) return format.error();
-  if (path == "-") return read_test_log(std::cin, "stdin", *format, options);
-  std::ifstream in(path, std::ios::binary);
-  if (!in) return invalid_input(path + ": cannot open the file (does it exist, can it be read?)");
-  return read_test_log(in, path, *format, options);
+  auto compact = read_compact_log_file(path, forced_format, options);
+  if (!compact) return compact.error();
+  return expand(std::move(compact).value());
 }
 
 namespace {

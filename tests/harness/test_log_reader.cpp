@@ -305,3 +305,108 @@ TEST_CASE("TestLog: a summary whose arithmetic overflows is refused, not decided
   CHECK((has(log.error().message, "the summary columns give no p-value") ||
          has(log.error().message, "too large to combine")));
 }
+
+// ---- The compact reader (replay, decide --file) -------------------------------------------------
+
+namespace {
+Result<CompactLog> read_compact_csv(const std::string& text, ReadOptions options = {}) {
+  std::istringstream in(text);
+  return read_compact_log(in, "t.csv", LogFormat::kCsv, options);
+}
+}  // namespace
+
+TEST_CASE("CompactLog: line ends that straddle the reader's 64 KiB blocks are read once each") {
+  // Rows padded so that CRs, LFs and CRLFs land on every offset around the block edges (65536,
+  // 131072, ...): each row must come out once, with its own line number. Expected values are the
+  // rows as written (common practice, no source).
+  const char* ends[] = {"\n", "\r\n", "\r"};
+  std::string text = "id,p_value,note\n";
+  std::vector<std::pair<std::string, std::size_t>> want;
+  for (std::size_t i = 0; text.size() < 300000; ++i) {
+    std::string id = "r";
+    id += std::to_string(i);
+    text += id;
+    text += ",0.5,";
+    text.append(i % 97, 'x');
+    text += ends[i % 3];
+    want.emplace_back(id, i + 2);
+  }
+  auto log = read_compact_csv(text, {.order_by_finished_at = false});
+  REQUIRE(log.ok());
+  REQUIRE(log->size() == want.size());
+  for (std::size_t i = 0; i < want.size(); ++i) {
+    CAPTURE(i);
+    CHECK(log->id(i) == want[i].first);
+    CHECK(log->records[i].line == want[i].second);
+  }
+}
+
+TEST_CASE("CompactLog: a CR as the very last byte of a block, then an LF, is one line end") {
+  // The header ends with CRLF whose CR is byte 65535 (the last of the first block).
+  std::string header = "id,p_value,";
+  header += std::string(65535 - header.size(), 'n');
+  const std::string text = header + "\r\na,0.1,\r\nb,0.2,";
+  auto log = read_compact_csv(text);
+  REQUIRE(log.ok());
+  REQUIRE(log->size() == 2);
+  CHECK(log->records[0].line == 2);  // a CRLF split across blocks counts once (no blank line 2)
+  CHECK(log->records[1].line == 3);
+  CHECK(log->id(1) == "b");
+}
+
+TEST_CASE("CompactLog: holds the same rows as the TestLog reader") {
+  const std::string text =
+      "id,finished_at,p_value,is_null,control_n,control_conversions,treatment_n,treatment_conversions\n"
+      "\"q,1\",3,0.25,1,,,,\n"
+      "b,1,,0,1000,100,1000,150\n"
+      "c,,0.0001,true,,,,\n"
+      " d ,2,1e-8,false,,,,\n";
+  auto compact = read_compact_csv(text);
+  auto full = read_csv(text);
+  REQUIRE(compact.ok());
+  REQUIRE(full.ok());
+  REQUIRE(compact->size() == full->records.size());
+  CHECK(compact->has_truth == full->has_truth);
+  for (std::size_t i = 0; i < compact->size(); ++i) {
+    const TestRecord a = compact->record(i), &b = full->records[i];
+    CHECK(a.id == b.id);
+    CHECK(a.p_value == b.p_value);
+    CHECK(a.finished_at == b.finished_at);
+    CHECK(a.is_null == b.is_null);
+    CHECK(a.line == b.line);
+  }
+  // Order by finished_at: b (1), then c (no time: right after b, docs/formats.md), d (2), q,1 (3).
+  CHECK(compact->id(0) == "b");
+  CHECK(compact->id(1) == "c");
+  CHECK(compact->id(2) == "d");  // unquoted cells are trimmed
+  CHECK(compact->id(3) == "q,1");
+}
+
+TEST_CASE("CompactLog: a duplicate far from its first row is named with both lines") {
+  std::string text = "id,p_value\n";
+  for (int i = 0; i < 50000; ++i) {
+    text += 't';
+    text += std::to_string(i);
+    text += ",0.5\n";
+  }
+  text += "t123,0.5\n";  // line 50002 repeats line 125
+  auto log = read_compact_csv(text);
+  REQUIRE_FALSE(log.ok());
+  CHECK(log.error().message == "t.csv:50002: duplicate id 't123' (first at line 125); ids must be unique in a log");
+  auto retries = read_compact_csv(text, {.allow_duplicate_ids = true});
+  REQUIRE(retries.ok());
+  CHECK(retries->size() == 50001);
+}
+
+TEST_CASE("CompactLog: a log already in time order keeps its order; ties keep file order") {
+  auto log = read_compact_csv("id,finished_at,p_value\na,1,0.1\nb,,0.2\nc,1,0.3\nd,5,0.4\n");
+  REQUIRE(log.ok());
+  std::string order;
+  for (std::size_t i = 0; i < log->size(); ++i) order += log->id(i);
+  CHECK(order == "abcd");
+  auto back = read_compact_csv("id,finished_at,p_value\na,5,0.1\nb,,0.2\nc,1,0.3\nd,1,0.4\n");
+  REQUIRE(back.ok());
+  order.clear();
+  for (std::size_t i = 0; i < back->size(); ++i) order += back->id(i);
+  CHECK(order == "cdab");  // c and d (time 1) in file order, then a with b carried at time 5
+}
