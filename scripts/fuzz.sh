@@ -38,6 +38,9 @@ fi
 launcher=()
 if command -v ccache >/dev/null; then launcher=(-DCMAKE_CXX_COMPILER_LAUNCHER=ccache); fi
 flags="-fsanitize=fuzzer-no-link,address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer -g -O1"
+# The core's 4-lane vector code passes 32-byte vectors between inline helpers, which clang refuses
+# without AVX ("changes the ABI"); the fuzz binaries only run on the machine that builds them.
+if grep -qw avx2 /proc/cpuinfo 2>/dev/null; then flags="$flags -mavx2"; fi
 cmake -S . -B build-fuzz -G Ninja -DCMAKE_BUILD_TYPE=RelWithDebInfo -DCMAKE_CXX_COMPILER="$cxx" \
   -DCMAKE_CXX_FLAGS="$flags" -DALPHALEDGER_FUZZ=ON -DALPHALEDGER_TESTS=OFF "${launcher[@]}" >/dev/null
 cmake --build build-fuzz --target "${targets[@]}" -j "${FUZZ_JOBS:-2}"
