@@ -2,10 +2,12 @@
 #include "alphaledger/spending.hpp"
 
 #include <algorithm>
+#include <atomic>
 #include <charconv>
 #include <cmath>
 #include <limits>
 #include <map>
+#include <mutex>
 #include <numeric>
 
 #include "core/math_policy.hpp"
@@ -13,7 +15,15 @@
 namespace alphaledger {
 namespace {
 
-constexpr std::size_t kTableSize = 65536;    // gamma_j precomputed for j <= 65536
+// gamma_j is read from a table for j <= kTableSize and computed from the formula past it (the same
+// bits either way: the table holds the formula's values). Only the first kEagerTableSize values are
+// computed when a sequence is parsed; the rest of the table is filled on the first gamma_j past
+// them (after kLazyMisses calls that compute gamma_j directly). A read command decides nothing and
+// needs a handful of values, and filling 65,536 values was 10-20% of its CPU time
+// (docs/benchmarks.md "CLI fixed cost").
+constexpr std::size_t kTableSize = 65536;
+constexpr std::size_t kEagerTableSize = 4096;
+constexpr std::uint32_t kLazyMisses = 1024;  // formula calls past the eager part before filling
 constexpr std::size_t kJmHeadLags = 16;      // methods.md 15.4(b) hybrid: exact head L = 16
 constexpr double kMixtureMass = 1.0 - 1e-9;  // methods.md 15.6: strict validity margin
 
@@ -266,6 +276,12 @@ double jm_shape_sum() {
 struct SpendingSequence::GrowingTable {
   std::mutex mutex;
   std::shared_ptr<const std::vector<double>> current;
+  // gamma_j for j <= kTableSize, filled once on first use (see kEagerTableSize).
+  std::atomic<bool> full_ready{false};
+  std::vector<double> full;
+  // gamma_j past the eager part computed from the formula before the table is filled: a few
+  // such calls (fitting fast mode's mixture makes about 30) do not pay for 61,440 values.
+  std::atomic<std::uint32_t> misses{0};
 };
 
 struct SpendingSequence::LazyMixture {
@@ -318,8 +334,8 @@ Result<SpendingSequence> SpendingSequence::parse(std::string_view spec) {
     return invalid_input("unknown spending sequence '" + std::string(spec) + "'; " + kAccepted);
   }
   std::vector<double> table;
-  table.reserve(kTableSize);
-  for (std::uint64_t j = 1; j <= kTableSize; ++j) table.push_back(seq.closed_form(j));
+  table.reserve(kEagerTableSize);
+  for (std::uint64_t j = 1; j <= kEagerTableSize; ++j) table.push_back(seq.closed_form(j));
   seq.table_ = std::make_shared<const std::vector<double>>(std::move(table));
   seq.grown_ = std::make_shared<GrowingTable>();
   seq.grown_->current = seq.table_;
@@ -343,7 +359,19 @@ double SpendingSequence::closed_form(std::uint64_t j) const {
 double SpendingSequence::gamma(std::uint64_t j) const {
   if (j == 0) return 0.0;
   if (j <= table_->size()) return (*table_)[j - 1];
-  return closed_form(j);
+  if (j > kTableSize) return closed_form(j);
+  GrowingTable& g = *grown_;
+  if (!g.full_ready.load(std::memory_order_acquire)) {
+    if (g.misses.fetch_add(1, std::memory_order_relaxed) < kLazyMisses) return closed_form(j);
+    std::lock_guard lock(g.mutex);
+    if (!g.full_ready.load(std::memory_order_relaxed)) {
+      g.full.reserve(kTableSize);
+      g.full.assign(table_->begin(), table_->end());
+      for (std::uint64_t i = g.full.size() + 1; i <= kTableSize; ++i) g.full.push_back(closed_form(i));
+      g.full_ready.store(true, std::memory_order_release);
+    }
+  }
+  return g.full[j - 1];
 }
 
 std::shared_ptr<const std::vector<double>> SpendingSequence::table(std::uint64_t at_least) const {
