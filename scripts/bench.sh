@@ -1,19 +1,26 @@
 #!/usr/bin/env bash
-# Builds the benchmarks (build-bench/, Release) and runs the rule benchmarks beside the NumPy loop a
-# user would write instead, on the same streams in the same run, printing the ratios.
-# docs/benchmarks.md ("Rules: exact and fast evaluation") records a run and how to read it.
+# Builds the benchmarks (build-bench/, Release) and runs every benchmark beside what a user would
+# use instead, on the same data in the same run, printing the ratios:
+#   - exact and fast evaluation against the NumPy loop (bench/exact_numpy.py);
+#   - durable decisions (ledger_bench) against SQLite, one row per decision, WAL, synchronous=FULL,
+#     in groups of 1, 256 and 4,096 (bench/sqlite_ledger.py); PostgreSQL only if a server answers
+#     on 127.0.0.1 (pg_isready), else a note;
+#   - reading a log: `replay` against `awk` on the same CSV file;
+#   - the fixed CPU cost of one CLI process (--version, next, status, streams, history);
+#   - peak memory of `decide --file`, `history` and `verify` on a long stream.
+# docs/benchmarks.md records a run and how to read it.
 #
 # Usage: scripts/bench.sh [--quick]
-#   --quick: skip the 10^6-test runs (the NumPy loop alone takes a minute or more there)
-# Needs Debian's python3-numpy for /usr/bin/python3 (installed with apt-get when run as root).
+#   --quick: a few minutes: no 10^6-test exact runs, 10^5 rows instead of 10^6 for logs and
+#            memory, shorter ledger measurements.
+# Needs Debian's python3-numpy for /usr/bin/python3 (installed with apt-get when run as root),
+# perf (for the CLI cost; a timed loop otherwise) and GNU time (/usr/bin/time).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
 quick=0
 [[ "${1:-}" == "--quick" ]] && quick=1
 python=/usr/bin/python3  # Debian's: another python3 may come first on PATH
-out=build-bench/bench-run
-mkdir -p "$out"
 
 if ! "$python" -c 'import numpy' 2>/dev/null; then
   if [[ $(id -u) -eq 0 ]]; then
@@ -24,8 +31,15 @@ if ! "$python" -c 'import numpy' 2>/dev/null; then
   fi
 fi
 
-cmake -S . -B build-bench -G Ninja -DCMAKE_BUILD_TYPE=Release -DALPHALEDGER_BENCH=ON -DALPHALEDGER_TESTS=OFF >/dev/null
-cmake --build build-bench -j2 --target evaluation_bench rules_bench >/dev/null
+# ALPHALEDGER_BENCH_BUILD=DIR uses an existing Release build folder configured with
+# -DALPHALEDGER_BENCH=ON instead of configuring build-bench/.
+bdir=${ALPHALEDGER_BENCH_BUILD:-build-bench}
+if [[ -z "${ALPHALEDGER_BENCH_BUILD:-}" ]]; then
+  cmake -S . -B build-bench -G Ninja -DCMAKE_BUILD_TYPE=Release -DALPHALEDGER_BENCH=ON -DALPHALEDGER_TESTS=OFF >/dev/null
+fi
+cmake --build "$bdir" -j2 --target evaluation_bench rules_bench ledger_bench alphaledger >/dev/null
+out="$bdir"/bench-run
+mkdir -p "$out"
 
 echo "== machine: $(nproc) cores, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | xargs)"
 echo "== load at start: $(cut -d' ' -f1-3 /proc/loadavg) (other work on the machine inflates wall times)"
@@ -48,7 +62,7 @@ ratio() {
 
 exact_case() {  # exact_case N REPEAT RULES NUMPY_RULES
   local n=$1 repeat=$2 rules=$3 numpy_rules=$4
-  build-bench/bench/evaluation_bench --tests "$n" --modes exact --rules "$rules" --repeat "$repeat" \
+  "$bdir"/bench/evaluation_bench --tests "$n" --modes exact --rules "$rules" --repeat "$repeat" \
     --write-stream "$out/stream-$n.bin" --write-levels "$out/levels-$n.bin" | tee "$out/ours-$n.txt"
   "$python" bench/exact_numpy.py "$out/stream-$n.bin" --rules "$numpy_rules" --levels "$out/levels-$n.bin" |
     tee "$out/numpy-$n.txt"
@@ -64,11 +78,83 @@ if [[ $quick -eq 0 ]]; then
   exact_case 1000000 1 lord++,saffron lord++
 fi
 
-echo "== exact ADDIS and fast evaluation (10^7 tests fast, best of 3)"
-build-bench/bench/evaluation_bench --tests 100000 --modes exact --rules addis --repeat 3
-build-bench/bench/evaluation_bench --tests 10000000 --modes fast --repeat 3
+echo "== exact ADDIS and fast evaluation (10^7 tests fast, 10^6 with --quick; best of 3)"
+"$bdir"/bench/evaluation_bench --tests 100000 --modes exact --rules addis --repeat 3
+fast_tests=10000000
+[[ $quick -eq 1 ]] && fast_tests=1000000
+"$bdir"/bench/evaluation_bench --tests "$fast_tests" --modes fast --repeat 3
 
 echo "== rules_bench (every rule; exact runs capped at 5 s)"
-build-bench/bench/rules_bench 10000000 5
+"$bdir"/bench/rules_bench "$fast_tests" 5
+
+bin="$bdir"/alphaledger
+scratch=$(mktemp -d /tmp/alphaledger-bench.XXXXXX)
+trap 'rm -rf "$scratch"' EXIT
+# ops_per_s FILE LABEL: the ops/s column of ledger_bench's line LABEL.
+ops_per_s() { grep -F "$2" "$1" | head -1 | awk '{print $(NF-1)}'; }
+per_s() { grep "batch=$2 " "$1" | grep -oE 'per_second=[0-9]+' | cut -d= -f2; }
+show_ratio() {  # show_ratio LABEL OURS THEIRS THEIR-NAME
+  awk -v l="$1" -v o="$2" -v t="$3" -v n="$4" 'BEGIN {
+    printf "ratio %-40s alphaledger %9.0f/s / %s %9.0f/s = %5.2fx\n", l, o, n, t, o / t }'
+}
+
+secs=3; group_total=1000000; rows=1000000; cli_runs=200
+[[ $quick -eq 1 ]] && secs=1 && group_total=200000 && rows=100000 && cli_runs=50
+
+echo "== durable decisions: ledger_bench ($secs s a measurement) against SQLite (WAL, synchronous=FULL)"
+"$bdir"/bench/ledger_bench "$scratch/lb" "$secs" | tee "$out/ledger.txt"
+"$bdir"/bench/ledger_bench "$scratch/lbg" "$group_total" group | tee "$out/ledger-group.txt"
+"$python" bench/sqlite_ledger.py "$scratch/sqlite" "$secs" 1 256 4096 | tee "$out/sqlite.txt"
+show_ratio "one synced write each" "$(ops_per_s "$out/ledger.txt" "decide (one synced write each)")" \
+  "$(per_s "$out/sqlite.txt" 1)" sqlite
+show_ratio "256 per synced write" "$(ops_per_s "$out/ledger.txt" "decide_batch, 256 per synced write")" \
+  "$(per_s "$out/sqlite.txt" 256)" sqlite
+show_ratio "4096 per synced write ($group_total decisions)" \
+  "$(ops_per_s "$out/ledger-group.txt" "decide_batch, 4096 per synced write")" "$(per_s "$out/sqlite.txt" 4096)" sqlite
+if command -v pg_isready >/dev/null && pg_isready -q -h 127.0.0.1 2>/dev/null; then
+  echo "note: a PostgreSQL server answers on 127.0.0.1, but this script has no PostgreSQL client loop yet"
+else
+  echo "note: no PostgreSQL server answers on 127.0.0.1 (pg_isready): PostgreSQL comparison skipped"
+fi
+
+echo "== reading a log: replay against awk, $rows rows"
+awk -v n="$rows" 'BEGIN { print "id,p_value,finished_at"; srand(7);
+  for (i = 1; i <= n; i++) printf "t%09d,%.6g,%d\n", i, rand() ^ 3, 1700000000 + i }' >"$scratch/log.csv"
+# cpu_of CMD...: user+system seconds and peak MB of one run, as "CPU MB".
+cpu_of() { /usr/bin/time -f '%U %S %M' "$@" 2>&1 >/dev/null | tail -1 | awk '{printf "%.3f %.0f", $1 + $2, $3 / 1024}'; }
+read -r awk_cpu awk_mb <<<"$(cpu_of awk -F, '{s+=$2} END {print s}' "$scratch/log.csv")"
+read -r replay_cpu replay_mb <<<"$(cpu_of "$bin" replay "$scratch/log.csv" --rules alpha-spending --summary)"
+echo "awk: $awk_cpu s CPU, $awk_mb MB; replay --rules alpha-spending --summary: $replay_cpu s CPU, $replay_mb MB"
+awk -v a="$awk_cpu" -v r="$replay_cpu" 'BEGIN { printf "ratio replay/awk CPU time = %.2fx (the target: a few times)\n", r / a }'
+
+echo "== peak memory: decide --file, history, verify of $rows rows (alpha-spending)"
+"$bin" --ledger "$scratch/mem" new mem --rule alpha-spending >/dev/null
+read -r c m <<<"$(cpu_of "$bin" --ledger "$scratch/mem" decide mem --file "$scratch/log.csv")"
+echo "decide --file: $c s CPU, peak $m MB (target: under 100 MB at 10^6 rows)"
+read -r c m <<<"$(cpu_of "$bin" --ledger "$scratch/mem" history mem)"
+echo "history: $c s CPU, peak $m MB"
+read -r c m <<<"$(cpu_of "$bin" --ledger "$scratch/mem" verify mem)"
+echo "verify: $c s CPU, peak $m MB"
+
+echo "== CLI fixed cost: CPU ms per process, mean of $cli_runs runs (ledger: LORD++ fast, 10,001 decisions)"
+"$bin" --ledger "$scratch/cli" new S --rule lord++ --evaluation fast >/dev/null
+"$bin" --ledger "$scratch/cli" new small --rule lord++ >/dev/null
+head -10001 "$scratch/log.csv" >"$scratch/10k.csv"
+"$bin" --ledger "$scratch/cli" decide S --file "$scratch/10k.csv" >/dev/null
+"$bin" --ledger "$scratch/cli" decide S --id extra --p 0.3 >/dev/null
+"$bin" --ledger "$scratch/cli" decide small --id a --p 0.01 >/dev/null
+cli_cost() {  # cli_cost ARGS...: mean task-clock ms and mean wall ms
+  if command -v perf >/dev/null && perf stat -x, -e task-clock true 2>/dev/null; then
+    perf stat -x, -r "$cli_runs" -e task-clock "$bin" "$@" 2>&1 >/dev/null | grep task-clock | cut -d, -f1
+  else
+    /usr/bin/time -f '%U %S' bash -c 'for ((i = 0; i < $0; i++)); do "$@" >/dev/null; done' "$cli_runs" "$bin" "$@" \
+      2>&1 | tail -1 | awk -v n="$cli_runs" '{printf "%.2f", 1000 * ($1 + $2) / n}'
+  fi
+}
+for args in "--version" "--ledger $scratch/cli next S" "--ledger $scratch/cli status S" \
+  "--ledger $scratch/cli streams" "--ledger $scratch/cli history small"; do
+  # shellcheck disable=SC2086
+  printf "cli %-24s %8.2f ms CPU per process (target: 5 ms)\n" "${args#--ledger $scratch/cli }" "$(cli_cost $args)"
+done
 
 echo "== load at end: $(cut -d' ' -f1-3 /proc/loadavg)"
