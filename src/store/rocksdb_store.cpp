@@ -15,6 +15,7 @@
 #include <rocksdb/filter_policy.h>
 #include <rocksdb/listener.h>
 #include <rocksdb/options.h>
+#include <rocksdb/slice_transform.h>
 #include <rocksdb/table.h>
 #include <rocksdb/write_batch.h>
 #include <sys/stat.h>
@@ -409,6 +410,22 @@ std::uint64_t newest_table(rocksdb::DB& db) {
   return best;
 }
 
+// The prefix "r/<stream>/" of a record key. A stream's records are written in step order, so
+// the memtable can insert each one after the previous one of its stream (a remembered position)
+// instead of searching its skip list from the top. Other keys are inserted as before.
+class RecordKeyPrefix final : public rocksdb::SliceTransform {
+ public:
+  const char* Name() const override { return "alphaledger.RecordKeyPrefix"; }
+  rocksdb::Slice Transform(const rocksdb::Slice& key) const override {
+    const auto* slash = static_cast<const char*>(std::memchr(key.data() + 2, '/', key.size() - 2));
+    return {key.data(), static_cast<std::size_t>(slash - key.data()) + 1};
+  }
+  bool InDomain(const rocksdb::Slice& key) const override {
+    return key.size() > 2 && key[0] == 'r' && key[1] == '/' &&
+           std::memchr(key.data() + 2, '/', key.size() - 2) != nullptr;
+  }
+};
+
 rocksdb::Options base_options(bool read_only) {
   rocksdb::Options o;
   o.create_if_missing = false;
@@ -448,6 +465,7 @@ rocksdb::Options base_options(bool read_only) {
   if (!read_only) {
     o.memtable_prefix_bloom_size_ratio = 0.05;
     o.memtable_whole_key_filtering = true;
+    o.memtable_insert_with_hint_prefix_extractor = std::make_shared<RecordKeyPrefix>();
   }
   return o;
 }
