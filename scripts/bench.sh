@@ -151,6 +151,10 @@ cli_cost() {  # cli_cost ARGS...: mean task-clock ms and mean wall ms
       2>&1 | tail -1 | awk -v n="$cli_runs" '{printf "%.2f", 1000 * ($1 + $2) / n}'
   fi
 }
+if command -v perf >/dev/null && perf stat -x, -e task-clock true 2>/dev/null; then
+  printf "cli %-24s %8.2f ms CPU per process (what starting any process costs here)\n" "(/bin/true)" \
+    "$(perf stat -x, -r "$cli_runs" -e task-clock /bin/true 2>&1 >/dev/null | grep task-clock | cut -d, -f1)"
+fi
 for args in "--version" "--ledger $scratch/cli next S" "--ledger $scratch/cli status S" \
   "--ledger $scratch/cli streams" "--ledger $scratch/cli history small"; do
   # shellcheck disable=SC2086
