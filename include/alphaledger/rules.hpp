@@ -15,11 +15,19 @@
 //   rule.next_level();          // 0.001370386057...
 //   Outcome o = rule.record(0.0004);   // o.rejected == true
 //
+// Tests that overlap in time (methods.md section 9.1, docs/rules.md "Launch-time levels"):
+//   Reservation a = rule.launch();              // a.level is fixed now, a.launch == 1
+//   Reservation b = rule.launch();              // a batch: no finish between the launches
+//   auto o = rule.finish(a.launch, 0.0004);     // decided against a.level
+//   rule.abandon(b.launch);                     // b never reports a p-value
+// record(p) is exactly launch() followed by finish() of that launch.
+//
 // Thread-safety: a Rule is a value; distinct Rules may be used from distinct threads. Copying a
 // Rule is cheap (the spending sequence and its mixture are shared, immutable).
 #pragma once
 
 #include <cstdint>
+#include <map>
 #include <memory>
 #include <optional>
 #include <string>
@@ -85,12 +93,27 @@ Result<RuleConfig> resolve_config(const RuleSpec& spec);
 // Which parameters a rule takes (used to refuse flags that no listed rule takes).
 bool rule_takes(RuleKind kind, std::string_view parameter);  // "initial_wealth", "payout", ...
 
-// The result of recording one test.
+// The result of recording (or finishing) one test.
 struct Outcome {
-  std::uint64_t step = 0;  // 1-based position in the stream
+  std::uint64_t step = 0;  // the test's launch number: 1-based position in launch order
   double level = 0;        // the level granted, fixed before the p-value was read
   bool rejected = false;   // p <= level
   double wealth = 0;       // alpha-wealth after the test (docs/rules.md defines it per rule)
+};
+
+// The level reserved for a test at its launch.
+struct Reservation {
+  std::uint64_t launch = 0;  // launch number, 1-based
+  double level = 0;          // the level its finish will be decided against
+  double wealth = 0;         // alpha-wealth right after the launch
+};
+
+// A test launched and not yet finished or abandoned.
+struct RunningTest {
+  std::uint64_t launch = 0;
+  double level = 0;
+
+  friend bool operator==(const RunningTest&, const RunningTest&) = default;
 };
 
 class Rule {
@@ -100,19 +123,38 @@ class Rule {
 
   const RuleConfig& config() const { return config_; }
 
-  // The level the next test will get. Does not change the state.
+  // The level the next launched test will get. Does not change the state. O(K) normally; when a
+  // saffron/addis test launched last is still running it copies the Rule (O(running tests)).
   double next_level() const;
 
-  // Decides a test with p-value p and advances the state.
+  // Decides a test with p-value p and advances the state: launch() then finish() of that launch.
   // REQUIRES: 0 <= p <= 1 (callers validate input; see validate_p_value()).
   Outcome record(double p);
 
-  std::uint64_t tests() const { return step_; }
-  std::uint64_t rejections() const { return rejections_; }
-  double wealth() const { return wealth_; }
+  // Launch-time events (methods.md section 9.1). launch() reserves the next test's level from the
+  // outcomes finished so far and changes the state (the level is spent, the clock advances).
+  Reservation launch();
+  // Decides running test `launch` against its reserved level and applies the outcome. A p-value
+  // outside [0, 1] is kInvalidInput; a launch number never launched is kInvalidInput; one already
+  // finished or abandoned is kRefused. On error the Rule is unchanged.
+  Result<Outcome> finish(std::uint64_t launch, double p);
+  // The test will never report a p-value: no rejection, no deposit; saffron/addis count it as
+  // advancing the clock. Errors as finish().
+  Status abandon(std::uint64_t launch);
+  // Running tests in launch order.
+  std::vector<RunningTest> running() const;
+  std::size_t running_count() const { return running_.size(); }
+  // Sum of the levels reserved by running tests (summed in launch order).
+  double reserved() const;
+
+  std::uint64_t tests() const { return step_; }             // tests launched (recorded tests included)
+  std::uint64_t rejections() const { return rejections_; }  // rejections finished
+  double wealth() const;
 
   // The compact state: every counter and accumulator, little-endian, versioned. Restoring the
-  // encoded state into a Rule of the same configuration continues bit-identically.
+  // encoded state into a Rule of the same configuration continues bit-identically. With no
+  // running tests the bytes are those of format version 1 (every state saved before launch-time
+  // levels existed); with running tests, version 2 appends them.
   std::string encode_state() const;
   // On failure (truncated, wrong version, wrong shape for this configuration) returns
   // kStorage and leaves this Rule unchanged.
@@ -130,6 +172,18 @@ class Rule {
   void set_head_mask();              // fast mode: head_mask_ from head_
   void fill_window();                // exact mode: window_ for the clocks from clock_ on
   void add_to_window(double c_new);  // exact mode: a deposit made at clock_
+  void ensure_window();              // exact mode: a window covering clock_
+  double level_now() const;          // the level at the current state (no pending clock advance)
+  Status check_running(std::uint64_t launch, std::string_view event) const;
+  Outcome finish_running(std::uint64_t launch, double p);  // REQUIRES: launch is running
+  void clock_advance_for(double level);                    // saffron/addis: one test advances the clock
+  Status restore_running(std::string_view bytes);          // version 2 tail of the encoded state, into *this
+
+  // A running test. `advanced`: saffron/addis, it has already advanced the clock.
+  struct Running {
+    double level = 0;
+    bool advanced = false;
+  };
 
   RuleConfig config_;
   std::shared_ptr<const SpendingSequence> sequence_;
@@ -145,6 +199,8 @@ class Rule {
   std::vector<double> accumulator_;           // fast mode: A_k
   double fast_sum_ = 0;                       // fast mode: mixture_sum() of the current state
   std::uint64_t head_mask_ = 0;  // fast mode: bit i set iff head_[i] != 0 (every bit for heads of 64+)
+  std::map<std::uint64_t, Running> running_;  // launched, not finished or abandoned
+  double investing_reserved_ = 0;             // alpha-investing: sum of level/(1-level) over running tests
 
   // Exact mode: window_[i] is exact_sum() at clock window_start_ + i, each lane summed over the
   // deposits in the same order as exact_sum(), so bit-identical to it (docs/benchmarks.md,

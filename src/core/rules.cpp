@@ -11,7 +11,12 @@
 namespace alphaledger {
 namespace {
 
-constexpr std::uint8_t kStateVersion = 1;  // stored on disk: bump when the layout changes
+// Stored on disk: bump when the layout changes. Version 1: counters and accumulators. Version 2:
+// version 1's fields, then the running tests (count, then launch number, level, flags each) and
+// alpha-investing's reserved payment. A state without running tests is always written as version
+// 1, so synchronous streams keep the bytes they had before launch-time levels existed.
+constexpr std::uint8_t kStateVersion = 2;
+constexpr std::uint8_t kStateVersionSynchronous = 1;
 
 // Hot loops get an AVX2 clone, chosen at run time, on x86-64. The clones do the same IEEE
 // operations in the same order, so they give the same bits as the baseline code.
@@ -385,7 +390,7 @@ void Rule::add_to_window(double c_new) {
   add_scaled(window_.data() + first, c_new, gamma_table_->data(), window_.size() - first);
 }
 
-double Rule::next_level() const {
+double Rule::level_now() const {
   const std::uint64_t t = step_ + 1;
   const double a = config_.alpha;
   switch (config_.kind) {
@@ -394,7 +399,7 @@ double Rule::next_level() const {
     case RuleKind::kLond:
       return a * sequence_->gamma(t) * static_cast<double>(rejections_ + 1);
     case RuleKind::kAlphaInvesting: {
-      const double w = std::max(wealth_, 0.0);
+      const double w = std::max(wealth_ - investing_reserved_, 0.0);
       const double policy = w / static_cast<double>(1 + t - last_rejection_);
       return std::min(policy, w / (1 + w));
     }
@@ -410,6 +415,17 @@ double Rule::next_level() const {
     }
   }
   return 0.0;
+}
+
+double Rule::next_level() const {
+  const auto last = running_.find(step_);
+  if (last != running_.end() && !last->second.advanced &&
+      (config_.kind == RuleKind::kSaffron || config_.kind == RuleKind::kAddis)) {
+    // The last launched test is still running: the next launch advances the clock first.
+    Rule preview = *this;
+    return preview.launch().level;
+  }
+  return level_now();
 }
 
 void Rule::advance(bool tick, bool rejected) {
@@ -454,13 +470,23 @@ void Rule::advance(bool tick, bool rejected) {
   if (rejected) wealth_ += c_new;
 }
 
-Outcome Rule::record(double p) {
+void Rule::ensure_window() {
   if (is_deposit_rule(config_.kind) && mixture_ == nullptr &&
       !(clock_ >= window_start_ && clock_ - window_start_ < window_.size())) {
     fill_window();
   }
+}
+
+Outcome Rule::record(double p) {
+  if (!running_.empty()) {
+    // Tests are running: the general path (rules_launch.cpp). Without running tests the code
+    // below is the same sequence of operations, fused; tests/core/test_launch.cpp compares bits.
+    const Reservation r = launch();
+    return finish_running(r.launch, p);
+  }
+  ensure_window();
   Outcome o;
-  o.level = next_level();
+  o.level = level_now();
   o.rejected = p <= o.level;
   o.step = ++step_;
   const double a = config_.alpha;
@@ -502,9 +528,44 @@ Outcome Rule::record(double p) {
   return o;
 }
 
+Status Rule::restore_running(std::string_view bytes) {
+  Reader r{bytes};
+  const std::uint64_t n = r.u64();
+  if (!r.ok || n > r.in.size() / 17) return storage_error("rule state is truncated (running tests)");
+  const bool clocked = config_.kind == RuleKind::kSaffron || config_.kind == RuleKind::kAddis;
+  std::uint64_t previous = 0;
+  for (std::uint64_t i = 0; i < n; ++i) {
+    const std::uint64_t launch = r.u64();
+    const double level = r.f64();
+    const std::uint8_t flags = r.u8();
+    if (!r.ok) return storage_error("rule state is truncated (running tests)");
+    if (launch <= previous || launch > step_) {
+      return storage_error("rule state is inconsistent: running test " + std::to_string(launch) +
+                           " is out of order or beyond the " + std::to_string(step_) + " tests launched");
+    }
+    if (!(level >= 0.0 && level <= 1.0) || flags > 1 || (flags == 1 && !clocked) ||
+        (clocked && flags == 0 && launch != step_)) {
+      return storage_error("rule state is inconsistent: running test " + std::to_string(launch) +
+                           " has an impossible level or clock flag");
+    }
+    running_.emplace_hint(running_.end(), launch, Running{level, flags == 1});
+    previous = launch;
+  }
+  investing_reserved_ = r.f64();
+  if (!r.ok || !r.in.empty()) return storage_error("rule state is truncated or has trailing bytes");
+  const bool investing = config_.kind == RuleKind::kAlphaInvesting;
+  if (!(investing_reserved_ >= 0.0 && investing_reserved_ < 1e300) ||
+      (!investing && investing_reserved_ != 0.0) ||
+      (investing && running_.empty() && investing_reserved_ != 0)) {
+    return storage_error("rule state is inconsistent: impossible reserved wealth");
+  }
+  return {};
+}
+
 std::string Rule::encode_state() const {
   std::string out;
-  out.push_back(static_cast<char>(kStateVersion));
+  const bool synchronous = running_.empty() && investing_reserved_ == 0.0;
+  out.push_back(static_cast<char>(synchronous ? kStateVersionSynchronous : kStateVersion));
   out.push_back(static_cast<char>(config_.kind));
   out.push_back(static_cast<char>(config_.evaluation));
   put_u64(out, step_);
@@ -518,6 +579,14 @@ std::string Rule::encode_state() const {
   for (double h : head_) put_f64(out, h);
   put_u64(out, accumulator_.size());
   for (double a : accumulator_) put_f64(out, a);
+  if (synchronous) return out;
+  put_u64(out, running_.size());
+  for (const auto& [launch, r] : running_) {
+    put_u64(out, launch);
+    put_f64(out, r.level);
+    out.push_back(static_cast<char>(r.advanced ? 1 : 0));
+  }
+  put_f64(out, investing_reserved_);
   return out;
 }
 
@@ -526,9 +595,9 @@ Status Rule::restore_state(std::string_view bytes) {
   const auto version = r.u8();
   const auto kind = r.u8();
   const auto evaluation = r.u8();
-  if (!r.ok || version != kStateVersion) {
+  if (!r.ok || (version != kStateVersion && version != kStateVersionSynchronous)) {
     return storage_error("rule state has format version " + std::to_string(version) +
-                         ", this build reads version " + std::to_string(kStateVersion));
+                         ", this build reads versions 1 and 2");
   }
   if (kind != static_cast<std::uint8_t>(config_.kind) ||
       evaluation != static_cast<std::uint8_t>(config_.evaluation)) {
@@ -550,6 +619,12 @@ Status Rule::restore_state(std::string_view bytes) {
   const std::uint64_t na = r.u64();
   if (!r.ok || na != accumulator_.size()) return storage_error("rule state has the wrong accumulator count");
   for (auto& a : next.accumulator_) a = r.f64();
+  next.running_.clear();
+  next.investing_reserved_ = 0;
+  if (version == kStateVersion) {
+    if (auto s = next.restore_running(r.in); !s) return s.error();
+    r.in = {};
+  }
   if (!r.ok || !r.in.empty()) return storage_error("rule state is truncated or has trailing bytes");
   const bool exact_deposits = is_deposit_rule(config_.kind) && mixture_ == nullptr;
   if (exact_deposits && (nd != next.rejections_ + 1)) {
