@@ -1,6 +1,8 @@
 // The body of POST /v1/streams: parse_json_object, stream_request_from_json, resolve_config.
 #include "alphaledger/rules.hpp"
 #include "alphaledger/service.hpp"
+#include "harness/json_input.hpp"
+#include "service/json_input.hpp"
 #include "fuzz_support.hpp"
 
 using namespace alphaledger;

@@ -2,6 +2,9 @@
 #include <cmath>
 
 #include "alphaledger/service.hpp"
+#include "harness/json_input.hpp"
+#include "harness/json_text.hpp"
+#include "service/json_input.hpp"
 #include "fuzz_support.hpp"
 
 using namespace alphaledger;
@@ -23,7 +26,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
     fuzz::require(t->p_value >= 0 && t->p_value <= 1 && !std::signbit(t->p_value),
                   "an accepted p-value outside [0, 1] or -0");
   }
-  // Answers are written with dump_json: it must not throw on anything the reader accepted.
-  (void)dump_json(nlohmann::ordered_json::parse(j->dump()));
+  // Answers are written with json_text: it must not throw on anything the reader accepted.
+  (void)json_text(nlohmann::ordered_json::parse(json_text(*j)));
   return 0;
 }

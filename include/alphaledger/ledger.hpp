@@ -10,7 +10,8 @@
 //   auto d = (*ledger)->decide("checkout-team", "exp-0142", 0.0004);
 //   d->record.level;      // 0.001370386057...
 //   d->record.rejected;   // true: 0.0004 <= level
-//   decision_json(*d);    // {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860574...,
+//   decision_json(*d);    // alphaledger/forms.hpp:
+//                         // {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860574...,
 //                         //  "rejected":1,"wealth":0.07...,"stream":"checkout-team",
 //                         //  "decided_at":"2025-03-14T09:30:00.000Z","repeat":false}
 //
@@ -85,12 +86,6 @@ struct TestInput {
   std::string id;
   double p_value = 0;
 };
-
-// The answer of `decide --json` and of the HTTP service, as one line of JSON with the keys
-// step, id, p_value, level, rejected (1/0, as replay prints it), wealth, stream, decided_at
-// (format_timestamp) and repeat. Numbers in shortest round-trip form. With a non-empty `rule`, a
-// first key "rule" holds it (decide --file rows, which carry replay's rule column).
-std::string decision_json(const DecideResult& d, std::string_view rule = {});
 
 // A chain hash noted earlier (from verify's output), to check that the ledger still holds it:
 // the record at `step` must have this chain hash. Step 0 names the configuration (the chain's

@@ -8,7 +8,7 @@
 //   auto summary = run_pipe(**ledger, "checkout-team", /*in_fd=*/0, std::cout, /*stop_fd=*/-1);
 //   // stdin  {"id": "exp-0142", "p_value": 0.0004}
 //   // stdout {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860574...,...}
-//   //        (the decision_json() of ledger.hpp, the same line `decide --json` prints)
+//   //        (the decision_json() of forms.hpp, the same line `decide --json` prints)
 //
 // Example (HTTP):
 //   HttpOptions options;                      // 127.0.0.1:8742, no token
@@ -26,7 +26,6 @@
 #include <functional>
 #include <memory>
 #include <mutex>
-#include <nlohmann/json.hpp>
 #include <optional>
 #include <ostream>
 #include <string>
@@ -39,26 +38,16 @@
 
 namespace alphaledger {
 
-// ---- JSON forms (decisions themselves use decision_json() from ledger.hpp) -------------------
+// ---- Requests given as JSON text ---------------------------------------------------------------
+// (The forms the service writes are in alphaledger/forms.hpp.)
 
-// One history row, the line `history --format jsonl` prints: {"rule","step","id","p_value",
-// "level","rejected" (1/0),"wealth","decided_at"}.
-nlohmann::ordered_json history_row_to_json(const DecisionRecord& r, std::string_view rule);
-// A stream's status, the object `status --json` prints: stream, rule, the parameters the rule
-// takes, created_at, tests, rejections, wealth, next_level.
-nlohmann::ordered_json stream_to_json(const StreamInfo& s);
-
-// Text of any JSON value, with invalid UTF-8 replaced (never throws).
-std::string dump_json(const nlohmann::ordered_json& j);
-
-// A test read from a JSON object {"id": ..., "p_value": ...}, by the one reading of
-// test_record_from_json (alphaledger/test_log.hpp, docs/formats.md): id a string (or an integer,
-// taken as its decimal text) passing validate_test_id; p_value a JSON number in [0, 1]. Other keys
-// are ignored. Errors are kInvalidInput naming the field, an excerpt of the value and what is
-// accepted. The one-argument form takes p_value only; the second form also reads summary columns
-// (docs/formats.md) in `summary_direction`, the stream's frozen direction (pipe does this).
-Result<TestInput> test_from_json(const nlohmann::json& object);
-Result<TestInput> test_from_json(const nlohmann::json& object, Alternative summary_direction);
+// A test read from JSON text holding one object {"id": ..., "p_value": ...}, by the one reading of
+// test_record_from_json_text (alphaledger/test_log.hpp, docs/formats.md): id a string (or an
+// integer, taken as its decimal text) passing validate_test_id; p_value a JSON number in [0, 1].
+// Other keys are ignored. Errors are kInvalidInput naming the field, an excerpt of the value and
+// what is accepted (text that is not one JSON object is refused first, as parse_json_object
+// refuses it: depth, duplicate keys, numbers a double cannot hold).
+Result<TestInput> test_from_json_text(std::string_view text);
 
 // The body of a stream creation (POST /v1/streams): name and rule (strings) plus the optional
 // rule parameters (numbers: alpha, initial_wealth, candidate_threshold, discard_threshold,
@@ -73,7 +62,8 @@ struct StreamRequest {
 };
 inline constexpr std::string_view kStreamRequestExample =
     R"({"name": "checkout-team", "rule": "lord++", "alpha": 0.05})";
-Result<StreamRequest> stream_request_from_json(const nlohmann::json& object);
+// A stream creation read from JSON text holding one object.
+Result<StreamRequest> stream_request_from_json_text(std::string_view text);
 
 // ---- Deciding many tests in arrival order ----------------------------------------------------
 
@@ -129,11 +119,11 @@ struct PipeSummary {
 
 // Reads JSON Lines from `in_fd` (lines end with LF, CRLF or a lone CR; each line is read as a
 // JSON Lines row of docs/formats.md, summary rows in the stream's frozen direction) until end of
-// input (or until `stop_fd`, if >= 0, becomes readable), and writes one line per input line to `out`, flushed per line, in input order:
-// the decision object (decision_json) or {"line": N, "error": "..."}. Lines are counted from
-// 1; every line is answered, a blank one too. Lines that arrive together are decided with one
-// synced write per group; each answer is written only after its decision is durable.
-// On stop, every complete line already read is answered; a line without its newline yet is not.
+// input (or until `stop_fd`, if >= 0, becomes readable), and writes one line per input line to `out`, flushed
+// per line, in input order: the decision object (decision_json, alphaledger/forms.hpp) or {"line": N,
+// "error": "..."}. Lines are counted from 1; every line is answered, a blank one too. Lines that arrive
+// together are decided with one synced write per group; each answer is written only after its decision is
+// durable. On stop, every complete line already read is answered; a line without its newline yet is not.
 // Returns the summary; an unknown stream is kRefused before anything is read; a storage failure
 // answers the line it hit and returns kStorage (later lines are not read); a failed write to
 // `out` returns kStorage. Bad lines are not errors of the call: see PipeSummary::bad.
@@ -195,31 +185,6 @@ class HttpService {
   virtual void stop() = 0;
   // Streams with a decision queue lane right now (DecisionQueue::lane_count; for tests).
   virtual std::size_t queue_lanes() const = 0;
-};
-
-// ---- signals -----------------------------------------------------------------------------------
-
-// SIGTERM and SIGINT as a readable file descriptor, for loops that poll(). install() blocks the
-// two signals and watches them with a signalfd, so no handler runs on an arbitrary thread; the fd
-// becomes readable when one arrives. While the object exists the signals no longer end the
-// process; the destructor takes any still pending and restores the previous mask. Also ignores
-// SIGPIPE, so a closed reader shows up as a write error. Only one may exist at a time (kStorage
-// otherwise). REQUIRES: install() is called before the process starts other threads (threads
-// inherit the mask from their creator; one started earlier could still be ended by the signal).
-class StopSignals {
- public:
-  static Result<std::unique_ptr<StopSignals>> install();
-  ~StopSignals();
-  StopSignals(const StopSignals&) = delete;
-  StopSignals& operator=(const StopSignals&) = delete;
-  int fd() const { return read_fd_; }  // becomes readable on the first SIGTERM/SIGINT
-  // The signal received (SIGTERM or SIGINT), or 0 while none has arrived. Reading it takes the
-  // signal from the fd.
-  int signal_number() const;
-
- private:
-  StopSignals() = default;
-  int read_fd_ = -1;
 };
 
 }  // namespace alphaledger

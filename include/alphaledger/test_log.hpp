@@ -17,7 +17,6 @@
 #include <cstdint>
 #include <istream>
 #include <map>
-#include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -112,34 +111,27 @@ Result<TestLog> read_test_log_file(const std::string& path, std::optional<std::s
 Result<double> parse_number_text(std::string_view text, std::string_view field);
 // A p-value written as text (CSV cell, `decide --p`): parse_number_text, then within [0, 1].
 Result<double> parse_p_value_text(std::string_view text);
-// A p-value given as a JSON value: a JSON number in [0, 1] (not a string, not null); negative
-// zero is read as 0. parse_json_object() has already refused numbers a double cannot hold.
-Result<double> p_value_from_json(const nlohmann::json& value);
 Result<double> parse_time_text(std::string_view text);  // ISO 8601 date / date-time, or a number
 // 1..256 bytes of valid UTF-8, without control characters (C0, DEL, C1) and without white space
 // at either end. One rule for every input: CSV, JSON Lines, pipe, HTTP, `decide --id`, the ledger.
 Status validate_test_id(std::string_view id);
 
-// One test given as a JSON object (a JSON Lines row, a pipe line, an HTTP body): id (a JSON
-// string, or an integer taken as its decimal text), p_value (a JSON number in [0, 1]; null or
-// absent: summary columns), finished_at (string or number), is_null (true, false, 0 or 1),
-// summary columns (numbers, or strings holding numbers). Other keys are ignored. Summary columns
-// are read only when `summary_direction` is given (the stream's frozen direction, or a replay's);
-// without it a row without p_value is refused. The record's `line` is 0; the caller adds where.
-Result<TestRecord> test_record_from_json(const nlohmann::json& object,
-                                         std::optional<Alternative> summary_direction);
+// One test given as JSON text holding one object (a JSON Lines row, a pipe line, an HTTP body),
+// read by the rules of read_test_log's JSON Lines rows (docs/formats.md): the text is checked as
+// parse_json_object() of src/harness/json_input.hpp does (depth, duplicate keys, numbers a double
+// cannot hold), then id (a JSON string, or an integer taken as its decimal text), p_value (a JSON
+// number in [0, 1]; null or absent: summary columns), finished_at, is_null and summary columns are
+// read. Summary columns are read only when `summary_direction` is given; without it a row without
+// p_value is refused. Errors are kInvalidInput; the record's `line` is 0, the caller adds where.
+Result<TestRecord> test_record_from_json_text(std::string_view text,
+                                              std::optional<Alternative> summary_direction);
 
 // The deepest nesting of arrays and objects accepted in any JSON input (request bodies, pipe lines,
 // JSON Lines rows). Deeper text is refused before it is parsed, so no input can exhaust the stack.
+// (The JSON readers themselves, which hand out nlohmann values, are project-internal:
+// src/harness/json_input.hpp.)
 inline constexpr int kMaxJsonDepth = 32;
 
-// Parses one JSON text that must be an object: the one JSON reader of every input. Errors
-// (kInvalidInput), none of which quotes more than excerpt() of the input: not valid JSON (with the
-// byte offset), NaN or Infinity (not JSON numbers), a number too large for a double or not zero
-// but too small to be held, a key given twice in one object (names the key), nested deeper than
-// kMaxJsonDepth, not an object (names the type found). A UTF-8 byte-order mark at the start is
-// skipped.
-Result<nlohmann::json> parse_json_object(std::string_view text);
 
 // A value as it may appear in a message: at most `max_bytes` of it (then "...(N bytes)"), with
 // control characters and bytes that are not valid UTF-8 written as \xHH. Every message that

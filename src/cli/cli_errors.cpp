@@ -6,6 +6,8 @@
 #include <nlohmann/json.hpp>
 #include <sstream>
 
+#include "harness/json_text.hpp"
+
 namespace alphaledger::cli {
 namespace {
 
@@ -43,11 +45,13 @@ Failure usage_failure(std::string message) { return {2, "usage", std::move(messa
 Failure internal_failure(std::string message) { return {4, "internal", std::move(message)}; }
 
 std::string failure_json(const Failure& f) {
+  // The shape of error_json (alphaledger/forms.hpp), built here because this file is also compiled
+  // into the CLI test without the service layer. json_text: bytes that are not UTF-8 (in a path,
+  // say) never throw.
   nlohmann::ordered_json j;
   j["error"]["code"] = f.code;
   j["error"]["message"] = f.message;
-  // Messages quote paths and input excerpts; bytes that are not UTF-8 must not make dump() throw.
-  return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
+  return json_text(j);
 }
 
 void print_failure(std::ostream& err, const Failure& f, bool json) {

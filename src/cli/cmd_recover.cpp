@@ -6,13 +6,14 @@
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/recover.hpp"
 #include "cli/command.hpp"
+#include "harness/json_text.hpp"
 
 namespace alphaledger::cli {
 namespace {
 
 using Json = nlohmann::ordered_json;
 
-std::string dump(const Json& j) { return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace); }
+std::string dump(const Json& j) { return json_text(j); }
 
 struct RecoverOptions {
   std::string to;

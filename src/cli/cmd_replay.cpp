@@ -8,6 +8,7 @@
 #include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
 #include "harness/format.hpp"
+#include "harness/json_text.hpp"
 
 namespace alphaledger::cli {
 namespace {
@@ -34,11 +35,9 @@ void append_number(std::string& row, std::uint64_t v) {
   row.append(buf, std::to_chars(buf, buf + sizeof buf, v).ptr);
 }
 
-// One output line. An id with bytes that are not UTF-8 is written with U+FFFD instead of making
-// the JSON library throw half-way through the output.
-std::string json_line(const nlohmann::ordered_json& j) {
-  return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace) + '\n';
-}
+// One output line, by the one JSON writer (harness/json_text.hpp: never throws; ids are valid
+// UTF-8 already, the log reader refuses any other).
+std::string json_line(const nlohmann::ordered_json& j) { return json_text(j) + '\n'; }
 
 Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& out) {
   auto names = split_rule_list(o.rules);

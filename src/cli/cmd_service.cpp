@@ -10,11 +10,14 @@
 #include <chrono>
 #include <iostream>
 #include <mutex>
+#include <nlohmann/json.hpp>
 #include <thread>
 
 #include "alphaledger/service.hpp"
 #include "alphaledger/store.hpp"
 #include "cli/command.hpp"
+#include "harness/json_text.hpp"
+#include "service/stop_signals.hpp"
 
 namespace alphaledger::cli {
 namespace {
@@ -45,7 +48,7 @@ class ServiceLog {
     nlohmann::ordered_json line;
     line["time"] = format_timestamp(now_ms());
     for (auto it = j.begin(); it != j.end(); ++it) line[it.key()] = it.value();
-    const std::string text = dump_json(line) + "\n";
+    const std::string text = json_text(line) + "\n";
     std::lock_guard<std::mutex> lock(mutex_);
     std::cerr << text;
     std::cerr.flush();

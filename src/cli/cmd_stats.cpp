@@ -17,6 +17,7 @@
 #include "alphaledger/test_log.hpp"
 #include "cli/command.hpp"
 #include "harness/format.hpp"
+#include "harness/json_text.hpp"
 
 namespace alphaledger::cli {
 namespace {
@@ -181,7 +182,7 @@ Status run_pvalue_proportions(const ProportionsOptions& o, const GlobalOptions& 
     j["treatment_rate"] = p1;
     add_result_json(j, *c, true, /*with_lift=*/true);
     if (!note.empty()) j["note"] = note;
-    out << j.dump() << '\n';
+    out << json_text(j) << '\n';
     return {};
   }
   static constexpr const char* kMethodText[] = {"", "pooled z-test", "unpooled z-test",
@@ -239,7 +240,7 @@ Status run_pvalue_means(const MeansOptions& o, const GlobalOptions& g, std::ostr
     j["treatment_mean"] = treatment->mean;
     j["treatment_sd"] = treatment->sd;
     add_result_json(j, *c, true);
-    out << j.dump() << '\n';
+    out << json_text(j) << '\n';
     return {};
   }
   auto arm_text = [](const MeanArm& a) {
@@ -283,7 +284,7 @@ Status run_pvalue_statistic(const StatisticOptions& o, const GlobalOptions& g, s
     j["test"] = o.z ? "z" : "t";
     j["alternative"] = std::string(alternative_name(*alt));
     add_result_json(j, *c, false);
-    out << j.dump() << '\n';
+    out << json_text(j) << '\n';
     return {};
   }
   TextBlock t;
@@ -399,7 +400,7 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
       j["step"] = from_stream->step;
       j["note"] = note;
     }
-    out << j.dump() << '\n';
+    out << json_text(j) << '\n';
     return {};
   }
   TextBlock t;

@@ -16,6 +16,7 @@
 #include "alphaledger/test_log.hpp"
 #include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
+#include "harness/json_text.hpp"
 
 namespace alphaledger::cli {
 
@@ -66,7 +67,7 @@ class JsonLogSink final : public spdlog::sinks::base_sink<std::mutex> {
     j["level"] = std::string(spdlog::level::to_string_view(msg.level).data(),
                              spdlog::level::to_string_view(msg.level).size());
     j["message"] = std::string(msg.payload.data(), msg.payload.size());
-    std::cerr << j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace) + '\n';  // one write
+    std::cerr << alphaledger::json_text(j) + '\n';  // one write
   }
   void flush_() override { std::cerr.flush(); }
 };

@@ -6,6 +6,7 @@
 #include <nlohmann/json.hpp>
 
 #include "harness/format.hpp"
+#include "harness/json_text.hpp"
 
 namespace alphaledger {
 namespace {
@@ -99,7 +100,7 @@ void write_simulation_json(std::ostream& out, const std::vector<ProcedureSummary
     j["promised_se"] = json_number(r.promised_se);
     j["target"] = r.target;
     j["exceeds_target"] = r.exceeds_target;
-    out << j.dump() << '\n';
+    out << json_text(j) << '\n';
   }
 }
 

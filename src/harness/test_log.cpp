@@ -14,6 +14,8 @@
 
 #include "alphaledger/stats.hpp"
 #include "harness/format.hpp"
+#include "harness/json_input.hpp"
+#include "harness/json_text.hpp"
 
 namespace alphaledger {
 namespace {
@@ -255,7 +257,7 @@ namespace {
 
 // A JSON value as it may appear in a message: its type, and an excerpt of its text.
 std::string describe_json(const nlohmann::json& v) {
-  return excerpt(v.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
+  return excerpt(json_text(v));
 }
 
 }  // namespace
@@ -416,7 +418,7 @@ Result<std::map<std::string, std::string>> json_fields(const nlohmann::json& obj
       if (v.is_string())
         f[key] = v.get<std::string>();
       else if (v.is_number_integer() || v.is_number_unsigned())
-        f[key] = v.dump();
+        f[key] = json_text(v);
       else
         return invalid_input("id must be a JSON string (or an integer), got " + describe_json(v));
     } else if (key == "p_value") {
@@ -707,6 +709,13 @@ Result<TestRecord> test_record_from_json(const nlohmann::json& object,
   auto fields = json_fields(object);
   if (!fields) return fields.error();
   return make_record(*fields, summary_direction);
+}
+
+Result<TestRecord> test_record_from_json_text(std::string_view text,
+                                              std::optional<Alternative> summary_direction) {
+  auto object = parse_json_object(text);
+  if (!object) return object.error();
+  return test_record_from_json(*object, summary_direction);
 }
 
 Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, LogFormat format,

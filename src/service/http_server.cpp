@@ -19,29 +19,10 @@
 #include <thread>
 #include <unordered_map>
 
+#include "service/http_request_parser.hpp"
+
 namespace alphaledger::http {
 namespace {
-
-using Clock = std::chrono::steady_clock;
-
-std::string lower(std::string_view s) {
-  std::string out(s);
-  for (char& c : out)
-    if (c >= 'A' && c <= 'Z') c = static_cast<char>(c - 'A' + 'a');
-  return out;
-}
-
-std::string_view trim(std::string_view s) {
-  while (!s.empty() && (s.front() == ' ' || s.front() == '\t')) s.remove_prefix(1);
-  while (!s.empty() && (s.back() == ' ' || s.back() == '\t' || s.back() == '\r')) s.remove_suffix(1);
-  return s;
-}
-
-bool is_token_char(char c) {
-  const auto u = static_cast<unsigned char>(c);
-  if (u <= 0x20 || u >= 0x7f) return false;
-  return std::strchr("\"(),/:;<=>?@[\\]{}", c) == nullptr;
-}
 
 const char* reason(int status) {
   switch (status) {
@@ -73,60 +54,6 @@ const char* reason(int status) {
       return "Status";
   }
 }
-
-// Digits only, at most 18 of them (so no overflow); nullopt otherwise.
-std::optional<std::size_t> parse_decimal(std::string_view s) {
-  if (s.empty() || s.size() > 18) return std::nullopt;
-  std::size_t v = 0;
-  for (char c : s) {
-    if (c < '0' || c > '9') return std::nullopt;
-    v = v * 10 + static_cast<std::size_t>(c - '0');
-  }
-  return v;
-}
-
-std::optional<std::size_t> parse_hex(std::string_view s) {
-  if (s.empty() || s.size() > 15) return std::nullopt;
-  std::size_t v = 0;
-  for (char c : s) {
-    const int d = hex_digit(c);
-    if (d < 0) return std::nullopt;
-    v = v * 16 + static_cast<std::size_t>(d);
-  }
-  return v;
-}
-
-// A protocol failure found while reading a request.
-struct Refusal {
-  int status;
-  std::string what;
-};
-
-// kDraining: answered and closing; what the client still sends is read and dropped for a moment
-// so that closing does not reset the connection before the client has read the answer.
-enum class State { kIdle, kHead, kBody, kHandling, kWriting, kDraining };
-
-struct Conn {
-  int fd = -1;
-  std::string remote;
-  State state = State::kIdle;
-  std::string in;   // bytes read and not yet consumed
-  std::string out;  // bytes to write
-  std::size_t out_done = 0;
-  bool close_after_write = false;
-  Clock::time_point deadline;
-  Clock::time_point started;  // the current request's first byte
-  std::size_t served = 0;
-  Request req;
-  // Body framing of the current request.
-  bool chunked = false;
-  std::size_t content_length = 0;
-  enum class Chunk { kSize, kData, kDataEnd, kTrailer } chunk = Chunk::kSize;
-  std::size_t chunk_left = 0;
-  std::size_t trailer_bytes = 0;
-  bool keep_alive = true;
-  std::size_t drained = 0;
-};
 
 }  // namespace
 
@@ -219,179 +146,12 @@ struct Server::Impl {
   // ---- reading a request -----------------------------------------------------------------
 
   // Parses the head once it is complete. Returns false while more bytes are needed.
-  std::optional<Refusal> parse_head(Conn& c, bool& complete) {
-    complete = false;
-    // Find the empty line that ends the head (CRLF or bare LF line ends).
-    std::size_t end = std::string::npos, body_start = 0;
-    for (std::size_t pos = 0; pos < c.in.size();) {
-      const std::size_t nl = c.in.find('\n', pos);
-      if (nl == std::string::npos) break;
-      const std::size_t len = nl - pos;
-      if (len == 0 || (len == 1 && c.in[pos] == '\r')) {
-        end = pos;
-        body_start = nl + 1;
-        break;
-      }
-      pos = nl + 1;
-    }
-    if (end == std::string::npos) {
-      if (c.in.size() > options.max_header_bytes)
-        return Refusal{431, "the request line and headers are larger than " +
-                                std::to_string(options.max_header_bytes) + " bytes"};
-      return std::nullopt;
-    }
-    if (end > options.max_header_bytes)
-      return Refusal{431, "the request line and headers are larger than " +
-                              std::to_string(options.max_header_bytes) + " bytes"};
-    complete = true;
-    const std::string head = c.in.substr(0, end);
-    c.in.erase(0, body_start);
-
-    std::vector<std::string_view> lines;
-    std::string_view rest(head);
-    while (!rest.empty()) {
-      const std::size_t nl = rest.find('\n');
-      std::string_view line = rest.substr(0, nl);
-      if (!line.empty() && line.back() == '\r') line.remove_suffix(1);
-      lines.push_back(line);
-      if (nl == std::string_view::npos) break;
-      rest.remove_prefix(nl + 1);
-    }
-    const Refusal malformed{400, "malformed HTTP request"};
-    if (lines.empty()) return malformed;
-    // Request line: METHOD SP TARGET SP HTTP/1.x
-    const std::string_view rl = lines[0];
-    const std::size_t s1 = rl.find(' ');
-    const std::size_t s2 = s1 == std::string_view::npos ? s1 : rl.find(' ', s1 + 1);
-    if (s1 == std::string_view::npos || s2 == std::string_view::npos) return malformed;
-    const std::string_view method = rl.substr(0, s1), target = rl.substr(s1 + 1, s2 - s1 - 1),
-                           version = rl.substr(s2 + 1);
-    if (method.empty() || !std::all_of(method.begin(), method.end(), is_token_char)) return malformed;
-    if (target.empty() || target[0] != '/') return malformed;
-    for (char ch : target)
-      if (static_cast<unsigned char>(ch) <= 0x20 || static_cast<unsigned char>(ch) >= 0x7f) return malformed;
-    if (version == "HTTP/1.1") {
-      c.req.minor_version = 1;
-    } else if (version == "HTTP/1.0") {
-      c.req.minor_version = 0;
-    } else {
-      return Refusal{400, "malformed HTTP request (only HTTP/1.0 and HTTP/1.1 are served)"};
-    }
-    c.req.method = std::string(method);
-    c.req.target = std::string(target);
-    const std::size_t q = target.find('?');
-    c.req.path = std::string(target.substr(0, q));
-    c.req.query = q == std::string_view::npos ? std::string() : std::string(target.substr(q + 1));
-    if (lines.size() - 1 > options.max_headers)
-      return Refusal{431, "more than " + std::to_string(options.max_headers) + " header lines"};
-    for (std::size_t k = 1; k < lines.size(); ++k) {
-      const std::string_view line = lines[k];
-      const std::size_t colon = line.find(':');
-      if (colon == std::string_view::npos || colon == 0) return malformed;
-      const std::string_view name = line.substr(0, colon);
-      if (!std::all_of(name.begin(), name.end(), is_token_char)) return malformed;
-      c.req.headers.emplace_back(lower(name), std::string(trim(line.substr(colon + 1))));
-    }
-    return std::nullopt;
-  }
-
-  // Decides how the body is framed, after the head. Refusal on contradictory or bad framing.
-  std::optional<Refusal> framing(Conn& c) {
-    const Request& r = c.req;
-    const std::string* connection = r.header("connection");
-    const std::string conn_value = connection ? lower(*connection) : std::string();
-    c.keep_alive = r.minor_version == 1 ? conn_value.find("close") == std::string::npos
-                                        : conn_value.find("keep-alive") != std::string::npos;
-    std::optional<std::size_t> length;
-    bool te = false;
-    for (const auto& [k, v] : r.headers) {
-      if (k == "content-length") {
-        auto n = parse_decimal(v);
-        if (!n) return Refusal{400, "Content-Length must be a decimal number of bytes"};
-        if (length && *length != *n) return Refusal{400, "two different Content-Length headers"};
-        length = n;
-      } else if (k == "transfer-encoding") {
-        if (te || lower(v) != "chunked")
-          return Refusal{400, "the only Transfer-Encoding accepted is 'chunked'"};
-        te = true;
-      }
-    }
-    if (te && length) return Refusal{400, "Content-Length and Transfer-Encoding together"};
-    c.chunked = te;
-    c.content_length = length.value_or(0);
-    c.chunk = Conn::Chunk::kSize;
-    c.chunk_left = 0;
-    c.trailer_bytes = 0;
-    return std::nullopt;
-  }
-
-  Refusal too_large() const {
-    return Refusal{413,
-                   "the request body is larger than " + std::to_string(options.max_body_bytes) + " bytes"};
-  }
-
-  // Consumes body bytes from c.in. Sets complete when the whole body is in c.req.body.
-  std::optional<Refusal> read_body(Conn& c, bool& complete) {
-    complete = false;
-    if (!c.chunked) {
-      if (c.in.size() < c.content_length) return std::nullopt;
-      c.req.body = c.in.substr(0, c.content_length);
-      c.in.erase(0, c.content_length);
-      complete = true;
-      return std::nullopt;
-    }
-    std::size_t pos = 0;
-    const Refusal bad{400, "malformed chunked body"};
-    while (true) {
-      if (c.chunk == Conn::Chunk::kData) {
-        const std::size_t take = std::min(c.chunk_left, c.in.size() - pos);
-        c.req.body.append(c.in, pos, take);
-        pos += take;
-        c.chunk_left -= take;
-        if (c.chunk_left > 0) break;
-        c.chunk = Conn::Chunk::kDataEnd;
-        continue;
-      }
-      const std::size_t nl = c.in.find('\n', pos);
-      if (nl == std::string::npos) {
-        if (c.in.size() - pos > 1024) return bad;  // a size or trailer line this long is not sane
-        break;
-      }
-      std::string_view line(c.in.data() + pos, nl - pos);
-      if (!line.empty() && line.back() == '\r') line.remove_suffix(1);
-      pos = nl + 1;
-      if (c.chunk == Conn::Chunk::kDataEnd) {
-        if (!line.empty()) return bad;
-        c.chunk = Conn::Chunk::kSize;
-      } else if (c.chunk == Conn::Chunk::kSize) {
-        const std::string_view size = trim(line.substr(0, line.find(';')));
-        auto n = parse_hex(size);
-        if (!n) return bad;
-        if (*n == 0) {
-          c.chunk = Conn::Chunk::kTrailer;
-        } else {
-          if (*n > options.max_body_bytes || c.req.body.size() + *n > options.max_body_bytes)
-            return too_large();
-          c.chunk_left = *n;
-          c.chunk = Conn::Chunk::kData;
-        }
-      } else {  // trailer lines until an empty one
-        c.trailer_bytes += line.size();
-        if (c.trailer_bytes > options.max_header_bytes)
-          return Refusal{431, "the chunked trailer is larger than " +
-                                  std::to_string(options.max_header_bytes) + " bytes"};
-        if (line.empty()) {
-          c.in.erase(0, pos);
-          complete = true;
-          return std::nullopt;
-        }
-      }
-    }
-    c.in.erase(0, pos);
-    return std::nullopt;
-  }
-
-  // Moves the connection forward with the bytes in c.in: head, body, then hands the request on.
+  // Request parsing (http_request_parser.cpp).
+  RequestParser parser{options};
+  std::optional<Refusal> parse_head(Conn& c, bool& complete) { return parser.parse_head(c, complete); }
+  std::optional<Refusal> framing(Conn& c) { return parser.framing(c); }
+  Refusal too_large() const { return parser.too_large(); }
+  std::optional<Refusal> read_body(Conn& c, bool& complete) { return parser.read_body(c, complete); }
   void advance(std::uint64_t id, Conn& c) {
     while (true) {
       if (c.state == State::kIdle) {
@@ -568,6 +328,76 @@ struct Server::Impl {
     }
   }
 
+  // One connection's poll events: reads (or drains) what arrived and moves the request on, or
+  // writes what is pending. False: close the connection.
+  bool on_events(std::uint64_t id, Conn& c, short revents) {
+    bool keep = true;
+    if ((revents & (POLLIN | POLLHUP | POLLERR)) != 0 &&
+        (c.state == State::kIdle || c.state == State::kHead || c.state == State::kBody)) {
+      bool eof = false;
+      char buf[16384];
+      while (true) {
+        const ssize_t n = ::recv(c.fd, buf, sizeof buf, 0);
+        if (n > 0) {
+          c.in.append(buf, static_cast<std::size_t>(n));
+          if (c.in.size() > options.max_header_bytes + options.max_body_bytes + 65536) break;
+          continue;
+        }
+        if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) break;
+        if (n < 0 && errno == EINTR) continue;
+        eof = true;  // closed by the peer (or an error)
+        break;
+      }
+      keep = pump(id, c);
+      if (keep && eof) {
+        // A request read in full is still answered (the peer may only have shut down its
+        // sending side); an unfinished one is dropped.
+        if (c.state == State::kHandling || c.state == State::kWriting) {
+          c.keep_alive = false;
+          c.close_after_write = true;
+        } else {
+          keep = false;
+        }
+      }
+    } else if (c.state == State::kDraining && (revents & (POLLIN | POLLHUP | POLLERR)) != 0) {
+      char buf[16384];
+      while (keep) {
+        const ssize_t n = ::recv(c.fd, buf, sizeof buf, 0);
+        if (n > 0) {
+          c.drained += static_cast<std::size_t>(n);
+          if (c.drained > (std::size_t{4} << 20)) keep = false;  // enough politeness
+          continue;
+        }
+        if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) break;
+        if (n < 0 && errno == EINTR) continue;
+        keep = false;
+      }
+    } else if ((revents & POLLERR) != 0) {
+      keep = false;
+    } else if ((revents & POLLOUT) != 0) {
+      keep = pump(id, c);
+    }
+    return keep;
+  }
+
+  // Requests past their deadline get 408; idle connections past keep-alive are closed.
+  void expire_deadlines() {
+    const auto now = Clock::now();
+    std::vector<std::uint64_t> expired;
+    for (auto& [id, c] : conns) {
+      if (c.state == State::kHandling || now < c.deadline) continue;
+      if (c.state == State::kHead || c.state == State::kBody) {
+        refuse(c, Refusal{408, "the request was not complete within " +
+                                   std::to_string(options.request_timeout.count() / 1000) + " s"});
+        if (!flush(c)) expired.push_back(id);
+        if (c.state == State::kWriting) c.deadline = now + std::chrono::seconds(1);  // a last second
+      } else {
+        expired.push_back(id);  // idle past keep-alive, or not reading its answer
+      }
+    }
+    for (auto id : expired) close_conn(id);
+  }
+
   void loop() {
     bool accept_paused = false;
     Clock::time_point accept_paused_until;
@@ -626,70 +456,10 @@ struct Server::Impl {
           auto it = conns.find(ids[k]);
           if (it == conns.end()) continue;
           Conn& c = it->second;
-          bool keep = true;
-          if ((fds[k].revents & (POLLIN | POLLHUP | POLLERR)) != 0 &&
-              (c.state == State::kIdle || c.state == State::kHead || c.state == State::kBody)) {
-            bool eof = false;
-            char buf[16384];
-            while (true) {
-              const ssize_t n = ::recv(c.fd, buf, sizeof buf, 0);
-              if (n > 0) {
-                c.in.append(buf, static_cast<std::size_t>(n));
-                if (c.in.size() > options.max_header_bytes + options.max_body_bytes + 65536) break;
-                continue;
-              }
-              if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) break;
-              if (n < 0 && errno == EINTR) continue;
-              eof = true;  // closed by the peer (or an error)
-              break;
-            }
-            keep = pump(ids[k], c);
-            if (keep && eof) {
-              // A request read in full is still answered (the peer may only have shut down its
-              // sending side); an unfinished one is dropped.
-              if (c.state == State::kHandling || c.state == State::kWriting) {
-                c.keep_alive = false;
-                c.close_after_write = true;
-              } else {
-                keep = false;
-              }
-            }
-          } else if (c.state == State::kDraining && (fds[k].revents & (POLLIN | POLLHUP | POLLERR)) != 0) {
-            char buf[16384];
-            while (keep) {
-              const ssize_t n = ::recv(c.fd, buf, sizeof buf, 0);
-              if (n > 0) {
-                c.drained += static_cast<std::size_t>(n);
-                if (c.drained > (std::size_t{4} << 20)) keep = false;  // enough politeness
-                continue;
-              }
-              if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) break;
-              if (n < 0 && errno == EINTR) continue;
-              keep = false;
-            }
-          } else if ((fds[k].revents & POLLERR) != 0) {
-            keep = false;
-          } else if ((fds[k].revents & POLLOUT) != 0) {
-            keep = pump(ids[k], c);
-          }
-          if (!keep) close_conn(ids[k]);
+          if (!on_events(ids[k], c, fds[k].revents)) close_conn(ids[k]);
         }
       }
-      // Deadlines.
-      const auto now = Clock::now();
-      std::vector<std::uint64_t> expired;
-      for (auto& [id, c] : conns) {
-        if (c.state == State::kHandling || now < c.deadline) continue;
-        if (c.state == State::kHead || c.state == State::kBody) {
-          refuse(c, Refusal{408, "the request was not complete within " +
-                                     std::to_string(options.request_timeout.count() / 1000) + " s"});
-          if (!flush(c)) expired.push_back(id);
-          if (c.state == State::kWriting) c.deadline = now + std::chrono::seconds(1);  // a last second
-        } else {
-          expired.push_back(id);  // idle past keep-alive, or not reading its answer
-        }
-      }
-      for (auto id : expired) close_conn(id);
+      expire_deadlines();
     }
   }
 };

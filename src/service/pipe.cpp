@@ -5,8 +5,11 @@
 #include <cerrno>
 #include <cstring>
 
+#include "alphaledger/forms.hpp"
 #include "alphaledger/service.hpp"
 #include "alphaledger/test_log.hpp"
+#include "harness/json_input.hpp"
+#include "service/json_input.hpp"
 
 namespace alphaledger {
 namespace {
@@ -54,13 +57,6 @@ LineWork too_long(std::uint64_t line_no) {
   return w;
 }
 
-std::string error_line(std::uint64_t line, const std::string& message) {
-  nlohmann::ordered_json j;
-  j["line"] = line;
-  j["error"] = message;
-  return dump_json(j);
-}
-
 class PipeRun {
  public:
   PipeRun(Ledger& ledger, std::string_view stream, std::ostream& out)
@@ -79,7 +75,7 @@ class PipeRun {
       std::string text;
       std::optional<Error> fatal;
       if (!work[k].input) {
-        text = error_line(work[k].line, work[k].error);
+        text = line_error_json(work[k].line, work[k].error);
         ++summary_.bad;
       } else {
         auto& r = results[next_input++];
@@ -91,7 +87,7 @@ class PipeRun {
           else
             ++summary_.decided;
         } else {
-          text = error_line(work[k].line, r->error().message);
+          text = line_error_json(work[k].line, r->error().message);
           ++summary_.bad;
           if (r->error().kind == ErrorKind::kStorage) fatal = r->error();
         }

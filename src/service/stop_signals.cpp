@@ -1,5 +1,7 @@
 // SIGTERM / SIGINT as a readable file descriptor: the signals are blocked (so no handler ever runs
 // on some arbitrary thread) and read from a signalfd by whoever polls it.
+#include "service/stop_signals.hpp"
+
 #include <fcntl.h>
 #include <signal.h>
 #include <sys/signalfd.h>
@@ -8,8 +10,6 @@
 #include <atomic>
 #include <cerrno>
 #include <cstring>
-
-#include "alphaledger/service.hpp"
 
 namespace alphaledger {
 namespace {

@@ -18,7 +18,6 @@
 #include <cstdio>
 #include <map>
 #include <mutex>
-#include <nlohmann/json.hpp>
 #include <unordered_map>
 
 #include "alphaledger/test_log.hpp"
@@ -61,21 +60,6 @@ std::string describe_config(const RuleConfig& c) {
   if (rule_takes(c.kind, "spending")) out += " spending=" + c.spending;
   if (rule_takes(c.kind, "evaluation")) out += " evaluation=" + std::string(evaluation_name(c.evaluation));
   return out;
-}
-
-std::string decision_json(const DecideResult& d, std::string_view rule) {
-  nlohmann::ordered_json j;
-  if (!rule.empty()) j["rule"] = std::string(rule);
-  j.update(nlohmann::ordered_json{{"step", d.record.step},
-                                  {"id", d.record.id},
-                                  {"p_value", d.record.p_value},
-                                  {"level", d.record.level},
-                                  {"rejected", d.record.rejected ? 1 : 0},
-                                  {"wealth", d.record.wealth},
-                                  {"stream", d.stream},
-                                  {"decided_at", format_timestamp(d.record.decided_at_ms)},
-                                  {"repeat", d.repeat}});
-  return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
 }
 
 Error store::unknown_stream(std::string_view name, const std::string& where) {

@@ -169,3 +169,21 @@ TEST_CASE("Replay: a long log in time order and the same log shuffled give the s
   REQUIRE(sa.exit_code == 0);
   CHECK(sa.out == sb.out);
 }
+
+// An id with a byte that is not UTF-8 (0xFF never occurs in UTF-8, RFC 3629 section 1): refused
+// on input, exit 2 with the file, line and a \xHH excerpt, never a JSON library error (exit 4)
+// half-way through the output. With --json the failure is itself one valid JSON object.
+TEST_CASE("Replay: --json on an id that is not UTF-8 is a clear input error") {
+  const std::string log = write_temp("bad-utf8.csv", "id,p_value\nok-1,0.01\nab\xff,0.02\n");
+  const auto r = run_alphaledger({"--json", "replay", log});
+  CHECK(r.exit_code == 2);
+  CHECK(r.out.empty());
+  CHECK(r.err.find("bad-utf8.csv:3: id must be valid UTF-8 text") != std::string::npos);
+  CHECK(r.err.find("ab\\\\xff") != std::string::npos);  // the \xHH excerpt, escaped once more for JSON
+  CHECK(r.err.find("type_error") == std::string::npos);
+  CHECK(r.err.rfind("{\"error\":{\"code\":\"invalid_input\"", 0) == 0);
+  const std::string jsonl = write_temp("bad-utf8.jsonl", "{\"id\": \"ab\xff\", \"p_value\": 0.02}\n");
+  const auto j = run_alphaledger({"--json", "replay", jsonl});
+  CHECK(j.exit_code == 2);
+  CHECK(j.err.find("bad-utf8.jsonl:1: not valid JSON") != std::string::npos);
+}

@@ -6,6 +6,7 @@
 #include <sstream>
 
 #include "alphaledger/test_log.hpp"
+#include "harness/json_input.hpp"
 
 using namespace alphaledger;
 

@@ -1,5 +1,7 @@
 // `alphaledger serve`: the real binary on a free loopback port, driven by httplib clients.
 #include <doctest/doctest.h>
+
+#include <nlohmann/json.hpp>
 #include <httplib.h>
 #include <netinet/in.h>
 #include <sys/socket.h>

@@ -4,6 +4,8 @@
 // clients. Status codes and error codes are this service's own (docs/http.md), so the expected
 // values here are "common practice, no source" for HTTP and the contract of docs/http.md.
 #include <doctest/doctest.h>
+
+#include <nlohmann/json.hpp>
 #include <netinet/in.h>
 #include <netinet/tcp.h>
 #include <poll.h>

@@ -1,6 +1,8 @@
 // HttpService in process over the in-memory store: concurrent clients, then stop() from another
 // thread (run under ThreadSanitizer this also checks the locking of the queue and the routes).
 #include <doctest/doctest.h>
+
+#include <nlohmann/json.hpp>
 #include <httplib.h>
 
 #include <thread>

@@ -2,12 +2,15 @@
 // and skipped, SIGTERM finishing what was read. Most checks drive the real binary.
 #include <doctest/doctest.h>
 
+#include <nlohmann/json.hpp>
+
 #include <cmath>
 #include <map>
 #include <random>
 
 #include "alphaledger/service.hpp"
 #include "alphaledger/store.hpp"
+#include "service/json_input.hpp"
 #include "service_test_support.hpp"
 
 namespace alphaledger {

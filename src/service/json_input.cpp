@@ -1,64 +1,14 @@
-// The JSON objects shared by `decide --json`, `pipe` and the HTTP routes (docs/http.md).
+// Requests given as JSON: a test to decide and a stream to create (src/service/json_input.hpp).
+#include "service/json_input.hpp"
+
 #include <algorithm>
-#include <cmath>
 #include <iterator>
 
-#include "alphaledger/service.hpp"
 #include "alphaledger/stats.hpp"
-#include "alphaledger/test_log.hpp"
+#include "harness/json_input.hpp"
+#include "harness/json_text.hpp"
 
 namespace alphaledger {
-namespace {
-
-using Json = nlohmann::ordered_json;
-
-// Numbers: nlohmann prints doubles so that they read back to the identical double (as replay's
-// JSON output does). A non-finite value, which no valid state holds, is null.
-Json number(double v) { return std::isfinite(v) ? Json(v) : Json(nullptr); }
-
-}  // namespace
-
-nlohmann::ordered_json history_row_to_json(const DecisionRecord& r, std::string_view rule) {
-  Json j;
-  j["rule"] = std::string(rule);
-  j["step"] = r.step;
-  j["id"] = r.id;
-  j["p_value"] = number(r.p_value);
-  j["level"] = number(r.level);
-  j["rejected"] = r.rejected ? 1 : 0;
-  j["wealth"] = number(r.wealth);
-  j["decided_at"] = format_timestamp(r.decided_at_ms);
-  return j;
-}
-
-nlohmann::ordered_json stream_to_json(const StreamInfo& s) {
-  const RuleConfig& c = s.config;
-  Json j;
-  j["stream"] = s.name;
-  j["rule"] = std::string(rule_name(c.kind));
-  j["alpha"] = number(c.alpha);
-  if (rule_takes(c.kind, "initial_wealth")) j["initial_wealth"] = number(c.initial_wealth);
-  if (rule_takes(c.kind, "candidate_threshold")) j["candidate_threshold"] = number(c.candidate_threshold);
-  if (rule_takes(c.kind, "discard_threshold")) j["discard_threshold"] = number(c.discard_threshold);
-  if (rule_takes(c.kind, "payout")) j["payout"] = number(c.payout);
-  if (rule_takes(c.kind, "spending")) j["spending"] = c.spending;
-  if (rule_takes(c.kind, "evaluation")) j["evaluation"] = std::string(evaluation_name(c.evaluation));
-  // As `status --json`: the direction of summary rows, shown only when it is not two-sided.
-  if (s.alternative != Alternative::kTwoSided)
-    j["alternative"] = std::string(alternative_name(s.alternative));
-  j["created_at"] = format_timestamp(s.created_at_ms);
-  j["tests"] = s.tests;
-  j["rejections"] = s.rejections;
-  j["wealth"] = number(s.wealth);
-  j["next_level"] = number(s.next_level);
-  // As `status --json`: shown only for a closed stream, after next_level.
-  if (s.closed_at_ms) j["closed_at"] = format_timestamp(*s.closed_at_ms);
-  return j;
-}
-
-std::string dump_json(const nlohmann::ordered_json& j) {
-  return j.dump(-1, ' ', false, nlohmann::ordered_json::error_handler_t::replace);
-}
 
 Result<TestInput> test_from_json(const nlohmann::json& object) {
   auto r = test_record_from_json(object, std::nullopt);
@@ -89,8 +39,7 @@ Result<StreamRequest> stream_request_from_json(const nlohmann::json& j) {
                            "alternative");
     }
     if (it.value().is_null()) continue;
-    const std::string shown =
-        excerpt(it.value().dump(-1, ' ', false, nlohmann::json::error_handler_t::replace));
+    const std::string shown = excerpt(json_text(it.value()));
     if (numeric && !it.value().is_number())
       return invalid_input(key + " must be a JSON number, got " + shown);
     if (text && !it.value().is_string()) return invalid_input(key + " must be a JSON string, got " + shown);
@@ -128,6 +77,18 @@ Result<StreamRequest> stream_request_from_json(const nlohmann::json& j) {
     r.alternative = *parsed;
   }
   return r;
+}
+
+Result<TestInput> test_from_json_text(std::string_view text) {
+  auto object = parse_json_object(text);
+  if (!object) return object.error();
+  return test_from_json(*object);
+}
+
+Result<StreamRequest> stream_request_from_json_text(std::string_view text) {
+  auto object = parse_json_object(text);
+  if (!object) return object.error();
+  return stream_request_from_json(*object);
 }
 
 }  // namespace alphaledger

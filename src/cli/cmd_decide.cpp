@@ -1,0 +1,179 @@
+// alphaledger decide STREAM --id ID --p P | --file F [--format csv|jsonl] [--sync-every N]
+#include <spdlog/spdlog.h>
+#include <unistd.h>
+
+#include <cstdio>
+#include <iostream>
+
+#include "alphaledger/forms.hpp"
+#include "alphaledger/test_log.hpp"
+#include "cli/cli_errors.hpp"
+#include "cli/ledger_common.hpp"
+#include "harness/format.hpp"
+
+namespace alphaledger::cli {
+namespace {
+
+struct DecideOptions {
+  std::string stream;
+  std::optional<std::string> id;
+  std::optional<std::string> p;
+  std::optional<std::string> file;
+  std::optional<std::string> format;
+  std::size_t sync_every = 256;
+};
+
+std::string decision_text(const DecideResult& d) {
+  const auto& r = d.record;
+  std::string line = "step " + std::to_string(r.step) + "  " + r.id + "  ";
+  if (r.rejected) {
+    line += "REJECTED  p_value " + format_rounded(r.p_value, 6) + " <= level " + format_rounded(r.level, 6);
+  } else {
+    line +=
+        "not rejected  p_value " + format_rounded(r.p_value, 6) + " > level " + format_rounded(r.level, 6);
+  }
+  line += "  wealth " + format_rounded(r.wealth, 6);
+  if (d.repeat)
+    line += "  (repeat: decided before at " + format_timestamp(r.decided_at_ms) + "; nothing changed)";
+  return line;
+}
+
+Status run_decide_one(const DecideOptions& o, const GlobalOptions& g, std::ostream& out) {
+  auto p = parse_p_value_text(*o.p);
+  if (!p) return invalid_input("--p: " + p.error().message);
+  if (auto s = validate_test_id(*o.id); !s) return invalid_input("--id: " + s.error().message);
+  auto ledger = open_ledger(g, /*create=*/false);
+  if (!ledger) return ledger.error();
+  auto d = (*ledger)->decide(o.stream, *o.id, *p);
+  if (!d) return d.error();
+  // decide() returned: the decision is synced. Only now is it printed.
+  out << (g.json ? decision_json(*d) : decision_text(*d)) << '\n';
+  out.flush();
+  return {};
+}
+
+// The tests of a --file log, in decision order; the log keeps the line numbers for messages.
+struct BatchInput {
+  CompactLog log;
+  std::vector<TestInput> inputs;
+};
+
+Result<BatchInput> read_batch(const DecideOptions& o, const StreamInfo& info) {
+  std::optional<std::string_view> forced;
+  if (o.format) forced = *o.format;
+  ReadOptions read_options;
+  read_options.allow_duplicate_ids = true;      // a repeated id is a retry: the ledger judges it
+  read_options.alternative = info.alternative;  // summary rows in the stream's direction
+  auto log = read_log_argument(*o.file, forced, read_options);
+  if (!log) return log.error();
+  BatchInput b{std::move(*log), {}};
+  b.inputs.reserve(b.log.size());
+  for (const auto& r : b.log.records) b.inputs.push_back({std::string(b.log.id(r)), r.p_value});
+  b.log.ids = {};  // the inputs hold the ids now; the records keep the line numbers for messages
+  return b;
+}
+
+// Prints each group of decisions once its write is synced, and counts them.
+class BatchPrinter {
+ public:
+  BatchPrinter(std::ostream& out, bool json, std::string rule, std::size_t total)
+      : out_(out),
+        json_(json),
+        rule_(std::move(rule)),
+        total_(total),
+        progress_(::isatty(STDERR_FILENO) != 0) {}
+
+  void header() {
+    if (!json_) out_ << kDecisionCsvHeader << '\n';
+    out_.flush();
+  }
+  void print(const std::vector<DecideResult>& group) {
+    for (const auto& d : group) {
+      out_ << (json_ ? decision_json(d, rule_) : decision_csv(d.record, rule_)) << '\n';
+      if (d.repeat) ++repeats_;
+    }
+    out_.flush();
+    done_ += group.size();
+    if (progress_) std::fprintf(stderr, "\r%zu / %zu tests", done_, total_);
+  }
+  void finish() const {
+    if (progress_) std::fprintf(stderr, "\n");
+  }
+  std::size_t done() const { return done_; }
+  std::size_t repeats() const { return repeats_; }
+
+ private:
+  std::ostream& out_;
+  bool json_;
+  std::string rule_;
+  std::size_t total_;
+  bool progress_;
+  std::size_t done_ = 0, repeats_ = 0;
+};
+
+// The error that stopped a batch, with where in the log it happened.
+Error batch_error(const Ledger::BatchResult& batch, const CompactLog& log) {
+  const CompactRecord& at = log.records[batch.stopped_at];
+  Error e = *batch.error;
+  e.message = log.source + ":" + std::to_string(at.line) + ": " + e.message;
+  if (e.kind == ErrorKind::kStorage && !batch.decided.empty()) {
+    e.message += " (the rows printed above are decided and durable; run the same command again to resume)";
+  }
+  return e;
+}
+
+Status run_decide_file(const DecideOptions& o, const GlobalOptions& g, std::ostream& out) {
+  if (o.sync_every == 0) return invalid_input("--sync-every must be at least 1, got 0");
+  auto ledger = open_ledger(g, /*create=*/false);
+  if (!ledger) return ledger.error();
+  auto info = (*ledger)->status(o.stream);
+  if (!info) return info.error();
+  auto batch_input = read_batch(o, *info);
+  if (!batch_input) return batch_input.error();
+  const auto& [log, inputs] = *batch_input;
+
+  BatchPrinter printer(out, g.json, std::string(rule_name(info->config.kind)), inputs.size());
+  printer.header();
+  auto batch = (*ledger)->decide_batch_streamed(o.stream, inputs, o.sync_every,
+                                                [&](const std::vector<DecideResult>& group) {
+                                                  printer.print(group);  // after the group's sync
+                                                });
+  printer.finish();
+  if (!batch) return batch.error();
+  if (batch->error) return batch_error(*batch, log);
+  spdlog::info("decided {} tests from {}: {} new, {} already in the ledger", printer.done(), log.source,
+               printer.done() - printer.repeats(), printer.repeats());
+  return {};
+}
+
+Status run_decide(const DecideOptions& o, const GlobalOptions& g, std::ostream& out) {
+  const bool one = o.id.has_value() || o.p.has_value();
+  if (o.file && one) return invalid_input("give either --id ID --p P, or --file F, not both");
+  if (o.file) return run_decide_file(o, g, out);
+  if (!o.id || !o.p) {
+    return invalid_input("decide needs --id ID and --p P (one test), or --file F (a log of tests)");
+  }
+  if (o.format) return invalid_input("--format applies only with --file");
+  return run_decide_one(o, g, out);
+}
+
+}  // namespace
+
+void add_decide_command(CLI::App& app, CommandContext& ctx) {
+  auto o = std::make_shared<DecideOptions>();
+  CLI::App* sub = app.add_subcommand("decide",
+                                     "decide one test (--id, --p) or a log of tests (--file); each answer "
+                                     "is durable before it is printed");
+  sub->add_option("stream", o->stream, "stream name")->required();
+  sub->add_option("--id", o->id, "test id: 1 to 256 bytes, no control characters; decided once");
+  sub->add_option("--p", o->p, "the test's p-value, in [0, 1]");
+  sub->add_option("--file", o->file,
+                  "log of tests (replay format: CSV with a header, or JSON Lines); - reads standard input");
+  sub->add_option("--format", o->format, "csv or jsonl; default from the file extension")
+      ->check(CLI::IsMember({"csv", "jsonl"}));
+  sub->add_option("--sync-every", o->sync_every,
+                  "with --file: decisions per synced write (group commit); default 256");
+  sub->callback([&ctx, o] { ctx.run = [&ctx, o] { return run_decide(*o, ctx.global, std::cout); }; });
+}
+
+}  // namespace alphaledger::cli

@@ -1,0 +1,217 @@
+// Every JSON and CSV form of the ledger's answers (alphaledger/forms.hpp; docs/formats.md).
+#include "alphaledger/forms.hpp"
+
+#include <charconv>
+#include <cmath>
+#include <nlohmann/json.hpp>
+
+#include "alphaledger/stats.hpp"
+#include "harness/format.hpp"
+#include "harness/json_text.hpp"
+
+namespace alphaledger {
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+// The one rule for numbers: finite values as they are (json_text writes the shortest round-trip
+// form), anything else null.
+Json number(double v) { return std::isfinite(v) ? Json(v) : Json(nullptr); }
+
+// The same rule in CSV: shortest round-trip text, or an empty cell.
+void append_csv_number(std::string& row, double v) {
+  if (!std::isfinite(v)) return;
+  char buf[64];
+  row.append(buf, std::to_chars(buf, buf + sizeof buf, v).ptr);
+}
+
+Json stream_object(const StreamInfo& s) {
+  const RuleConfig& c = s.config;
+  Json j;
+  j["stream"] = s.name;
+  j["rule"] = std::string(rule_name(c.kind));
+  j["alpha"] = number(c.alpha);
+  if (rule_takes(c.kind, "initial_wealth")) j["initial_wealth"] = number(c.initial_wealth);
+  if (rule_takes(c.kind, "candidate_threshold")) j["candidate_threshold"] = number(c.candidate_threshold);
+  if (rule_takes(c.kind, "discard_threshold")) j["discard_threshold"] = number(c.discard_threshold);
+  if (rule_takes(c.kind, "payout")) j["payout"] = number(c.payout);
+  if (rule_takes(c.kind, "spending")) j["spending"] = c.spending;
+  if (rule_takes(c.kind, "evaluation")) j["evaluation"] = std::string(evaluation_name(c.evaluation));
+  // Like the rule parameters, shown only when it applies: a direction other than two-sided.
+  if (s.alternative != Alternative::kTwoSided)
+    j["alternative"] = std::string(alternative_name(s.alternative));
+  j["created_at"] = format_timestamp(s.created_at_ms);
+  j["tests"] = s.tests;
+  j["rejections"] = s.rejections;
+  j["wealth"] = number(s.wealth);
+  j["next_level"] = number(s.next_level);
+  // Shown only for a closed stream, after next_level.
+  if (s.closed_at_ms) j["closed_at"] = format_timestamp(*s.closed_at_ms);
+  return j;
+}
+
+Json history_row_object(const DecisionRecord& r, std::string_view rule) {
+  Json j;
+  j["rule"] = std::string(rule);
+  j["step"] = r.step;
+  j["id"] = r.id;
+  j["p_value"] = number(r.p_value);
+  j["level"] = number(r.level);
+  j["rejected"] = r.rejected ? 1 : 0;
+  j["wealth"] = number(r.wealth);
+  j["decided_at"] = format_timestamp(r.decided_at_ms);
+  return j;
+}
+
+// rule,step,id,p_value,level,rejected,wealth: the columns a decision row and a history row share.
+std::string csv_row(const DecisionRecord& r, std::string_view rule) {
+  std::string row(rule);
+  row += ',';
+  row += std::to_string(r.step);
+  row += ',';
+  row += csv_field(r.id);
+  row += ',';
+  append_csv_number(row, r.p_value);
+  row += ',';
+  append_csv_number(row, r.level);
+  row += r.rejected ? ",1," : ",0,";
+  append_csv_number(row, r.wealth);
+  return row;
+}
+
+}  // namespace
+
+std::string decision_json(const DecideResult& d, std::string_view rule) {
+  Json j;
+  if (!rule.empty()) j["rule"] = std::string(rule);
+  j["step"] = d.record.step;
+  j["id"] = d.record.id;
+  j["p_value"] = number(d.record.p_value);
+  j["level"] = number(d.record.level);
+  j["rejected"] = d.record.rejected ? 1 : 0;
+  j["wealth"] = number(d.record.wealth);
+  j["stream"] = d.stream;
+  j["decided_at"] = format_timestamp(d.record.decided_at_ms);
+  j["repeat"] = d.repeat;
+  return json_text(j);
+}
+
+std::string decision_csv(const DecisionRecord& r, std::string_view rule) { return csv_row(r, rule); }
+
+std::string stream_json(const StreamInfo& s) { return json_text(stream_object(s)); }
+
+std::string stream_created_json(const StreamInfo& s, bool created) {
+  Json j = stream_object(s);
+  j["created"] = created;
+  return json_text(j);
+}
+
+std::string stream_closed_json(const StreamInfo& s, bool closed_now, std::string_view closing_hash) {
+  Json j = stream_object(s);
+  j["closed_now"] = closed_now;
+  j["closing_hash"] = std::string(closing_hash);
+  return json_text(j);
+}
+
+std::string stream_list_json(const std::vector<StreamInfo>& streams) {
+  Json j;
+  j["streams"] = Json::array();
+  for (const auto& s : streams) j["streams"].push_back(stream_object(s));
+  return json_text(j);
+}
+
+std::string next_level_json(std::string_view stream, std::uint64_t step, double level) {
+  Json j;
+  j["stream"] = std::string(stream);
+  j["step"] = step;
+  j["level"] = number(level);
+  return json_text(j);
+}
+
+std::string history_row_json(const DecisionRecord& r, std::string_view rule) {
+  return json_text(history_row_object(r, rule));
+}
+
+std::string history_row_csv(const DecisionRecord& r, std::string_view rule) {
+  return csv_row(r, rule) + ',' + format_timestamp(r.decided_at_ms);
+}
+
+std::string history_page_json(std::string_view stream, std::uint64_t from, std::uint64_t limit,
+                              const HistoryPage& page, std::string_view rule) {
+  Json j;
+  j["stream"] = std::string(stream);
+  j["from"] = from;
+  j["limit"] = limit;
+  j["total"] = page.total;
+  j["next_step"] = page.next_step == 0 ? Json(nullptr) : Json(page.next_step);
+  j["decisions"] = Json::array();
+  for (const auto& r : page.records) j["decisions"].push_back(history_row_object(r, rule));
+  return json_text(j);
+}
+
+std::string verify_json(std::string_view stream, const VerifyReport& v,
+                        const std::optional<ChainHashAt>& at_step) {
+  Json j;
+  j["stream"] = std::string(stream);
+  j["ok"] = v.ok;
+  j["steps"] = v.steps;
+  if (v.ok) {
+    j["first_bad_step"] = nullptr;
+    j["problem"] = nullptr;
+    j["chain_hash"] = v.chain_hash;
+    if (v.closed_at_ms) {
+      j["closed_at"] = format_timestamp(*v.closed_at_ms);
+      j["closing_hash"] = v.closing_hash;
+    }
+    j["anchors_checked"] = v.anchors_checked;
+  } else {
+    j["first_bad_step"] = v.first_bad_step;
+    j["problem"] = v.problem;
+    j["chain_hash"] = nullptr;
+  }
+  if (at_step) {
+    j["at_step"] = at_step->step;
+    j["chain_hash_at_step"] = at_step->chain_hash;
+  }
+  return json_text(j);
+}
+
+std::string error_json(std::string_view code, std::string_view message) {
+  Json j;
+  j["error"]["code"] = std::string(code);
+  j["error"]["message"] = std::string(message);
+  return json_text(j);
+}
+
+std::string error_json(const Error& e) {
+  switch (e.kind) {
+    case ErrorKind::kInvalidInput:
+      return error_json("invalid_input", e.message);
+    case ErrorKind::kRefused:
+      return error_json("refused", e.message);
+    case ErrorKind::kStorage:
+      return error_json("storage", e.message);
+  }
+  return error_json("internal", e.message);
+}
+
+std::string line_error_json(std::uint64_t line, std::string_view message) {
+  Json j;
+  j["line"] = line;
+  j["error"] = std::string(message);
+  return json_text(j);
+}
+
+std::string health_json(const std::optional<std::string>& storage_failure) {
+  Json j;
+  if (!storage_failure) {
+    j["status"] = "ok";
+    return json_text(j);
+  }
+  j["status"] = "failing";
+  j["error"]["code"] = "storage";
+  j["error"]["message"] = *storage_failure;
+  return json_text(j);
+}
+
+}  // namespace alphaledger
