@@ -102,14 +102,4 @@ class SpendingSequence {
 // tail (methods.md section 13). About 12.645107872872.
 double jm_shape_sum();
 
-// Default spending specification of each rule (methods.md "alphaledger's choices" 2).
-// Fits a power-law mixture (exposed for tests): trapezoid rule in u = ln x, step h, range
-// [u_lo, u_hi]; weights renormalised so the mass is exactly `mass`.
-GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi, double mass);
-
-// Nonnegative least squares min ||A w - b||, w >= 0 (Lawson–Hanson active set, Householder QR on
-// the passive columns). A is row-major rows x cols. Deterministic. Exposed for tests.
-std::vector<double> nonnegative_least_squares(const std::vector<double>& a, std::size_t rows,
-                                              std::size_t cols, const std::vector<double>& b);
-
 }  // namespace alphaledger

@@ -25,6 +25,7 @@
 #include "support/temp_dir.hpp"
 #include "support/text.hpp"
 #include "store/codec.hpp"
+#include "store/faulty_store.hpp"
 
 namespace alphaledger {
 namespace {

@@ -12,6 +12,7 @@
 #include "support/server_process.hpp"
 #include "support/temp_dir.hpp"
 #include "support/text.hpp"
+#include "store/faulty_store.hpp"
 
 namespace alphaledger {
 namespace {

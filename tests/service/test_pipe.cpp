@@ -13,6 +13,7 @@
 #include "support/server_process.hpp"
 #include "support/temp_dir.hpp"
 #include "support/text.hpp"
+#include "store/faulty_store.hpp"
 
 namespace alphaledger {
 namespace {
@@ -330,7 +331,7 @@ TEST_CASE("Pipe: a storage failure answers the line it hit, stops, and nothing u
   PipeFixture f;
   REQUIRE(f.ledger->decide("s", "before", 0.3).ok());
   f.faulty.fail_all_writes("No space left on device");
-  const auto before = f.memory.dump();
+  const auto before = copy_contents(f.memory);
   auto [summary, answers] = f.run(test_line("a", 0.2) + "\n" + test_line("b", 0.3) + "\n");
   REQUIRE_FALSE(summary.ok());
   CHECK(summary.error().kind == ErrorKind::kStorage);
@@ -338,7 +339,7 @@ TEST_CASE("Pipe: a storage failure answers the line it hit, stops, and nothing u
   auto j = nlohmann::json::parse(answers[0]);
   CHECK(j["line"] == 1);
   CHECK(j["error"].get<std::string>().find("No space left") != std::string::npos);
-  CHECK(f.memory.dump() == before);  // the ledger is as it was
+  CHECK(copy_contents(f.memory) == before);  // the ledger is as it was
 }
 
 // ---- one meaning for each input: pipe lines read as JSON Lines rows are (docs/formats.md) -------
