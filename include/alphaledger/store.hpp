@@ -6,11 +6,11 @@
 // about streams or records.
 //
 // Example:
-//   auto store = open_rocksdb_store("alphaledger.db");
+//   auto store = open_rocksdb_store("scratch.db");   // a new folder (not a ledger's)
 //   WriteBatch batch;
-//   batch.put("m/format", "\x01\x00\x00\x00");
+//   batch.put("greeting", "hello");
 //   (*store)->write(batch);            // durable (synced) when it returns ok
-//   (*store)->get("m/format");         // std::optional<std::string> holding the 4 bytes
+//   (*store)->get("greeting");         // std::optional<std::string> holding "hello"
 //
 // Thread-safety: every Store is safe to use from many threads; each write() is atomic (all of the
 // batch or none of it) with respect to readers and to a crash.
