@@ -97,8 +97,10 @@ TEST_CASE("Crash: decide --file killed 50 times at random moments loses and doub
   while (kills < kKills) {
     REQUIRE(++attempts < 400);
     const auto delay = std::chrono::microseconds(gen() % 400000);
+    alphaledger::test_support::RunOptions kill_later;
+    kill_later.kill_after = delay;
     auto run = run_alphaledger(
-        {"--ledger", db, "--json", "decide", "crash", "--file", log, "--sync-every", "4"}, alphaledger::test_support::RunOptions{.kill_after = delay});
+        {"--ledger", db, "--json", "decide", "crash", "--file", log, "--sync-every", "4"}, kill_later);
     for (const auto& line : complete_lines(run.out)) {
       auto j = nlohmann::json::parse(line);
       auto [it, fresh] = printed.emplace(j["id"].get<std::string>(), j);

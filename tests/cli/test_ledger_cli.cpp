@@ -1,5 +1,6 @@
 // The ledger commands as a user runs them: one process per command (docs/cli.md "The ledger").
 #include <doctest/doctest.h>
+#include <fcntl.h>
 
 #include <cmath>
 #include <fstream>

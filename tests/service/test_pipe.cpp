@@ -1,6 +1,7 @@
 // `alphaledger pipe`: one answer per line, in order, durable before printed, bad lines answered
 // and skipped, SIGTERM finishing what was read. Most checks drive the real binary.
 #include <doctest/doctest.h>
+#include <fcntl.h>
 
 #include <cmath>
 #include <map>
