@@ -10,10 +10,9 @@
 //   auto d = (*ledger)->decide("checkout-team", "exp-0142", 0.0004);
 //   d->record.level;      // 0.001370386057...
 //   d->record.rejected;   // true: 0.0004 <= level
-//   decision_json(*d);    // alphaledger/forms.hpp:
-//                         // {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860574...,
-//                         //  "rejected":1,"wealth":0.07...,"stream":"checkout-team",
-//                         //  "decided_at":"2025-03-14T09:30:00.000Z","repeat":false}
+//   decision_json(*d);    // (alphaledger/forms.hpp) {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860566622432,
+//                         //  "rejected":1,"wealth":0.04862961394333776,"stream":"checkout-team",
+//                         //  "decided_at":"2025-03-14T09:30:00.000Z","repeat":false}  (the time of the call)
 //
 // Thread-safety: a Ledger is safe to use from many threads. Decisions on one stream are
 // serialised; different streams proceed in parallel. A second *process* opening the same folder
@@ -100,7 +99,11 @@ struct Anchor {
 // Reads "STEP:HASH" (STEP a decimal step number, 0 for the configuration) or "closed:HASH", where
 // HASH is 64 hex digits in either case. Errors (kInvalidInput) say what is accepted and quote at
 // most an excerpt() of the text.
-// Example: parse_anchor("12:3FA9...") -> Anchor{12, false, "3fa9..."}.
+// Example:
+//   auto anchor = parse_anchor("12:" + std::string(64, 'F'));
+//   anchor->step;         // 12
+//   anchor->closing;      // false
+//   anchor->chain_hash;   // 64 lowercase 'f's
 Result<Anchor> parse_anchor(std::string_view text);
 
 // How an anchor is written back, "STEP:HASH" or "closed:HASH" (parse_anchor reads it).

@@ -2,8 +2,10 @@
 // Storey-BH (Storey, Taylor & Siegmund 2004). Used by replay and simulate to show what an offline
 // analysis would have found. Pure math.
 //
-// Example: benjamini_hochberg({0.01, 0.04, 0.03, 0.5}, 0.05).threshold == 0.0375 (k = 3 of m = 4),
-// and p-values <= threshold are rejected.
+// Example (step-up: the second smallest p-value is above its bound, the third is within its own):
+//   auto bh = benjamini_hochberg({0.01, 0.035, 0.03, 0.5}, 0.05);
+//   bh.threshold;    // 0.0375 = 3 * 0.05 / 4 (k = 3 of m = 4), as a double 0.037500000000000006
+//   bh.rejections;   // 3: every p-value <= threshold, here {true, true, true, false}
 #pragma once
 
 #include <vector>

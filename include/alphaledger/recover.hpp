@@ -1,11 +1,11 @@
 // Copying what can be proven out of a damaged ledger into a new folder (docs/ledger.md
 // "Recovering a damaged ledger").
 //
-// Example:
+// Example (compiled only: it needs a damaged ledger; the values are what one such run reported):
 //   auto report = recover_ledger("/srv/ab/ledger", "/srv/ab/ledger-recovered");
 //   report->complete();              // false: something could not be proven
-//   report->streams[0].kept_steps;   // 255: steps 1..255 are in the new ledger
-//   report->streams[0].known_steps;  // 2000: the source's head counted 2000
+//   report->streams[0].kept_steps;   // e.g. 255: steps 1..255 are in the new ledger
+//   report->streams[0].known_steps;  // e.g. 2000: the source's head counted 2000
 //
 // The source folder is never changed: its files are copied to a scratch folder beside the target
 // and RocksDB's own salvage opens that copy. A decision is copied only if the stream's hash chain

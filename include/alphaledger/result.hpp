@@ -4,8 +4,8 @@
 // for bad input. Exceptions are used only at the edges (CLI, HTTP handlers).
 //
 // Example:
-//   Result<double> r = parse_probability("1.3", "p_value");
-//   if (!r) std::cerr << r.error().message;   // "p_value must be in [0, 1], got 1.3"
+//   Result<double> r = parse_p_value_text("1.3");   // test_log.hpp
+//   if (!r) std::cerr << r.error().message << '\n';   // "p_value must be a number in [0, 1], got 1.3"
 #pragma once
 
 #include <cassert>

@@ -9,7 +9,7 @@
 //   saffron          Ramdas et al. (2018); FDR <= alpha under independence
 //   addis            Tian & Ramdas (2019); FDR <= alpha under independence, uniformly conservative nulls
 //
-// Example (methods.md section 14.3, LORD++ with the defaults):
+// Example (docs/methods.md section 14.3, LORD++ with the defaults):
 //   auto config = resolve_config(RuleSpec{.rule = "lord++"});
 //   Rule rule(*config);
 //   rule.next_level();          // 0.001370386057...

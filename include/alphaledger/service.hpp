@@ -3,14 +3,15 @@
 // before it is written out, each test id is decided once per stream, and a retry (same id, same
 // p-value) gets the stored decision back with repeat = true. docs/http.md is the user guide.
 //
-// Example (pipe):
+// Example (pipe; compiled only: it reads standard input until it ends):
 //   auto ledger = Ledger::open("alphaledger.db");
 //   auto summary = run_pipe(**ledger, "checkout-team", /*in_fd=*/0, std::cout, /*stop_fd=*/-1);
 //   // stdin  {"id": "exp-0142", "p_value": 0.0004}
 //   // stdout {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860574...,...}
 //   //        (the decision_json() of forms.hpp, the same line `decide --json` prints)
 //
-// Example (HTTP):
+// Example (HTTP; compiled only: run() blocks):
+//   auto ledger = Ledger::open("alphaledger.db");
 //   HttpOptions options;                      // 127.0.0.1:8742, no token
 //   auto service = HttpService::create(**ledger, options);
 //   auto port = (*service)->bind();           // the port actually bound (useful with port 0)

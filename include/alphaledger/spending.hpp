@@ -30,13 +30,13 @@
 namespace alphaledger {
 
 // Javanmard–Montanari normalising constant: C * sum_j log(max(j,2))/(j e^sqrt(ln j)) = 1 to about
-// 1e-12 (methods.md section 13, recomputed by jm_shape_sum() and checked in tests/core).
+// 1e-12 (docs/methods.md section 13, recomputed by jm_shape_sum() and checked in tests/core).
 inline constexpr double kJmConstant = 0.079081966722;
 
 // The kind of a sequence. Stored on disk inside stream configurations: do not change the numbers.
 enum class SpendingKind : std::uint8_t { kJm = 1, kPower = 2, kPowerShift = 3 };
 
-// A geometric mixture (methods.md section 15): gamma_m = head[m-1] for m <= head.size(), and
+// A geometric mixture (docs/methods.md section 15): gamma_m = head[m-1] for m <= head.size(), and
 // sum_k weight[k] * (1 - r_k) * r_k^(m-1) for larger m, with r_k = exp(-rate[k]).
 // It is itself a valid sequence: nonnegative, nonincreasing, total mass <= 1 - 1e-9.
 struct GeometricMixture {
@@ -79,7 +79,7 @@ class SpendingSequence {
   const std::string& spec() const { return spec_; }  // canonical text, e.g. "power:1.6"
   double normaliser() const { return normaliser_; }  // the factor in front of the shape
 
-  // The geometric-mixture version used by --evaluation fast (methods.md section 15.4): a
+  // The geometric-mixture version used by --evaluation fast (docs/methods.md section 15.4): a
   // trapezoid fit of the Laplace integral for power laws, exact head of 16 lags plus a
   // nonnegative least-squares tail for jm. Deterministic: same spec, same numbers, bit for bit.
   const GeometricMixture& mixture() const;
@@ -99,17 +99,7 @@ class SpendingSequence {
 };
 
 // sum_{j>=1} log(max(j,2)) / (j e^sqrt(ln j)): exact summation to 10^6 plus an Euler–Maclaurin
-// tail (methods.md section 13). About 12.645107872872.
+// tail (docs/methods.md section 13). About 12.645107872872.
 double jm_shape_sum();
-
-// Default spending specification of each rule (methods.md "alphaledger's choices" 2).
-// Fits a power-law mixture (exposed for tests): trapezoid rule in u = ln x, step h, range
-// [u_lo, u_hi]; weights renormalised so the mass is exactly `mass`.
-GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi, double mass);
-
-// Nonnegative least squares min ||A w - b||, w >= 0 (Lawson–Hanson active set, Householder QR on
-// the passive columns). A is row-major rows x cols. Deterministic. Exposed for tests.
-std::vector<double> nonnegative_least_squares(const std::vector<double>& a, std::size_t rows,
-                                              std::size_t cols, const std::vector<double>& b);
 
 }  // namespace alphaledger

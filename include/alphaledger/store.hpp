@@ -1,17 +1,16 @@
 // The narrow storage interface under the ledger: ordered keys and values, atomic write batches,
-// prefix scans. Three implementations: RocksDB (a folder on disk, the real ledger), an in-memory
-// store (tests, examples), and a fault-injecting wrapper (tests: fail the Nth write, refuse all
-// writes as a full or read-only disk would).
+// prefix scans. Two implementations: RocksDB (a folder on disk, the real ledger) and an in-memory
+// store (tests, examples). A library user may implement Store over any ordered key-value store.
 //
 // The ledger's key layout and value grammar are in docs/ledger-format.md; nothing here knows
 // about streams or records.
 //
 // Example:
-//   auto store = open_rocksdb_store("alphaledger.db");
+//   auto store = open_rocksdb_store("scratch.db");   // a new folder (not a ledger's)
 //   WriteBatch batch;
-//   batch.put("m/format", "\x01\x00\x00\x00");
+//   batch.put("greeting", "hello");
 //   (*store)->write(batch);            // durable (synced) when it returns ok
-//   (*store)->get("m/format");         // std::optional<std::string> holding the 4 bytes
+//   (*store)->get("greeting");         // std::optional<std::string> holding "hello"
 //
 // Thread-safety: every Store is safe to use from many threads; each write() is atomic (all of the
 // batch or none of it) with respect to readers and to a crash.
@@ -113,51 +112,9 @@ class MemoryStore final : public Store {
   Status scan(std::string_view prefix, const Visitor& visit) override;
   std::string describe() const override { return "memory store"; }
 
-  // A copy of every key and value (tests compare before and after).
-  std::map<std::string, std::string> dump() const;
-
  private:
   mutable std::mutex mu_;
   std::map<std::string, std::string, std::less<>> data_;
 };
-
-// Wraps a store and fails writes on demand, as a full or failing disk would. A failed write
-// never reaches the wrapped store. Reads pass through unchanged.
-//
-// Thread-safety: as the wrapped store; the fault settings are guarded by a mutex.
-class FaultyStore final : public Store {
- public:
-  // REQUIRES: `inner` outlives this wrapper.
-  explicit FaultyStore(Store& inner) : inner_(inner) {}
-
-  // The n-th write from now (1 = the next one) fails once; later writes succeed.
-  void fail_write_in(std::uint64_t n);
-  // Every write fails until cleared, with `message` (e.g. "No space left on device").
-  void fail_all_writes(std::string message);
-  void clear_faults();
-  std::uint64_t writes_attempted() const;  // successful and failed, since construction
-  std::uint64_t writes_failed() const;
-
-  Result<std::optional<std::string>> get(std::string_view key) override { return inner_.get(key); }
-  Status write(const WriteBatch& batch, bool sync = true) override;
-  Status scan(std::string_view prefix, const Visitor& visit) override { return inner_.scan(prefix, visit); }
-  std::string describe() const override { return inner_.describe(); }
-  bool read_only() const override { return inner_.read_only(); }
-  // The injected fault's message while the last write failed; else the wrapped store's answer.
-  std::optional<std::string> failing() const override;
-
- private:
-  Store& inner_;
-  mutable std::mutex mu_;
-  std::optional<std::string> last_failure_;
-  std::uint64_t countdown_ = 0;  // 0: no one-shot fault armed
-  std::optional<std::string> fail_all_;
-  std::uint64_t attempted_ = 0;
-  std::uint64_t failed_ = 0;
-};
-
-// A non-owning view of `inner` as a Store, for handing a store you keep to Ledger::open (tests
-// reopen a ledger over the same in-memory store). REQUIRES: `inner` outlives the returned object.
-std::unique_ptr<Store> borrow_store(Store& inner);
 
 }  // namespace alphaledger

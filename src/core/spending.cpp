@@ -11,6 +11,7 @@
 #include <numeric>
 
 #include "core/math_policy.hpp"
+#include "core/spending_fit.hpp"
 
 namespace alphaledger {
 namespace {

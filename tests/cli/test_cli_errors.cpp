@@ -12,34 +12,19 @@
 #include <string>
 #include <vector>
 
-#include "cli/run_command.hpp"
+#include "support/process.hpp"
+#include "support/temp_dir.hpp"
 
 // The error table and the name matcher are tested directly as well: their sources are compiled into
 // this test (the test binary does not link the executable's objects).
 #include "cli/cli_errors.cpp"    // NOLINT(bugprone-suspicious-include)
 #include "cli/usage_errors.cpp"  // NOLINT(bugprone-suspicious-include)
 
-using alphaledger::testing::CommandResult;
-using alphaledger::testing::run_alphaledger;
+using alphaledger::test_support::ProcessResult;
+using alphaledger::test_support::run_alphaledger;
+using alphaledger::test_support::TempDir;
 
 namespace {
-
-struct Scratch {
-  std::string dir;
-  Scratch() {
-    char t[] = "/tmp/alphaledger-errors-XXXXXX";
-    dir = mkdtemp(t);
-  }
-  ~Scratch() {
-    std::error_code ec;
-    std::filesystem::remove_all(dir, ec);
-  }
-  std::string file(const std::string& name, const std::string& text) const {
-    const std::string path = dir + "/" + name;
-    std::ofstream(path, std::ios::binary) << text;
-    return path;
-  }
-};
 
 std::vector<std::string> with_json(std::vector<std::string> args) {
   args.insert(args.begin(), "--json");
@@ -63,8 +48,8 @@ std::vector<std::string> lines_of(const std::string& text) {
 // {"error": {"code", "message"}} and the same message; nothing on stdout. Returns the JSON error.
 nlohmann::json expect_failure(const std::vector<std::string>& args, int exit_code, const std::string& code,
                               const std::string& input = {}) {
-  const CommandResult text = run_alphaledger(args, input);
-  const CommandResult json = run_alphaledger(with_json(args), input);
+  const ProcessResult text = run_alphaledger(args, input);
+  const ProcessResult json = run_alphaledger(with_json(args), input);
   CHECK(text.exit_code == exit_code);
   CHECK(json.exit_code == exit_code);
   CHECK(text.out.empty());
@@ -102,8 +87,8 @@ void check_no_library_text(const std::string& message) {
 // ---- each kind of error: exit code and JSON form ---------------------------------------------
 
 TEST_CASE("CliErrors: invalid input exits 2 as invalid_input, with or without --json") {
-  Scratch s;
-  const auto j = expect_failure({"replay", s.file("bad.csv", "id,p_value\na,1.3\n")}, 2, "invalid_input");
+  TempDir s;
+  const auto j = expect_failure({"replay", s.write("bad.csv", "id,p_value\na,1.3\n")}, 2, "invalid_input");
   CHECK(message_of(j).find("bad.csv:2:") != std::string::npos);
 }
 
@@ -117,8 +102,8 @@ TEST_CASE("CliErrors: a command line that cannot be parsed exits 2 as usage, wit
 }
 
 TEST_CASE("CliErrors: refusals exit 3 as no_ledger, unknown_stream and conflict") {
-  Scratch s;
-  const std::string db = s.dir + "/ledger";
+  TempDir s;
+  const std::string db = s.sub("ledger");
   const auto none = expect_failure({"--ledger", db, "next", "checkout"}, 3, "no_ledger");
   CHECK(message_of(none).find("no ledger at") != std::string::npos);
   REQUIRE(run_alphaledger({"--ledger", db, "new", "checkout", "--rule", "lord++"}).exit_code == 0);
@@ -126,7 +111,7 @@ TEST_CASE("CliErrors: refusals exit 3 as no_ledger, unknown_stream and conflict"
   CHECK(message_of(unknown).find("no stream named 'checkuot'") != std::string::npos);
   // decide --file puts FILE:LINE first; the code word is the same.
   const auto in_file =
-      expect_failure({"--ledger", db, "decide", "nope", "--file", s.file("t.csv", "id,p_value\na,0.1\n")}, 3,
+      expect_failure({"--ledger", db, "decide", "nope", "--file", s.write("t.csv", "id,p_value\na,0.1\n")}, 3,
                      "unknown_stream");
   (void)in_file;
   expect_failure({"--ledger", db, "new", "checkout", "--rule", "saffron"}, 3, "conflict");
@@ -135,8 +120,8 @@ TEST_CASE("CliErrors: refusals exit 3 as no_ledger, unknown_stream and conflict"
 }
 
 TEST_CASE("CliErrors: storage failures exit 4 as storage") {
-  Scratch s;
-  const std::string not_a_folder = s.file("plain-file", "not a ledger\n");
+  TempDir s;
+  const std::string not_a_folder = s.write("plain-file", "not a ledger\n");
   const auto j = expect_failure({"--ledger", not_a_folder, "new", "s", "--rule", "lond"}, 4, "storage");
   CHECK(message_of(j).find("not a folder") != std::string::npos);
 }
@@ -196,9 +181,9 @@ TEST_CASE("CliErrors: with --json, log lines on stderr are JSON objects too") {
 // library's exception text and exit 4. Whether such an id is refused as input (exit 2) or written
 // with a replacement character (exit 0), no library text reaches the user.
 TEST_CASE("CliErrors: replay --json never ends in a JSON library exception") {
-  Scratch s;
+  TempDir s;
   const auto r =
-      run_alphaledger({"--json", "replay", s.file("utf.csv", "id,p_value\nab\xff,0.01\nok,0.2\n")});
+      run_alphaledger({"--json", "replay", s.write("utf.csv", "id,p_value\nab\xff,0.01\nok,0.2\n")});
   CHECK(r.exit_code != 4);
   CHECK(r.err.find("json.exception") == std::string::npos);
   if (r.exit_code == 0) {
@@ -263,8 +248,8 @@ TEST_CASE("CliErrors: a missing command or required argument is named, with what
 }
 
 TEST_CASE("CliErrors: bad option values name the flag, an excerpt of the value and what is accepted") {
-  Scratch s;
-  const std::string ok = s.file("ok.csv", "id,p_value\na,0.1\n");
+  TempDir s;
+  const std::string ok = s.write("ok.csv", "id,p_value\na,0.1\n");
   const std::string huge(5000, '7');
   struct Case {
     std::vector<std::string> args;
@@ -337,9 +322,9 @@ TEST_CASE("CliErrors: close names are found by edit distance, and only close one
 // ---- stdin --------------------------------------------------------------------------------
 
 TEST_CASE("CliErrors: '-' reads a log from standard input for replay and decide --file") {
-  Scratch s;
+  TempDir s;
   const std::string csv = "id,p_value\na,0.0004\nb,0.2\nc,0.001\n";
-  const auto from_file = run_alphaledger({"replay", s.file("log.csv", csv), "--rules", "lond,lord++"});
+  const auto from_file = run_alphaledger({"replay", s.write("log.csv", csv), "--rules", "lond,lord++"});
   REQUIRE(from_file.exit_code == 0);
   const auto from_stdin = run_alphaledger({"replay", "-", "--rules", "lond,lord++"}, csv);
   CHECK(from_stdin.exit_code == 0);
@@ -356,7 +341,7 @@ TEST_CASE("CliErrors: '-' reads a log from standard input for replay and decide 
   CHECK(bad.exit_code == 2);
   CHECK(bad.err.find("stdin:3:") != std::string::npos);
 
-  const std::string db = s.dir + "/ledger";
+  const std::string db = s.sub("ledger");
   REQUIRE(run_alphaledger({"--ledger", db, "new", "s", "--rule", "lord++"}).exit_code == 0);
   const auto decided = run_alphaledger({"--ledger", db, "decide", "s", "--file", "-"}, csv);
   CHECK(decided.exit_code == 0);

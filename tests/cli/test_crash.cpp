@@ -10,12 +10,14 @@
 #include <random>
 #include <set>
 
-#include "ledger_process.hpp"
+#include "support/process.hpp"
+#include "support/temp_dir.hpp"
+#include "support/text.hpp"
 
-using ledger_test::complete_lines;
-using ledger_test::run_alphaledger;
-using ledger_test::ScratchDir;
-using ledger_test::split_csv_simple;
+using alphaledger::test_support::complete_lines;
+using alphaledger::test_support::run_alphaledger;
+using alphaledger::test_support::TempDir;
+using alphaledger::test_support::split_csv_simple;
 
 namespace {
 
@@ -55,7 +57,7 @@ TEST_CASE("Crash: decide --file killed 50 times at random moments loses and doub
   INFO("seed = " << seed << " (set ALPHALEDGER_TEST_SEED to reproduce)");
   constexpr std::size_t kTests = 3000;
   constexpr int kKills = 50;
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   const std::string log = dir.write("tests.csv", make_log(seed, kTests));
   REQUIRE(run_alphaledger({"--ledger", db, "new", "crash", "--rule", "lord++"}).exit_code == 0);
@@ -95,8 +97,10 @@ TEST_CASE("Crash: decide --file killed 50 times at random moments loses and doub
   while (kills < kKills) {
     REQUIRE(++attempts < 400);
     const auto delay = std::chrono::microseconds(gen() % 400000);
+    alphaledger::test_support::RunOptions kill_later;
+    kill_later.kill_after = delay;
     auto run = run_alphaledger(
-        {"--ledger", db, "--json", "decide", "crash", "--file", log, "--sync-every", "4"}, delay);
+        {"--ledger", db, "--json", "decide", "crash", "--file", log, "--sync-every", "4"}, kill_later);
     for (const auto& line : complete_lines(run.out)) {
       auto j = nlohmann::json::parse(line);
       auto [it, fresh] = printed.emplace(j["id"].get<std::string>(), j);

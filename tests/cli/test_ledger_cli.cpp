@@ -1,16 +1,19 @@
 // The ledger commands as a user runs them: one process per command (docs/cli.md "The ledger").
 #include <doctest/doctest.h>
+#include <fcntl.h>
 
 #include <cmath>
 #include <fstream>
 #include <map>
 #include <nlohmann/json.hpp>
 
-#include "ledger_process.hpp"
+#include "support/process.hpp"
+#include "support/temp_dir.hpp"
+#include "support/text.hpp"
 
-using ledger_test::complete_lines;
-using ledger_test::run_alphaledger;
-using ledger_test::ScratchDir;
+using alphaledger::test_support::complete_lines;
+using alphaledger::test_support::run_alphaledger;
+using alphaledger::test_support::TempDir;
 
 namespace {
 
@@ -47,7 +50,7 @@ std::vector<std::string> with_ledger(const std::string& ledger, std::vector<std:
 // relative) and each decision exactly; the history replayed by `replay` gives the same rows bit
 // for bit (issue 3 item 2).
 TEST_CASE("LedgerCli: a stream decided one test per process matches methods.md 14.3 and replay") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   auto created = run_alphaledger(with_ledger(db, {"new", "checkout", "--rule", "lord++"}));
   REQUIRE(created.exit_code == 0);
@@ -116,7 +119,7 @@ TEST_CASE("LedgerCli: a stream decided one test per process matches methods.md 1
 // docs/cli.md exit codes: 3 for refusals (conflict, unknown stream, other configuration), 2 for
 // invalid input, each with a message on stderr; the history is unchanged after every failure.
 TEST_CASE("LedgerCli: refusals and bad input give the contract's exit codes and change nothing") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "saffron"})).exit_code == 0);
   REQUIRE(run_alphaledger(with_ledger(db, {"decide", "s", "--id", "a", "--p", "0.01"})).exit_code == 0);
@@ -167,7 +170,7 @@ TEST_CASE("LedgerCli: refusals and bad input give the contract's exit codes and 
 // the whole file and nothing is decided; a good file prints replay's rows; running it again
 // repeats every decision (idempotence makes it resumable).
 TEST_CASE("LedgerCli: decide --file refuses a bad file whole and resumes a good one") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lord++"})).exit_code == 0);
   REQUIRE(run_alphaledger(with_ledger(db, {"decide", "s", "--id", "e3", "--p", "0.36"})).exit_code == 0);
@@ -205,7 +208,7 @@ TEST_CASE("LedgerCli: decide --file refuses a bad file whole and resumes a good 
 // it: its error reads "While lock file: .../LOCK: Resource temporarily unavailable"); this test
 // holds that lock itself, so the holder is this test process.
 TEST_CASE("LedgerCli: a ledger locked by another process gives exit 4 naming the holder") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lond"})).exit_code == 0);
   const int fd = ::open((db + "/LOCK").c_str(), O_RDWR | O_CLOEXEC);
@@ -237,14 +240,14 @@ TEST_CASE("LedgerCli: a stream's direction applies to the summary rows it decide
   std::map<std::string, std::map<std::string, double>> expected;  // id -> direction -> p
   while (std::getline(ref, line)) {
     if (line.empty() || line[0] == '#' || line.rfind("id,", 0) == 0) continue;
-    const auto f = ledger_test::split_csv_simple(line);
+    const auto f = alphaledger::test_support::split_csv_simple(line);
     REQUIRE(f.size() == 8);
     input += f[0] + "," + f[1] + "," + f[2] + "," + f[3] + "," + f[4] + "\n";
     expected[f[0]] = {
         {"two-sided", std::stod(f[5])}, {"greater", std::stod(f[6])}, {"less", std::stod(f[7])}};
   }
   REQUIRE(expected.size() == 3);
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   const std::string file = dir.write("summaries.csv", input);
   for (const std::string direction : {"two-sided", "greater", "less"}) {
@@ -278,7 +281,7 @@ TEST_CASE("LedgerCli: a stream's direction applies to the summary rows it decide
 // the closing time, closing again changes nothing, status and streams show it, and verify covers
 // it with the closing hash the close command printed (common practice, no source).
 TEST_CASE("LedgerCli: a closed stream refuses tests and still verifies") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lord++"})).exit_code == 0);
   for (int i = 0; i < 3; ++i) {
@@ -359,7 +362,7 @@ TEST_CASE("LedgerCli: a closed stream refuses tests and still verifies") {
 // noted from verify's output before the loss makes verify exit 3 naming its step (common
 // practice, no source).
 TEST_CASE("LedgerCli: verify --expect catches a ledger that lost its last decisions") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   const std::string backup = dir.sub("backup");
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "saffron"})).exit_code == 0);
@@ -416,7 +419,7 @@ TEST_CASE("LedgerCli: verify --expect catches a ledger that lost its last decisi
 // history --from and --limit print a slice, row by row, with the header once (common practice,
 // no source); the rows equal the matching rows of the whole history.
 TEST_CASE("LedgerCli: history prints a slice with --from and --limit") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lond"})).exit_code == 0);
   std::string rows = "id,p_value\n";

@@ -11,11 +11,13 @@
 #include <map>
 #include <nlohmann/json.hpp>
 
-#include "ledger_process.hpp"
+#include "support/process.hpp"
+#include "support/temp_dir.hpp"
+#include "support/text.hpp"
 
-using ledger_test::complete_lines;
-using ledger_test::run_alphaledger;
-using ledger_test::ScratchDir;
+using alphaledger::test_support::complete_lines;
+using alphaledger::test_support::run_alphaledger;
+using alphaledger::test_support::TempDir;
 namespace fs = std::filesystem;
 
 namespace {
@@ -94,7 +96,7 @@ void flip_log_record(const fs::path& log, double fraction) {
 }
 
 // A ledger with stream "s" holding `n` decisions made by one decide --file run in groups of 50.
-std::string build(const ScratchDir& dir, const std::string& name, std::size_t n) {
+std::string build(const TempDir& dir, const std::string& name, std::size_t n) {
   const std::string db = dir.sub(name);
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lord++"})).exit_code == 0);
   const std::string log = dir.write(name + ".csv", make_log(n));
@@ -106,7 +108,7 @@ std::string build(const ScratchDir& dir, const std::string& name, std::size_t n)
 }  // namespace
 
 TEST_CASE("Recover: a changed byte in the log is refused by every command and changes nothing") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = build(dir, "ledger", 2000);
   flip_log_record(live_log(db), 0.5);
   const auto before = snapshot(db);
@@ -129,7 +131,7 @@ TEST_CASE("Recover: a changed byte in the log is refused by every command and ch
 }
 
 TEST_CASE("Recover: recover --to copies the provable steps, reports the lost ones, and verifies") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = build(dir, "ledger", 2000);
   flip_log_record(live_log(db), 0.5);
   const auto before = snapshot(db);
@@ -170,7 +172,7 @@ TEST_CASE("Recover: recover --to copies the provable steps, reports the lost one
 }
 
 TEST_CASE("Recover: a healthy ledger is copied whole with exit 0; a used target is refused") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = build(dir, "ledger", 300);
   const auto before = snapshot(db);
   auto r = run_alphaledger(with_ledger(db, {"recover", "--to", dir.sub("copy")}));
@@ -197,7 +199,7 @@ TEST_CASE("Recover: a healthy ledger is copied whole with exit 0; a used target 
 // RocksDB locks <ledger>/LOCK with fcntl; this test holds that lock itself, as a running serve
 // would. The read commands take no lock and write nothing.
 TEST_CASE("Recover: read commands work while another process holds the ledger, and write nothing") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = build(dir, "ledger", 200);
   const int fd = ::open((db + "/LOCK").c_str(), O_RDWR | O_CLOEXEC);
   REQUIRE(fd >= 0);
@@ -221,7 +223,7 @@ TEST_CASE("Recover: read commands work while another process holds the ledger, a
 }
 
 TEST_CASE("Recover: a closed stream stays closed with its closing hash when the closing is intact") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = build(dir, "ledger", 300);
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "still-open", "--rule", "saffron"})).exit_code == 0);
   auto closed = run_alphaledger(with_ledger(db, {"--json", "close", "s"}));
@@ -272,7 +274,7 @@ TEST_CASE("Recover: a closed stream stays closed with its closing hash when the 
 // must still leave every group before it provable: RocksDB only stops cleanly before a damaged
 // record when it checks record checksums (without them it applies the damaged batch and fails).
 TEST_CASE("Recover: a byte changed inside a large group keeps every earlier group") {
-  ScratchDir dir;
+  TempDir dir;
   const std::string db = dir.sub("ledger");
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lord++"})).exit_code == 0);
   REQUIRE(run_alphaledger(with_ledger(db, {"decide", "s", "--file", dir.write("l.csv", make_log(2000))}))

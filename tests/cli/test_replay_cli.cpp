@@ -5,18 +5,19 @@
 #include <fstream>
 #include <string>
 
-#include "cli/run_command.hpp"
+#include "support/process.hpp"
+#include "support/temp_dir.hpp"
 
-using alphaledger::testing::run_alphaledger;
+using alphaledger::test_support::run_alphaledger;
 
 namespace {
 const std::string kDemo = std::string(ALPHALEDGER_SOURCE_DIR) + "/replay_data/larkspur_experiments.csv";
 const std::string kSimulated = std::string(ALPHALEDGER_SOURCE_DIR) + "/replay_data/simulated_stream.csv";
 
+// Files of these tests live in one folder, removed when the test binary ends.
 std::string write_temp(const std::string& name, const std::string& text) {
-  const std::string path = "/tmp/alphaledger-replay-test-" + std::to_string(getpid()) + "-" + name;
-  std::ofstream(path, std::ios::binary) << text;
-  return path;
+  static const alphaledger::test_support::TempDir dir;
+  return dir.write(name, text);
 }
 }  // namespace
 

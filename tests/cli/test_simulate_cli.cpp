@@ -4,9 +4,10 @@
 #include <algorithm>
 #include <string>
 
-#include "cli/run_command.hpp"
+#include "support/process.hpp"
+#include "support/temp_dir.hpp"
 
-using alphaledger::testing::run_alphaledger;
+using alphaledger::test_support::run_alphaledger;
 
 TEST_CASE("SimulateCli: the CSV header is the contract's and output is identical for any thread count") {
   const std::vector<std::string> base = {"simulate", "--tests", "500", "--runs", "40", "--seed", "3"};

@@ -7,9 +7,10 @@
 #include <nlohmann/json.hpp>
 #include <string>
 
-#include "cli/run_command.hpp"
+#include "support/process.hpp"
+#include "support/temp_dir.hpp"
 
-using alphaledger::testing::run_alphaledger;
+using alphaledger::test_support::run_alphaledger;
 
 namespace {
 std::string write_temp(const std::string& name, const std::string& text) {
@@ -85,9 +86,8 @@ TEST_CASE("Stats CLI: replay decides a log of summaries with the computed p-valu
 
 // The plan at a stream's next level uses exactly `alphaledger next`'s level and changes nothing.
 TEST_CASE("Stats CLI: plan --stream uses the stream's next level and leaves the ledger unchanged") {
-  char dir_template[] = "/tmp/alphaledger-stats-ledger-XXXXXX";
-  const std::string dir = mkdtemp(dir_template);
-  const std::string ledger = dir + "/db";
+  const alphaledger::test_support::TempDir dir;
+  const std::string ledger = dir.sub("db");
   REQUIRE(run_alphaledger({"--ledger", ledger, "new", "s1", "--rule", "lord++"}).exit_code == 0);
   const auto next = run_alphaledger({"--ledger", ledger, "--json", "next", "s1"});
   REQUIRE(next.exit_code == 0);
@@ -101,5 +101,4 @@ TEST_CASE("Stats CLI: plan --stream uses the stream's next level and leaves the 
   CHECK(j["note"].get<std::string>().find("can differ") != std::string::npos);
   CHECK(run_alphaledger({"--ledger", ledger, "--json", "next", "s1"}).out == next.out);
   CHECK(run_alphaledger({"--ledger", ledger, "plan", "means", "--sd", "1", "--min-effect", "1", "--stream", "nope"}).exit_code == 3);
-  std::system(("rm -rf '" + dir + "'").c_str());
 }

@@ -6,6 +6,7 @@
 #include <cmath>
 
 #include "alphaledger/spending.hpp"
+#include "core/spending_fit.hpp"
 
 using namespace alphaledger;
 

@@ -8,7 +8,12 @@
 
 #include "alphaledger/service.hpp"
 #include "alphaledger/store.hpp"
-#include "service_test_support.hpp"
+#include "support/history_check.hpp"
+#include "support/process.hpp"
+#include "support/server_process.hpp"
+#include "support/temp_dir.hpp"
+#include "support/text.hpp"
+#include "store/faulty_store.hpp"
 
 namespace alphaledger {
 namespace {
@@ -57,7 +62,7 @@ TEST_CASE(
   std::vector<std::string> ids;
   for (const auto& r : *history) ids.push_back(r.id);
   CHECK(ids == std::vector<std::string>{"old", "a", "c", "d"});
-  testing::check_history_equals_replay(*history, config);
+  test_support::check_history_equals_replay(*history, config);
 }
 
 TEST_CASE(
@@ -82,7 +87,7 @@ TEST_CASE(
       for (int n = 0; n < 400; ++n) {
         if (n % 8 != c && n % 8 != (c + 1) % 8) continue;
         const std::string stream = n % 2 == 0 ? "one" : "two";
-        auto r = queue.decide(stream, testing::tag("t", n), p[static_cast<std::size_t>(n)]);
+        auto r = queue.decide(stream, test_support::tag("t", n), p[static_cast<std::size_t>(n)]);
         if (!r) {
           ++failures;
           continue;
@@ -108,8 +113,8 @@ TEST_CASE(
   REQUIRE(h2.ok());
   CHECK(h1->size() == 200);
   CHECK(h2->size() == 200);
-  testing::check_history_equals_replay(*h1, lord);
-  testing::check_history_equals_replay(*h2, addis);
+  test_support::check_history_equals_replay(*h1, lord);
+  test_support::check_history_equals_replay(*h2, addis);
   // Every answer equals the stored record.
   std::map<std::string, DecisionRecord> stored;
   for (const auto& r : *h1) stored[r.id] = r;
@@ -131,20 +136,20 @@ TEST_CASE(
   m.create("s", "saffron");
   DecisionQueue queue(*m.ledger);
   m.faulty.fail_all_writes("Input/output error");
-  const auto before = m.memory.dump();
+  const auto before = copy_contents(m.memory);
   std::vector<std::thread> threads;
   std::atomic<int> storage_errors{0};
   for (int c = 0; c < 4; ++c) {
     threads.emplace_back([&, c] {
       for (int n = 0; n < 10; ++n) {
-        auto r = queue.decide("s", testing::tag("t", c) + testing::tag("-", n), 0.3);
+        auto r = queue.decide("s", test_support::tag("t", c) + test_support::tag("-", n), 0.3);
         if (!r && r.error().kind == ErrorKind::kStorage) ++storage_errors;
       }
     });
   }
   for (auto& t : threads) t.join();
   CHECK(storage_errors == 40);
-  CHECK(m.memory.dump() == before);
+  CHECK(copy_contents(m.memory) == before);
   m.faulty.clear_faults();
   auto r = queue.decide("s", "after", 0.3);  // the queue recovers once the store does
   REQUIRE(r.ok());
@@ -157,7 +162,7 @@ TEST_CASE("DecisionQueue: lanes exist only while deciding; unknown and finished 
   DecisionQueue queue(*m.ledger);
   CHECK(queue.lane_count() == 0);
   for (int k = 0; k < 1000; ++k) {
-    auto d = queue.decide(testing::tag("unknown-", k), "x", 0.5);
+    auto d = queue.decide(test_support::tag("unknown-", k), "x", 0.5);
     REQUIRE_FALSE(d.ok());
     CHECK(d.error().kind == ErrorKind::kRefused);
   }
@@ -167,7 +172,7 @@ TEST_CASE("DecisionQueue: lanes exist only while deciding; unknown and finished 
   for (int c = 0; c < 6; ++c) {
     threads.emplace_back([&, c] {
       for (int n = 0; n < 30; ++n) {
-        auto d = queue.decide("kept", testing::tag("c", c) + testing::tag("-", n), 0.3);
+        auto d = queue.decide("kept", test_support::tag("c", c) + test_support::tag("-", n), 0.3);
         CHECK(d.ok());
         std::size_t now = queue.lane_count(), seen = most.load();
         while (now > seen && !most.compare_exchange_weak(seen, now)) {
@@ -181,7 +186,7 @@ TEST_CASE("DecisionQueue: lanes exist only while deciding; unknown and finished 
   auto h = m.ledger->history("kept");
   REQUIRE(h.ok());
   CHECK(h->size() == 180);
-  testing::check_history_equals_replay(*h, config);
+  test_support::check_history_equals_replay(*h, config);
 }
 
 }  // namespace

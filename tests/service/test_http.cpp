@@ -12,16 +12,20 @@
 #include <thread>
 
 #include "alphaledger/ledger.hpp"
-#include "service_test_support.hpp"
+#include "support/history_check.hpp"
+#include "support/process.hpp"
+#include "support/server_process.hpp"
+#include "support/temp_dir.hpp"
+#include "support/text.hpp"
 
 namespace alphaledger {
 namespace {
 
-using testing::Child;
-using testing::read_file;
-using testing::ServerProcess;
-using testing::TempDir;
-using testing::write_file;
+using test_support::BackgroundProcess;
+using test_support::read_file;
+using test_support::ServerProcess;
+using test_support::TempDir;
+using test_support::write_file;
 
 struct Reply {
   int status = 0;       // 0: no response (connection failed)
@@ -145,7 +149,7 @@ TEST_CASE(
   for (int n = 0; n < kTests; ++n) {
     Plan& t = plan[static_cast<std::size_t>(n)];
     t.stream = streams[static_cast<std::size_t>(n % 4)].first;
-    t.id = testing::tag("exp-", n);
+    t.id = test_support::tag("exp-", n);
     t.p = unif(rng) < 0.15 ? unif(rng) * 1e-3 : unif(rng);
     t.retry = unif(rng) < 0.10;
     t.conflict = unif(rng) < 0.05;
@@ -187,7 +191,7 @@ TEST_CASE(
     const StoredStream s = read_stream(db, name);
     CHECK_MESSAGE(s.verify.ok, "verify: step " << s.verify.first_bad_step << ": " << s.verify.problem);
     CHECK(s.verify.steps == s.history.size());
-    testing::check_history_equals_replay(s.history, s.config);
+    test_support::check_history_equals_replay(s.history, s.config);
     for (const auto& r : s.history) stored[r.id] = r;
     total += s.history.size();
   }
@@ -229,7 +233,7 @@ TEST_CASE(
 
 // Runs the CLI on the ledger and returns its stdout (REQUIRES exit 0).
 std::string cli_output(const TempDir& dir, const std::vector<std::string>& args) {
-  Child child(args, {"/dev/null", dir.file("cli.out"), dir.file("cli.err")});
+  BackgroundProcess child(args, {"/dev/null", dir.file("cli.out"), dir.file("cli.err")});
   const auto code = child.wait(std::chrono::seconds(30));
   REQUIRE(code.has_value());
   REQUIRE_MESSAGE(*code == 0, read_file(dir.file("cli.err")));
@@ -274,7 +278,7 @@ TEST_CASE(
     Api api(server.port());
     REQUIRE(api.post("/v1/streams", R"({"name": "same", "rule": "addis", "alpha": 0.1})").status == 201);
     for (int k = 0; k < 5; ++k)
-      REQUIRE(api.decide("same", testing::tag("t", k), k == 2 ? 0.0002 : 0.3 + 0.1 * k).status == 201);
+      REQUIRE(api.decide("same", test_support::tag("t", k), k == 2 ? 0.0002 : 0.3 + 0.1 * k).status == 201);
     REQUIRE(api.post("/v1/streams", R"({"name": "directed", "rule": "saffron", "alternative": "greater"})")
                 .status == 201);
     directed = api.get("/v1/streams/directed").raw;
@@ -513,7 +517,7 @@ TEST_CASE(
         std::mt19937_64 rng(static_cast<std::uint64_t>(100 + c));
         std::uniform_real_distribution<double> unif(0.0, 1.0);
         for (int n = 0; n < 5000 && !stop.load(); ++n) {  // bounded; ends at the kill
-          const std::string id = testing::tag("c", c) + testing::tag("-", n);
+          const std::string id = test_support::tag("c", c) + test_support::tag("-", n);
           const Reply r = api.decide(c % 2 == 0 ? "kill-a" : "kill-b", id,
                                      unif(rng) < 0.1 ? unif(rng) * 1e-3 : unif(rng));
           if (r.status != 201) break;  // the server is gone: this request was never acknowledged
@@ -569,7 +573,7 @@ TEST_CASE(
   for (const std::string stream : {"kill-a", "kill-b"}) {
     const StoredStream s = read_stream(db, stream);
     CHECK_MESSAGE(s.verify.ok, "verify: step " << s.verify.first_bad_step << ": " << s.verify.problem);
-    testing::check_history_equals_replay(s.history, s.config);
+    test_support::check_history_equals_replay(s.history, s.config);
   }
 }
 
@@ -577,14 +581,14 @@ TEST_CASE("Server: pipe and serve refuse a ledger folder that does not exist (ex
   TempDir dir;
   const std::string missing = dir.file("no-such-ledger");
   {
-    Child serve({"--ledger", missing, "serve", "--listen", "127.0.0.1:0"},
+    BackgroundProcess serve({"--ledger", missing, "serve", "--listen", "127.0.0.1:0"},
                 {"/dev/null", dir.file("serve.out"), dir.file("serve.err")});
     CHECK(serve.wait(std::chrono::seconds(30)) == std::optional<int>(3));
     CHECK(read_file(dir.file("serve.err")).find("no ledger at") != std::string::npos);
   }
   {
     write_file(dir.file("in.jsonl"), "{\"id\": \"a\", \"p_value\": 0.1}\n");
-    Child pipe({"--ledger", missing, "pipe", "s"},
+    BackgroundProcess pipe({"--ledger", missing, "pipe", "s"},
                {dir.file("in.jsonl"), dir.file("pipe.out"), dir.file("pipe.err")});
     CHECK(pipe.wait(std::chrono::seconds(30)) == std::optional<int>(3));
     CHECK(read_file(dir.file("pipe.err")).find("no ledger at") != std::string::npos);
@@ -596,7 +600,7 @@ TEST_CASE("Server: a second serve on the same address refuses to start (exit 4, 
   TempDir dir;
   ServerProcess first(dir.file("db1"), dir.file("first.log"));
   REQUIRE(Ledger::open(dir.file("db2")).ok());
-  Child second(
+  BackgroundProcess second(
       {"--ledger", dir.file("db2"), "serve", "--listen", "127.0.0.1:" + std::to_string(first.port())},
       {"/dev/null", dir.file("second.out"), dir.file("second.err")});
   CHECK(second.wait(std::chrono::seconds(30)) == std::optional<int>(4));

@@ -21,8 +21,13 @@
 
 #include "alphaledger/service.hpp"
 #include "alphaledger/store.hpp"
-#include "service_test_support.hpp"
+#include "support/history_check.hpp"
+#include "support/process.hpp"
+#include "support/server_process.hpp"
+#include "support/temp_dir.hpp"
+#include "support/text.hpp"
 #include "store/codec.hpp"
+#include "store/faulty_store.hpp"
 
 namespace alphaledger {
 namespace {
@@ -347,13 +352,13 @@ TEST_CASE("HTTP hardening: unknown stream names leave nothing behind; lanes live
   s.create("real");
   for (int k = 0; k < 2000; ++k) {
     const std::string answer = s.exchange(request(
-        "POST", "/v1/streams/" + testing::tag("ghost-", k) + "/tests", R"({"id": "x", "p_value": 0.5})"));
+        "POST", "/v1/streams/" + test_support::tag("ghost-", k) + "/tests", R"({"id": "x", "p_value": 0.5})"));
     REQUIRE(status_of(answer) == 404);
   }
   CHECK(s.service->queue_lanes() == 0);
   for (int k = 0; k < 20; ++k) {
     const std::string answer = s.exchange(request(
-        "POST", "/v1/streams/real/tests", "{\"id\": \"" + testing::tag("t", k) + "\", \"p_value\": 0.5}"));
+        "POST", "/v1/streams/real/tests", "{\"id\": \"" + test_support::tag("t", k) + "\", \"p_value\": 0.5}"));
     REQUIRE(status_of(answer) == 201);
   }
   CHECK(s.service->queue_lanes() == 0);  // the idle lane was dropped
@@ -387,7 +392,7 @@ TEST_CASE("HTTP hardening: GET /v1/streams/{s}/verify answers the report; 200 wh
   s.create("checked");
   for (int k = 0; k < 3; ++k) {
     REQUIRE(status_of(s.exchange(request("POST", "/v1/streams/checked/tests",
-                                         "{\"id\": \"" + testing::tag("v", k) + "\", \"p_value\": 0.3}"))) ==
+                                         "{\"id\": \"" + test_support::tag("v", k) + "\", \"p_value\": 0.3}"))) ==
             201);
   }
   const std::string ok = s.exchange(request("GET", "/v1/streams/checked/verify", ""));
@@ -451,7 +456,7 @@ TEST_CASE("HTTP hardening: 32 and 64 concurrent keep-alive clients with 8 worker
         Raw raw(s.port);
         for (int n = 0; n < 10; ++n) {
           const std::string stream = (c + n) % 2 == 0 ? "many-a" : "many-b";
-          const std::string id = testing::tag("c", clients) + testing::tag("-", c) + testing::tag("-", n);
+          const std::string id = test_support::tag("c", clients) + test_support::tag("-", c) + test_support::tag("-", n);
           std::string bytes = n % 3 == 2 ? request("GET", "/v1/streams/" + stream + "/next", "")
                                          : request("POST", "/v1/streams/" + stream + "/tests",
                                                    "{\"id\": \"" + id + "\", \"p_value\": 0.25}");
@@ -474,7 +479,7 @@ TEST_CASE("HTTP hardening: 32 and 64 concurrent keep-alive clients with 8 worker
   for (const char* stream : {"many-a", "many-b"}) {
     auto h = s.ledger->history(stream);
     REQUIRE(h.ok());
-    testing::check_history_equals_replay(*h, s.ledger->status(stream)->config);
+    test_support::check_history_equals_replay(*h, s.ledger->status(stream)->config);
   }
 }
 

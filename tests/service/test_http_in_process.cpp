@@ -9,7 +9,12 @@
 
 #include "alphaledger/service.hpp"
 #include "alphaledger/store.hpp"
-#include "service_test_support.hpp"
+#include "support/history_check.hpp"
+#include "support/process.hpp"
+#include "support/server_process.hpp"
+#include "support/temp_dir.hpp"
+#include "support/text.hpp"
+#include "store/faulty_store.hpp"
 
 namespace alphaledger {
 namespace {
@@ -47,7 +52,7 @@ TEST_CASE(
         // Clients c and c ^ 1 (a pair) send the same tests, so each is sent twice at about the same time.
         const std::string stream = n % 2 == 0 ? "left" : "right";
         const std::string body = nlohmann::json{
-            {"id", testing::tag("pair", c / 2) + testing::tag("-", n)},
+            {"id", test_support::tag("pair", c / 2) + test_support::tag("-", n)},
             {"p_value",
              0.01 * (n % 7)}}.dump();
         auto r = cli.Post(("/v1/streams/" + stream + "/tests").c_str(), body, "application/json");
@@ -72,7 +77,7 @@ TEST_CASE(
     auto h = (*ledger)->history(s);
     REQUIRE(h.ok());
     CHECK(h->size() == 50);  // 25 tests per pair
-    testing::check_history_equals_replay(*h, config);
+    test_support::check_history_equals_replay(*h, config);
   }
 }
 
@@ -109,12 +114,12 @@ TEST_CASE("HttpService: options and addresses are checked") {
   CHECK(is_loopback_host("localhost"));
   CHECK_FALSE(is_loopback_host("0.0.0.0"));
   CHECK_FALSE(is_loopback_host("192.168.1.10"));
-  testing::TempDir dir;
-  testing::write_file(dir.file("empty"), "\n");
+  test_support::TempDir dir;
+  test_support::write_file(dir.file("empty"), "\n");
   CHECK_FALSE(read_token_file(dir.file("empty")).ok());
-  testing::write_file(dir.file("spaces"), "two words\n");
+  test_support::write_file(dir.file("spaces"), "two words\n");
   CHECK_FALSE(read_token_file(dir.file("spaces")).ok());
-  testing::write_file(dir.file("ok"), "  abc-123  \nignored\n");
+  test_support::write_file(dir.file("ok"), "  abc-123  \nignored\n");
   REQUIRE(read_token_file(dir.file("ok")).ok());
   CHECK(*read_token_file(dir.file("ok")) == "abc-123");
   CHECK_FALSE(read_token_file(dir.file("missing")).ok());

@@ -15,7 +15,12 @@
 #include "alphaledger/forms.hpp"
 #include "alphaledger/service.hpp"
 #include "alphaledger/store.hpp"
-#include "service_test_support.hpp"
+#include "support/history_check.hpp"
+#include "support/process.hpp"
+#include "support/server_process.hpp"
+#include "support/temp_dir.hpp"
+#include "support/text.hpp"
+#include "store/faulty_store.hpp"
 
 namespace alphaledger {
 namespace {
@@ -66,7 +71,7 @@ struct Wired {
   void fill(const std::string& name, int n) {
     std::vector<TestInput> tests;
     for (int k = 1; k <= n; ++k)
-      tests.push_back({testing::tag("t", k), k % 9 == 0 ? 0.00001 : 0.2 + 0.7 * ((k * 37) % 100) / 100.0});
+      tests.push_back({test_support::tag("t", k), k % 9 == 0 ? 0.00001 : 0.2 + 0.7 * ((k * 37) % 100) / 100.0});
     auto b = ledger->decide_batch(name, tests);
     REQUIRE(b.ok());
     REQUIRE_FALSE(b->error.has_value());
@@ -100,7 +105,7 @@ TEST_CASE("HTTP wire: POST /v1/streams/{s}/close closes once, then refuses tests
   w.create("ending");
   w.create("open-one");
   for (int k = 0; k < 3; ++k) {
-    REQUIRE(w.post("/v1/streams/ending/tests", "{\"id\": \"" + testing::tag("e", k) + "\", \"p_value\": 0.3}")
+    REQUIRE(w.post("/v1/streams/ending/tests", "{\"id\": \"" + test_support::tag("e", k) + "\", \"p_value\": 0.3}")
                 .status == 201);
   }
   const Answer closed = w.post("/v1/streams/ending/close", "");

@@ -1,6 +1,7 @@
 // `alphaledger pipe`: one answer per line, in order, durable before printed, bad lines answered
 // and skipped, SIGTERM finishing what was read. Most checks drive the real binary.
 #include <doctest/doctest.h>
+#include <fcntl.h>
 
 #include <nlohmann/json.hpp>
 
@@ -11,16 +12,21 @@
 #include "alphaledger/service.hpp"
 #include "alphaledger/store.hpp"
 #include "service/json_input.hpp"
-#include "service_test_support.hpp"
+#include "support/history_check.hpp"
+#include "support/process.hpp"
+#include "support/server_process.hpp"
+#include "support/temp_dir.hpp"
+#include "support/text.hpp"
+#include "store/faulty_store.hpp"
 
 namespace alphaledger {
 namespace {
 
-using testing::Child;
-using testing::read_file;
-using testing::split_lines;
-using testing::TempDir;
-using testing::write_file;
+using test_support::BackgroundProcess;
+using test_support::read_file;
+using test_support::split_lines;
+using test_support::TempDir;
+using test_support::write_file;
 
 void create_stream_on_disk(const std::string& ledger_dir, const std::string& name, const RuleSpec& spec) {
   auto ledger = Ledger::open(ledger_dir);
@@ -94,13 +100,13 @@ TEST_CASE(
           line = "[1, 2]";
           break;  // not an object
         case 3:
-          line = R"({"id": ")" + testing::tag("m", k) + R"("})";
+          line = R"({"id": ")" + test_support::tag("m", k) + R"("})";
           break;  // no p_value
         case 4:
-          line = R"({"id": ")" + testing::tag("r", k) + R"(", "p_value": 1.5})";
+          line = R"({"id": ")" + test_support::tag("r", k) + R"(", "p_value": 1.5})";
           break;  // out of range
         case 5:
-          line = R"({"id": ")" + testing::tag("s", k) + R"(", "p_value": "0.01"})";
+          line = R"({"id": ")" + test_support::tag("s", k) + R"(", "p_value": "0.01"})";
           break;  // wrong type
         case 6:
           line = R"({"id": "", "p_value": 0.01})";
@@ -125,7 +131,7 @@ TEST_CASE(
     } else {
       // Mostly nulls (uniform), some strong signals.
       const double p = unif(rng) < 0.1 ? std::pow(unif(rng), 4) * 1e-3 : unif(rng);
-      const std::string id = testing::tag("t", k);
+      const std::string id = test_support::tag("t", k);
       input += test_line(id, p) + (k == kLines ? "" : "\n");  // the last line has no newline
       expect.push_back({Expect::kDecision, id, p});
       good.emplace_back(id, p);
@@ -133,7 +139,7 @@ TEST_CASE(
   }
   write_file(dir.file("in.jsonl"), input);
 
-  Child child({"--ledger", db, "pipe", "monitor"},
+  BackgroundProcess child({"--ledger", db, "pipe", "monitor"},
               {dir.file("in.jsonl"), dir.file("out.jsonl"), dir.file("err.txt")});
   const auto code = child.wait(std::chrono::seconds(120));
   REQUIRE(code.has_value());
@@ -179,7 +185,7 @@ TEST_CASE(
     CHECK(history[k].id == good[k].first);
     CHECK(history[k].p_value == good[k].second);
   }
-  testing::check_history_equals_replay(history, config);
+  test_support::check_history_equals_replay(history, config);
 }
 
 TEST_CASE("Pipe: LORD++ levels and decisions equal the check values of methods.md 14.3") {
@@ -194,9 +200,9 @@ TEST_CASE("Pipe: LORD++ levels and decisions equal the check values of methods.m
   const std::string db = dir.file("db");
   create_stream_on_disk(db, "check-values", RuleSpec{.rule = "lord++"});
   std::string input;
-  for (int t = 0; t < 10; ++t) input += test_line(testing::tag("t", t + 1), p[t]) + "\n";
+  for (int t = 0; t < 10; ++t) input += test_line(test_support::tag("t", t + 1), p[t]) + "\n";
   write_file(dir.file("in.jsonl"), input);
-  Child child({"--ledger", db, "pipe", "check-values"},
+  BackgroundProcess child({"--ledger", db, "pipe", "check-values"},
               {dir.file("in.jsonl"), dir.file("out.jsonl"), dir.file("err.txt")});
   const auto code = child.wait();
   REQUIRE(code.has_value());
@@ -218,9 +224,9 @@ TEST_CASE(
   TempDir dir;
   const std::string db = dir.file("db");
   create_stream_on_disk(db, "live", RuleSpec{.rule = "lord++"});
-  Child child({"--ledger", db, "pipe", "live"}, {std::nullopt, dir.file("out.jsonl"), dir.file("err.txt")});
+  BackgroundProcess child({"--ledger", db, "pipe", "live"}, {std::nullopt, dir.file("out.jsonl"), dir.file("err.txt")});
   std::string batch;
-  for (int k = 1; k <= 40; ++k) batch += test_line(testing::tag("a", k), 0.5) + "\n";
+  for (int k = 1; k <= 40; ++k) batch += test_line(test_support::tag("a", k), 0.5) + "\n";
   child.write_stdin(batch);
   // Wait (bounded) until all 40 answers are out, so the process sits idle reading stdin.
   const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(30);
@@ -230,7 +236,7 @@ TEST_CASE(
   }
   // More lines, then SIGTERM straight away; stdin stays open, so only the signal ends the run.
   batch.clear();
-  for (int k = 41; k <= 60; ++k) batch += test_line(testing::tag("a", k), 0.5) + "\n";
+  for (int k = 41; k <= 60; ++k) batch += test_line(test_support::tag("a", k), 0.5) + "\n";
   child.write_stdin(batch + R"({"id": "half-written)");
   child.signal(SIGTERM);
   const auto code = child.wait(std::chrono::seconds(30));
@@ -251,7 +257,7 @@ TEST_CASE("Pipe: an unknown stream is refused with exit 3 before any line is rea
   const std::string db = dir.file("db");
   create_stream_on_disk(db, "exists", RuleSpec{.rule = "lord++"});
   write_file(dir.file("in.jsonl"), test_line("x", 0.1) + "\n");
-  Child child({"--ledger", db, "pipe", "missing"},
+  BackgroundProcess child({"--ledger", db, "pipe", "missing"},
               {dir.file("in.jsonl"), dir.file("out.jsonl"), dir.file("err.txt")});
   const auto code = child.wait();
   REQUIRE(code.has_value());
@@ -329,7 +335,7 @@ TEST_CASE("Pipe: a storage failure answers the line it hit, stops, and nothing u
   PipeFixture f;
   REQUIRE(f.ledger->decide("s", "before", 0.3).ok());
   f.faulty.fail_all_writes("No space left on device");
-  const auto before = f.memory.dump();
+  const auto before = copy_contents(f.memory);
   auto [summary, answers] = f.run(test_line("a", 0.2) + "\n" + test_line("b", 0.3) + "\n");
   REQUIRE_FALSE(summary.ok());
   CHECK(summary.error().kind == ErrorKind::kStorage);
@@ -337,7 +343,7 @@ TEST_CASE("Pipe: a storage failure answers the line it hit, stops, and nothing u
   auto j = nlohmann::json::parse(answers[0]);
   CHECK(j["line"] == 1);
   CHECK(j["error"].get<std::string>().find("No space left") != std::string::npos);
-  CHECK(f.memory.dump() == before);  // the ledger is as it was
+  CHECK(copy_contents(f.memory) == before);  // the ledger is as it was
 }
 
 // ---- one meaning for each input: pipe lines read as JSON Lines rows are (docs/formats.md) -------
@@ -485,7 +491,7 @@ TEST_CASE("stream_request_from_json: known keys with one type each; unknown keys
 TEST_CASE("replay reads standard input when the file is '-'") {
   TempDir dir;
   write_file(dir.file("in.csv"), "id,p_value\ra,0.001\rb,0.5\r");  // CR-only line ends, too
-  Child child({"replay", "-", "--format", "csv"},
+  BackgroundProcess child({"replay", "-", "--format", "csv"},
               {dir.file("in.csv"), dir.file("out.csv"), dir.file("err.txt")});
   const auto code = child.wait();
   REQUIRE(code.has_value());

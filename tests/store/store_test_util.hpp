@@ -1,5 +1,5 @@
 // Helpers shared by the store tests: seeded p-value streams, the methods.md section 14 stream,
-// temporary folders, and bitwise comparisons.
+// the temporary folder, and bitwise comparisons.
 #pragma once
 
 #include <doctest/doctest.h>
@@ -15,6 +15,7 @@
 
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/replay.hpp"
+#include "support/temp_dir.hpp"
 
 namespace store_test {
 
@@ -70,26 +71,8 @@ inline std::vector<alphaledger::Decision> replay_decisions(const alphaledger::Ru
   return alphaledger::replay(log, {proc}).decisions.at(0);
 }
 
-// A fresh temporary folder, removed with everything in it at scope exit.
-class TempDir {
- public:
-  TempDir() {
-    std::string tmpl = (std::filesystem::temp_directory_path() / "alphaledger-test-XXXXXX").string();
-    REQUIRE(::mkdtemp(tmpl.data()) != nullptr);
-    path_ = tmpl;
-  }
-  ~TempDir() {
-    std::error_code ec;
-    std::filesystem::remove_all(path_, ec);
-  }
-  TempDir(const TempDir&) = delete;
-  TempDir& operator=(const TempDir&) = delete;
-  const std::string& path() const { return path_; }
-  std::string sub(const std::string& name) const { return (std::filesystem::path(path_) / name).string(); }
-
- private:
-  std::string path_;
-};
+// The tests' one temporary-folder helper (tests/support/temp_dir.hpp).
+using TempDir = alphaledger::test_support::TempDir;
 
 // A clock that advances one millisecond per call from a fixed start (tests control time).
 inline alphaledger::Clock ticking_clock(std::int64_t start = 1700000000000) {

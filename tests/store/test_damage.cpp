@@ -27,6 +27,7 @@
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/store.hpp"
 #include "store_test_util.hpp"
+#include "store/faulty_store.hpp"
 
 using namespace alphaledger;
 using store_test::numbered;

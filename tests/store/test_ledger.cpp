@@ -12,6 +12,7 @@
 #include "alphaledger/store.hpp"
 #include "store/codec.hpp"
 #include "store_test_util.hpp"
+#include "store/faulty_store.hpp"
 
 using namespace alphaledger;
 using store_test::kTableStream;
@@ -194,7 +195,7 @@ TEST_CASE("Ledger: a test id is decided once; repeats change nothing and conflic
   auto first = ledger->decide("s", "exp-1", 0.0004);
   REQUIRE(first.ok());
   REQUIRE(ledger->decide("s", "exp-2", 0.0012).ok());
-  const auto before = store.dump();
+  const auto before = copy_contents(store);
 
   for (int pass = 0; pass < 2; ++pass) {  // with a warm, then a cold (reopened) ledger
     CAPTURE(pass);
@@ -204,14 +205,14 @@ TEST_CASE("Ledger: a test id is decided once; repeats change nothing and conflic
     CHECK(again->record.step == 1);
     CHECK(same_bits(again->record.level, first->record.level));
     CHECK(again->record.decided_at_ms == first->record.decided_at_ms);
-    CHECK(store.dump() == before);
+    CHECK(copy_contents(store) == before);
 
     auto conflict = ledger->decide("s", "exp-1", 0.0005);
     REQUIRE_FALSE(conflict.ok());
     CHECK(conflict.error().kind == ErrorKind::kRefused);
     CHECK(conflict.error().message.find("step 1") != std::string::npos);
     CHECK(conflict.error().message.find("0.0005") != std::string::npos);
-    CHECK(store.dump() == before);
+    CHECK(copy_contents(store) == before);
     ledger = open_over(store);
   }
   // A repeat does not consume a step: the next new test is step 3.
@@ -225,7 +226,7 @@ TEST_CASE("Ledger: bad input and unknown streams are refused and change nothing"
   auto ledger = open_over(store);
   REQUIRE(ledger->create_stream("s", config_of({.rule = "saffron"})).ok());
   REQUIRE(ledger->decide("s", "a", 0.2).ok());
-  const auto before = store.dump();
+  const auto before = copy_contents(store);
 
   struct Case {
     std::string stream, id;
@@ -253,7 +254,7 @@ TEST_CASE("Ledger: bad input and unknown streams are refused and change nothing"
     REQUIRE_FALSE(d.ok());
     CHECK(d.error().kind == c.kind);
     CHECK(d.error().message.find(c.says) != std::string::npos);
-    CHECK(store.dump() == before);
+    CHECK(copy_contents(store) == before);
   }
   CHECK(ledger->next_level("nope").error().kind == ErrorKind::kRefused);
   CHECK(ledger->status("nope").error().kind == ErrorKind::kRefused);
@@ -262,7 +263,7 @@ TEST_CASE("Ledger: bad input and unknown streams are refused and change nothing"
   auto batch = ledger->decide_batch("s", {{"c", 0.1}, {"d", 7.0}});
   REQUIRE_FALSE(batch.ok());
   CHECK(batch.error().message.find("test 2 of the batch") != std::string::npos);
-  CHECK(store.dump() == before);
+  CHECK(copy_contents(store) == before);
 }
 
 // docs/cli.md "new": same configuration -> succeeds and changes nothing; another -> refused.
@@ -273,20 +274,20 @@ TEST_CASE("Ledger: a stream's configuration is frozen at creation") {
   REQUIRE(created.ok());
   CHECK(created->created);
   CHECK(created->info.created_at_ms == 1700000000000);
-  const auto before = store.dump();
+  const auto before = copy_contents(store);
   auto same = ledger->create_stream("team.checkout", config_of({.rule = "addis", .alpha = 0.05}));
   REQUIRE(same.ok());
   CHECK_FALSE(same->created);
-  CHECK(store.dump() == before);
+  CHECK(copy_contents(store) == before);
   auto other = ledger->create_stream("team.checkout", config_of({.rule = "addis", .discard_threshold = 0.6}));
   REQUIRE_FALSE(other.ok());
   CHECK(other.error().kind == ErrorKind::kRefused);
   CHECK(other.error().message.find("discard_threshold=0.5") != std::string::npos);
-  CHECK(store.dump() == before);
+  CHECK(copy_contents(store) == before);
   RuleConfig broken = config_of({.rule = "lord++"});
   broken.initial_wealth = 0.5;  // not something resolve_config() returns
   CHECK(ledger->create_stream("other", broken).error().kind == ErrorKind::kInvalidInput);
-  CHECK(store.dump() == before);
+  CHECK(copy_contents(store) == before);
   auto all = ledger->streams();
   REQUIRE(all.ok());
   REQUIRE(all->size() == 1);
@@ -301,13 +302,13 @@ TEST_CASE("Ledger: a stream's direction is frozen with its configuration") {
   auto created = ledger->create_stream_directed("s", config, Alternative::kGreater);
   REQUIRE(created.ok());
   CHECK(created->info.alternative == Alternative::kGreater);
-  const auto before = store.dump();
+  const auto before = copy_contents(store);
   CHECK_FALSE(ledger->create_stream_directed("s", config, Alternative::kGreater)->created);
   auto other = ledger->create_stream("s", config);  // two-sided: another configuration
   REQUIRE_FALSE(other.ok());
   CHECK(other.error().kind == ErrorKind::kRefused);
   CHECK(other.error().message.find("alternative=greater") != std::string::npos);
-  CHECK(store.dump() == before);
+  CHECK(copy_contents(store) == before);
   CHECK(open_over(store)->status("s")->alternative == Alternative::kGreater);
   REQUIRE(ledger->create_stream("t", config).ok());
   CHECK(ledger->status("t")->alternative == Alternative::kTwoSided);
@@ -332,13 +333,13 @@ TEST_CASE("Ledger: a failed write leaves no trace and is reported") {
     faults->fail_write_in(fail_at);
     std::size_t failures = 0;
     for (std::size_t i = 0; i < p.size(); ++i) {
-      const auto before = mem.dump();
+      const auto before = copy_contents(mem);
       auto d = ledger->decide("s", store_test::numbered("t", i + 1), p[i]);
       if (!d.ok()) {
         ++failures;
         CHECK(d.error().kind == ErrorKind::kStorage);
         CHECK(d.error().message.find("injected fault") != std::string::npos);
-        CHECK(mem.dump() == before);                                      // no trace
+        CHECK(copy_contents(mem) == before);                                      // no trace
         d = ledger->decide("s", store_test::numbered("t", i + 1), p[i]);  // the retry
         REQUIRE(d.ok());
       }
@@ -361,7 +362,7 @@ TEST_CASE("Ledger: a full disk refuses every change with a storage error") {
   auto ledger = std::move(Ledger::open(std::move(faulty), store_test::ticking_clock()).value());
   REQUIRE(ledger->create_stream("s", config_of({.rule = "lond"})).ok());
   REQUIRE(ledger->decide("s", "a", 0.0001).ok());
-  const auto before = mem.dump();
+  const auto before = copy_contents(mem);
   faults->fail_all_writes("No space left on device");
   auto d = ledger->decide("s", "b", 0.5);
   REQUIRE_FALSE(d.ok());
@@ -375,7 +376,7 @@ TEST_CASE("Ledger: a full disk refuses every change with a storage error") {
   CHECK(batch->decided.empty());
   CHECK(ledger->status("s")->tests == 1);
   CHECK(ledger->decide("s", "a", 0.0001)->repeat);  // reads still answer repeats
-  CHECK(mem.dump() == before);
+  CHECK(copy_contents(mem) == before);
   faults->clear_faults();
   CHECK(ledger->decide("s", "b", 0.5)->record.step == 2);
 }
@@ -414,12 +415,12 @@ TEST_CASE("Ledger: decide_batch writes groups, reports them only when durable, a
       CHECK(r->decided[i].record.rejected == expected[i].rejected);
     }
     // Running the same batch again (a resumed run) repeats every decision and writes nothing.
-    const auto dump = mem.dump();
+    const auto dump = copy_contents(mem);
     auto again = ledger->decide_batch("s", inputs, 8);
     REQUIRE(again.ok());
     CHECK(again->decided.size() == 50);
     for (const auto& d : again->decided) CHECK(d.repeat);
-    CHECK(mem.dump() == dump);
+    CHECK(copy_contents(mem) == dump);
   }
   SUBCASE("a failed group write keeps exactly the earlier groups") {
     MemoryStore mem;
@@ -453,21 +454,21 @@ TEST_CASE("Ledger: decide_batch writes groups, reports them only when durable, a
     auto ledger = open_over(mem);
     REQUIRE(ledger->create_stream("s", config).ok());
     REQUIRE(ledger->decide("s", "t40", 0.999).ok());  // t40 is in the batch with another p
-    const auto before = mem.dump();
+    const auto before = copy_contents(mem);
     auto r = ledger->decide_batch("s", inputs, 4);
     REQUIRE(r.ok());
     REQUIRE(r->error.has_value());
     CHECK(r->error->kind == ErrorKind::kRefused);
     CHECK(r->stopped_at == 39);
     CHECK(r->decided.empty());
-    CHECK(mem.dump() == before);
+    CHECK(copy_contents(mem) == before);
 
     auto twice = ledger->decide_batch("s", {{"x", 0.1}, {"y", 0.2}, {"x", 0.3}});
     REQUIRE(twice.ok());
     REQUIRE(twice->error.has_value());
     CHECK(twice->error->message.find("appears twice") != std::string::npos);
     CHECK(twice->stopped_at == 2);
-    CHECK(mem.dump() == before);
+    CHECK(copy_contents(mem) == before);
   }
   SUBCASE("an id given twice with the same p-value is decided once") {
     MemoryStore mem;
@@ -716,7 +717,7 @@ TEST_CASE("Ledger: open checks the format version") {
     auto l = Ledger::open(borrow_store(mem));
     REQUIRE_FALSE(l.ok());
     CHECK(l.error().message.find("no format version") != std::string::npos);
-    CHECK(mem.dump().size() == 1);  // nothing written
+    CHECK(copy_contents(mem).size() == 1);  // nothing written
   }
 }
 

@@ -16,6 +16,7 @@
 #include "store/codec.hpp"
 #include "store/sha256.hpp"
 #include "store_test_util.hpp"
+#include "store/faulty_store.hpp"
 
 using namespace alphaledger;
 
@@ -143,13 +144,13 @@ TEST_CASE("Ledger close: a closed stream takes no more tests and keeps a verifia
   CHECK(head_of(mem, "s").last_hash == store::sha256(preimage));  // the head carries the closing
   CHECK(head_of(mem, "s").closed_at_ms == closed_at);
 
-  const auto before = mem.dump();
+  const auto before = copy_contents(mem);
   auto again = ledger->close_stream("s");
   REQUIRE(again.ok());
   CHECK_FALSE(again->newly_closed);
   CHECK(again->info.closed_at_ms == closed_at);
   CHECK(again->closing_hash == closing->closing_hash);
-  CHECK(mem.dump() == before);
+  CHECK(copy_contents(mem) == before);
 
   for (int pass = 0; pass < 2; ++pass) {  // warm, then cold (reopened over the same store)
     CAPTURE(pass);
@@ -167,7 +168,7 @@ TEST_CASE("Ledger close: a closed stream takes no more tests and keeps a verifia
     CHECK(batch.error().kind == ErrorKind::kRefused);
     CHECK(batch.error().message.find("is closed since") != std::string::npos);
     CHECK(ledger->next_level("s").error().kind == ErrorKind::kRefused);
-    CHECK(mem.dump() == before);
+    CHECK(copy_contents(mem) == before);
 
     auto info = ledger->status("s");
     REQUIRE(info.ok());
@@ -222,12 +223,12 @@ TEST_CASE("Ledger close: a failed write leaves the stream open") {
   auto ledger = std::move(Ledger::open(std::move(faulty), store_test::ticking_clock()).value());
   REQUIRE(ledger->create_stream("s", lord()).ok());
   REQUIRE(ledger->decide("s", "a", 0.01).ok());
-  const auto before = mem.dump();
+  const auto before = copy_contents(mem);
   faults->fail_all_writes("No space left on device");
   auto c = ledger->close_stream("s");
   REQUIRE_FALSE(c.ok());
   CHECK(c.error().kind == ErrorKind::kStorage);
-  CHECK(mem.dump() == before);
+  CHECK(copy_contents(mem) == before);
   faults->clear_faults();
   CHECK_FALSE(ledger->status("s")->closed_at_ms.has_value());
   CHECK(ledger->decide("s", "b", 0.5)->record.step == 2);
@@ -274,10 +275,10 @@ TEST_CASE("Ledger close: a reopen by hand is detected") {
   const Anchor closed_anchor{0, true, closing->closing_hash};
   const Anchor last_anchor{8, false, store::to_hex(record_hash(mem, "s", 8))};
   CHECK(open_over(mem)->verify("s", {closed_anchor, last_anchor})->ok);
-  const auto closed_state = mem.dump();
+  const auto closed_state = copy_contents(mem);
   auto restore = [&] {
     WriteBatch b;
-    for (const auto& [k, v] : mem.dump())
+    for (const auto& [k, v] : copy_contents(mem))
       if (!closed_state.count(k)) b.erase(k);
     for (const auto& [k, v] : closed_state) b.put(k, v);
     REQUIRE(mem.write(b).ok());
@@ -631,7 +632,7 @@ TEST_CASE("Ledger cache: names of streams that do not exist are never kept") {
   REQUIRE(ledger->create_stream("real", lord()).ok());
   REQUIRE(ledger->decide("real", "a", 0.01).ok());
   CHECK(ledger->cached_streams() == 1);
-  const auto before = mem.dump();
+  const auto before = copy_contents(mem);
   for (std::size_t i = 0; i < 50000; ++i) {
     const std::string name = store_test::numbered("ghost-", i);
     auto kind_of = [](const auto& result) {
@@ -670,7 +671,7 @@ TEST_CASE("Ledger cache: names of streams that do not exist are never kept") {
     }
   }
   CHECK(ledger->cached_streams() == 1);
-  CHECK(mem.dump() == before);
+  CHECK(copy_contents(mem) == before);
   // A stream created after its name was asked for works normally and is then cached.
   CHECK(ledger->status("ghost-7").error().kind == ErrorKind::kRefused);
   REQUIRE(ledger->create_stream("ghost-7", lord()).ok());

@@ -1,0 +1,21 @@
+// The fitting steps behind the spending sequences' fast mode (src/core/spending.cpp), declared
+// here so the core tests can check them directly. Project-internal; not installed.
+#pragma once
+
+#include <cstddef>
+#include <vector>
+
+#include "alphaledger/spending.hpp"
+
+namespace alphaledger {
+
+// Fits a power-law mixture: trapezoid rule in u = ln x, step h, range
+// [u_lo, u_hi]; weights renormalised so the mass is exactly `mass`.
+GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi, double mass);
+
+// Nonnegative least squares min ||A w - b||, w >= 0 (Lawson–Hanson active set, Householder QR on
+// the passive columns). A is row-major rows x cols. Deterministic.
+std::vector<double> nonnegative_least_squares(const std::vector<double>& a, std::size_t rows,
+                                              std::size_t cols, const std::vector<double>& b);
+
+}  // namespace alphaledger
