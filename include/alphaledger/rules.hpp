@@ -78,7 +78,7 @@ struct RuleConfig {
 std::string default_spending(RuleKind kind);  // "power:1.6", "jm", "power-shift:1.6", or ""
 
 // Fills defaults and checks every condition of the rule. A parameter the rule does not take
-// (e.g. --payout for lord++) is refused. Errors are kInvalidInput and name the broken condition,
+// (e.g. --payout for lord++) is refused. Errors are kInvalidArgument and name the broken condition,
 // e.g. "initial_wealth must satisfy 0 <= W0 <= alpha = 0.05 for lord++, got 0.2".
 Result<RuleConfig> resolve_config(const RuleSpec& spec);
 
@@ -115,7 +115,7 @@ class Rule {
   // encoded state into a Rule of the same configuration continues bit-identically.
   std::string encode_state() const;
   // On failure (truncated, wrong version, wrong shape for this configuration) returns
-  // kStorage and leaves this Rule unchanged.
+  // kCorruption and leaves this Rule unchanged.
   Status restore_state(std::string_view bytes);
 
   // The spending sequence in use (exact mode) or its mixture (fast mode). Null for

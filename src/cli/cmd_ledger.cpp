@@ -11,7 +11,7 @@
 #include "alphaledger/test_log.hpp"
 #include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger::cli {
 namespace {
@@ -193,7 +193,7 @@ Status run_decide_file(const DecideOptions& o, const GlobalOptions& g, std::ostr
     const CompactRecord& at = log->records[batch->stopped_at];
     Error e = *batch->error;
     e.message = log->source + ":" + std::to_string(at.line) + ": " + e.message;
-    if (e.kind == ErrorKind::kStorage && !batch->decided.empty()) {
+    if (is_storage_failure(e.kind) && !batch->decided.empty()) {
       e.message += " (the rows printed above are decided and durable; run the same command again to resume)";
     }
     return e;
@@ -262,7 +262,7 @@ Status run_status(const StreamOptions& o, const GlobalOptions& g, std::ostream& 
 Status run_streams(const GlobalOptions& g, std::ostream& out) {
   auto ledger = open_for_reading(g);
   if (!ledger) {
-    if (ledger.error().kind == ErrorKind::kRefused) {  // no ledger yet: no streams
+    if (ledger.error().kind == ErrorKind::kNotFound) {  // no ledger yet: no streams
       spdlog::warn("{}", ledger.error().message);
       return {};
     }
@@ -368,8 +368,9 @@ Status run_verify(const VerifyOptions& o, const GlobalOptions& g, std::ostream& 
     out << dump(j) << '\n';
   }
   if (!report->ok) {
-    return refused("stream " + o.stream + " fails verification at step " +
-                   std::to_string(report->first_bad_step) + ": " + report->problem);
+    return conflict("stream " + o.stream + " fails verification at step " +
+                        std::to_string(report->first_bad_step) + ": " + report->problem,
+                    "verification_failed");
   }
   if (!g.json) {
     out << "ok: stream " << o.stream << ", " << report->steps

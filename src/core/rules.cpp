@@ -527,12 +527,12 @@ Status Rule::restore_state(std::string_view bytes) {
   const auto kind = r.u8();
   const auto evaluation = r.u8();
   if (!r.ok || version != kStateVersion) {
-    return storage_error("rule state has format version " + std::to_string(version) +
+    return corruption("rule state has format version " + std::to_string(version) +
                          ", this build reads version " + std::to_string(kStateVersion));
   }
   if (kind != static_cast<std::uint8_t>(config_.kind) ||
       evaluation != static_cast<std::uint8_t>(config_.evaluation)) {
-    return storage_error("rule state belongs to another rule or evaluation mode");
+    return corruption("rule state belongs to another rule or evaluation mode");
   }
   Rule next = *this;
   next.step_ = r.u64();
@@ -541,19 +541,19 @@ Status Rule::restore_state(std::string_view bytes) {
   next.last_rejection_ = r.u64();
   next.clock_ = r.u64();
   const std::uint64_t nd = r.u64();
-  if (!r.ok || nd > r.in.size() / 8) return storage_error("rule state is truncated (deposits)");
+  if (!r.ok || nd > r.in.size() / 8) return corruption("rule state is truncated (deposits)");
   next.deposit_clock_.assign(nd, 0);
   for (auto& c : next.deposit_clock_) c = r.u64();
   const std::uint64_t nh = r.u64();
-  if (!r.ok || nh != head_.size()) return storage_error("rule state has the wrong head size");
+  if (!r.ok || nh != head_.size()) return corruption("rule state has the wrong head size");
   for (auto& h : next.head_) h = r.f64();
   const std::uint64_t na = r.u64();
-  if (!r.ok || na != accumulator_.size()) return storage_error("rule state has the wrong accumulator count");
+  if (!r.ok || na != accumulator_.size()) return corruption("rule state has the wrong accumulator count");
   for (auto& a : next.accumulator_) a = r.f64();
-  if (!r.ok || !r.in.empty()) return storage_error("rule state is truncated or has trailing bytes");
+  if (!r.ok || !r.in.empty()) return corruption("rule state is truncated or has trailing bytes");
   const bool exact_deposits = is_deposit_rule(config_.kind) && mixture_ == nullptr;
   if (exact_deposits && (nd != next.rejections_ + 1)) {
-    return storage_error("rule state is inconsistent: deposit count does not match rejections");
+    return corruption("rule state is inconsistent: deposit count does not match rejections");
   }
   if (next.mixture_ != nullptr) {
     next.fast_sum_ = next.mixture_sum();

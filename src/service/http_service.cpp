@@ -11,6 +11,7 @@
 #include "alphaledger/service.hpp"
 #include "alphaledger/stats.hpp"
 #include "alphaledger/test_log.hpp"
+#include "service/error_status.hpp"
 #include "service/http_server.hpp"
 
 namespace alphaledger {
@@ -19,6 +20,8 @@ namespace {
 using Json = nlohmann::ordered_json;
 using http::Request;
 using http::Response;
+using http::ErrorStatus;
+using http::error_status;
 
 Response json_response(int status, const Json& body) {
   return Response{status, dump_json(body) + "\n", {}, false};
@@ -31,18 +34,10 @@ Response error_response(int status, std::string_view code, const std::string& me
   return json_response(status, j);
 }
 
-// Ledger errors to HTTP (docs/http.md "Errors"). kRefused is a conflict here: unknown streams are
-// recognised before the ledger is asked (see Routes::find_stream).
+// Ledger errors to HTTP: the table is service/error_status.cpp.
 Response ledger_error(const Error& e) {
-  switch (e.kind) {
-    case ErrorKind::kInvalidInput:
-      return error_response(400, "invalid_input", e.message);
-    case ErrorKind::kRefused:
-      return error_response(409, "conflict", e.message);
-    case ErrorKind::kStorage:
-      return error_response(503, "storage", e.message);
-  }
-  return error_response(500, "internal", "internal error");
+  const ErrorStatus mapped = error_status(e);
+  return error_response(mapped.status, mapped.code, e.message);
 }
 
 bool same_secret(std::string_view a, std::string_view b) {
@@ -275,7 +270,7 @@ class Routes {
     std::lock_guard<std::mutex> lock(health_mu_);
     if (failure == nullptr) {
       storage_failure_.reset();
-    } else if (failure->kind == ErrorKind::kStorage) {
+    } else if (is_storage_failure(failure->kind)) {
       storage_failure_ = failure->message;
     }
   }
@@ -313,7 +308,7 @@ class Routes {
   Result<StreamInfo> find_stream(const std::string& name, Response& error) {
     auto s = ledger_.status(name);
     if (s) return s;
-    if (s.error().kind == ErrorKind::kRefused) {
+    if (s.error().kind == ErrorKind::kNotFound) {
       error = error_response(404, "unknown_stream",
                              "no stream named '" + excerpt(name) + "'; create it with POST /v1/streams");
     } else {
