@@ -19,7 +19,7 @@ order="${order% < }"
 
 declare -A header_layer=(
   [result.hpp]=core [rules.hpp]=core [spending.hpp]=core [offline.hpp]=core [stats.hpp]=core
-  [version.hpp]=core
+  [version.hpp]=core [text.hpp]=core
   [store.hpp]=store [ledger.hpp]=store
   [test_log.hpp]=harness [replay.hpp]=harness [simulate.hpp]=harness
   [service.hpp]=service

@@ -16,10 +16,11 @@
 //
 // Thread-safety: a Ledger is safe to use from many threads. Decisions on one stream are
 // serialised; different streams proceed in parallel. A second *process* opening the same folder
-// gets kStorage naming the lock holder.
+// gets kBusy naming the lock holder.
 //
-// Failure: every fallible member returns an Error (kInvalidInput, kRefused or kStorage: exit
-// codes 2, 3 and 4, docs/ledger.md) and leaves the ledger as it was, except where a member says otherwise
+// Failure: every fallible member returns an Error (alphaledger/result.hpp; the kinds and what the
+// command line and HTTP make of them: docs/errors.md) and leaves the ledger as it was, except where a
+// member says otherwise
 // (decide_batch keeps the groups that were already durable).
 #pragma once
 
@@ -97,7 +98,7 @@ struct Anchor {
 };
 
 // Reads "STEP:HASH" (STEP a decimal step number, 0 for the configuration) or "closed:HASH", where
-// HASH is 64 hex digits in either case. Errors (kInvalidInput) say what is accepted and quote at
+// HASH is 64 hex digits in either case. Errors (kInvalidArgument) say what is accepted and quote at
 // most an excerpt() of the text.
 // Example:
 //   auto anchor = parse_anchor("12:" + std::string(64, 'F'));
@@ -135,22 +136,22 @@ struct HistoryPage {
 class Ledger {
  public:
   // Opens (creating if absent) the RocksDB ledger in folder `path`.
-  // Errors (kStorage): locked by another process (names the lock), corrupt, newer format,
+  // Errors: locked by another process (kBusy, names the lock), corrupt (kCorruption), newer format,
   // unwritable folder.
   static Result<std::unique_ptr<Ledger>> open(const std::string& path, Clock clock = system_clock_ms);
   // The same with store options; with create_if_missing == false a folder holding no ledger is
-  // kRefused ("no ledger at ...") and nothing is created (read-only commands use this).
+  // kNotFound ("no ledger at ...", code no_ledger) and nothing is created (read-only commands use this).
   static Result<std::unique_ptr<Ledger>> open(const std::string& path, const RocksStoreOptions& options,
                                               Clock clock = system_clock_ms);
   // Over any Store (tests: in-memory or fault-injecting). An empty store gets the format version
-  // key; a store with data but no version key, or a newer version, is kStorage.
+  // key; a store with data but no version key, or a newer version, is kCorruption.
   static Result<std::unique_ptr<Ledger>> open(std::unique_ptr<Store> store, Clock clock = system_clock_ms);
   virtual ~Ledger() = default;
 
   // Creates a stream. Same name and same configuration: succeeds, changes nothing, and returns
-  // created == false. Same name, other configuration: kRefused. Bad name: kInvalidInput (names
+  // created == false. Same name, other configuration: kConflict. Bad name: kInvalidArgument (names
   // are 1..128 bytes of ASCII letters, digits, '-', '_', '.', and not "." or ".."; see
-  // docs/ledger.md). A config that resolve_config() would not produce: kInvalidInput.
+  // docs/ledger.md). A config that resolve_config() would not produce: kInvalidArgument.
   // REQUIRES: config came from resolve_config().
   struct Created {
     StreamInfo info;
@@ -162,14 +163,14 @@ class Ledger {
   virtual Result<Created> create_stream_directed(std::string_view name, const RuleConfig& config,
                                                  Alternative alternative) = 0;
 
-  // Decides one test. Unknown stream: kRefused. Bad id or p-value: kInvalidInput. Same id and
+  // Decides one test. Unknown stream: kNotFound. Bad id or p-value: kInvalidArgument. Same id and
   // same p-value as before: the stored decision with repeat = true. Same id, other p-value:
-  // kRefused. On any failure the ledger is unchanged. The decision is durable (synced) before
+  // kConflict. On any failure the ledger is unchanged. The decision is durable (synced) before
   // this returns.
   virtual Result<DecideResult> decide(std::string_view stream, std::string_view id, double p_value) = 0;
 
   // Decides tests in order with one synced write per group (group commit). Every input is
-  // checked first: a bad id or p-value (kInvalidInput), or a conflict (kRefused: an id already
+  // checked first: a bad id or p-value (kInvalidArgument), or a conflict (kConflict: an id already
   // decided with another p-value, or given twice in the batch with different p-values) refuses
   // the whole batch with the ledger unchanged, as BatchResult{decided = {}, error, stopped_at}.
   // Only a storage failure can stop a batch part-way: the groups written before it stay
@@ -179,10 +180,10 @@ class Ledger {
     std::optional<Error> error;         // set if the batch was refused or stopped early
     std::size_t stopped_at = 0;         // index of the input that failed, when error is set
   };
-  // Errors returned directly (nothing decided): bad stream name, id or p-value (kInvalidInput,
-  // naming the input's 1-based position), unknown stream (kRefused). In the BatchResult: a
+  // Errors returned directly (nothing decided): bad stream name, id or p-value (kInvalidArgument,
+  // naming the input's 1-based position), unknown stream (kNotFound). In the BatchResult: a
   // conflict (nothing decided; `stopped_at` is the conflicting input), or a storage failure while
-  // writing a group (`error` is kStorage, `stopped_at` is the first input of the group that was
+  // writing a group (`error` is kCorruption, kIOError or kBusy, `stopped_at` is the first input of the group that was
   // not written, `decided` holds the earlier, durable groups). Within the batch, an id repeated
   // with the same p-value is a repeat of its first occurrence. Default group_size: 256 (0 is
   // taken as 1).
@@ -202,7 +203,7 @@ class Ledger {
   // Closes a stream: it takes no more tests, and its history stays readable and verifiable. The
   // closing time is hashed into the chain (docs/ledger-format.md "Closing"), so verify covers it.
   // Closing a closed stream succeeds, changes nothing and returns newly_closed == false. Unknown
-  // stream: kRefused. Afterwards decide, decide_batch and next_level refuse the stream (kRefused,
+  // stream: kConflict. Afterwards decide, decide_batch and next_level refuse the stream (kConflict,
   // "stream X is closed since TIME"), repeats of earlier tests included.
   struct Closing {
     StreamInfo info;           // closed_at_ms is set
@@ -211,18 +212,18 @@ class Ledger {
   };
   virtual Result<Closing> close_stream(std::string_view stream) = 0;
 
-  // The level the next test will get; changes nothing. Unknown stream, closed stream: kRefused.
+  // The level the next test will get; changes nothing. Unknown stream: kNotFound; closed stream: kConflict.
   virtual Result<double> next_level(std::string_view stream) = 0;
-  // Configuration, counts, wealth, next level, created time, closing time. Unknown stream: kRefused.
+  // Configuration, counts, wealth, next level, created time, closing time. Unknown stream: kNotFound.
   virtual Result<StreamInfo> status(std::string_view stream) = 0;
   // Every stream, by name in byte order.
   virtual Result<std::vector<StreamInfo>> streams() = 0;
   // Every decision in step order, in one vector (for_each_decision reads the same without holding
-  // them all). Unknown stream: kRefused; an undecodable or missing record: kStorage.
+  // them all). Unknown stream: kNotFound; an undecodable or missing record: kCorruption.
   virtual Result<std::vector<DecisionRecord>> history(std::string_view stream) = 0;
   // At most `limit` records with step >= from_step, in step order, reading only those records
   // (from_step 0 is taken as 1). A from_step past the last record gives an empty page. Unknown
-  // stream: kRefused; limit 0: kInvalidInput; an undecodable or missing record: kStorage.
+  // stream: kConflict; limit 0: kInvalidArgument; an undecodable or missing record: kCorruption.
   virtual Result<HistoryPage> history_page(std::string_view stream, std::uint64_t from_step,
                                            std::size_t limit) = 0;
   // Calls visit(record) for each record with step >= from_step (0 is taken as 1) up to the last
@@ -239,14 +240,14 @@ class Ledger {
   // state; and each anchor: its step must still be there with the same chain hash (a lost tail
   // is caught even when the rest is consistent), a "closed" anchor needs the same closing entry.
   // ok == false names the first bad step (0: the configuration or head itself; for an anchor,
-  // the anchor's step) and what did not match. Unknown stream: kRefused. Reads the store, never
+  // the anchor's step) and what did not match. Unknown stream: kNotFound. Reads the store, never
   // a cache, one record at a time. Memory: the rule's state, not the history.
   virtual Result<VerifyReport> verify(std::string_view stream, const std::vector<Anchor>& anchors) = 0;
   Result<VerifyReport> verify(std::string_view stream) { return verify(stream, {}); }
 
   // The chain hash at `step` (SHA-256 hex of that record, which commits to every record up to it),
-  // as stored; run verify() to know it is consistent. Unknown stream: kRefused; step 0 or past the
-  // last record: kInvalidInput naming the range.
+  // as stored; run verify() to know it is consistent. Unknown stream: kNotFound; step 0 or past the
+  // last record: kInvalidArgument naming the range.
   virtual Result<std::string> chain_hash_at(std::string_view stream, std::uint64_t step) = 0;
 
   // A short description of where the ledger lives (the folder path), for messages.

@@ -76,8 +76,8 @@ struct RecoveryReport {
 // Copies every stream's configuration and every provable decision of ledger folder `source` into
 // a new ledger in `target`, keeps each stream's closing (see StreamRecovery), then verifies each
 // stream of the new ledger (against the source's closing hash, when the closing was proven).
-// Errors: kInvalidInput: `target` exists and is not an empty folder, or is the source;
-// kRefused: no ledger at `source`; kStorage: the source cannot be read at all (not even salvaged),
+// Errors: kInvalidArgument: `target` exists and is not an empty folder, or is the source;
+// kNotFound: no ledger at `source`; kIOError or kCorruption: the source cannot be read at all (not even salvaged),
 // the target or the scratch copy cannot be written, or the new ledger fails its own verify.
 // A source that was read but lost decisions is not an error: see RecoveryReport::complete().
 Result<RecoveryReport> recover_ledger(const std::string& source, const std::string& target);

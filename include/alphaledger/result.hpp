@@ -15,22 +15,88 @@
 
 namespace alphaledger {
 
-// What went wrong, in the terms of the command-line contract. The numbers are the process exit
-// codes the CLI maps each kind to.
+// What went wrong, said in terms of the library (after the leveldb Status model), not of any front
+// end: the command line maps kinds to exit codes (src/cli/cli_errors.cpp) and the HTTP service to
+// statuses (src/service/http_service.cpp), each in one place; docs/errors.md has both tables.
+// The numbers are only names for the kinds: they are not exit codes, and not stored on disk.
 enum class ErrorKind : int {
-  kInvalidInput = 2,  // bad usage or invalid input; nothing was changed
-  kRefused = 3,       // refused by the ledger: unknown stream, conflict, verification mismatch
-  kStorage = 4,       // storage failure: locked, corrupt, disk error
+  kInvalidArgument = 1,  // the input or a parameter is wrong; nothing was changed
+  kNotFound = 2,         // what was asked for does not exist: an unknown stream, no ledger at a path
+  kConflict = 3,         // contradicts what is recorded: another p-value for a decided id, a closed
+                         // stream, another configuration for an existing name, a verify mismatch
+  kCorruption = 4,       // stored data is damaged or in a form this version cannot read
+  kIOError = 5,          // the system failed to read or write: disk, file, socket, standard input
+  kBusy = 6,             // in use elsewhere: the ledger's lock is held, the port is taken, the stop
+                         // signals are already watched; may work later
 };
+
+// A kind's name for people and logs: "invalid argument", "not found", ...
+inline const char* kind_name(ErrorKind k) {
+  switch (k) {
+    case ErrorKind::kInvalidArgument:
+      return "invalid argument";
+    case ErrorKind::kNotFound:
+      return "not found";
+    case ErrorKind::kConflict:
+      return "conflict";
+    case ErrorKind::kCorruption:
+      return "corruption";
+    case ErrorKind::kIOError:
+      return "I/O error";
+    case ErrorKind::kBusy:
+      return "busy";
+  }
+  return "unknown";
+}
+
+// True for the kinds where the storage underneath failed (corruption, I/O error, busy), as opposed
+// to a request that was wrong or refused: a batch stops at these, and a service reports itself
+// unhealthy.
+inline bool is_storage_failure(ErrorKind k) {
+  return k == ErrorKind::kCorruption || k == ErrorKind::kIOError || k == ErrorKind::kBusy;
+}
 
 struct Error {
-  ErrorKind kind = ErrorKind::kInvalidInput;
-  std::string message;  // says what was wrong, where, and what is accepted
+  ErrorKind kind = ErrorKind::kInvalidArgument;
+  std::string message;  // says what happened, where, and what is accepted
+  // A short machine word where the kind is too coarse for a program reading the error, e.g.
+  // "unknown_stream" or "no_ledger" (both kNotFound), "verification_failed" (kConflict); empty
+  // otherwise. Front ends show it as the error's code word, in place of the kind's own word.
+  std::string code = {};
 };
 
-inline Error invalid_input(std::string message) { return {ErrorKind::kInvalidInput, std::move(message)}; }
-inline Error refused(std::string message) { return {ErrorKind::kRefused, std::move(message)}; }
-inline Error storage_error(std::string message) { return {ErrorKind::kStorage, std::move(message)}; }
+inline Error invalid_input(std::string message) { return {ErrorKind::kInvalidArgument, std::move(message)}; }
+// The error's machine word, as front ends show it (`code` in JSON errors): the error's own `code`
+// when it has one, else the kind's word: invalid_input, not_found, conflict, corruption, storage
+// (I/O errors) or busy.
+inline std::string code_word(const Error& e) {
+  if (!e.code.empty()) return e.code;
+  switch (e.kind) {
+    case ErrorKind::kInvalidArgument:
+      return "invalid_input";
+    case ErrorKind::kNotFound:
+      return "not_found";
+    case ErrorKind::kConflict:
+      return "conflict";
+    case ErrorKind::kCorruption:
+      return "corruption";
+    case ErrorKind::kIOError:
+      return "storage";
+    case ErrorKind::kBusy:
+      return "busy";
+  }
+  return "internal";
+}
+
+inline Error not_found(std::string message, std::string code = {}) {
+  return {ErrorKind::kNotFound, std::move(message), std::move(code)};
+}
+inline Error conflict(std::string message, std::string code = {}) {
+  return {ErrorKind::kConflict, std::move(message), std::move(code)};
+}
+inline Error corruption(std::string message) { return {ErrorKind::kCorruption, std::move(message)}; }
+inline Error io_error(std::string message) { return {ErrorKind::kIOError, std::move(message)}; }
+inline Error busy(std::string message) { return {ErrorKind::kBusy, std::move(message)}; }
 
 // Holds either a T or an Error. Thread-compatible (like std::variant).
 template <typename T>

@@ -86,7 +86,7 @@ struct RuleConfig {
 std::string default_spending(RuleKind kind);  // "power:1.6", "jm", "power-shift:1.6", or ""
 
 // Fills defaults and checks every condition of the rule. A parameter the rule does not take
-// (e.g. --payout for lord++) is refused. Errors are kInvalidInput and name the broken condition,
+// (e.g. --payout for lord++) is refused. Errors are kInvalidArgument and name the broken condition,
 // e.g. "initial_wealth must satisfy 0 <= W0 <= alpha = 0.05 for lord++, got 0.2".
 Result<RuleConfig> resolve_config(const RuleSpec& spec);
 
@@ -135,8 +135,8 @@ class Rule {
   // outcomes finished so far and changes the state (the level is spent, the clock advances).
   Reservation launch();
   // Decides running test `launch` against its reserved level and applies the outcome. A p-value
-  // outside [0, 1] is kInvalidInput; a launch number never launched is kInvalidInput; one already
-  // finished or abandoned is kRefused. On error the Rule is unchanged.
+  // outside [0, 1] is kInvalidArgument; a launch number never launched is kInvalidArgument; one already
+  // finished or abandoned is kConflict. On error the Rule is unchanged.
   Result<Outcome> finish(std::uint64_t launch, double p);
   // The test will never report a p-value: no rejection, no deposit; saffron/addis count it as
   // advancing the clock. Errors as finish().
@@ -157,7 +157,7 @@ class Rule {
   // levels existed); with running tests, version 2 appends them.
   std::string encode_state() const;
   // On failure (truncated, wrong version, wrong shape for this configuration) returns
-  // kStorage and leaves this Rule unchanged.
+  // kCorruption and leaves this Rule unchanged.
   Status restore_state(std::string_view bytes);
 
   // The spending sequence in use (exact mode) or its mixture (fast mode). Null for

@@ -45,7 +45,7 @@ namespace alphaledger {
 // A test read from JSON text holding one object {"id": ..., "p_value": ...}, by the one reading of
 // test_record_from_json_text (alphaledger/test_log.hpp, docs/formats.md): id a string (or an
 // integer, taken as its decimal text) passing validate_test_id; p_value a JSON number in [0, 1].
-// Other keys are ignored. Errors are kInvalidInput naming the field, an excerpt of the value and
+// Other keys are ignored. Errors are kInvalidArgument naming the field, an excerpt of the value and
 // what is accepted (text that is not one JSON object is refused first, as parse_json_object
 // refuses it: depth, duplicate keys, numbers a double cannot hold).
 Result<TestInput> test_from_json_text(std::string_view text);
@@ -125,9 +125,9 @@ struct PipeSummary {
 // "error": "..."}. Lines are counted from 1; every line is answered, a blank one too. Lines that arrive
 // together are decided with one synced write per group; each answer is written only after its decision is
 // durable. On stop, every complete line already read is answered; a line without its newline yet is not.
-// Returns the summary; an unknown stream is kRefused before anything is read; a storage failure
-// answers the line it hit and returns kStorage (later lines are not read); a failed write to
-// `out` returns kStorage. Bad lines are not errors of the call: see PipeSummary::bad.
+// Returns the summary; an unknown stream is kNotFound before anything is read; a storage failure
+// answers the line it hit and returns that error (later lines are not read); a failed write to
+// `out` returns kIOError. Bad lines are not errors of the call: see PipeSummary::bad.
 // Lines longer than kMaxPipeLineBytes are answered with an error.
 inline constexpr std::size_t kMaxPipeLineBytes = 1 << 20;
 Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd, std::ostream& out,
@@ -144,7 +144,7 @@ Result<ListenAddress> parse_listen_address(std::string_view text);
 bool is_loopback_host(std::string_view host);
 
 // The bearer token from a file: its first line without surrounding white space. Errors
-// (kInvalidInput): unreadable, empty, or holding characters outside visible ASCII.
+// (kInvalidArgument): unreadable, empty, or holding characters outside visible ASCII.
 Result<std::string> read_token_file(const std::string& path);
 
 // One line of the access log (written by the caller, e.g. as JSON on stderr).
@@ -171,13 +171,13 @@ struct HttpOptions {
 // The HTTP/JSON service (routes, errors and limits in docs/http.md).
 class HttpService {
  public:
-  // Validates the options (kInvalidInput: threads 0, max body 0, max connections 0, bad timeouts).
+  // Validates the options (kInvalidArgument: threads 0, max body 0, max connections 0, bad timeouts).
   static Result<std::unique_ptr<HttpService>> create(Ledger& ledger, HttpOptions options);
   virtual ~HttpService() = default;
 
-  // Binds the listening socket; returns the port bound. kStorage if the address cannot be bound
-  // ("address in use": another process listens there, even another `serve`; or not local),
-  // naming it.
+  // Binds the listening socket; returns the port bound. kBusy when the address is in use (another
+  // process listens there, even another `serve`), kIOError when it cannot be bound otherwise (not
+  // local, permission), naming it.
   virtual Result<int> bind() = 0;
   // Serves until stop(); in-flight requests are finished before it returns.
   // REQUIRES: bind() succeeded.

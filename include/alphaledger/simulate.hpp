@@ -88,7 +88,7 @@ struct PatternSpec {
 };
 
 // Parses "constant", "bursts", "bursts:LENGTH", "bursts:LENGTH:SHARE", "rising", "falling".
-// On failure returns kInvalidInput naming the field, the value and the accepted forms.
+// On failure returns kInvalidArgument naming the field, the value and the accepted forms.
 Result<PatternSpec> parse_nonnull_pattern(std::string_view text);
 std::string pattern_text(const PatternSpec& pattern);  // canonical, e.g. "bursts:100:0.5"
 
@@ -120,7 +120,7 @@ struct SimulationModel {
   CorrelationSpec correlation;    // Default: none
 };
 
-// Checks every field. On failure returns kInvalidInput naming the field (as its CLI flag), the
+// Checks every field. On failure returns kInvalidArgument naming the field (as its CLI flag), the
 // value and the accepted range, e.g. "--nonnull-fraction must be in [0, 1], got 1.5".
 Status validate_model(const SimulationModel& model);
 
@@ -254,7 +254,7 @@ struct SimulationResult {
 // Runs options.runs streams (run indices 0..runs-1) spread over options.threads threads, in
 // chunks of runs_per_chunk(runs) runs combined in chunk order (at least kRunsPerChunk runs per
 // chunk, at most kMaxChunks chunks, so memory stays small for any number of runs). On bad options
-// or model returns kInvalidInput and runs nothing.
+// or model returns kInvalidArgument and runs nothing.
 inline constexpr std::uint64_t kRunsPerChunk = 16;
 inline constexpr std::uint64_t kMaxChunks = 4096;
 std::uint64_t runs_per_chunk(std::uint64_t runs);

@@ -56,7 +56,7 @@ struct GeometricMixture {
 
 class SpendingSequence {
  public:
-  // Parses and validates a specification. On failure returns kInvalidInput naming the broken
+  // Parses and validates a specification. On failure returns kInvalidArgument naming the broken
   // condition, e.g. "power:S needs S > 1, got 0.9".
   static Result<SpendingSequence> parse(std::string_view spec);
 

@@ -20,7 +20,7 @@
 //   auto plan = plan_means(1.0, {.level = 0.05, .min_effect = 1.0, .power = 0.9});
 //   plan->n_per_arm;   // 23 (rounded up);  plan->n_exact == 22.0211...
 //
-// Every fallible function returns Result<T>: on bad input an Error of kind kInvalidInput whose
+// Every fallible function returns Result<T>: on bad input an Error of kind kInvalidArgument whose
 // message names the field, the value and the accepted range; nothing else happens.
 // Thread-safety: free functions and plain values, no shared state.
 #pragma once
@@ -126,7 +126,7 @@ inline constexpr std::string_view kTreatmentSdColumn = "treatment_sd";
 // Turns a row's summary columns (column -> text; empty text counts as absent) into a p-value:
 // counts give the pooled z-test, means and standard deviations give Welch's t-test, in the given
 // direction. The row must hold exactly one complete kind of summary.
-// Errors (kInvalidInput, naming the column, the value and what is accepted): no summary columns,
+// Errors (kInvalidArgument, naming the column, the value and what is accepted): no summary columns,
 // a missing or unparsable column, both kinds in one row, and every check of compare_proportions /
 // compare_means. The caller adds file:line.
 Result<double> p_value_from_summary(const std::map<std::string, std::string>& fields,

@@ -49,17 +49,17 @@ class Store {
  public:
   virtual ~Store() = default;
 
-  // The value at `key`, std::nullopt if absent. Errors: kStorage (disk, corruption).
+  // The value at `key`, std::nullopt if absent. Errors: kIOError (disk), kCorruption.
   virtual Result<std::optional<std::string>> get(std::string_view key) = 0;
 
   // Applies every op of `batch` atomically. With sync (Default: true) the batch is on stable
-  // storage (fsync'd) when this returns ok. On error (kStorage) none of the batch was applied as
+  // storage (fsync'd) when this returns ok. On error (kIOError) none of the batch was applied as
   // far as readers of this store can see; after a crash an unsynced or failed batch is either
   // wholly present or wholly absent, never partial.
   virtual Status write(const WriteBatch& batch, bool sync = true) = 0;
 
   // Calls visit(key, value) for every key starting with `prefix`, in ascending byte order, until
-  // visit returns false. Errors: kStorage. The scan sees one consistent snapshot.
+  // visit returns false. Errors: kIOError. The scan sees one consistent snapshot.
   using Visitor = std::function<bool(std::string_view key, std::string_view value)>;
   virtual Status scan(std::string_view prefix, const Visitor& visit) = 0;
 
@@ -78,7 +78,7 @@ struct RocksStoreOptions {
   bool create_if_missing = true;  // Default: true (the default ledger location needs no set-up)
   // Open for reading only: no lock is taken (works beside a running `serve` and in a read-only
   // folder), no info LOG and no other file is created, changed, deleted or truncated; write()
-  // fails with kStorage. Default: false.
+  // fails with kIOError. Default: false.
   bool read_only = false;
   // Also read every table file in full and check all its block checksums on open (cost grows with
   // the ledger's size; `verify` and `recover` use it). Default: false: table blocks are checked
@@ -95,12 +95,12 @@ struct RocksStoreOptions {
 // first opened read-only and checked, so a damaged ledger is refused with every file left as it
 // was (docs/ledger.md "Damaged files").
 // Errors, each naming the folder (and the damaged file when known):
-//   - kStorage: held by another process (names the LOCK file and, when the system reports it, the
+//   - kBusy: held by another process (names the LOCK file and, when the system reports it, the
 //     pid); held by this process (a second open of the same folder); a damaged file: a byte
 //     changed, a file missing or cut short (write-ahead log, table, MANIFEST, CURRENT, OPTIONS or
 //     the seal file); unreadable or unwritable folder; `path` is a regular file; a folder that
 //     holds files but no ledger when creating.
-//   - kRefused: no ledger in the folder and create_if_missing == false ("no ledger at ...").
+//   - kNotFound (code no_ledger): no ledger in the folder and create_if_missing == false ("no ledger at ...").
 Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path,
                                                   const RocksStoreOptions& options = {});
 

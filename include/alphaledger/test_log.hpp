@@ -7,7 +7,7 @@
 // docs/formats.md), finished_at (optional: ISO 8601 date or date-time, or a number), is_null
 // (optional 0/1). Other columns are ignored.
 //
-// Every error is kInvalidInput and names the file, line, field, value (as excerpt()) and what is
+// Every error is kInvalidArgument and names the file, line, field, value (as excerpt()) and what is
 // accepted, e.g.
 //   "demo.csv:17: test 'LO-0017': p_value must be a number in [0, 1], got 1.3"
 // Thread-safety: free functions, no shared state.
@@ -24,6 +24,7 @@
 
 #include "alphaledger/result.hpp"
 #include "alphaledger/stats.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger {
 
@@ -92,7 +93,7 @@ Result<CompactLog> read_compact_log_file(const std::string& path,
 // "-" (standard input) has no extension: it needs `forced`.
 Result<LogFormat> log_format_for(std::string_view path, std::optional<std::string_view> forced);
 
-// Parses a whole log. On error returns kInvalidInput with file:line; nothing is partially returned.
+// Parses a whole log. On error returns kInvalidArgument with file:line; nothing is partially returned.
 // Lines end with LF, CRLF or a lone CR (all three may appear in one file).
 Result<TestLog> read_test_log(std::istream& in, std::string_view source, LogFormat format,
                               const ReadOptions& options = {});
@@ -104,17 +105,8 @@ Result<TestLog> read_test_log_file(const std::string& path, std::optional<std::s
 // Every form of input (CSV cell, JSON Lines row, pipe line, HTTP body, `decide --p`) goes through
 // these. Errors name the field and the accepted form and quote at most excerpt() of the value.
 
-// A number written as text: a decimal such as 0.01, .5, 1e-8 or -3 (surrounding spaces and tabs
-// are ignored); no '+' sign, hex, inf or nan. A number too large for a double, or one that is not
-// zero but too small to be held (below about 4.9e-324), is refused, never rounded to infinity or
-// 0. Negative zero is read as 0. `field` names the value in messages.
-Result<double> parse_number_text(std::string_view text, std::string_view field);
-// A p-value written as text (CSV cell, `decide --p`): parse_number_text, then within [0, 1].
-Result<double> parse_p_value_text(std::string_view text);
-Result<double> parse_time_text(std::string_view text);  // ISO 8601 date / date-time, or a number
-// 1..256 bytes of valid UTF-8, without control characters (C0, DEL, C1) and without white space
-// at either end. One rule for every input: CSV, JSON Lines, pipe, HTTP, `decide --id`, the ledger.
-Status validate_test_id(std::string_view id);
+// Numbers, times and test ids written as text are read by alphaledger/text.hpp
+// (parse_number_text, parse_p_value_text, parse_time_text, validate_test_id, excerpt).
 
 // One test given as JSON text holding one object (a JSON Lines row, a pipe line, an HTTP body),
 // read by the rules of read_test_log's JSON Lines rows (docs/formats.md): the text is checked as
@@ -122,7 +114,7 @@ Status validate_test_id(std::string_view id);
 // cannot hold), then id (a JSON string, or an integer taken as its decimal text), p_value (a JSON
 // number in [0, 1]; null or absent: summary columns), finished_at, is_null and summary columns are
 // read. Summary columns are read only when `summary_direction` is given; without it a row without
-// p_value is refused. Errors are kInvalidInput; the record's `line` is 0, the caller adds where.
+// p_value is refused. Errors are kInvalidArgument; the record's `line` is 0, the caller adds where.
 Result<TestRecord> test_record_from_json_text(std::string_view text,
                                               std::optional<Alternative> summary_direction);
 
@@ -132,11 +124,6 @@ Result<TestRecord> test_record_from_json_text(std::string_view text,
 // src/harness/json_input.hpp.)
 inline constexpr int kMaxJsonDepth = 32;
 
-
-// A value as it may appear in a message: at most `max_bytes` of it (then "...(N bytes)"), with
-// control characters and bytes that are not valid UTF-8 written as \xHH. Every message that
-// echoes input goes through this, so a megabyte field never becomes a megabyte message.
-std::string excerpt(std::string_view value, std::size_t max_bytes = 60);
 
 // Turns a row's fields (column -> text) into a p-value. The default converter reads p_value;
 // summary columns (docs/formats.md) are converted by the statistics layer when present.

@@ -9,34 +9,20 @@
 #include "harness/json_text.hpp"
 
 namespace alphaledger::cli {
-namespace {
-
-bool starts_with(std::string_view s, std::string_view prefix) { return s.substr(0, prefix.size()) == prefix; }
-
-// A refusal's code word. The ledger reports every refusal as ErrorKind::kRefused; the finer word
-// comes from the message's fixed opening (tests/cli/test_cli_errors.cpp runs each one through the
-// built binary, so a change of wording in the ledger shows up there).
-std::string refusal_code(const std::string& message) {
-  // decide --file prefixes "FILE:LINE: " to the ledger's message; look past it.
-  std::string_view m = message;
-  if (const auto at = m.find(": no stream named "); at != std::string_view::npos) m = m.substr(at + 2);
-  if (starts_with(m, "no stream named ")) return "unknown_stream";
-  if (starts_with(m, "no ledger at ")) return "no_ledger";
-  if (starts_with(m, "stream ") && m.find(" fails verification") != std::string_view::npos)
-    return "verification_failed";
-  return "conflict";
-}
-
-}  // namespace
 
 Failure failure_from(const Error& e) {
+  // The one mapping of error kinds to exit codes (docs/errors.md); the word is code_word().
+  const auto with = [&](int exit_code) { return Failure{exit_code, code_word(e), e.message}; };
   switch (e.kind) {
-    case ErrorKind::kInvalidInput:
-      return {2, "invalid_input", e.message};
-    case ErrorKind::kRefused:
-      return {3, refusal_code(e.message), e.message};
-    case ErrorKind::kStorage:
-      return {4, "storage", e.message};
+    case ErrorKind::kInvalidArgument:
+      return with(2);
+    case ErrorKind::kNotFound:
+    case ErrorKind::kConflict:
+      return with(3);
+    case ErrorKind::kCorruption:
+    case ErrorKind::kIOError:
+    case ErrorKind::kBusy:
+      return with(4);
   }
   return internal_failure(e.message);
 }
@@ -119,7 +105,7 @@ Result<CompactLog> read_log_argument(const std::string& path, std::optional<std:
   PrefixedInput buffer(std::move(blank), in);
   std::istream stream(&buffer);
   auto log = read_compact_log(stream, "stdin", format, options);
-  if (std::cin.bad()) return invalid_input("stdin: could not be read");
+  if (std::cin.bad()) return invalid_input("stdin: could not be read");  // exit 2 as before
   return log;
 }
 

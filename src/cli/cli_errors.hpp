@@ -25,9 +25,11 @@ struct Failure {
 
 // The one mapping from a library error to exit code and code word. Every command's error goes
 // through it (main.cpp), so the CLI has no other place that picks an exit code.
-//   kInvalidInput -> 2 invalid_input
-//   kRefused      -> 3 unknown_stream | no_ledger | verification_failed | conflict
-//   kStorage      -> 4 storage
+// The code word is the error's own code when it has one (unknown_stream, no_ledger,
+// verification_failed), else the kind's:
+//   kInvalidArgument -> 2 invalid_input
+//   kNotFound        -> 3 not_found        kConflict -> 3 conflict
+//   kCorruption      -> 4 corruption       kIOError  -> 4 storage     kBusy -> 4 busy
 Failure failure_from(const Error& e);
 Failure usage_failure(std::string message);     // 2 usage: the command line itself is wrong
 Failure internal_failure(std::string message);  // 4 internal: an unexpected failure inside the tool

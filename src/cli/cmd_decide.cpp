@@ -9,7 +9,7 @@
 #include "alphaledger/test_log.hpp"
 #include "cli/cli_errors.hpp"
 #include "cli/ledger_common.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger::cli {
 namespace {
@@ -116,7 +116,7 @@ Error batch_error(const Ledger::BatchResult& batch, const CompactLog& log) {
   const CompactRecord& at = log.records[batch.stopped_at];
   Error e = *batch.error;
   e.message = log.source + ":" + std::to_string(at.line) + ": " + e.message;
-  if (e.kind == ErrorKind::kStorage && !batch.decided.empty()) {
+  if (is_storage_failure(e.kind) && !batch.decided.empty()) {
     e.message += " (the rows printed above are decided and durable; run the same command again to resume)";
   }
   return e;

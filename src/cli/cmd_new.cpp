@@ -3,7 +3,7 @@
 
 #include "alphaledger/forms.hpp"
 #include "cli/ledger_common.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger::cli {
 namespace {

@@ -100,7 +100,7 @@ Status run_recover(const RecoverOptions& o, const GlobalOptions& g, std::ostream
   }
   out.flush();
   if (!report->complete()) {
-    return storage_error(
+    return corruption(
         "ledger " + source + " was damaged: " +
         (report->source_problem.empty()
              ? std::string("some of it (decisions, a closing, a stream) could not be proven")

@@ -7,7 +7,7 @@
 #include "alphaledger/replay.hpp"
 #include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 #include "harness/json_text.hpp"
 
 namespace alphaledger::cli {
@@ -25,11 +25,7 @@ struct ReplayOptions {
 std::string opt_text(const std::optional<double>& v) { return v ? format_number(*v) : ""; }
 
 // format_number() and std::to_string() written straight onto `row` (no temporary strings).
-void append_double(std::string& row, double v) {
-  if (std::isnan(v)) return;
-  char buf[64];
-  row.append(buf, std::to_chars(buf, buf + sizeof buf, v).ptr);
-}
+void append_double(std::string& row, double v) { append_number_text(row, v); }
 void append_number(std::string& row, std::uint64_t v) {
   char buf[24];
   row.append(buf, std::to_chars(buf, buf + sizeof buf, v).ptr);

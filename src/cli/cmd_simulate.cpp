@@ -11,6 +11,7 @@
 #include "alphaledger/replay.hpp"
 #include "alphaledger/simulate.hpp"
 #include "alphaledger/test_log.hpp"
+#include "alphaledger/text.hpp"
 #include "cli/command.hpp"
 #include "harness/simulate_report.hpp"
 
@@ -35,10 +36,9 @@ struct SimulateOptions {
 
 Result<std::uint64_t> parse_whole(const std::string& text, const char* flag, std::uint64_t lo,
                                   std::uint64_t hi) {
-  std::uint64_t v = 0;
-  const char* end = text.data() + text.size();
-  auto [ptr, ec] = std::from_chars(text.data(), end, v);
-  if (text.empty() || ec != std::errc() || ptr != end || v < lo || v > hi) {
+  const auto whole = read_whole_number(text);
+  const std::uint64_t v = whole.value_or(0);
+  if (!whole || v < lo || v > hi) {
     return invalid_input(std::string(flag) + " must be a whole number in [" + std::to_string(lo) + ", " +
                          std::to_string(hi) + "], got '" + excerpt(text) + "'");
   }

@@ -16,7 +16,7 @@
 #include "alphaledger/store.hpp"
 #include "alphaledger/test_log.hpp"
 #include "cli/command.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 #include "harness/json_text.hpp"
 
 namespace alphaledger::cli {
@@ -64,8 +64,9 @@ std::vector<std::string> split_colon(const std::string& s) {
 }
 
 bool parse_real(const std::string& t, double& v) {
-  auto [end, ec] = std::from_chars(t.data(), t.data() + t.size(), v);
-  return !t.empty() && ec == std::errc() && end == t.data() + t.size() && std::isfinite(v);
+  const auto r = read_finite_number(t);
+  if (r) v = *r;
+  return r.has_value();
 }
 
 Result<std::uint64_t> parse_whole(const std::string& text, const std::string& flag, const std::string& what) {

@@ -5,7 +5,7 @@
 
 #include "alphaledger/forms.hpp"
 #include "cli/ledger_common.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger::cli {
 namespace {
@@ -56,7 +56,7 @@ Status run_status(const StreamOptions& o, const GlobalOptions& g, std::ostream& 
 Status run_streams(const GlobalOptions& g, std::ostream& out) {
   auto ledger = open_for_reading(g);
   if (!ledger) {
-    if (ledger.error().kind == ErrorKind::kRefused) {  // no ledger yet: no streams
+    if (ledger.error().kind == ErrorKind::kNotFound) {  // no ledger yet: no streams
       spdlog::warn("{}", ledger.error().message);
       return {};
     }

@@ -50,8 +50,9 @@ Status run_verify(const VerifyOptions& o, const GlobalOptions& g, std::ostream& 
   }
   if (g.json) out << verify_json(o.stream, *report, at) << '\n';
   if (!report->ok) {
-    return refused("stream " + o.stream + " fails verification at step " +
-                   std::to_string(report->first_bad_step) + ": " + report->problem);
+    return conflict("stream " + o.stream + " fails verification at step " +
+                        std::to_string(report->first_bad_step) + ": " + report->problem,
+                    "verification_failed");
   }
   if (!g.json) print_verified(o, *report, at, out);
   return {};

@@ -12,6 +12,7 @@
 #include <cstring>
 #include <map>
 
+#include "alphaledger/text.hpp"
 #include "cli/cli_errors.hpp"
 
 namespace alphaledger::cli {
@@ -110,10 +111,8 @@ std::string base_type(const CLI::Option* o) {
 }
 
 bool is_finite_number(std::string_view v) {
-  double d = 0;
   if (!v.empty() && v.front() == '+') v.remove_prefix(1);
-  const auto [end, ec] = std::from_chars(v.data(), v.data() + v.size(), d);
-  return !v.empty() && ec == std::errc() && end == v.data() + v.size() && std::isfinite(d);
+  return read_finite_number(v).has_value();
 }
 
 // Plain decimal digits. CLI11 reads integers with strtoull(..., 0), where "-1" wraps to 2^64 - 1,

@@ -531,33 +531,33 @@ Outcome Rule::record(double p) {
 Status Rule::restore_running(std::string_view bytes) {
   Reader r{bytes};
   const std::uint64_t n = r.u64();
-  if (!r.ok || n > r.in.size() / 17) return storage_error("rule state is truncated (running tests)");
+  if (!r.ok || n > r.in.size() / 17) return corruption("rule state is truncated (running tests)");
   const bool clocked = config_.kind == RuleKind::kSaffron || config_.kind == RuleKind::kAddis;
   std::uint64_t previous = 0;
   for (std::uint64_t i = 0; i < n; ++i) {
     const std::uint64_t launch = r.u64();
     const double level = r.f64();
     const std::uint8_t flags = r.u8();
-    if (!r.ok) return storage_error("rule state is truncated (running tests)");
+    if (!r.ok) return corruption("rule state is truncated (running tests)");
     if (launch <= previous || launch > step_) {
-      return storage_error("rule state is inconsistent: running test " + std::to_string(launch) +
+      return corruption("rule state is inconsistent: running test " + std::to_string(launch) +
                            " is out of order or beyond the " + std::to_string(step_) + " tests launched");
     }
     if (!(level >= 0.0 && level <= 1.0) || flags > 1 || (flags == 1 && !clocked) ||
         (clocked && flags == 0 && launch != step_)) {
-      return storage_error("rule state is inconsistent: running test " + std::to_string(launch) +
+      return corruption("rule state is inconsistent: running test " + std::to_string(launch) +
                            " has an impossible level or clock flag");
     }
     running_.emplace_hint(running_.end(), launch, Running{level, flags == 1});
     previous = launch;
   }
   investing_reserved_ = r.f64();
-  if (!r.ok || !r.in.empty()) return storage_error("rule state is truncated or has trailing bytes");
+  if (!r.ok || !r.in.empty()) return corruption("rule state is truncated or has trailing bytes");
   const bool investing = config_.kind == RuleKind::kAlphaInvesting;
   if (!(investing_reserved_ >= 0.0 && investing_reserved_ < 1e300) ||
       (!investing && investing_reserved_ != 0.0) ||
       (investing && running_.empty() && investing_reserved_ != 0)) {
-    return storage_error("rule state is inconsistent: impossible reserved wealth");
+    return corruption("rule state is inconsistent: impossible reserved wealth");
   }
   return {};
 }
@@ -596,12 +596,12 @@ Status Rule::restore_state(std::string_view bytes) {
   const auto kind = r.u8();
   const auto evaluation = r.u8();
   if (!r.ok || (version != kStateVersion && version != kStateVersionSynchronous)) {
-    return storage_error("rule state has format version " + std::to_string(version) +
-                         ", this build reads versions 1 and 2");
+    return corruption("rule state has format version " + std::to_string(version) +
+                      ", this build reads versions 1 and 2");
   }
   if (kind != static_cast<std::uint8_t>(config_.kind) ||
       evaluation != static_cast<std::uint8_t>(config_.evaluation)) {
-    return storage_error("rule state belongs to another rule or evaluation mode");
+    return corruption("rule state belongs to another rule or evaluation mode");
   }
   Rule next = *this;
   next.step_ = r.u64();
@@ -610,14 +610,14 @@ Status Rule::restore_state(std::string_view bytes) {
   next.last_rejection_ = r.u64();
   next.clock_ = r.u64();
   const std::uint64_t nd = r.u64();
-  if (!r.ok || nd > r.in.size() / 8) return storage_error("rule state is truncated (deposits)");
+  if (!r.ok || nd > r.in.size() / 8) return corruption("rule state is truncated (deposits)");
   next.deposit_clock_.assign(nd, 0);
   for (auto& c : next.deposit_clock_) c = r.u64();
   const std::uint64_t nh = r.u64();
-  if (!r.ok || nh != head_.size()) return storage_error("rule state has the wrong head size");
+  if (!r.ok || nh != head_.size()) return corruption("rule state has the wrong head size");
   for (auto& h : next.head_) h = r.f64();
   const std::uint64_t na = r.u64();
-  if (!r.ok || na != accumulator_.size()) return storage_error("rule state has the wrong accumulator count");
+  if (!r.ok || na != accumulator_.size()) return corruption("rule state has the wrong accumulator count");
   for (auto& a : next.accumulator_) a = r.f64();
   next.running_.clear();
   next.investing_reserved_ = 0;
@@ -625,10 +625,10 @@ Status Rule::restore_state(std::string_view bytes) {
     if (auto s = next.restore_running(r.in); !s) return s.error();
     r.in = {};
   }
-  if (!r.ok || !r.in.empty()) return storage_error("rule state is truncated or has trailing bytes");
+  if (!r.ok || !r.in.empty()) return corruption("rule state is truncated or has trailing bytes");
   const bool exact_deposits = is_deposit_rule(config_.kind) && mixture_ == nullptr;
   if (exact_deposits && (nd != next.rejections_ + 1)) {
-    return storage_error("rule state is inconsistent: deposit count does not match rejections");
+    return corruption("rule state is inconsistent: deposit count does not match rejections");
   }
   if (next.mixture_ != nullptr) {
     next.fast_sum_ = next.mixture_sum();

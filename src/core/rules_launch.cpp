@@ -69,7 +69,7 @@ Status Rule::check_running(std::uint64_t launch, std::string_view event) const {
                          std::to_string(step_) + ")");
   }
   if (running_.find(launch) == running_.end()) {
-    return refused("cannot " + std::string(event) + " launch number " + std::to_string(launch) +
+    return conflict("cannot " + std::string(event) + " launch number " + std::to_string(launch) +
                    ": that test is no longer running (it was already finished or abandoned)");
   }
   return {};

@@ -8,6 +8,7 @@
 #include <string>
 
 #include "alphaledger/stats.hpp"
+#include "alphaledger/text.hpp"
 #include "core/math_policy.hpp"
 
 namespace alphaledger {
@@ -15,11 +16,7 @@ namespace {
 
 constexpr double kMaxPlanSize = 1e12;  // users per arm; beyond this a plan is not a plan
 
-std::string number_text(double v) {
-  char buf[64];
-  auto [end, ec] = std::to_chars(buf, buf + sizeof buf, v);
-  return std::string(buf, end);
-}
+std::string number_text(double v) { return std::isnan(v) ? "nan" : format_number(v); }
 
 // The critical value of a level-`level` test: two-sided tests put level/2 in the far tail (R's
 // power.*.test with strict = FALSE ignore the opposite tail).

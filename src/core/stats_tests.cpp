@@ -6,17 +6,14 @@
 #include <string>
 
 #include "alphaledger/stats.hpp"
+#include "alphaledger/text.hpp"
 #include "core/math_policy.hpp"
 
 namespace alphaledger {
 namespace {
 
 // Shortest text that reads back to the same double, for messages.
-std::string number_text(double v) {
-  char buf[64];
-  auto [end, ec] = std::to_chars(buf, buf + sizeof buf, v);
-  return std::string(buf, end);
-}
+std::string number_text(double v) { return std::isnan(v) ? "nan" : format_number(v); }
 
 constexpr std::uint64_t kMaxArmSize = std::uint64_t{1} << 53;  // counts stay exact as doubles
 constexpr double kMaxFisherTotal = 1e9;  // Boost's hypergeometric works in 32-bit counts

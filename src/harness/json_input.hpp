@@ -25,7 +25,7 @@ Result<TestRecord> test_record_from_json(const nlohmann::json& object,
                                          std::optional<Alternative> summary_direction);
 
 // Parses one JSON text that must be an object: the one JSON reader of every input. Errors
-// (kInvalidInput), none of which quotes more than excerpt() of the input: not valid JSON (with the
+// (kInvalidArgument), none of which quotes more than excerpt() of the input: not valid JSON (with the
 // byte offset), NaN or Infinity (not JSON numbers), a number too large for a double or not zero
 // but too small to be held, a key given twice in one object (names the key), nested deeper than
 // kMaxJsonDepth, not an object (names the type found). A UTF-8 byte-order mark at the start is

@@ -1,6 +1,7 @@
 // Simulated streams of one-sided z-tests and the metrics over runs (include/alphaledger/simulate.hpp,
 // docs/simulate.md). Numbers in, numbers out: no I/O, no logging, no clock, no globals.
 #include "alphaledger/simulate.hpp"
+#include "alphaledger/text.hpp"
 
 #include <algorithm>
 #include <bit>
@@ -25,27 +26,10 @@ std::uint64_t mix64(std::uint64_t z) {
   return z ^ (z >> 31);
 }
 
-std::string num(double v) {
-  char buf[64];
-  auto [ptr, ec] = std::to_chars(buf, buf + sizeof buf, v);
-  return std::string(buf, ptr);
-}
-
-std::optional<double> parse_double(std::string_view s) {
-  double v = 0;
-  const char* end = s.data() + s.size();
-  auto [ptr, ec] = std::from_chars(s.data(), end, v);
-  if (s.empty() || ec != std::errc() || ptr != end || !std::isfinite(v)) return std::nullopt;
-  return v;
-}
-
-std::optional<std::uint64_t> parse_count(std::string_view s) {
-  std::uint64_t v = 0;
-  const char* end = s.data() + s.size();
-  auto [ptr, ec] = std::from_chars(s.data(), end, v);
-  if (s.empty() || ec != std::errc() || ptr != end) return std::nullopt;
-  return v;
-}
+// For messages: format_number, but NaN written as "nan" rather than as an empty cell.
+std::string num(double v) { return std::isnan(v) ? "nan" : format_number(v); }
+std::optional<double> parse_double(std::string_view s) { return read_finite_number(s); }
+std::optional<std::uint64_t> parse_count(std::string_view s) { return read_whole_number(s); }
 
 std::vector<std::string_view> split_colons(std::string_view s) {
   std::vector<std::string_view> parts;

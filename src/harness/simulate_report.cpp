@@ -5,7 +5,7 @@
 #include <cstdio>
 #include <nlohmann/json.hpp>
 
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 #include "harness/json_text.hpp"
 
 namespace alphaledger {

@@ -16,7 +16,7 @@ std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger,
   // Returns false after a storage failure: nothing more is tried.
   auto decide_one = [&](std::size_t k) {
     out[k] = ledger.decide(stream, tests[k].id, tests[k].p_value);
-    return out[k]->ok() || out[k]->error().kind != ErrorKind::kStorage;
+    return out[k]->ok() || !is_storage_failure(out[k]->error().kind);
   };
   // Inputs not yet answered, in arrival order.
   std::deque<std::size_t> pending;
@@ -66,7 +66,7 @@ std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger,
       }
       refused_at = batch->stopped_at;
       out[group[*refused_at]] = *batch->error;
-      if (batch->error->kind == ErrorKind::kStorage) return out;
+      if (is_storage_failure(batch->error->kind)) return out;
     } else if (done < group.size()) {
       // Outside the contract (no error, yet not everything decided): one by one.
       for (std::size_t k = 0; k < group.size(); ++k) pending.pop_front();
@@ -160,7 +160,7 @@ Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std:
       results.assign(group.size(), std::nullopt);
       // The library's own text is not shown; whether anything was decided is unknown, and a
       // resend is safe (a decided test comes back as a repeat).
-      results[0].emplace(storage_error(
+      results[0].emplace(io_error(
           "the ledger failed unexpectedly while deciding; send the tests again (a decided one comes back "
           "as a repeat)"));
     }
@@ -168,14 +168,14 @@ Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std:
     std::optional<Error> storage_failure;
     for (std::size_t k = 0; k < group.size(); ++k) {
       if (results[k]) {
-        if (!results[k]->ok() && results[k]->error().kind == ErrorKind::kStorage)
+        if (!results[k]->ok() && is_storage_failure(results[k]->error().kind))
           storage_failure = results[k]->error();
         group[k]->result = std::move(results[k]);
       } else {
         // Not attempted after a storage failure: not decided, and the caller is told so.
         group[k]->result = Result<DecideResult>(
             storage_failure ? *storage_failure
-                            : storage_error("not decided: the ledger failed earlier in the same group"));
+                            : io_error("not decided: the ledger failed earlier in the same group"));
       }
     }
     lane.busy = false;

@@ -6,7 +6,7 @@
 #include <nlohmann/json.hpp>
 
 #include "alphaledger/stats.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 #include "harness/json_text.hpp"
 
 namespace alphaledger {
@@ -183,17 +183,7 @@ std::string error_json(std::string_view code, std::string_view message) {
   return json_text(j);
 }
 
-std::string error_json(const Error& e) {
-  switch (e.kind) {
-    case ErrorKind::kInvalidInput:
-      return error_json("invalid_input", e.message);
-    case ErrorKind::kRefused:
-      return error_json("refused", e.message);
-    case ErrorKind::kStorage:
-      return error_json("storage", e.message);
-  }
-  return error_json("internal", e.message);
-}
+std::string error_json(const Error& e) { return error_json(code_word(e), e.message); }
 
 std::string line_error_json(std::uint64_t line, std::string_view message) {
   Json j;

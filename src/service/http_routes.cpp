@@ -105,7 +105,7 @@ void Routes::note_write(const Error* failure) {
   std::lock_guard<std::mutex> lock(health_mu_);
   if (failure == nullptr) {
     storage_failure_.reset();
-  } else if (failure->kind == ErrorKind::kStorage) {
+  } else if (is_storage_failure(failure->kind)) {
     storage_failure_ = failure->message;
   }
 }
@@ -114,7 +114,7 @@ void Routes::note_write(const Error* failure) {
 Result<StreamInfo> Routes::find_stream(const std::string& name, Response& error) {
   auto s = ledger_.status(name);
   if (s) return s;
-  if (s.error().kind == ErrorKind::kRefused) {
+  if (s.error().kind == ErrorKind::kNotFound) {
     error = error_response(404, "unknown_stream",
                            "no stream named '" + excerpt(name) + "'; create it with POST /v1/streams");
   } else {

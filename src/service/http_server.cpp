@@ -19,6 +19,7 @@
 #include <thread>
 #include <unordered_map>
 
+#include "alphaledger/text.hpp"
 #include "service/http_request_parser.hpp"
 
 namespace alphaledger::http {
@@ -474,11 +475,11 @@ Result<int> Server::bind(const std::string& host, int port) {
   in_addr addr{};
   const std::string ip = host == "localhost" ? "127.0.0.1" : host;
   if (::inet_pton(AF_INET, ip.c_str(), &addr) != 1)
-    return storage_error("cannot listen on " + where + ": not an IPv4 address");
+    return io_error("cannot listen on " + where + ": not an IPv4 address");
   if (impl_->wake_fd < 0)
-    return storage_error("cannot listen on " + where + ": no event descriptor available");
+    return io_error("cannot listen on " + where + ": no event descriptor available");
   const int fd = ::socket(AF_INET, SOCK_STREAM | SOCK_NONBLOCK | SOCK_CLOEXEC, 0);
-  if (fd < 0) return storage_error("cannot listen on " + where + ": cannot create a socket");
+  if (fd < 0) return io_error("cannot listen on " + where + ": cannot create a socket");
   // SO_REUSEADDR only (restart over connections in TIME_WAIT). Not SO_REUSEPORT: with it a second
   // server could bind the same address and take half of the requests.
   const int one = 1;
@@ -491,17 +492,17 @@ Result<int> Server::bind(const std::string& host, int port) {
     const int e = errno;
     ::close(fd);
     if (e == EADDRINUSE)
-      return storage_error("cannot listen on " + where + ": address in use (another process listens there)");
-    if (e == EADDRNOTAVAIL) return storage_error("cannot listen on " + where + ": not a local address");
-    if (e == EACCES) return storage_error("cannot listen on " + where + ": permission denied");
-    return storage_error("cannot listen on " + where + ": bind failed (errno " + std::to_string(e) + ")");
+      return busy("cannot listen on " + where + ": address in use (another process listens there)");
+    if (e == EADDRNOTAVAIL) return io_error("cannot listen on " + where + ": not a local address");
+    if (e == EACCES) return io_error("cannot listen on " + where + ": permission denied");
+    return io_error("cannot listen on " + where + ": bind failed (errno " + std::to_string(e) + ")");
   }
   if (::listen(fd, 1024) != 0) {
     const int e = errno;
     ::close(fd);
     if (e == EADDRINUSE)
-      return storage_error("cannot listen on " + where + ": address in use (another process listens there)");
-    return storage_error("cannot listen on " + where + ": listen failed (errno " + std::to_string(e) + ")");
+      return busy("cannot listen on " + where + ": address in use (another process listens there)");
+    return io_error("cannot listen on " + where + ": listen failed (errno " + std::to_string(e) + ")");
   }
   socklen_t len = sizeof sa;
   ::getsockname(fd, reinterpret_cast<sockaddr*>(&sa), &len);

@@ -95,8 +95,8 @@ class Server {
   Server& operator=(const Server&) = delete;
 
   // Binds and listens (backlog 1024, no SO_REUSEPORT: a second server on the same address is
-  // refused). host: IPv4 dotted quad or "localhost". Returns the port. kStorage naming the address
-  // and the reason ("address in use", ...).
+  // refused). host: IPv4 dotted quad or "localhost". Returns the port. kBusy when the address is in use,
+  // kIOError for other failures, naming the address and the reason.
   Result<int> bind(const std::string& host, int port);
   // Serves until stop(): then stops accepting, closes idle and half-read connections, finishes the
   // requests being handled and writes their answers, and returns. REQUIRES: bind() succeeded.

@@ -12,6 +12,7 @@
 #include "alphaledger/forms.hpp"
 #include "alphaledger/service.hpp"
 #include "alphaledger/test_log.hpp"
+#include "service/error_status.hpp"
 #include "service/http_requests.hpp"
 #include "service/http_routes.hpp"
 #include "service/http_server.hpp"
@@ -21,6 +22,8 @@ namespace routes {
 
 using http::Request;
 using http::Response;
+using http::ErrorStatus;
+using http::error_status;
 
 Response json_answer(int status, std::string body) {
   body += '\n';
@@ -31,18 +34,10 @@ Response error_response(int status, std::string_view code, const std::string& me
   return json_answer(status, error_json(code, message));
 }
 
-// Ledger errors to HTTP (docs/http.md "Errors"). kRefused is a conflict here: unknown streams are
-// recognised before the ledger is asked (see Routes::find_stream).
+// Ledger errors to HTTP: the table is service/error_status.cpp.
 Response ledger_error(const Error& e) {
-  switch (e.kind) {
-    case ErrorKind::kInvalidInput:
-      return error_response(400, "invalid_input", e.message);
-    case ErrorKind::kRefused:
-      return error_response(409, "conflict", e.message);
-    case ErrorKind::kStorage:
-      return error_response(503, "storage", e.message);
-  }
-  return error_response(500, "internal", "internal error");
+  const ErrorStatus mapped = error_status(e);
+  return error_response(mapped.status, mapped.code, e.message);
 }
 
 Response protocol_error(int status, const std::string& what, std::size_t max_body) {

@@ -8,6 +8,7 @@
 #include "alphaledger/forms.hpp"
 #include "alphaledger/service.hpp"
 #include "alphaledger/test_log.hpp"
+#include "alphaledger/text.hpp"
 #include "harness/json_input.hpp"
 #include "service/json_input.hpp"
 
@@ -21,16 +22,10 @@ struct LineWork {
   std::string error;               // otherwise, why not
 };
 
-std::string trim_ws(std::string_view s) {
-  while (!s.empty() && (s.front() == ' ' || s.front() == '\t' || s.front() == '\r')) s.remove_prefix(1);
-  while (!s.empty() && (s.back() == ' ' || s.back() == '\t' || s.back() == '\r')) s.remove_suffix(1);
-  return std::string(s);
-}
-
 LineWork parse_line(std::uint64_t line_no, std::string_view text, Alternative direction) {
   LineWork w;
   w.line = line_no;
-  const std::string t = trim_ws(text);
+  const std::string_view t = trim(text);
   if (t.empty()) {
     w.error = "empty line; each line must be one JSON object such as {\"id\": \"t1\", \"p_value\": 0.01}";
     return w;
@@ -89,16 +84,15 @@ class PipeRun {
         } else {
           text = line_error_json(work[k].line, r->error().message);
           ++summary_.bad;
-          if (r->error().kind == ErrorKind::kStorage) fatal = r->error();
+          if (is_storage_failure(r->error().kind)) fatal = r->error();
         }
       }
       out_ << text << '\n';
       out_.flush();
       if (!out_)
-        return storage_error("cannot write the answer to line " + std::to_string(work[k].line) +
-                             " to the output");
+        return io_error("cannot write the answer to line " + std::to_string(work[k].line) + " to the output");
       ++summary_.lines;
-      if (fatal) return storage_error("line " + std::to_string(work[k].line) + ": " + fatal->message);
+      if (fatal) return Error{fatal->kind, "line " + std::to_string(work[k].line) + ": " + fatal->message, fatal->code};
     }
     return {};
   }
@@ -131,7 +125,7 @@ Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd,
     const int ready = ::poll(fds, n, -1);
     if (ready < 0) {
       if (errno == EINTR) continue;
-      return storage_error(std::string("cannot wait for input: ") + std::strerror(errno));
+      return io_error(std::string("cannot wait for input: ") + std::strerror(errno));
     }
     // Once asked to stop, nothing more is read: the complete lines already read are answered.
     const bool stop = n == 2 && (fds[1].revents & POLLIN) != 0;
@@ -139,7 +133,7 @@ Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd,
       const ssize_t got = ::read(in_fd, chunk, sizeof chunk);
       if (got < 0) {
         if (errno != EINTR && errno != EAGAIN)
-          return storage_error(std::string("cannot read the input: ") + std::strerror(errno));
+          return io_error(std::string("cannot read the input: ") + std::strerror(errno));
       } else if (got == 0) {
         eof = true;
       } else {
@@ -147,7 +141,7 @@ Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd,
       }
     }
     if (!stop && (fds[0].revents & POLLNVAL) != 0)
-      return storage_error("cannot read the input: not an open file descriptor");
+      return io_error("cannot read the input: not an open file descriptor");
     // Split off every complete line (and, at the end of input, the last unterminated one). A line
     // ends with LF, CRLF or a lone CR, as in logs (docs/formats.md).
     if (after_cr && !buffer.empty()) {

@@ -24,7 +24,7 @@ std::atomic<int> g_signal{0};
 Result<std::unique_ptr<StopSignals>> StopSignals::install() {
   bool expected = false;
   if (!g_installed.compare_exchange_strong(expected, true)) {
-    return storage_error("SIGTERM/SIGINT are already being watched in this process");
+    return busy("SIGTERM/SIGINT are already being watched in this process");
   }
   sigset_t stop_set;
   sigemptyset(&stop_set);
@@ -34,14 +34,14 @@ Result<std::unique_ptr<StopSignals>> StopSignals::install() {
   // pending until read from the signalfd.
   if (const int e = pthread_sigmask(SIG_BLOCK, &stop_set, &g_old_mask); e != 0) {
     g_installed = false;
-    return storage_error(std::string("cannot block SIGTERM/SIGINT: ") + std::strerror(e));
+    return io_error(std::string("cannot block SIGTERM/SIGINT: ") + std::strerror(e));
   }
   const int fd = ::signalfd(-1, &stop_set, SFD_NONBLOCK | SFD_CLOEXEC);
   if (fd < 0) {
     const int e = errno;
     pthread_sigmask(SIG_SETMASK, &g_old_mask, nullptr);
     g_installed = false;
-    return storage_error(std::string("cannot watch SIGTERM/SIGINT (signalfd): ") + std::strerror(e));
+    return io_error(std::string("cannot watch SIGTERM/SIGINT (signalfd): ") + std::strerror(e));
   }
   struct sigaction ignore {};
   ignore.sa_handler = SIG_IGN;

@@ -12,7 +12,7 @@ namespace alphaledger {
 // two signals and watches them with a signalfd, so no handler runs on an arbitrary thread; the fd
 // becomes readable when one arrives. While the object exists the signals no longer end the
 // process; the destructor takes any still pending and restores the previous mask. Also ignores
-// SIGPIPE, so a closed reader shows up as a write error. Only one may exist at a time (kStorage
+// SIGPIPE, so a closed reader shows up as a write error. Only one may exist at a time (kBusy
 // otherwise). REQUIRES: install() is called before the process starts other threads (threads
 // inherit the mask from their creator; one started earlier could still be ended by the signal).
 class StopSignals {

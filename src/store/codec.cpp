@@ -92,31 +92,6 @@ constexpr std::size_t kRecordFixedSize = 1 + 8 + 2 + 8 + 8 + 1 + 8 + 8 + 32 + kR
 
 }  // namespace
 
-Status validate_stream_name(std::string_view name) {
-  const std::string shown(name.substr(0, 160));
-  if (name.empty()) return invalid_input("stream name must not be empty");
-  if (name.size() > kMaxStreamName) {
-    return invalid_input("stream name must be at most 128 bytes, got " + std::to_string(name.size()));
-  }
-  for (std::size_t i = 0; i < name.size(); ++i) {
-    const auto c = static_cast<unsigned char>(name[i]);
-    const bool allowed = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
-                         c == '-' || c == '_' || c == '.';
-    if (!allowed) {
-      std::string what =
-          (c < 0x20 || c >= 0x7f) ? "byte " + std::to_string(c) : "'" + std::string(1, name[i]) + "'";
-      std::string printable;
-      for (char ch : shown)
-        printable.push_back(
-            static_cast<unsigned char>(ch) < 0x20 || static_cast<unsigned char>(ch) >= 0x7f ? '?' : ch);
-      return invalid_input("stream name may contain only letters, digits, '-', '_' and '.', got '" +
-                           printable + "' (" + what + " at position " + std::to_string(i + 1) + ")");
-    }
-  }
-  if (name == "." || name == "..") return invalid_input("stream name must not be '.' or '..'");
-  return {};
-}
-
 std::string config_key(std::string_view stream) { return "c/" + std::string(stream); }
 std::string head_key(std::string_view stream) { return "h/" + std::string(stream); }
 std::string record_prefix(std::string_view stream) { return "r/" + std::string(stream) + "/"; }
@@ -157,7 +132,7 @@ Result<std::uint32_t> decode_format_version(std::string_view bytes) {
   Reader r{bytes};
   const auto v = r.u32();
   if (!r.ok || !r.in.empty())
-    return storage_error("the format version key holds " + std::to_string(bytes.size()) +
+    return corruption("the format version key holds " + std::to_string(bytes.size()) +
                          " bytes, expected 4");
   return v;
 }
@@ -194,9 +169,9 @@ std::string encode_config(const StoredConfig& c) {
 Result<StoredConfig> decode_config(std::string_view bytes) {
   Reader r{bytes};
   const auto version = r.u8();
-  if (!r.ok) return storage_error("stream configuration is empty");
+  if (!r.ok) return corruption("stream configuration is empty");
   if (version != kConfigVersion) {
-    return storage_error("stream configuration has version " + std::to_string(version) +
+    return corruption("stream configuration has version " + std::to_string(version) +
                          ", this build reads version " + std::to_string(kConfigVersion));
   }
   StoredConfig c;
@@ -205,9 +180,9 @@ Result<StoredConfig> decode_config(std::string_view bytes) {
   while (r.ok && !r.in.empty()) {
     const auto f = r.u8();
     if (f == 0 || f > kConfigFieldCount) {
-      return storage_error("stream configuration has unknown field number " + std::to_string(f));
+      return corruption("stream configuration has unknown field number " + std::to_string(f));
     }
-    if (seen[f]) return storage_error("stream configuration repeats field number " + std::to_string(f));
+    if (seen[f]) return corruption("stream configuration repeats field number " + std::to_string(f));
     seen[f] = true;
     switch (static_cast<ConfigField>(f)) {
       case ConfigField::kName:
@@ -245,17 +220,17 @@ Result<StoredConfig> decode_config(std::string_view bytes) {
         break;
     }
   }
-  if (!r.ok) return storage_error("stream configuration is truncated");
+  if (!r.ok) return corruption("stream configuration is truncated");
   for (int f = 1; f <= kConfigFieldCount; ++f) {
-    if (!seen[f]) return storage_error("stream configuration lacks field number " + std::to_string(f));
+    if (!seen[f]) return corruption("stream configuration lacks field number " + std::to_string(f));
   }
   if (kind < 1 || kind > 6)
-    return storage_error("stream configuration has unknown rule number " + std::to_string(kind));
+    return corruption("stream configuration has unknown rule number " + std::to_string(kind));
   if (evaluation < 1 || evaluation > 2) {
-    return storage_error("stream configuration has unknown evaluation number " + std::to_string(evaluation));
+    return corruption("stream configuration has unknown evaluation number " + std::to_string(evaluation));
   }
   if (alternative < 1 || alternative > 3) {
-    return storage_error("stream configuration has unknown alternative number " +
+    return corruption("stream configuration has unknown alternative number " +
                          std::to_string(alternative));
   }
   c.alternative = static_cast<Alternative>(alternative);
@@ -275,10 +250,10 @@ Result<StoredConfig> decode_config(std::string_view bytes) {
   if (rule_takes(c.config.kind, "evaluation"))
     spec.evaluation = std::string(evaluation_name(c.config.evaluation));
   auto resolved = resolve_config(spec);
-  if (!resolved) return storage_error("stream configuration is not valid: " + resolved.error().message);
-  if (!(*resolved == c.config)) return storage_error("stream configuration is not in canonical form");
+  if (!resolved) return corruption("stream configuration is not valid: " + resolved.error().message);
+  if (!(*resolved == c.config)) return corruption("stream configuration is not in canonical form");
   if (validate_stream_name(c.name).ok() == false)
-    return storage_error("stream configuration holds a bad name");
+    return corruption("stream configuration holds a bad name");
   return c;
 }
 
@@ -296,9 +271,9 @@ std::string encode_head(const StoredHead& h) {
 Result<StoredHead> decode_head(std::string_view bytes) {
   Reader r{bytes};
   const auto version = r.u8();
-  if (!r.ok) return storage_error("stream head is empty");
+  if (!r.ok) return corruption("stream head is empty");
   if (version != kHeadVersion && version != kClosedHeadVersion) {
-    return storage_error("stream head has version " + std::to_string(version) +
+    return corruption("stream head has version " + std::to_string(version) +
                          ", this build reads versions " + std::to_string(kHeadVersion) + " and " +
                          std::to_string(kClosedHeadVersion));
   }
@@ -308,7 +283,7 @@ Result<StoredHead> decode_head(std::string_view bytes) {
   if (version == kClosedHeadVersion) h.closed_at_ms = static_cast<std::int64_t>(r.u64());
   const auto n = r.u32();
   h.rule_state = std::string(r.bytes(n));
-  if (!r.ok || !r.in.empty()) return storage_error("stream head is truncated or has trailing bytes");
+  if (!r.ok || !r.in.empty()) return corruption("stream head is truncated or has trailing bytes");
   return h;
 }
 
@@ -342,9 +317,9 @@ std::string encode_record(const DecisionRecord& rec, const Digest& prev_hash, Di
 Result<StoredRecord> decode_record(std::string_view bytes) {
   Reader r{bytes};
   const auto version = r.u8();
-  if (!r.ok) return storage_error("decision record is empty");
+  if (!r.ok) return corruption("decision record is empty");
   if (version != kRecordVersion) {
-    return storage_error("decision record has version " + std::to_string(version) +
+    return corruption("decision record has version " + std::to_string(version) +
                          ", this build reads version " + std::to_string(kRecordVersion));
   }
   StoredRecord s;
@@ -357,9 +332,9 @@ Result<StoredRecord> decode_record(std::string_view bytes) {
   s.record.decided_at_ms = static_cast<std::int64_t>(r.u64());
   s.prev_hash = r.digest();
   s.hash = r.digest();
-  if (!r.ok || !r.in.empty()) return storage_error("decision record is truncated or has trailing bytes");
+  if (!r.ok || !r.in.empty()) return corruption("decision record is truncated or has trailing bytes");
   if (rejected > 1)
-    return storage_error("decision record has rejected = " + std::to_string(rejected) + ", expected 0 or 1");
+    return corruption("decision record has rejected = " + std::to_string(rejected) + ", expected 0 or 1");
   s.record.rejected = rejected == 1;
   return s;
 }
@@ -379,7 +354,7 @@ Result<std::uint64_t> decode_step(std::string_view bytes) {
   Reader r{bytes};
   const auto v = r.u64();
   if (!r.ok || !r.in.empty())
-    return storage_error("test id index entry holds " + std::to_string(bytes.size()) + " bytes, expected 8");
+    return corruption("test id index entry holds " + std::to_string(bytes.size()) + " bytes, expected 8");
   return v;
 }
 

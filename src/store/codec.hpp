@@ -16,6 +16,7 @@
 #include "alphaledger/result.hpp"
 #include "alphaledger/rules.hpp"
 #include "alphaledger/stats.hpp"
+#include "alphaledger/text.hpp"
 #include "store/sha256.hpp"
 
 namespace alphaledger::store {
@@ -31,10 +32,10 @@ inline constexpr std::uint8_t kRecordVersion = 1;
 
 inline constexpr std::string_view kFormatKey = "m/format";
 
-// Stream names: 1..128 bytes of ASCII letters, digits, '-', '_' and '.', not "." or "..".
-// None of these is '/', the key separator, so a name cannot reach another stream's keys.
-inline constexpr std::size_t kMaxStreamName = 128;
-Status validate_stream_name(std::string_view name);
+// Stream names (alphaledger/text.hpp): ASCII letters, digits, '-', '_' and '.', so none holds '/',
+// the key separator, and a name cannot reach another stream's keys.
+using alphaledger::kMaxStreamName;
+using alphaledger::validate_stream_name;
 
 std::string config_key(std::string_view stream);                      // "c/<stream>"
 std::string head_key(std::string_view stream);                        // "h/<stream>"
@@ -60,7 +61,7 @@ struct StoredConfig {
   friend bool operator==(const StoredConfig&, const StoredConfig&) = default;
 };
 std::string encode_config(const StoredConfig& c);
-// Checks every field, and that the configuration is one resolve_config() accepts. Errors: kStorage.
+// Checks every field, and that the configuration is one resolve_config() accepts. Errors: kCorruption.
 Result<StoredConfig> decode_config(std::string_view bytes);
 
 // The stream's head: how many records, the hash of the last entry of the chain, and the rule's

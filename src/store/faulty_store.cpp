@@ -44,13 +44,13 @@ Status FaultyStore::write(const WriteBatch& batch, bool sync) {
     if (fail_all_) {
       ++failed_;
       last_failure_ = "write to " + inner_.describe() + " failed: " + *fail_all_ + " (injected fault)";
-      return storage_error(*last_failure_);
+      return io_error(*last_failure_);
     }
     if (countdown_ > 0 && --countdown_ == 0) {
       ++failed_;
       last_failure_ = "write to " + inner_.describe() + " failed: I/O error (injected fault, write " +
                       std::to_string(attempted_) + ")";
-      return storage_error(*last_failure_);
+      return io_error(*last_failure_);
     }
   }
   auto s = inner_.write(batch, sync);

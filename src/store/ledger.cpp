@@ -20,8 +20,7 @@
 #include <mutex>
 #include <unordered_map>
 
-#include "alphaledger/test_log.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 #include "store/codec.hpp"
 #include "store/ledger_internal.hpp"
 
@@ -63,8 +62,9 @@ std::string describe_config(const RuleConfig& c) {
 }
 
 Error store::unknown_stream(std::string_view name, const std::string& where) {
-  return refused("no stream named " + in_quotes(name) + " in ledger " + where +
-                 " (create it first: alphaledger new " + std::string(name) + " --rule RULE)");
+  return not_found("no stream named " + in_quotes(name) + " in ledger " + where +
+                 " (create it first: alphaledger new " + std::string(name) + " --rule RULE)",
+                   "unknown_stream");
 }
 
 namespace {
@@ -76,7 +76,7 @@ using store::StoredHead;
 using store::unknown_stream;
 
 Error closed_stream(std::string_view name, std::int64_t closed_at_ms) {
-  return refused("stream " + in_quotes(name) + " is closed since " + format_timestamp(closed_at_ms) +
+  return conflict("stream " + in_quotes(name) + " is closed since " + format_timestamp(closed_at_ms) +
                  "; it takes no more tests (its history stays readable: alphaledger history " +
                  std::string(name) + "; for new tests create a new stream)");
 }
@@ -132,7 +132,7 @@ class StoreLedger final : public Ledger {
         if (a != Alternative::kTwoSided) out += " alternative=" + std::string(alternative_name(a));
         return out;
       };
-      return refused("stream " + in_quotes(name) + " already exists with another configuration: it has " +
+      return conflict("stream " + in_quotes(name) + " already exists with another configuration: it has " +
                      described(slot->config.config, slot->config.alternative) + "; asked for " +
                      described(config, alternative) +
                      " (a stream's configuration is frozen at creation; use a new name)");
@@ -170,7 +170,7 @@ class StoreLedger final : public Ledger {
     if (!prior) return prior.error();
     if (*prior) {
       auto r = repeat_or_conflict(stream, **prior, p_value);
-      if (!r) return Error{r.error().kind, r.error().message + " (the ledger is unchanged)"};
+      if (!r) return Error{r.error().kind, r.error().message + " (the ledger is unchanged)", r.error().code};
       return r;
     }
 
@@ -232,7 +232,7 @@ class StoreLedger final : public Ledger {
           const double first_p = tests[it->second].p_value;
           if (first_p != t.p_value) {
             out.error =
-                refused("test " + in_quotes(t.id) + " appears twice in the batch with different p-values (" +
+                conflict("test " + in_quotes(t.id) + " appears twice in the batch with different p-values (" +
                         readable_number(first_p) + " at position " + std::to_string(it->second + 1) + ", " +
                         readable_number(t.p_value) + " at position " + std::to_string(i + 1) +
                         "); a test id is decided once (the ledger is unchanged)");
@@ -246,7 +246,7 @@ class StoreLedger final : public Ledger {
         if (!found) return found.error();
         if (*found) {
           if (auto r = repeat_or_conflict(stream, **found, t.p_value); !r) {
-            out.error = Error{r.error().kind, r.error().message + " (the ledger is unchanged)"};
+            out.error = Error{r.error().kind, r.error().message + " (the ledger is unchanged)", r.error().code};
             out.stopped_at = i;
             return out;
           }
@@ -363,8 +363,8 @@ class StoreLedger final : public Ledger {
     for (const auto& n : names) {
       auto info = status(n);
       if (!info) {
-        if (info.error().kind == ErrorKind::kInvalidInput) {
-          return storage_error("ledger " + location() +
+        if (info.error().kind == ErrorKind::kInvalidArgument) {
+          return corruption("ledger " + location() +
                                " holds a stream with a bad name: " + info.error().message);
         }
         return info.error();
@@ -431,11 +431,11 @@ class StoreLedger final : public Ledger {
     auto bytes = store_->get(store::record_key(stream, step));
     if (!bytes) return bytes.error();
     if (!*bytes)
-      return storage_error("ledger " + location() + ": the record for step " + std::to_string(step) +
+      return corruption("ledger " + location() + ": the record for step " + std::to_string(step) +
                            " is missing");
     auto rec = store::decode_record(**bytes);
     if (!rec)
-      return storage_error("ledger " + location() + ": step " + std::to_string(step) + ": " +
+      return corruption("ledger " + location() + ": step " + std::to_string(step) + ": " +
                            rec.error().message);
     return store::to_hex(rec->hash);
   }
@@ -451,7 +451,7 @@ class StoreLedger final : public Ledger {
       });
       if (!s) return s.error();
       if (has_data) {
-        return storage_error("ledger " + location() + " holds data but no format version key " +
+        return corruption("ledger " + location() + " holds data but no format version key " +
                              std::string(store::kFormatKey) +
                              ": it is not an alphaledger ledger, or it is corrupt");
       }
@@ -461,14 +461,14 @@ class StoreLedger final : public Ledger {
       return store_->write(batch, true);
     }
     auto version = store::decode_format_version(**v);
-    if (!version) return storage_error("ledger " + location() + " is corrupt: " + version.error().message);
+    if (!version) return corruption("ledger " + location() + " is corrupt: " + version.error().message);
     if (*version > store::kFormatVersion) {
-      return storage_error("ledger " + location() + " has format version " + std::to_string(*version) +
+      return corruption("ledger " + location() + " has format version " + std::to_string(*version) +
                            ", newer than this build of alphaledger reads (version " +
                            std::to_string(store::kFormatVersion) + "); use a newer alphaledger");
     }
     if (*version != store::kFormatVersion) {
-      return storage_error("ledger " + location() + " has format version " + std::to_string(*version) +
+      return corruption("ledger " + location() + " has format version " + std::to_string(*version) +
                            ", which this build does not read (it reads version " +
                            std::to_string(store::kFormatVersion) + ")");
     }
@@ -529,16 +529,16 @@ class StoreLedger final : public Ledger {
     }
     const std::string where = "ledger " + location() + ", stream " + in_quotes(name) + ": ";
     auto config = store::decode_config(**config_bytes);
-    if (!config) return storage_error(where + config.error().message);
+    if (!config) return corruption(where + config.error().message);
     auto head_bytes = store_->get(store::head_key(name));
     if (!head_bytes) return head_bytes.error();
-    if (!*head_bytes) return storage_error(where + "the head record is missing");
+    if (!*head_bytes) return corruption(where + "the head record is missing");
     auto head = store::decode_head(**head_bytes);
-    if (!head) return storage_error(where + head.error().message);
+    if (!head) return corruption(where + head.error().message);
     Rule rule(config->config);
-    if (auto s = rule.restore_state(head->rule_state); !s) return storage_error(where + s.error().message);
+    if (auto s = rule.restore_state(head->rule_state); !s) return corruption(where + s.error().message);
     if (rule.tests() != head->steps) {
-      return storage_error(where + "the rule state counts " + std::to_string(rule.tests()) +
+      return corruption(where + "the rule state counts " + std::to_string(rule.tests()) +
                            " tests but the head counts " + std::to_string(head->steps));
     }
     slot.config = std::move(*config);
@@ -579,22 +579,22 @@ class StoreLedger final : public Ledger {
     const std::string where =
         "ledger " + location() + ", stream " + in_quotes(stream) + ", test " + in_quotes(id) + ": ";
     auto step = store::decode_step(**index);
-    if (!step) return storage_error(where + step.error().message);
+    if (!step) return corruption(where + step.error().message);
     auto bytes = store_->get(store::record_key(stream, *step));
     if (!bytes) return bytes.error();
     if (!*bytes)
-      return storage_error(where + "the index points to step " + std::to_string(*step) +
+      return corruption(where + "the index points to step " + std::to_string(*step) +
                            ", which has no record");
     auto rec = store::decode_record(**bytes);
-    if (!rec) return storage_error(where + rec.error().message);
-    if (rec->record.id != id) return storage_error(where + "the index points to a record of another test");
+    if (!rec) return corruption(where + rec.error().message);
+    if (rec->record.id != id) return corruption(where + "the index points to a record of another test");
     return std::optional<DecisionRecord>{std::move(rec->record)};
   }
 
   Result<DecideResult> repeat_or_conflict(std::string_view stream, const DecisionRecord& prior,
                                           double p_value) {
     if (prior.p_value == p_value) return DecideResult{std::string(stream), prior, true};
-    return refused("test " + in_quotes(prior.id) + " was already decided in stream " + in_quotes(stream) +
+    return conflict("test " + in_quotes(prior.id) + " was already decided in stream " + in_quotes(stream) +
                    " at step " + std::to_string(prior.step) + " with p_value " +
                    readable_number(prior.p_value) + "; a test id is decided once, so p_value " +
                    readable_number(p_value) + " is refused");

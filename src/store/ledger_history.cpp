@@ -11,7 +11,7 @@ Status visit_records(Store& store, const std::string& where, std::string_view st
                      std::uint64_t hi, const Ledger::DecisionVisitor& visit) {
   if (lo == 0 || lo > hi) return {};
   auto problem = [&](std::uint64_t step, const std::string& what) {
-    return storage_error("ledger " + where + ", stream " + in_quotes(stream) + ": the record for step " +
+    return corruption("ledger " + where + ", stream " + in_quotes(stream) + ": the record for step " +
                          std::to_string(step) + " " + what + " (run alphaledger verify " +
                          std::string(stream) + ")");
   };

@@ -15,7 +15,7 @@
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/result.hpp"
 #include "alphaledger/store.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger::store {
 
@@ -49,7 +49,7 @@ Error unknown_stream(std::string_view name, const std::string& where);
 
 // Calls visit() for the stored records lo..hi of `stream` (1 <= lo; nothing when lo > hi), in
 // step order, one at a time, reading those records and no others, until visit returns false.
-// A record that is missing, out of place or undecodable: kStorage naming the step (the caller
+// A record that is missing, out of place or undecodable: kCorruption naming the step (the caller
 // knows from the head that steps up to hi exist). `where` is the ledger's location, for messages.
 Status visit_records(Store& store, const std::string& where, std::string_view stream, std::uint64_t lo,
                      std::uint64_t hi, const Ledger::DecisionVisitor& visit);

@@ -3,7 +3,7 @@
 #include <algorithm>
 #include <optional>
 
-#include "alphaledger/test_log.hpp"
+#include "alphaledger/text.hpp"
 #include "store/codec.hpp"
 #include "store/ledger_internal.hpp"
 
@@ -31,13 +31,12 @@ Result<Anchor> parse_anchor(std::string_view text) {
   if (where == "closed") {
     a.closing = true;
   } else {
-    std::uint64_t step = 0;
-    const auto [ptr, ec] = std::from_chars(where.data(), where.data() + where.size(), step);
-    if (where.empty() || ec != std::errc() || ptr != where.data() + where.size()) {
+    const auto step = read_whole_number(where);
+    if (!step) {
       return invalid_input("anchor " + excerpt(text) + ": the part before ':' must be a step number (0 for " +
                            "the configuration) or the word closed, got " + excerpt(where, 24) + accepted);
     }
-    a.step = step;
+    a.step = *step;
   }
   if (hash.size() != kHashHexSize || !std::all_of(hash.begin(), hash.end(), is_hex)) {
     return invalid_input("anchor " + excerpt(text) +

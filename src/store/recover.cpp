@@ -10,7 +10,7 @@
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/rules.hpp"
 #include "alphaledger/store.hpp"
-#include "alphaledger/test_log.hpp"
+#include "alphaledger/text.hpp"
 #include "store/codec.hpp"
 
 namespace alphaledger {
@@ -47,11 +47,11 @@ Status copy_files(const std::string& from, const std::string& to) {
     if (name == "LOCK") continue;
     fs::copy_file(entry.path(), fs::path(to) / name, fs::copy_options::overwrite_existing, ec);
     if (ec) {
-      return storage_error("cannot copy " + entry.path().string() + " to the scratch folder " + to + ": " +
+      return io_error("cannot copy " + entry.path().string() + " to the scratch folder " + to + ": " +
                            ec.message());
     }
   }
-  if (ec) return storage_error("cannot list ledger folder " + from + ": " + ec.message());
+  if (ec) return io_error("cannot list ledger folder " + from + ": " + ec.message());
   return {};
 }
 
@@ -195,7 +195,7 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
     return invalid_input("recover --to " + target + ": the target is the damaged ledger itself");
   }
   if (!fs::is_directory(source, ec)) {
-    return refused("no ledger at " + source + " (give the damaged ledger folder with --ledger DIR)");
+    return not_found("no ledger at " + source + " (give the damaged ledger folder with --ledger DIR)", "no_ledger");
   }
 
   // 1. The strict, read-only open: what damage is there? Writes nothing.
@@ -206,7 +206,7 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
                                                  .check_all_files = true,
                                              });
     if (!strict) {
-      if (strict.error().kind == ErrorKind::kRefused) return strict.error();
+      if (strict.error().kind == ErrorKind::kNotFound) return strict.error();
       report.source_problem = strict.error().message;
     }
   }
@@ -217,7 +217,7 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
   fs::create_directories(parent, ec);
   std::string tmpl = (parent / ".alphaledger-recover-XXXXXX").string();
   if (::mkdtemp(tmpl.data()) == nullptr) {
-    return storage_error("cannot make a scratch folder in " + parent.string() +
+    return io_error("cannot make a scratch folder in " + parent.string() +
                          " for the copy of the damaged ledger (is the folder writable?)");
   }
   Scratch scratch(tmpl);
@@ -298,7 +298,7 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
     auto v = (*check)->verify(sr.stream, anchors);
     if (!v) return v.error();
     if (!v->ok || v->steps != sr.kept_steps) {
-      return storage_error("the recovered ledger " + target + " fails verify for stream " + sr.stream + ": " +
+      return corruption("the recovered ledger " + target + " fails verify for stream " + sr.stream + ": " +
                            v->problem + " (this is a bug; the source is unchanged)");
     }
   }

@@ -195,7 +195,9 @@ std::string cause_of(const rocksdb::Status& s, const std::string& folder, const 
 }
 
 Error translate(const rocksdb::Status& s, const std::string& what, const std::string& folder) {
-  return storage_error(what + ": " + cause_of(s, folder));
+  if (s.IsCorruption()) return corruption(what + ": " + cause_of(s, folder));
+  if (s.IsBusy() || s.IsTimedOut()) return busy(what + ": " + cause_of(s, folder));
+  return io_error(what + ": " + cause_of(s, folder));
 }
 
 std::string damaged(const std::string& path, const std::string& detail) {
@@ -511,7 +513,7 @@ class RocksStore final : public Store {
   Status start_seal(std::shared_ptr<SealKeeper> keeper) {
     seal_ = std::move(keeper);
     if (auto e = seal_->start(path_, db_->GetLatestSequenceNumber(), newest_table(*db_))) {
-      return storage_error("cannot open ledger " + path_ + ": " + *e);
+      return io_error("cannot open ledger " + path_ + ": " + *e);
     }
     return {};
   }
@@ -520,7 +522,7 @@ class RocksStore final : public Store {
     std::string value;
     std::shared_lock db_lock(db_mu_);
     if (!db_)
-      return storage_error("cannot read ledger " + path_ + ": it could not be reopened after a failed write");
+      return io_error("cannot read ledger " + path_ + ": it could not be reopened after a failed write");
     const auto s = db_->Get(rocksdb::ReadOptions(), rocksdb::Slice(key.data(), key.size()), &value);
     if (s.IsNotFound()) return std::optional<std::string>{};
     if (!s.ok()) return translate(s, "cannot read ledger " + path_, path_);
@@ -529,7 +531,7 @@ class RocksStore final : public Store {
 
   Status write(const WriteBatch& batch, bool sync) override {
     if (read_only_) {
-      return storage_error("cannot write to ledger " + path_ + ": it was opened for reading only");
+      return io_error("cannot write to ledger " + path_ + ": it was opened for reading only");
     }
     std::size_t bytes = 64;
     for (const auto& op : batch.ops) bytes += op.key.size() + op.value.size() + 16;
@@ -557,7 +559,7 @@ class RocksStore final : public Store {
       if (!r.ok() || resumed_once_) {
         if (auto e = reopen(); !e) {
           failing_ = "writes to ledger " + path_ + " fail: " + e.error().message;
-          return storage_error(*failing_ + " (the write was not made; retry when the disk is fixed)");
+          return io_error(*failing_ + " (the write was not made; retry when the disk is fixed)");
         }
       }
       resumed_once_ = true;
@@ -580,14 +582,14 @@ class RocksStore final : public Store {
         sync_alone.lock();
       }
       std::shared_lock db_lock(db_mu_);
-      if (!db_) return storage_error("cannot write to ledger " + path_ + ": it could not be reopened");
+      if (!db_) return io_error("cannot write to ledger " + path_ + ": it could not be reopened");
       s = db_->Write(wo, &wb);
       if (s.ok() && sync) synced_up_to = db_->GetLatestSequenceNumber();
     }
     if (!lock.owns_lock()) lock.lock();
     if (!s.ok()) {
       failing_ = "writes to ledger " + path_ + " fail: " + cause_of(s, path_);
-      return storage_error("cannot write to ledger " + path_ + ": " + cause_of(s, path_));
+      return io_error("cannot write to ledger " + path_ + ": " + cause_of(s, path_));
     }
     failing_.reset();
     resumed_once_ = false;
@@ -601,7 +603,7 @@ class RocksStore final : public Store {
     rocksdb::ReadOptions ro;
     std::shared_lock db_lock(db_mu_);
     if (!db_)
-      return storage_error("cannot read ledger " + path_ + ": it could not be reopened after a failed write");
+      return io_error("cannot read ledger " + path_ + ": it could not be reopened after a failed write");
     std::unique_ptr<rocksdb::Iterator> it(db_->NewIterator(ro));  // an implicit snapshot
     for (it->Seek(rocksdb::Slice(prefix.data(), prefix.size())); it->Valid(); it->Next()) {
       const auto k = it->key();
@@ -624,7 +626,7 @@ class RocksStore final : public Store {
  private:
   // REQUIRES: write_mu_ held. Closes and reopens the database with the options of the first open.
   Status reopen() {
-    if (!reopen_options_) return storage_error("the ledger cannot be reopened");
+    if (!reopen_options_) return io_error("the ledger cannot be reopened");
     std::unique_lock db_lock(db_mu_);
     (void)db_->Close();
     db_.reset();
@@ -634,12 +636,12 @@ class RocksStore final : public Store {
       // Keep a usable object: a read-only view, so reads keep working and writes keep failing.
       rocksdb::DB* ro = nullptr;
       if (rocksdb::DB::OpenForReadOnly(base_options(true), path_, &ro).ok()) db_.reset(ro);
-      return storage_error(cause_of(s, path_));
+      return io_error(cause_of(s, path_));
     }
     db_.reset(raw);
     if (seal_) {
       if (auto e = seal_->start(path_, db_->GetLatestSequenceNumber(), newest_table(*db_)))
-        return storage_error(*e);
+        return io_error(*e);
     }
     return {};
   }
@@ -711,9 +713,9 @@ Result<std::unique_ptr<rocksdb::DB>> open_checked(const std::string& path, bool 
     }
     if (s.IsIOError() && !s.IsCorruption() && problem->find("damaged") == std::string::npos &&
         problem->find("missing") == std::string::npos) {
-      return storage_error("cannot open ledger " + path + ": " + *problem);
+      return io_error("cannot open ledger " + path + ": " + *problem);
     }
-    return storage_error(damaged(path, *problem));
+    return corruption(damaged(path, *problem));
   }
 }
 
@@ -739,8 +741,8 @@ Result<std::unique_ptr<Store>> open_salvage_copy(const std::string& path) {
   std::error_code ec;
   const std::string manifest = newest_manifest(path);
   if (manifest.empty()) {
-    return storage_error("cannot read ledger copy " + path +
-                         ": it has no MANIFEST file (the list of table files)");
+    return corruption("cannot read ledger copy " + path +
+                      ": it has no MANIFEST file (the list of table files)");
   }
   auto current = read_file(fs::path(path) / "CURRENT");
   if (!current || current->empty() || current->back() != '\n' ||
@@ -783,21 +785,22 @@ Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path, const
   std::error_code ec;
   const bool exists = fs::exists(path, ec);
   if (exists && !fs::is_directory(path, ec)) {
-    return storage_error("cannot open ledger " + path +
+    return io_error("cannot open ledger " + path +
                          ": it exists and is not a folder (a ledger is a folder; give a folder path)");
   }
   const bool has_current = exists && fs::exists(fs::path(path) / "CURRENT", ec);
   if (exists && !has_current && has_ledger_files(path)) {
-    return storage_error(damaged(
+    return corruption(damaged(
         path, "file " + (fs::path(path) / "CURRENT").string() + " (the pointer to the MANIFEST) is missing"));
   }
   if (!has_current) {
     if (!options.create_if_missing || options.read_only) {
-      return refused("no ledger at " + path +
-                     " (create a stream first, or give the ledger folder with --ledger DIR)");
+      return not_found("no ledger at " + path +
+                           " (create a stream first, or give the ledger folder with --ledger DIR)",
+                       "no_ledger");
     }
     if (exists && !folder_is_empty(path)) {
-      return storage_error("cannot create a ledger in " + path +
+      return io_error("cannot create a ledger in " + path +
                            ": the folder holds other files and no ledger (give an empty or new folder)");
     }
   }
@@ -806,12 +809,12 @@ Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path, const
   if (has_current && !options.read_only) {
     // In use: say so before the checks, which could meet a write in progress.
     if (held_here(path)) {
-      return storage_error("ledger " + path + " is in use: its lock file " + lock_file +
+      return busy("ledger " + path + " is in use: its lock file " + lock_file +
                            " is held by this process (pid " + std::to_string(::getpid()) +
                            ") through another open ledger");
     }
     if (std::string holder = lock_holder(lock_file); !holder.empty()) {
-      return storage_error(
+      return busy(
           "ledger " + path + " is in use: its lock file " + lock_file + " is held by " + holder +
           "; wait for it to finish, or stop it (alphaledger serve holds the ledger while it runs)");
     }
@@ -831,7 +834,7 @@ Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path, const
   if (!has_current) {
     fs::create_directories(path, ec);
     if (ec) {
-      return storage_error("cannot create ledger folder " + path + ": " + ec.message() +
+      return io_error("cannot create ledger folder " + path + ": " + ec.message() +
                            " (check that the parent folder exists and is writable)");
     }
   }
@@ -840,18 +843,18 @@ Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path, const
   if (!s.ok()) {
     const std::string text = s.ToString();
     if (text.find("lock hold by current process") != std::string::npos) {
-      return storage_error("ledger " + path + " is in use: its lock file " + lock_file +
+      return busy("ledger " + path + " is in use: its lock file " + lock_file +
                            " is held by this process (pid " + std::to_string(::getpid()) +
                            ") through another open ledger");
     }
     if (text.find("While lock file") != std::string::npos) {
       std::string holder = lock_holder(lock_file);
       if (holder.empty()) holder = "another process";
-      return storage_error(
+      return busy(
           "ledger " + path + " is in use: its lock file " + lock_file + " is held by " + holder +
           "; wait for it to finish, or stop it (alphaledger serve holds the ledger while it runs)");
     }
-    if (s.IsCorruption()) return storage_error(damaged(path, cause_of(s, path)));
+    if (s.IsCorruption()) return corruption(damaged(path, cause_of(s, path)));
     return translate(s, "cannot open ledger " + path, path);
   }
   auto store = std::make_unique<RocksStore>(std::unique_ptr<rocksdb::DB>(raw), path, false);

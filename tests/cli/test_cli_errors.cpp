@@ -119,6 +119,15 @@ TEST_CASE("CliErrors: refusals exit 3 as no_ledger, unknown_stream and conflict"
   expect_failure({"--ledger", db, "decide", "checkout", "--id", "a", "--p", "0.02"}, 3, "conflict");
 }
 
+TEST_CASE("CliErrors: a damaged ledger exits 4 as corruption") {
+  Scratch s;
+  const std::string db = s.dir + "/db";
+  REQUIRE(run_alphaledger({"--ledger", db, "new", "s", "--rule", "lond"}).exit_code == 0);
+  std::ofstream(db + "/CURRENT", std::ios::trunc) << "garbage\n";
+  const auto j = expect_failure({"--ledger", db, "status", "s"}, 4, "corruption");
+  CHECK(message_of(j).find("is corrupt") != std::string::npos);
+}
+
 TEST_CASE("CliErrors: storage failures exit 4 as storage") {
   TempDir s;
   const std::string not_a_folder = s.write("plain-file", "not a ledger\n");
@@ -135,16 +144,21 @@ TEST_CASE("CliErrors: the table maps every kind to one exit code and code word")
     int exit_code;
     const char* code;
   };
+  // One row per error kind (alphaledger/result.hpp), then the specific code words the ledger
+  // attaches. The exit codes are docs/errors.md's table (common practice, no source).
   const Case cases[] = {
       {alphaledger::invalid_input("p_value must be in [0, 1]"), 2, "invalid_input"},
-      {alphaledger::refused("no stream named 's' in ledger db (create it first)"), 3, "unknown_stream"},
-      {alphaledger::refused("t.csv:4: no stream named 's' in ledger db"), 3, "unknown_stream"},
-      {alphaledger::refused("no ledger at db (create a stream first)"), 3, "no_ledger"},
-      {alphaledger::refused("stream s fails verification at step 3: level differs"), 3,
+      {alphaledger::not_found("no such thing"), 3, "not_found"},
+      {alphaledger::conflict("test 'a' was already decided in stream 's'"), 3, "conflict"},
+      {alphaledger::corruption("ledger db is corrupt: a record is truncated"), 4, "corruption"},
+      {alphaledger::io_error("cannot write to ledger db: No space left on device"), 4, "storage"},
+      {alphaledger::busy("ledger db is in use: its lock file db/LOCK is held"), 4, "busy"},
+      {alphaledger::not_found("no stream named 's' in ledger db", "unknown_stream"), 3, "unknown_stream"},
+      {alphaledger::not_found("no ledger at db", "no_ledger"), 3, "no_ledger"},
+      {alphaledger::conflict("stream s fails verification at step 3: level differs", "verification_failed"), 3,
        "verification_failed"},
-      {alphaledger::refused("test 'a' was already decided in stream 's'"), 3, "conflict"},
-      {alphaledger::refused("stream 's' already exists with another configuration"), 3, "conflict"},
-      {alphaledger::storage_error("ledger db is locked"), 4, "storage"},
+      // The code word comes from the kind, never from the message's wording.
+      {alphaledger::conflict("no stream named 's' (a conflict whatever the words say)"), 3, "conflict"},
   };
   for (const auto& c : cases) {
     CAPTURE(c.error.message);

@@ -572,27 +572,27 @@ TEST_CASE("Launch errors: unknown, finished and abandoned launch numbers; bad p-
 
     const auto never = rule.finish(7, 0.5);
     REQUIRE_FALSE(never.ok());
-    CHECK(never.error().kind == ErrorKind::kInvalidInput);
+    CHECK(never.error().kind == ErrorKind::kInvalidArgument);
     CHECK(never.error().message.find("launch number 7") != std::string::npos);
-    CHECK(rule.finish(0, 0.5).error().kind == ErrorKind::kInvalidInput);
-    CHECK(rule.abandon(3).error().kind == ErrorKind::kInvalidInput);
+    CHECK(rule.finish(0, 0.5).error().kind == ErrorKind::kInvalidArgument);
+    CHECK(rule.abandon(3).error().kind == ErrorKind::kInvalidArgument);
     const auto bad_p = rule.finish(r1.launch, 1.5);
     REQUIRE_FALSE(bad_p.ok());
-    CHECK(bad_p.error().kind == ErrorKind::kInvalidInput);
-    CHECK(rule.finish(r1.launch, std::nan("")).error().kind == ErrorKind::kInvalidInput);
+    CHECK(bad_p.error().kind == ErrorKind::kInvalidArgument);
+    CHECK(rule.finish(r1.launch, std::nan("")).error().kind == ErrorKind::kInvalidArgument);
     CHECK(rule.encode_state() == before);
 
     REQUIRE(rule.finish(r1.launch, 0.5).ok());
     const auto again = rule.finish(r1.launch, 0.5);
     REQUIRE_FALSE(again.ok());
-    CHECK(again.error().kind == ErrorKind::kRefused);
+    CHECK(again.error().kind == ErrorKind::kConflict);
     CHECK(again.error().message.find("no longer running") != std::string::npos);
-    CHECK(rule.abandon(r1.launch).error().kind == ErrorKind::kRefused);
+    CHECK(rule.abandon(r1.launch).error().kind == ErrorKind::kConflict);
 
     REQUIRE(rule.abandon(r2.launch).ok());
     const std::string after = rule.encode_state();
-    CHECK(rule.abandon(r2.launch).error().kind == ErrorKind::kRefused);
-    CHECK(rule.finish(r2.launch, 0.1).error().kind == ErrorKind::kRefused);
+    CHECK(rule.abandon(r2.launch).error().kind == ErrorKind::kConflict);
+    CHECK(rule.finish(r2.launch, 0.1).error().kind == ErrorKind::kConflict);
     CHECK(rule.encode_state() == after);
   }
 }
@@ -636,7 +636,7 @@ TEST_CASE("Launch state: running tests round-trip; old states restore; damaged s
     for (std::size_t cut = 1; cut < 30 && cut < state.size(); ++cut) {
       const auto s = target.restore_state(std::string_view(state).substr(0, state.size() - cut));
       CHECK_FALSE(s.ok());
-      if (!s.ok()) CHECK(s.error().kind == ErrorKind::kStorage);
+      if (!s.ok()) CHECK(s.error().kind == ErrorKind::kCorruption);
     }
     std::string bad = state;
     bad += '\x01';

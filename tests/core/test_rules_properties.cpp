@@ -246,7 +246,7 @@ TEST_CASE("RuleConfig: parameters that break a rule's conditions are refused, na
   auto check_refused = [](RuleSpec spec, const std::string& needle) {
     auto c = resolve_config(spec);
     REQUIRE_FALSE(c.ok());
-    CHECK(c.error().kind == ErrorKind::kInvalidInput);
+    CHECK(c.error().kind == ErrorKind::kInvalidArgument);
     CHECK_MESSAGE(c.error().message.find(needle) != std::string::npos, c.error().message);
   };
   check_refused({.rule = "lord++", .initial_wealth = 0.2}, "W0 <= alpha");

@@ -249,7 +249,7 @@ TEST_CASE("Simulate: bad model input is refused with the field, the value and th
   m.nonnull_fraction = 1.5;
   auto s = validate_model(m);
   REQUIRE(!s.ok());
-  CHECK(s.error().kind == ErrorKind::kInvalidInput);
+  CHECK(s.error().kind == ErrorKind::kInvalidArgument);
   CHECK(s.error().message == "--nonnull-fraction must be in [0, 1], got 1.5");
 
   m = {};

@@ -49,9 +49,9 @@ TEST_CASE(
   for (const auto& r : out) REQUIRE(r.has_value());
   CHECK(out[0]->ok());
   REQUIRE_FALSE(out[1]->ok());
-  CHECK(out[1]->error().kind == ErrorKind::kRefused);
+  CHECK(out[1]->error().kind == ErrorKind::kConflict);
   REQUIRE_FALSE(out[2]->ok());
-  CHECK(out[2]->error().kind == ErrorKind::kInvalidInput);
+  CHECK(out[2]->error().kind == ErrorKind::kInvalidArgument);
   CHECK(out[3]->ok());
   REQUIRE(out[4]->ok());
   CHECK(out[4]->value().repeat);
@@ -130,7 +130,7 @@ TEST_CASE(
 }
 
 TEST_CASE(
-    "DecisionQueue: when the store refuses writes every waiting caller gets kStorage and nothing is "
+    "DecisionQueue: when the store refuses writes every waiting caller gets kIOError and nothing is "
     "decided") {
   MemoryLedger m;
   m.create("s", "saffron");
@@ -143,7 +143,7 @@ TEST_CASE(
     threads.emplace_back([&, c] {
       for (int n = 0; n < 10; ++n) {
         auto r = queue.decide("s", test_support::tag("t", c) + test_support::tag("-", n), 0.3);
-        if (!r && r.error().kind == ErrorKind::kStorage) ++storage_errors;
+        if (!r && r.error().kind == ErrorKind::kIOError) ++storage_errors;
       }
     });
   }
@@ -164,7 +164,7 @@ TEST_CASE("DecisionQueue: lanes exist only while deciding; unknown and finished 
   for (int k = 0; k < 1000; ++k) {
     auto d = queue.decide(test_support::tag("unknown-", k), "x", 0.5);
     REQUIRE_FALSE(d.ok());
-    CHECK(d.error().kind == ErrorKind::kRefused);
+    CHECK(d.error().kind == ErrorKind::kNotFound);
   }
   CHECK(queue.lane_count() == 0);  // 1,000 names asked for, none kept
   std::vector<std::thread> threads;

@@ -171,7 +171,7 @@ TEST_CASE("json_text: bytes that are not UTF-8 are written as \\xHH, never throw
 
 TEST_CASE("forms: error_json names the kind's code when no finer code is given") {
   CHECK(Json::parse(error_json(invalid_input("bad")))["error"]["code"] == "invalid_input");
-  CHECK(Json::parse(error_json(storage_error("disk")))["error"]["code"] == "storage");
+  CHECK(Json::parse(error_json(io_error("disk")))["error"]["code"] == "storage");
   const Json h = Json::parse(health_json(std::string("the last write failed")));
   CHECK(h["status"] == "failing");
   CHECK(h["error"]["code"] == "storage");

@@ -498,7 +498,7 @@ TEST_CASE("HTTP hardening: a second service cannot bind an address in use") {
   REQUIRE(second.ok());
   auto again = (*second)->bind();
   REQUIRE_FALSE(again.ok());
-  CHECK(again.error().kind == ErrorKind::kStorage);
+  CHECK(again.error().kind == ErrorKind::kBusy);
   CHECK(again.error().message.find("address in use") != std::string::npos);
 }
 

@@ -338,7 +338,7 @@ TEST_CASE("Pipe: a storage failure answers the line it hit, stops, and nothing u
   const auto before = copy_contents(f.memory);
   auto [summary, answers] = f.run(test_line("a", 0.2) + "\n" + test_line("b", 0.3) + "\n");
   REQUIRE_FALSE(summary.ok());
-  CHECK(summary.error().kind == ErrorKind::kStorage);
+  CHECK(summary.error().kind == ErrorKind::kIOError);
   REQUIRE(answers.size() == 1);
   auto j = nlohmann::json::parse(answers[0]);
   CHECK(j["line"] == 1);

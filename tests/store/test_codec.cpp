@@ -170,7 +170,7 @@ TEST_CASE("Codec: damaged and newer values are refused with a storage error") {
   newer[0] = 2;
   auto v = decode_config(newer);
   REQUIRE_FALSE(v.ok());
-  CHECK(v.error().kind == ErrorKind::kStorage);
+  CHECK(v.error().kind == ErrorKind::kCorruption);
   CHECK(v.error().message.find("version 2") != std::string::npos);
   std::string unknown_field = bytes + std::string("\x0c\x00", 2);
   CHECK(decode_config(unknown_field).error().message.find("unknown field number 12") != std::string::npos);
@@ -201,7 +201,7 @@ TEST_CASE("Codec: stream names that could escape their key space are refused") {
     CAPTURE(std::string(bad));
     auto s = validate_stream_name(bad);
     REQUIRE_FALSE(s.ok());
-    CHECK(s.error().kind == ErrorKind::kInvalidInput);
+    CHECK(s.error().kind == ErrorKind::kInvalidArgument);
   }
   CHECK_FALSE(validate_stream_name(std::string(129, 'a')).ok());
   CHECK(validate_stream_name(std::string(128, 'a')).ok());

@@ -5,7 +5,7 @@
 // last 1,000 only in the live write-ahead log (.log). Each case below damages one file (a changed
 // byte, the file removed, the file cut short at a log record boundary or inside a record), then
 // opens the ledger as the commands do, and asserts:
-//   - the damage is reported, as kStorage "is corrupt", by the read-only open that status,
+//   - the damage is reported, as kCorruption "is corrupt", by the read-only open that status,
 //     history, next and streams use, or (table data blocks, which RocksDB reads only on demand)
 //     by the full check that verify and recover use; and the read-write open refuses it too;
 //   - the failed opens changed no file: same names, sizes, contents and modification times;
@@ -148,7 +148,7 @@ void check_refused(const std::string& path, bool seen_by_plain_open, const std::
   if (!plain.ok()) MESSAGE(plain.error().message);
   if (seen_by_plain_open) {
     REQUIRE_FALSE(plain.ok());
-    CHECK(plain.error().kind == ErrorKind::kStorage);
+    CHECK(plain.error().kind == ErrorKind::kCorruption);
     CHECK(plain.error().message.find("is corrupt") != std::string::npos);
     if (!file_hint.empty()) CHECK(plain.error().message.find(file_hint) != std::string::npos);
     INFO(plain.error().message);
@@ -157,16 +157,16 @@ void check_refused(const std::string& path, bool seen_by_plain_open, const std::
     auto h = (*plain)->history("s");
     if (h.ok()) CHECK(h->size() == kTotal);
   }
-  plain = Result<std::unique_ptr<Ledger>>(storage_error("closed"));
+  plain = Result<std::unique_ptr<Ledger>>(io_error("closed"));
   auto full = Ledger::open(path, read_only_options(true));
   REQUIRE_FALSE(full.ok());
-  CHECK(full.error().kind == ErrorKind::kStorage);
+  CHECK(full.error().kind == ErrorKind::kCorruption);
   CHECK(full.error().message.find("is corrupt") != std::string::npos);
   CHECK(full.error().message.find("verify") == std::string::npos);
   auto writer = Ledger::open(path);
   if (seen_by_plain_open) {
     REQUIRE_FALSE(writer.ok());
-    CHECK(writer.error().kind == ErrorKind::kStorage);
+    CHECK(writer.error().kind == ErrorKind::kCorruption);
   } else if (writer.ok()) {
     auto h = (*writer)->history("s");
     if (h.ok()) CHECK(h->size() == kTotal);
@@ -221,7 +221,7 @@ TEST_CASE("Damage: the built ledger is healthy, and a read-only open writes noth
     CHECK((*ledger)->streams().value().size() == 1);
     auto d = (*ledger)->decide("s", "new-one", 0.5);
     REQUIRE_FALSE(d.ok());
-    CHECK(d.error().kind == ErrorKind::kStorage);
+    CHECK(d.error().kind == ErrorKind::kIOError);
   }
   CHECK(snapshot(p) == before);
   CHECK_FALSE(fs::exists(fs::path(p) / "LOG.old"));
@@ -372,7 +372,7 @@ TEST_CASE("Damage: a ledger on a read-only mount opens for reading") {
     if (ledger.ok()) CHECK((*ledger)->verify("s").value().steps == kTotal);
     auto writer = Ledger::open(mnt.path());
     REQUIRE_FALSE(writer.ok());
-    CHECK(writer.error().kind == ErrorKind::kStorage);
+    CHECK(writer.error().kind == ErrorKind::kIOError);
     CHECK(writer.error().message.find("IO error") == std::string::npos);
   }
   CHECK(::umount(mnt.path().c_str()) == 0);
@@ -407,7 +407,7 @@ TEST_CASE("Damage: after a full disk is freed, decisions work again without a re
       auto d = (*ledger)->decide("s", numbered("full", i), 0.5);
       if (!d.ok()) {
         failed = true;
-        CHECK(d.error().kind == ErrorKind::kStorage);
+        CHECK(d.error().kind == ErrorKind::kIOError);
         CHECK(d.error().message.find("IO error") == std::string::npos);
         INFO(d.error().message);
         CHECK(d.error().message.find("full") != std::string::npos);
@@ -450,7 +450,7 @@ TEST_CASE("Damage: wrong places for a ledger give our own messages and create no
     std::ofstream(p + "/notes.txt") << "mine\n";
     auto s = open_rocksdb_store(p);
     REQUIRE_FALSE(s.ok());
-    CHECK(s.error().kind == ErrorKind::kStorage);
+    CHECK(s.error().kind == ErrorKind::kIOError);
     CHECK(s.error().message.find("holds other files") != std::string::npos);
     CHECK(std::distance(fs::directory_iterator(p), fs::directory_iterator()) == 1);
   }
@@ -458,14 +458,14 @@ TEST_CASE("Damage: wrong places for a ledger give our own messages and create no
     std::ofstream(dir.sub("file")) << "x\n";
     auto s = open_rocksdb_store(dir.sub("file") + "/ledger");
     REQUIRE_FALSE(s.ok());
-    CHECK(s.error().kind == ErrorKind::kStorage);
+    CHECK(s.error().kind == ErrorKind::kIOError);
     CHECK(s.error().message.find("IO error") == std::string::npos);
     CHECK(s.error().message.find(dir.sub("file")) != std::string::npos);
   }
   SUBCASE("read-only open of a missing ledger") {
     auto s = open_rocksdb_store(dir.sub("absent"), read_only_options(false));
     REQUIRE_FALSE(s.ok());
-    CHECK(s.error().kind == ErrorKind::kRefused);
+    CHECK(s.error().kind == ErrorKind::kNotFound);
     CHECK_FALSE(fs::exists(dir.sub("absent")));
   }
 }

@@ -209,7 +209,7 @@ TEST_CASE("Ledger: a test id is decided once; repeats change nothing and conflic
 
     auto conflict = ledger->decide("s", "exp-1", 0.0005);
     REQUIRE_FALSE(conflict.ok());
-    CHECK(conflict.error().kind == ErrorKind::kRefused);
+    CHECK(conflict.error().kind == ErrorKind::kConflict);
     CHECK(conflict.error().message.find("step 1") != std::string::npos);
     CHECK(conflict.error().message.find("0.0005") != std::string::npos);
     CHECK(copy_contents(store) == before);
@@ -235,16 +235,16 @@ TEST_CASE("Ledger: bad input and unknown streams are refused and change nothing"
     std::string says;
   };
   const std::vector<Case> cases = {
-      {"s", "", 0.1, ErrorKind::kInvalidInput, "empty"},
-      {"s", std::string(257, 'x'), 0.1, ErrorKind::kInvalidInput, "256"},
-      {"s", "bad\nid", 0.1, ErrorKind::kInvalidInput, "control"},
-      {"s", "b", 1.3, ErrorKind::kInvalidInput, "[0, 1]"},
-      {"s", "b", -0.01, ErrorKind::kInvalidInput, "[0, 1]"},
-      {"s", "b", std::nan(""), ErrorKind::kInvalidInput, "[0, 1]"},
-      {"s", "b", INFINITY, ErrorKind::kInvalidInput, "[0, 1]"},
-      {"../s", "b", 0.1, ErrorKind::kInvalidInput, "stream name"},
-      {"s/../t", "b", 0.1, ErrorKind::kInvalidInput, "stream name"},
-      {"nope", "b", 0.1, ErrorKind::kRefused, "no stream named 'nope'"},
+      {"s", "", 0.1, ErrorKind::kInvalidArgument, "empty"},
+      {"s", std::string(257, 'x'), 0.1, ErrorKind::kInvalidArgument, "256"},
+      {"s", "bad\nid", 0.1, ErrorKind::kInvalidArgument, "control"},
+      {"s", "b", 1.3, ErrorKind::kInvalidArgument, "[0, 1]"},
+      {"s", "b", -0.01, ErrorKind::kInvalidArgument, "[0, 1]"},
+      {"s", "b", std::nan(""), ErrorKind::kInvalidArgument, "[0, 1]"},
+      {"s", "b", INFINITY, ErrorKind::kInvalidArgument, "[0, 1]"},
+      {"../s", "b", 0.1, ErrorKind::kInvalidArgument, "stream name"},
+      {"s/../t", "b", 0.1, ErrorKind::kInvalidArgument, "stream name"},
+      {"nope", "b", 0.1, ErrorKind::kNotFound, "no stream named 'nope'"},
   };
   for (const auto& c : cases) {
     CAPTURE(c.stream);
@@ -256,10 +256,10 @@ TEST_CASE("Ledger: bad input and unknown streams are refused and change nothing"
     CHECK(d.error().message.find(c.says) != std::string::npos);
     CHECK(copy_contents(store) == before);
   }
-  CHECK(ledger->next_level("nope").error().kind == ErrorKind::kRefused);
-  CHECK(ledger->status("nope").error().kind == ErrorKind::kRefused);
-  CHECK(ledger->history("nope").error().kind == ErrorKind::kRefused);
-  CHECK(ledger->verify("nope").error().kind == ErrorKind::kRefused);
+  CHECK(ledger->next_level("nope").error().kind == ErrorKind::kNotFound);
+  CHECK(ledger->status("nope").error().kind == ErrorKind::kNotFound);
+  CHECK(ledger->history("nope").error().kind == ErrorKind::kNotFound);
+  CHECK(ledger->verify("nope").error().kind == ErrorKind::kNotFound);
   auto batch = ledger->decide_batch("s", {{"c", 0.1}, {"d", 7.0}});
   REQUIRE_FALSE(batch.ok());
   CHECK(batch.error().message.find("test 2 of the batch") != std::string::npos);
@@ -281,12 +281,12 @@ TEST_CASE("Ledger: a stream's configuration is frozen at creation") {
   CHECK(copy_contents(store) == before);
   auto other = ledger->create_stream("team.checkout", config_of({.rule = "addis", .discard_threshold = 0.6}));
   REQUIRE_FALSE(other.ok());
-  CHECK(other.error().kind == ErrorKind::kRefused);
+  CHECK(other.error().kind == ErrorKind::kConflict);
   CHECK(other.error().message.find("discard_threshold=0.5") != std::string::npos);
   CHECK(copy_contents(store) == before);
   RuleConfig broken = config_of({.rule = "lord++"});
   broken.initial_wealth = 0.5;  // not something resolve_config() returns
-  CHECK(ledger->create_stream("other", broken).error().kind == ErrorKind::kInvalidInput);
+  CHECK(ledger->create_stream("other", broken).error().kind == ErrorKind::kInvalidArgument);
   CHECK(copy_contents(store) == before);
   auto all = ledger->streams();
   REQUIRE(all.ok());
@@ -306,7 +306,7 @@ TEST_CASE("Ledger: a stream's direction is frozen with its configuration") {
   CHECK_FALSE(ledger->create_stream_directed("s", config, Alternative::kGreater)->created);
   auto other = ledger->create_stream("s", config);  // two-sided: another configuration
   REQUIRE_FALSE(other.ok());
-  CHECK(other.error().kind == ErrorKind::kRefused);
+  CHECK(other.error().kind == ErrorKind::kConflict);
   CHECK(other.error().message.find("alternative=greater") != std::string::npos);
   CHECK(copy_contents(store) == before);
   CHECK(open_over(store)->status("s")->alternative == Alternative::kGreater);
@@ -315,7 +315,7 @@ TEST_CASE("Ledger: a stream's direction is frozen with its configuration") {
 }
 
 // DEVELOPERS.md / leveldb fault_injection_test: fail the Nth write; the failed decision leaves no
-// trace in the store, is reported as kStorage, and a retry continues exactly as an uninterrupted
+// trace in the store, is reported as kIOError, and a retry continues exactly as an uninterrupted
 // run would (reference: replay of the same p-values).
 TEST_CASE("Ledger: a failed write leaves no trace and is reported") {
   const auto p = store_test::random_p_values(7, 30);
@@ -337,7 +337,7 @@ TEST_CASE("Ledger: a failed write leaves no trace and is reported") {
       auto d = ledger->decide("s", store_test::numbered("t", i + 1), p[i]);
       if (!d.ok()) {
         ++failures;
-        CHECK(d.error().kind == ErrorKind::kStorage);
+        CHECK(d.error().kind == ErrorKind::kIOError);
         CHECK(d.error().message.find("injected fault") != std::string::npos);
         CHECK(copy_contents(mem) == before);                                      // no trace
         d = ledger->decide("s", store_test::numbered("t", i + 1), p[i]);  // the retry
@@ -366,13 +366,13 @@ TEST_CASE("Ledger: a full disk refuses every change with a storage error") {
   faults->fail_all_writes("No space left on device");
   auto d = ledger->decide("s", "b", 0.5);
   REQUIRE_FALSE(d.ok());
-  CHECK(d.error().kind == ErrorKind::kStorage);
+  CHECK(d.error().kind == ErrorKind::kIOError);
   CHECK(d.error().message.find("No space left on device") != std::string::npos);
-  CHECK(ledger->create_stream("t", config_of({.rule = "lond"})).error().kind == ErrorKind::kStorage);
+  CHECK(ledger->create_stream("t", config_of({.rule = "lond"})).error().kind == ErrorKind::kIOError);
   auto batch = ledger->decide_batch("s", {{"c", 0.5}, {"d", 0.5}}, 1);
   REQUIRE(batch.ok());
   REQUIRE(batch->error.has_value());
-  CHECK(batch->error->kind == ErrorKind::kStorage);
+  CHECK(batch->error->kind == ErrorKind::kIOError);
   CHECK(batch->decided.empty());
   CHECK(ledger->status("s")->tests == 1);
   CHECK(ledger->decide("s", "a", 0.0001)->repeat);  // reads still answer repeats
@@ -432,7 +432,7 @@ TEST_CASE("Ledger: decide_batch writes groups, reports them only when durable, a
     auto r = ledger->decide_batch("s", inputs, 10);
     REQUIRE(r.ok());
     REQUIRE(r->error.has_value());
-    CHECK(r->error->kind == ErrorKind::kStorage);
+    CHECK(r->error->kind == ErrorKind::kIOError);
     CHECK(r->stopped_at == 20);
     CHECK(r->decided.size() == 20);
     CHECK(ledger->status("s")->tests == 20);
@@ -458,7 +458,7 @@ TEST_CASE("Ledger: decide_batch writes groups, reports them only when durable, a
     auto r = ledger->decide_batch("s", inputs, 4);
     REQUIRE(r.ok());
     REQUIRE(r->error.has_value());
-    CHECK(r->error->kind == ErrorKind::kRefused);
+    CHECK(r->error->kind == ErrorKind::kConflict);
     CHECK(r->stopped_at == 39);
     CHECK(r->decided.empty());
     CHECK(copy_contents(mem) == before);
@@ -521,7 +521,7 @@ TEST_CASE("Ledger: verify names the step of an edited, removed or reordered reco
     REQUIRE(ledger->create_stream("s", config_of({.rule = "lord++"})).ok());
     for (std::size_t i = 0; i < p.size(); ++i)
       REQUIRE(ledger->decide("s", store_test::numbered("t", i + 1), p[i]).ok());
-    REQUIRE(ledger->decide("other", "x", 0.1).error().kind == ErrorKind::kRefused);
+    REQUIRE(ledger->decide("other", "x", 0.1).error().kind == ErrorKind::kNotFound);
     auto r = ledger->verify("s");
     REQUIRE(r.ok());
     REQUIRE(r->ok);
@@ -672,8 +672,8 @@ TEST_CASE("Ledger: a kept chain hash can be checked later at its step") {
     REQUIRE(ledger->decide("s", store_test::numbered("t", i + 1), p[i]).ok());
   CHECK(ledger->verify("s")->chain_hash != kept);
   CHECK(ledger->chain_hash_at("s", 10).value() == kept);
-  CHECK(ledger->chain_hash_at("s", 31).error().kind == ErrorKind::kInvalidInput);
-  CHECK(ledger->chain_hash_at("s", 0).error().kind == ErrorKind::kInvalidInput);
+  CHECK(ledger->chain_hash_at("s", 31).error().kind == ErrorKind::kInvalidArgument);
+  CHECK(ledger->chain_hash_at("s", 0).error().kind == ErrorKind::kInvalidArgument);
   // Rewrite record 4 and, consistently, every record after it and the head (a forger with this
   // code): verify passes, but the hash at step 10 no longer equals the kept one.
   auto history = ledger->history("s").value();
@@ -706,7 +706,7 @@ TEST_CASE("Ledger: open checks the format version") {
     REQUIRE(mem.write(b).ok());
     auto l = Ledger::open(borrow_store(mem));
     REQUIRE_FALSE(l.ok());
-    CHECK(l.error().kind == ErrorKind::kStorage);
+    CHECK(l.error().kind == ErrorKind::kCorruption);
     CHECK(l.error().message.find("format version 2, newer") != std::string::npos);
   }
   {

@@ -156,18 +156,18 @@ TEST_CASE("Ledger close: a closed stream takes no more tests and keeps a verifia
     CAPTURE(pass);
     auto d = ledger->decide("s", "new-test", 0.001);
     REQUIRE_FALSE(d.ok());
-    CHECK(d.error().kind == ErrorKind::kRefused);
+    CHECK(d.error().kind == ErrorKind::kConflict);
     CHECK(d.error().message.find("stream 's' is closed since " + format_timestamp(closed_at)) !=
           std::string::npos);
     const double p1 =
         store::decode_record(mem.get(store::record_key("s", 1)).value().value())->record.p_value;
     auto repeat = ledger->decide("s", "t1", p1);  // a repeat of an earlier test is refused too
-    CHECK(repeat.error().kind == ErrorKind::kRefused);
+    CHECK(repeat.error().kind == ErrorKind::kConflict);
     auto batch = ledger->decide_batch("s", {{"a", 0.1}, {"b", 0.2}});
     REQUIRE_FALSE(batch.ok());
-    CHECK(batch.error().kind == ErrorKind::kRefused);
+    CHECK(batch.error().kind == ErrorKind::kConflict);
     CHECK(batch.error().message.find("is closed since") != std::string::npos);
-    CHECK(ledger->next_level("s").error().kind == ErrorKind::kRefused);
+    CHECK(ledger->next_level("s").error().kind == ErrorKind::kConflict);
     CHECK(copy_contents(mem) == before);
 
     auto info = ledger->status("s");
@@ -194,8 +194,8 @@ TEST_CASE("Ledger close: a closed stream takes no more tests and keeps a verifia
   // Other streams are untouched by the closing.
   CHECK(ledger->decide("other", "x", 0.5).ok());
   // Errors: an unknown stream is refused, a bad name is invalid input.
-  CHECK(ledger->close_stream("nope").error().kind == ErrorKind::kRefused);
-  CHECK(ledger->close_stream("a/b").error().kind == ErrorKind::kInvalidInput);
+  CHECK(ledger->close_stream("nope").error().kind == ErrorKind::kNotFound);
+  CHECK(ledger->close_stream("a/b").error().kind == ErrorKind::kInvalidArgument);
 }
 
 // A stream with no records closes too: its closing links to the configuration (genesis hash).
@@ -227,7 +227,7 @@ TEST_CASE("Ledger close: a failed write leaves the stream open") {
   faults->fail_all_writes("No space left on device");
   auto c = ledger->close_stream("s");
   REQUIRE_FALSE(c.ok());
-  CHECK(c.error().kind == ErrorKind::kStorage);
+  CHECK(c.error().kind == ErrorKind::kIOError);
   CHECK(copy_contents(mem) == before);
   faults->clear_faults();
   CHECK_FALSE(ledger->status("s")->closed_at_ms.has_value());
@@ -261,7 +261,7 @@ TEST_CASE("Ledger close: open heads keep the version 1 layout; closed heads are 
   CHECK(store::encode_head(*store::decode_head(closed_bytes)) == closed_bytes);
   std::string v3 = closed_bytes;
   v3[0] = '\x03';
-  CHECK(store::decode_head(v3).error().kind == ErrorKind::kStorage);
+  CHECK(store::decode_head(v3).error().kind == ErrorKind::kCorruption);
   CHECK_FALSE(store::decode_head(closed_bytes.substr(0, closed_bytes.size() - 1)).ok());
 }
 
@@ -361,7 +361,7 @@ TEST_CASE("Ledger anchors: parse_anchor reads STEP:HASH and closed:HASH") {
     CAPTURE(text);
     auto r = parse_anchor(text);
     REQUIRE_FALSE(r.ok());
-    CHECK(r.error().kind == ErrorKind::kInvalidInput);
+    CHECK(r.error().kind == ErrorKind::kInvalidArgument);
     CHECK(r.error().message.find(says) != std::string::npos);
     CHECK(r.error().message.find("STEP:HASH") != std::string::npos);
   }
@@ -566,9 +566,9 @@ TEST_CASE("Ledger history: pages hold the asked steps and read only them") {
   CHECK(past->records.empty());
   CHECK(past->next_step == 0);
   CHECK(past->total == 300);
-  CHECK(ledger->history_page("s", 1, 0).error().kind == ErrorKind::kInvalidInput);
-  CHECK(ledger->history_page("nope", 1, 10).error().kind == ErrorKind::kRefused);
-  CHECK(ledger->history_page("a/b", 1, 10).error().kind == ErrorKind::kInvalidInput);
+  CHECK(ledger->history_page("s", 1, 0).error().kind == ErrorKind::kInvalidArgument);
+  CHECK(ledger->history_page("nope", 1, 10).error().kind == ErrorKind::kNotFound);
+  CHECK(ledger->history_page("a/b", 1, 10).error().kind == ErrorKind::kInvalidArgument);
 }
 
 // for_each_decision walks from a step in order, stops when asked, reads only what it visits, may
@@ -602,7 +602,7 @@ TEST_CASE("Ledger history: for_each_decision streams records one at a time") {
   CHECK(counting.record_reads == 3);
   CHECK(ledger->for_each_decision("s", 101, [](const DecisionRecord&) { return true; }).ok());
   CHECK(ledger->for_each_decision("nope", 1, [](const DecisionRecord&) { return true; }).error().kind ==
-        ErrorKind::kRefused);
+        ErrorKind::kNotFound);
 
   WriteBatch w;
   w.erase(store::record_key("s", 42));
@@ -613,11 +613,11 @@ TEST_CASE("Ledger history: for_each_decision streams records one at a time") {
     return true;
   });
   REQUIRE_FALSE(broken.ok());
-  CHECK(broken.error().kind == ErrorKind::kStorage);
+  CHECK(broken.error().kind == ErrorKind::kCorruption);
   CHECK(broken.error().message.find("step 42 is missing") != std::string::npos);
   CHECK(steps.size() == 41);
-  CHECK(ledger->history("s").error().kind == ErrorKind::kStorage);
-  CHECK(ledger->history_page("s", 40, 5).error().kind == ErrorKind::kStorage);
+  CHECK(ledger->history("s").error().kind == ErrorKind::kCorruption);
+  CHECK(ledger->history_page("s", 40, 5).error().kind == ErrorKind::kCorruption);
   CHECK(ledger->history_page("s", 43, 5).ok());  // pages that do not touch step 42 still read
 }
 
@@ -665,15 +665,15 @@ TEST_CASE("Ledger cache: names of streams that do not exist are never kept") {
         kind = kind_of(ledger->verify(name));
         break;
     }
-    if (kind != ErrorKind::kRefused) {
+    if (kind != ErrorKind::kNotFound) {
       CAPTURE(i);
-      REQUIRE(kind == ErrorKind::kRefused);
+      REQUIRE(kind == ErrorKind::kNotFound);
     }
   }
   CHECK(ledger->cached_streams() == 1);
   CHECK(copy_contents(mem) == before);
   // A stream created after its name was asked for works normally and is then cached.
-  CHECK(ledger->status("ghost-7").error().kind == ErrorKind::kRefused);
+  CHECK(ledger->status("ghost-7").error().kind == ErrorKind::kNotFound);
   REQUIRE(ledger->create_stream("ghost-7", lord()).ok());
   CHECK(ledger->decide("ghost-7", "y", 0.01)->record.step == 1);
   CHECK(ledger->cached_streams() == 2);
@@ -682,7 +682,7 @@ TEST_CASE("Ledger cache: names of streams that do not exist are never kept") {
   FaultyStore* faults = faulty.get();
   auto second = std::move(Ledger::open(std::move(faulty), store_test::ticking_clock()).value());
   faults->fail_all_writes("No space left on device");
-  CHECK(second->create_stream("never", lord()).error().kind == ErrorKind::kStorage);
+  CHECK(second->create_stream("never", lord()).error().kind == ErrorKind::kIOError);
   CHECK(second->cached_streams() == 0);
 }
 

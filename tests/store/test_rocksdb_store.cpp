@@ -60,7 +60,7 @@ TEST_CASE("RocksStore: decisions persist across reopening the folder") {
   }
 }
 
-// Issue 3 item 5: a second open of an open ledger gets kStorage naming the lock file, not a
+// Issue 3 item 5: a second open of an open ledger gets kBusy naming the lock file, not a
 // crash. (The cross-process case, naming the holder's pid, is in tests/cli/test_ledger_cli.cpp.)
 // Message text of RocksDB 7.8.3 ("lock hold by current process") checked by running it.
 TEST_CASE("RocksStore: a ledger in use is refused with a message naming its lock") {
@@ -71,7 +71,7 @@ TEST_CASE("RocksStore: a ledger in use is refused with a message naming its lock
   REQUIRE((*first)->create_stream("s", lord()).ok());
   auto second = Ledger::open(path);
   REQUIRE_FALSE(second.ok());
-  CHECK(second.error().kind == ErrorKind::kStorage);
+  CHECK(second.error().kind == ErrorKind::kBusy);
   CHECK(second.error().message.find(path + "/LOCK") != std::string::npos);
   CHECK(second.error().message.find("held by this process") != std::string::npos);
   // The failed second open did not disturb the first (its lock and its data are intact).
@@ -93,7 +93,7 @@ TEST_CASE("RocksStore: a newer-format ledger is refused and not changed") {
   }
   auto ledger = Ledger::open(path);
   REQUIRE_FALSE(ledger.ok());
-  CHECK(ledger.error().kind == ErrorKind::kStorage);
+  CHECK(ledger.error().kind == ErrorKind::kCorruption);
   CHECK(ledger.error().message.find("format version 2, newer than this build") != std::string::npos);
   auto store = open_rocksdb_store(path);
   REQUIRE(store.ok());
@@ -113,7 +113,7 @@ TEST_CASE("RocksStore: corrupt, misplaced and missing ledgers give clear errors"
     std::ofstream(path + "/CURRENT", std::ios::trunc) << "garbage\n";
     auto ledger = Ledger::open(path);
     REQUIRE_FALSE(ledger.ok());
-    CHECK(ledger.error().kind == ErrorKind::kStorage);
+    CHECK(ledger.error().kind == ErrorKind::kCorruption);
     CHECK(ledger.error().message.find(path) != std::string::npos);
   }
   SUBCASE("a file where the folder should be") {
@@ -121,14 +121,14 @@ TEST_CASE("RocksStore: corrupt, misplaced and missing ledgers give clear errors"
     std::ofstream(path) << "not a ledger\n";
     auto ledger = Ledger::open(path);
     REQUIRE_FALSE(ledger.ok());
-    CHECK(ledger.error().kind == ErrorKind::kStorage);
+    CHECK(ledger.error().kind == ErrorKind::kIOError);
     CHECK(ledger.error().message.find("not a folder") != std::string::npos);
   }
   SUBCASE("no ledger yet, and the caller does not create one") {
     const std::string path = dir.sub("absent");
     auto ledger = Ledger::open(path, RocksStoreOptions{.create_if_missing = false});
     REQUIRE_FALSE(ledger.ok());
-    CHECK(ledger.error().kind == ErrorKind::kRefused);
+    CHECK(ledger.error().kind == ErrorKind::kNotFound);
     CHECK(ledger.error().message.find("no ledger at") != std::string::npos);
     CHECK_FALSE(std::filesystem::exists(path));
   }
@@ -278,7 +278,7 @@ TEST_CASE("RocksStore: opens stopped before updating the seal leave a newer OPTI
   auto ro = open_rocksdb_store(path, RocksStoreOptions{.create_if_missing = false, .read_only = true});
   CHECK(ro.ok());
   if (!ro.ok()) INFO(ro.error().message);
-  ro = Result<std::unique_ptr<Store>>(storage_error("closed"));
+  ro = Result<std::unique_ptr<Store>>(io_error("closed"));
   auto rw = open_rocksdb_store(path, RocksStoreOptions{.create_if_missing = false});
   CHECK(rw.ok());
 }
