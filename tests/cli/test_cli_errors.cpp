@@ -120,8 +120,8 @@ TEST_CASE("CliErrors: refusals exit 3 as no_ledger, unknown_stream and conflict"
 }
 
 TEST_CASE("CliErrors: a damaged ledger exits 4 as corruption") {
-  Scratch s;
-  const std::string db = s.dir + "/db";
+  TempDir s;
+  const std::string db = s.sub("db");
   REQUIRE(run_alphaledger({"--ledger", db, "new", "s", "--rule", "lond"}).exit_code == 0);
   std::ofstream(db + "/CURRENT", std::ios::trunc) << "garbage\n";
   const auto j = expect_failure({"--ledger", db, "status", "s"}, 4, "corruption");
