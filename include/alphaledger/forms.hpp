@@ -8,8 +8,10 @@
 // UTF-8 (test ids cannot be: validate_test_id refuses them on input) is written with each bad byte
 // as \xHH; no function here throws on any input.
 //
-// Example:
-//   auto d = ledger->decide("checkout-team", "exp-0142", 0.0004);
+// Example (a ledger in memory, so nothing is written to disk):
+//   auto ledger = Ledger::open(std::make_unique<MemoryStore>());
+//   (*ledger)->create_stream("checkout-team", *resolve_config({.rule = "lord++"}));
+//   auto d = (*ledger)->decide("checkout-team", "exp-0142", 0.0004);
 //   std::cout << decision_json(*d) << '\n';
 //   // {"step":1,"id":"exp-0142","p_value":0.0004,"level":0.0013703860574...,"rejected":1,
 //   //  "wealth":...,"stream":"checkout-team","decided_at":"2026-...Z","repeat":false}
