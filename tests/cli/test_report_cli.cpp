@@ -234,6 +234,33 @@ TEST_CASE("ReportCli: replay without bh adds the hindsight answer to the report 
   REQUIRE(data["rules"].size() == 2);
   CHECK(data["rules"][1]["rule"] == "bh");
   CHECK(data["rules"][1]["added_for_report"] == true);
+
+  // The log's own other columns are kept, matched by line although replay reorders by finished_at.
+  std::vector<std::string> lines;
+  {
+    std::istringstream in(slurp(kLog));
+    for (std::string l; std::getline(in, l);) lines.push_back(l);
+  }
+  const auto& input = data["input"];
+  REQUIRE(input["columns"].contains("team"));
+  REQUIRE(input["columns"].contains("metric"));
+  CHECK_FALSE(input["columns"].contains("p_value"));
+  std::size_t reordered = 0;
+  for (std::size_t i = 0; i < input["id"].size(); ++i) {
+    const std::size_t line = input["line"][i].get<std::size_t>();
+    reordered += line != i + 2 ? 1 : 0;
+    const std::string expect = input["id"][i].get<std::string>() + "," +
+                               input["columns"]["team"][i].get<std::string>() + "," +
+                               input["columns"]["metric"][i].get<std::string>() + ",";
+    CHECK(lines[line - 1].rfind(expect, 0) == 0);
+  }
+  CHECK(reordered > 0);  // the file is not in time order, so the matching by line was exercised
+
+  // From standard input the log cannot be read twice: no other columns, still a report.
+  const std::string from_stdin = s / "stdin.html";
+  const auto piped = run_alphaledger({"replay", "-", "--format", "csv", "--report", from_stdin}, slurp(kLog));
+  REQUIRE_MESSAGE(piped.exit_code == 0, piped.err);
+  CHECK(embedded_data(from_stdin)["input"]["columns"].empty());
 }
 
 TEST_CASE("ReportCli: a simulation sweep's CSV gains the swept column; its report equals it and draws") {
