@@ -7,6 +7,7 @@
 
 #include <cstdlib>
 #include <filesystem>
+#include <fstream>
 #include <map>
 #include <nlohmann/json.hpp>
 #include <regex>
@@ -358,4 +359,39 @@ TEST_CASE("ReportCli: bad output paths, unknown streams and bad sweeps fail clea
   CHECK(empty_item.exit_code == 2);
 
   CHECK(s.files() == before);  // no report and no temporary file was left behind
+}
+
+TEST_CASE("ReportCli: the browser check sees a script error and a chart that did not draw") {
+  // The marks the other tests rely on must be able to fail: the same page with a script that
+  // throws after the charts and one that breaks before them.
+  Scratch s("negative");
+  const std::string good = s / "good.html";
+  REQUIRE(run_alphaledger({"replay", kTruthLog, "--rules", "lord++", "--report", good}).exit_code == 0);
+  const std::string page = slurp(good);
+  const auto end = page.rfind("</body>");
+  REQUIRE(end != std::string::npos);
+  const std::string thrown = s / "thrown.html";
+  {
+    std::ofstream(thrown) << page.substr(0, end) << "<script>throw new Error('boom');</script>\n"
+                          << page.substr(end);
+  }
+  const std::string dom = run_chromium(thrown, "--dump-dom", s);
+  const std::string body =
+      dom.substr(dom.find("<body"), dom.find('>', dom.find("<body")) - dom.find("<body"));
+  CHECK(attribute(body, "data-errors") == "1");
+  CHECK(dom.find("hit a script error, so some charts may be missing: Uncaught Error: boom") !=
+        std::string::npos);
+
+  // Without Chart.js the drawing script fails: an error, and no chart is marked drawn.
+  const std::string broken = s / "broken.html";
+  const auto chart_start = page.find("<script>\n/*!\n * Chart.js");
+  REQUIRE(chart_start != std::string::npos);
+  const auto chart_end = page.find("</script>", chart_start);
+  { std::ofstream(broken) << page.substr(0, chart_start) << page.substr(chart_end + 9); }
+  const std::string dom2 = run_chromium(broken, "--dump-dom", s);
+  const std::string body2 =
+      dom2.substr(dom2.find("<body"), dom2.find('>', dom2.find("<body")) - dom2.find("<body"));
+  CHECK_FALSE(attribute(body2, "data-errors").empty());
+  CHECK(attribute(body2, "data-state") == "loading");
+  CHECK(dom2.find("data-drawn=") == std::string::npos);
 }
