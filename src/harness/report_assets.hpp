@@ -42,10 +42,14 @@ code { font-size: .9em; }
   body { max-width: none; padding: 0; font-size: 10pt; }
   .table-box { max-height: none; overflow: visible; border: none; }
   thead th { position: static; }
+  table { font-size: 7.5pt; }
+  td { white-space: normal; overflow-wrap: anywhere; }
   button, label input { display: none; }
   figure.chart, #cautions, table.facts { break-inside: avoid; }
-  .canvas-box { height: 250px; }
   h2 { break-after: avoid; }
+  /* The charts were drawn for the screen: scale the drawn bitmap to the page instead of redrawing. */
+  .canvas-box { height: auto; }
+  canvas { max-width: 100% !important; height: auto !important; }
 }
 )CSS";
 
