@@ -4,7 +4,9 @@
 set -euo pipefail
 packages=(g++ cmake ninja-build libboost-math-dev libspdlog-dev libcli11-dev librocksdb-dev
           doctest-dev nlohmann-json3-dev libcpp-httplib-dev pkgconf
-          clang-14 libclang-rt-14-dev)  # the last two: libFuzzer and sanitizers for scripts/fuzz.sh
+          clang-14 libclang-rt-14-dev   # libFuzzer and sanitizers for scripts/fuzz.sh
+          libjs-chart.js                # Chart.js, embedded into the HTML reports (docs/reports.md)
+          chromium)                     # a real browser for the report tests (tests/cli/test_report_cli.cpp)
 if [ "${1:-}" = "--with-references" ]; then
   # Only to regenerate reference values in tests/data (R's stats, SciPy).
   packages+=(r-base-core python3-scipy)

@@ -5,6 +5,7 @@
 #include <nlohmann/json.hpp>
 
 #include "alphaledger/replay.hpp"
+#include "alphaledger/report.hpp"
 #include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
 #include "alphaledger/text.hpp"
@@ -18,6 +19,7 @@ struct ReplayOptions {
   std::string rules = "lord++";
   std::optional<std::string> format;
   bool summary = false;
+  std::optional<std::string> report;  // --report FILE.html (docs/reports.md)
   std::optional<std::string> alternative;
   RuleFlags flags;
 };
@@ -40,6 +42,9 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
   if (!names) return names.error();
   auto procs = resolve_procedures(*names, o.flags.to_spec(), /*allow_offline=*/true);
   if (!procs) return procs.error();
+  if (o.report) {
+    if (auto s = check_output_path(*o.report, "--report"); !s) return s;
+  }
   std::optional<std::string_view> forced;
   if (o.format) forced = *o.format;
   ReadOptions read_options;
@@ -67,6 +72,7 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
             << ',' << opt_text(s.power) << '\n';
       }
     }
+    if (o.report) return write_replay_report(*o.report, *log, *procs, o.flags.alpha, o.file, forced);
     return {};
   }
   // Each procedure in turn over the read log; decisions are written as they are made.
@@ -107,6 +113,7 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
     });
   }
   out << row;
+  if (o.report) return write_replay_report(*o.report, *log, *procs, o.flags.alpha, o.file, forced);
   return {};
 }
 
@@ -129,6 +136,9 @@ void add_replay_command(CLI::App& app, CommandContext& ctx) {
       "direction of tests computed from summary columns: two-sided, greater or less; default two-sided");
   sub->add_flag("--summary", opts->summary,
                 "one row per rule: tests, rejections, false discoveries, fdp, power");
+  sub->add_option("--report", opts->report,
+                  "also write one self-contained HTML page of this replay (docs/reports.md)")
+      ->type_name("FILE");
   add_rule_flags(sub, opts->flags);
   sub->callback(
       [&ctx, opts] { ctx.run = [&ctx, opts] { return run_replay(*opts, ctx.global, std::cout); }; });

@@ -3,16 +3,21 @@
 #include <spdlog/spdlog.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <charconv>
+#include <cmath>
 #include <iostream>
 #include <memory>
 #include <thread>
 
+#include "alphaledger/ledger.hpp"
 #include "alphaledger/replay.hpp"
+#include "alphaledger/report.hpp"
 #include "alphaledger/simulate.hpp"
 #include "alphaledger/test_log.hpp"
 #include "alphaledger/text.hpp"
 #include "cli/command.hpp"
+#include "harness/format.hpp"
 #include "harness/simulate_report.hpp"
 
 namespace alphaledger::cli {
@@ -24,15 +29,51 @@ constexpr const char* kAllProcedures =
 struct SimulateOptions {
   std::string rules = kAllProcedures;
   std::string tests, runs, seed = "1", threads;
-  double nonnull_fraction = 0.1;
-  double effect = 3;
+  std::string nonnull_fraction = "0.1";  // one value, or a comma-separated list (a sweep)
+  std::string effect = "3";
   double effect_sd = 0;
   double null_mean = 0;
   std::string pattern = "constant";
   std::string correlation = "none";
   bool table = false;
+  std::optional<std::string> report;  // --report FILE.html (docs/reports.md)
   RuleFlags flags;
 };
+
+inline constexpr std::size_t kMaxSweepValues = 100;
+
+// "0.1" or "0.05,0.1,0.2": the values of one model parameter, in the order given. The usage check
+// (src/cli/usage_errors.cpp) has already refused words that are not numbers; this refuses empty
+// items, repeats and lists longer than kMaxSweepValues, naming the flag and the item.
+Result<std::vector<double>> parse_sweep(const std::string& text, const char* flag) {
+  std::vector<double> out;
+  std::size_t start = 0;
+  for (std::size_t k = 1;; ++k) {
+    const std::size_t comma = text.find(',', start);
+    std::string_view item =
+        std::string_view(text).substr(start, comma == std::string::npos ? comma : comma - start);
+    if (!item.empty() && item.front() == '+') item.remove_prefix(1);
+    double v = 0;
+    const auto [end, ec] = std::from_chars(item.data(), item.data() + item.size(), v);
+    if (item.empty() || ec != std::errc() || end != item.data() + item.size() || !std::isfinite(v)) {
+      return invalid_input(
+          std::string(flag) + ": value " + std::to_string(k) + " of '" + excerpt(text) +
+          "' is not a finite number (accepted: a number, or a comma-separated list of numbers "
+          "for a sweep, e.g. 0.05,0.1,0.2)");
+    }
+    if (std::find(out.begin(), out.end(), v) != out.end()) {
+      return invalid_input(std::string(flag) + ": value " + std::to_string(k) + " of '" + excerpt(text) +
+                           "' repeats an earlier value (each value of a sweep is listed once)");
+    }
+    out.push_back(v);
+    if (out.size() > kMaxSweepValues) {
+      return invalid_input(std::string(flag) + ": a sweep takes at most " + std::to_string(kMaxSweepValues) +
+                           " values, got more in '" + excerpt(text) + "'");
+    }
+    if (comma == std::string::npos) return out;
+    start = comma + 1;
+  }
+}
 
 Result<std::uint64_t> parse_whole(const std::string& text, const char* flag, std::uint64_t lo,
                                   std::uint64_t hi) {
@@ -84,12 +125,30 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
   auto procs = resolve_procedures(*names, flags, /*allow_offline=*/true);
   if (!procs) return procs.error();
 
+  if (o.report) {
+    if (auto s = check_output_path(*o.report, "--report"); !s) return s;
+  }
+  auto fractions = parse_sweep(o.nonnull_fraction, "--nonnull-fraction");
+  if (!fractions) return fractions.error();
+  auto effects = parse_sweep(o.effect, "--effect");
+  if (!effects) return effects.error();
+  if (fractions->size() > 1 && effects->size() > 1) {
+    return invalid_input(
+        "--nonnull-fraction and --effect both list several values; a sweep varies one parameter at a time "
+        "(give one of them a single value)");
+  }
+  // The swept parameter's name as a CSV column, or empty for a single setting.
+  const std::string parameter = fractions->size() > 1 ? "nonnull_fraction"
+                                : effects->size() > 1 ? "effect"
+                                                      : "";
+  const std::vector<double>& values = effects->size() > 1 ? *effects : *fractions;
+
   SimulationModel model;
   auto tests = parse_whole(o.tests, "--tests", 1, 100'000'000);
   if (!tests) return tests.error();
   model.tests = *tests;
-  model.nonnull_fraction = o.nonnull_fraction;
-  model.effect = o.effect;
+  model.nonnull_fraction = fractions->front();
+  model.effect = effects->front();
   model.effect_sd = o.effect_sd;
   model.null_mean = o.null_mean;
   auto pattern = parse_nonnull_pattern(o.pattern);
@@ -98,7 +157,15 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
   auto correlation = parse_correlation(o.correlation);
   if (!correlation) return correlation.error();
   model.correlation = *correlation;
-  if (auto s = validate_model(model); !s) return s.error();
+  // Every value of a sweep is checked before anything runs.
+  std::vector<SimulationModel> models;
+  for (double v : values) {
+    SimulationModel m = model;
+    if (parameter == "effect") m.effect = v;
+    if (parameter == "nonnull_fraction") m.nonnull_fraction = v;
+    if (auto s = validate_model(m); !s) return s.error();
+    models.push_back(m);
+  }
 
   SimulationOptions run;
   auto runs = parse_whole(o.runs, "--runs", 1, 100'000'000);
@@ -121,22 +188,49 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
       "null mean {}, correlation {}",
       run.runs, model.tests, run.seed, run.threads, model.nonnull_fraction, pattern_text(model.pattern),
       model.effect, model.effect_sd, model.null_mean, correlation_text(model.correlation));
-  Progress progress(run.runs);
-  run.progress = [&progress](std::uint64_t done) { progress.update(done); };
-  auto result = run_simulation(plan, model, run);
-  if (!result) {
-    progress.finish("");
-    return result.error();
+  // A sweep runs the same seed at every value, so the settings differ only in the swept parameter.
+  Progress progress(run.runs * models.size());
+  std::vector<std::vector<ProcedureSummary>> summaries;
+  for (std::size_t v = 0; v < models.size(); ++v) {
+    const std::uint64_t before = run.runs * v;
+    run.progress = [&progress, before](std::uint64_t done) { progress.update(before + done); };
+    auto result = run_simulation(plan, models[v], run);
+    if (!result) {
+      progress.finish("");
+      return result.error();
+    }
+    summaries.push_back(std::move(result->summaries));
   }
-  const std::string eval = evaluation_note(result->summaries);
+  const std::string eval = evaluation_note(summaries.front());
   progress.finish(g.json || o.table ? "" : eval);  // the table and the JSON say it themselves
   if (!eval.empty()) spdlog::info("simulate: evaluation {}", eval);
-  if (g.json) {
-    write_simulation_json(out, result->summaries);
-  } else if (o.table) {
-    write_simulation_table(out, result->summaries, {model, run.runs, run.seed, run.threads});
-  } else {
-    write_simulation_csv(out, result->summaries);
+  for (std::size_t v = 0; v < models.size(); ++v) {
+    if (g.json) {
+      write_simulation_json(out, summaries[v], parameter, values[v]);
+    } else if (o.table) {
+      if (!parameter.empty())
+        out << (v == 0 ? "" : "\n") << "== " << parameter << " = " << format_number(values[v]) << "\n";
+      write_simulation_table(out, summaries[v], {models[v], run.runs, run.seed, run.threads});
+    }
+  }
+  if (!g.json && !o.table) {
+    if (parameter.empty()) {
+      write_simulation_csv(out, summaries.front());
+    } else {
+      write_simulation_sweep_csv(out, parameter, values, summaries);
+    }
+  }
+  if (o.report) {
+    SimulationReportData data;
+    data.parameter = parameter;
+    data.values = values;  // a single setting: its non-null fraction (or effect), one point per rule
+    data.summaries = std::move(summaries);
+    data.model = models.front();
+    data.runs = run.runs;
+    data.seed = run.seed;
+    data.generated_at_ms = system_clock_ms();
+    out.flush();
+    return write_file_atomically(*o.report, render_simulation_report(data), "--report");
   }
   return {};
 }
@@ -157,8 +251,12 @@ void add_simulate_command(CLI::App& app, CommandContext& ctx) {
       ->required()
       ->type_name("INT");
   sub->add_option("--nonnull-fraction", opts->nonnull_fraction,
-                  "average chance that a test is non-null, in [0, 1]; default 0.1");
-  sub->add_option("--effect", opts->effect, "mean z of a non-null test; default 3");
+                  "average chance that a test is non-null, in [0, 1]; default 0.1; a comma-separated list "
+                  "runs a sweep")
+      ->type_name("FLOAT[,FLOAT...]");
+  sub->add_option("--effect", opts->effect,
+                  "mean z of a non-null test; default 3; a comma-separated list runs a sweep")
+      ->type_name("FLOAT[,FLOAT...]");
   sub->add_option("--effect-sd", opts->effect_sd, "spread of that mean between non-null tests; default 0");
   sub->add_option("--null-mean", opts->null_mean,
                   "mean z of a null test; negative means conservative nulls; default 0");
@@ -174,6 +272,9 @@ void add_simulate_command(CLI::App& app, CommandContext& ctx) {
                   "worker threads; default all cores (the output does not depend on it)")
       ->type_name("INT");
   sub->add_flag("--table", opts->table, "a table for people with standard errors and flags, instead of CSV");
+  sub->add_option("--report", opts->report,
+                  "also write one self-contained HTML page with FDR and power per rule (docs/reports.md)")
+      ->type_name("FILE");
   add_rule_flags(sub, opts->flags);
   sub->footer(
       "--evaluation defaults to fast here for lord++, saffron and addis (docs/simulate.md).\n"

@@ -103,6 +103,7 @@ int main(int argc, char** argv) {
   add_stats_commands(app, ctx);
   add_service_commands(app, ctx);
   add_recover_command(app, ctx);
+  add_report_command(app, ctx);
 
   const std::vector<std::string> args(argv + std::min(argc, 1), argv + argc);
   if (const std::string problem = check_arguments(app, args); !problem.empty()) {

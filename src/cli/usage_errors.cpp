@@ -136,6 +136,21 @@ bool looks_like_option(std::string_view t) {
 std::string value_problem(const CLI::Option* o, std::string_view value) {
   const std::string type = base_type(o);
   const std::string label = option_label(o);
+  if (type == "FLOAT[,FLOAT...]") {  // one number, or a comma-separated list of them (simulate sweeps)
+    if (value.find(',') == std::string_view::npos) {
+      if (!is_finite_number(value))
+        return label + " must be a finite number, got " + value_in_quotes(value) + accepted(o);
+      return "";
+    }
+    for (std::size_t start = 0;;) {
+      const std::size_t comma = value.find(',', start);
+      if (!is_finite_number(value.substr(start, comma == std::string_view::npos ? comma : comma - start)))
+        return label + " must be a finite number or a comma-separated list of finite numbers, got " +
+               value_in_quotes(value) + accepted(o);
+      if (comma == std::string_view::npos) return "";
+      start = comma + 1;
+    }
+  }
   if ((type == "FLOAT" || type == "NUMBER") && !is_finite_number(value))
     return label + " must be a finite number, got " + value_in_quotes(value) + accepted(o);
   if (type == "INT" && !is_whole(value, true))

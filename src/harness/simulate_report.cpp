@@ -78,9 +78,25 @@ void write_simulation_csv(std::ostream& out, const std::vector<ProcedureSummary>
   }
 }
 
-void write_simulation_json(std::ostream& out, const std::vector<ProcedureSummary>& rows) {
+void write_simulation_sweep_csv(std::ostream& out, std::string_view parameter,
+                                const std::vector<double>& values,
+                                const std::vector<std::vector<ProcedureSummary>>& summaries) {
+  out << parameter << ",rule,runs,tests,mean_rejections,fdr,fdr_se,mfdr,power,power_se,fwer\n";
+  for (std::size_t v = 0; v < values.size() && v < summaries.size(); ++v) {
+    for (const auto& r : summaries[v]) {
+      out << format_number(values[v]) << ',' << csv_field(r.rule) << ',' << r.runs << ',' << r.tests << ','
+          << format_number(r.mean_rejections) << ',' << format_number(r.fdr) << ',' << format_number(r.fdr_se)
+          << ',' << format_number(r.mfdr) << ',' << format_number(r.power) << ',' << format_number(r.power_se)
+          << ',' << format_number(r.fwer) << '\n';
+    }
+  }
+}
+
+void write_simulation_json(std::ostream& out, const std::vector<ProcedureSummary>& rows,
+                           std::string_view parameter, double value) {
   for (const auto& r : rows) {
     nlohmann::ordered_json j;
+    if (!parameter.empty()) j[std::string(parameter)] = value;
     j["rule"] = r.rule;
     j["runs"] = r.runs;
     j["tests"] = r.tests;

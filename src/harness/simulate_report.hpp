@@ -5,6 +5,7 @@
 
 #include <ostream>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "alphaledger/simulate.hpp"
@@ -24,9 +25,18 @@ struct SimulationSettings {
 // a standard error from one run) as an empty field.
 void write_simulation_csv(std::ostream& out, const std::vector<ProcedureSummary>& rows);
 
+// A sweep (a list of values for one model parameter): the same CSV with the swept parameter as a
+// first column named `parameter` ("nonnull_fraction", "effect"), one header, the rows of
+// summaries[v] for values[v] in order.
+void write_simulation_sweep_csv(std::ostream& out, std::string_view parameter,
+                                const std::vector<double>& values,
+                                const std::vector<std::vector<ProcedureSummary>>& summaries);
+
 // One object per row: the CSV keys, then evaluation ("exact" / "fast" / null), mfdr_se, fwer_se,
 // promised ("FDR" / "mFDR" / "FWER"), target and exceeds_target. Undefined numbers are null.
-void write_simulation_json(std::ostream& out, const std::vector<ProcedureSummary>& rows);
+// In a sweep, `parameter` names the swept field, which comes first in each object with `value`.
+void write_simulation_json(std::ostream& out, const std::vector<ProcedureSummary>& rows,
+                           std::string_view parameter = {}, double value = 0);
 
 // The table for people: heading with the settings and evaluation mode, one line per rule with
 // standard errors and the promise, the flags, and which guarantees the chosen scenario leaves out.

@@ -1,0 +1,458 @@
+// The three HTML reports (include/alphaledger/report.hpp; docs/reports.md). Each page is one file:
+// static HTML for the words, the data as JSON in a <script type="application/json"> block, Chart.js
+// inline, and a small script that draws the charts and fills the tables from the data.
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <nlohmann/json.hpp>
+#include <string>
+
+#include "alphaledger/report.hpp"
+#include "harness/format.hpp"
+#include "harness/report_assets.hpp"
+
+namespace alphaledger {
+namespace report_detail {
+extern const char kChartJs[];
+extern const std::size_t kChartJsSize;
+}  // namespace report_detail
+
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+Json number_or_null(double v) { return std::isfinite(v) ? Json(v) : Json(nullptr); }
+template <typename T>
+Json optional_json(const std::optional<T>& v) {
+  if (!v) return Json(nullptr);
+  if constexpr (std::is_floating_point_v<T>) return number_or_null(*v);
+  return Json(*v);
+}
+
+std::string dump(const Json& j) { return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace); }
+
+// ISO 8601 UTC with milliseconds, as the ledger prints decided_at (the harness does not link the
+// store, so the few lines are here too).
+std::string iso_time(std::int64_t ms) {
+  using namespace std::chrono;
+  const sys_time<milliseconds> tp{milliseconds{ms}};
+  const auto day = floor<days>(tp);
+  const year_month_day ymd{day};
+  const hh_mm_ss<milliseconds> t{tp - day};
+  char buf[40];
+  std::snprintf(buf, sizeof buf, "%04d-%02u-%02uT%02d:%02d:%02d.%03dZ", static_cast<int>(ymd.year()),
+                static_cast<unsigned>(ymd.month()), static_cast<unsigned>(ymd.day()),
+                static_cast<int>(t.hours().count()), static_cast<int>(t.minutes().count()),
+                static_cast<int>(t.seconds().count()), static_cast<int>(t.subseconds().count()));
+  return buf;
+}
+
+std::string timestamp_text(std::int64_t ms) { return ms > 0 ? iso_time(ms) : std::string("-"); }
+
+// The page around a report's own sections.
+std::string page(std::string_view kind, const std::string& title, const std::string& subtitle,
+                 const std::string& body, const Json& data) {
+  std::string out;
+  out.reserve(report_detail::kChartJsSize + body.size() + 4096);
+  out += "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n";
+  out += "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n";
+  out += "<meta name=\"generator\" content=\"alphaledger\">\n";
+  out += "<title>" + html_escape(title) + "</title>\n<style>\n";
+  out += report_assets::kCss;
+  out += "</style>\n</head>\n<body data-report=\"";
+  out += kind;
+  out += "\" data-state=\"loading\">\n";
+  out += report_assets::kErrorTrap;  // first, so that it also sees errors in the scripts below
+  out += "<header>\n<h1>" + html_escape(title) + "</h1>\n<p class=\"sub\">" + html_escape(subtitle) +
+         "</p>\n</header>\n<main>\n";
+  out += body;
+  out += report_assets::kCautions;
+  out += "</main>\n<footer><p>Made by alphaledger. Charts: Chart.js 3.9.1 (MIT license), embedded. ";
+  out += "The numbers of this page are in the block <code>report-data</code> of its source, as JSON.</p>";
+  out += "</footer>\n";
+  out += "<script type=\"application/json\" id=\"report-data\">";
+  out += script_json(dump(data));
+  out += "</script>\n<script>\n";
+  out.append(report_detail::kChartJs, report_detail::kChartJsSize);
+  out += "\n</script>\n<script>\n";
+  out += report_assets::kCommonScript;
+  if (kind == "stream") out += report_assets::kStreamScript;
+  if (kind == "replay") out += report_assets::kReplayScript;
+  if (kind == "simulation") out += report_assets::kSimulationScript;
+  out += "</script>\n</body>\n</html>\n";
+  return out;
+}
+
+std::string figure(const std::string& id, const std::string& heading, const std::string& label,
+                   const std::string& caption) {
+  return "<figure class=\"chart\">\n<h3>" + html_escape(heading) +
+         "</h3>\n<div class=\"canvas-box\"><canvas id=\"" + id + "\" role=\"img\" aria-label=\"" +
+         html_escape(label) + "\"></canvas></div>\n<figcaption>" + html_escape(caption) +
+         "</figcaption>\n</figure>\n";
+}
+
+std::string definition_rows(const std::vector<std::pair<std::string, std::string>>& rows) {
+  std::string out = "<table class=\"facts\">\n";
+  for (const auto& [k, v] : rows)
+    out += "<tr><th scope=\"row\">" + html_escape(k) + "</th><td>" + html_escape(v) + "</td></tr>\n";
+  return out + "</table>\n";
+}
+
+std::string conditions_text(const RuleConfig& c) {
+  switch (c.kind) {
+    case RuleKind::kAlphaSpending:
+      return "Holds under any dependence between the tests. Each p-value must be valid (at most as small as "
+             "chance allows when there is no effect).";
+    case RuleKind::kAlphaInvesting:
+      return "Needs null p-values independent of the earlier decisions. It bounds the marginal FDR "
+             "(expected false discoveries over expected discoveries), not the FDR itself.";
+    case RuleKind::kLond:
+      return "Needs null p-values independent of each other and of the non-null ones, or positively "
+             "dependent (PRDS).";
+    case RuleKind::kLordPlusPlus:
+      return "Needs null p-values independent of each other and of the non-null ones.";
+    case RuleKind::kSaffron:
+      return "Needs null p-values independent of each other and of the non-null ones; candidate "
+             "threshold lambda = " +
+             format_rounded(c.candidate_threshold) + ".";
+    case RuleKind::kAddis:
+      return "Needs null p-values independent of each other and of the non-null ones, and conservative "
+             "nulls (uniformly conservative); candidate threshold lambda = " +
+             format_rounded(c.candidate_threshold) +
+             ", discard threshold tau = " + format_rounded(c.discard_threshold) + ".";
+  }
+  return "";
+}
+
+}  // namespace
+
+std::string guarantee_text(std::string_view rule) {
+  if (rule == "alpha-spending")
+    return "FWER <= alpha: the chance of even one false discovery in the whole stream";
+  if (rule == "alpha-investing")
+    return "mFDR <= alpha: expected false discoveries over expected discoveries (Foster & Stine's form)";
+  if (rule == "bh" || rule == "storey-bh")
+    return "FDR <= alpha over the whole list, decided in hindsight (not an online rule)";
+  return "FDR <= alpha: the expected share of false discoveries among the discoveries, at every point of "
+         "the stream";
+}
+
+// ---- Stream ------------------------------------------------------------------------------------
+
+std::string render_stream_report(const StreamReportData& d) {
+  const StreamInfo& info = d.info;
+  const std::size_t n = d.records.size();
+  Json steps = Json::array(), ids = Json::array(), p = Json::array(), level = Json::array(),
+       rejected = Json::array(), wealth = Json::array(), decided = Json::array();
+  std::vector<bool> keep(n);
+  std::uint64_t discoveries = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    const DecisionRecord& r = d.records[i];
+    steps.push_back(r.step);
+    ids.push_back(r.id);
+    p.push_back(r.p_value);
+    level.push_back(r.level);
+    rejected.push_back(r.rejected ? 1 : 0);
+    wealth.push_back(r.wealth);
+    decided.push_back(r.decided_at_ms);
+    keep[i] = r.rejected;
+    discoveries += r.rejected ? 1 : 0;
+  }
+  const std::string rule(rule_name(info.config.kind));
+  Json data;
+  data["report"] = "stream";
+  data["format"] = 1;
+  data["stream"] = info.name;
+  data["rule"] = rule;
+  data["configuration"] = d.configuration;
+  data["alpha"] = info.config.alpha;
+  data["initial_wealth"] = info.config.initial_wealth;
+  data["guarantee"] = guarantee_text(rule);
+  data["conditions"] = conditions_text(info.config);
+  data["created_at"] = timestamp_text(info.created_at_ms);
+  data["closed_at"] = info.closed_at_ms ? Json(iso_time(*info.closed_at_ms)) : Json(nullptr);
+  data["generated_at"] = timestamp_text(d.generated_at_ms);
+  data["tests"] = info.tests;
+  data["rejections"] = info.rejections;
+  data["wealth"] = info.wealth;
+  data["next_level"] = info.closed_at_ms ? Json(nullptr) : number_or_null(info.next_level);
+  data["decisions"] = {{"step", std::move(steps)},
+                       {"id", std::move(ids)},
+                       {"p_value", std::move(p)},
+                       {"level", std::move(level)},
+                       {"rejected", std::move(rejected)},
+                       {"wealth", std::move(wealth)},
+                       {"decided_at_ms", std::move(decided)}};
+  // Launch-time levels come later: reserved wealth of running tests, one value per step.
+  data["reserved_wealth"] = d.reserved_wealth ? Json(*d.reserved_wealth) : Json(nullptr);
+  data["drawn"] = drawing_indices(n, keep, kMaxDrawnPoints);
+
+  const std::string title = "Stream " + info.name;
+  const std::string subtitle = std::to_string(n) + " decided test" + (n == 1 ? "" : "s") + ", " +
+                               std::to_string(discoveries) + " discover" + (discoveries == 1 ? "y" : "ies") +
+                               "; report made " + timestamp_text(d.generated_at_ms);
+  std::string body;
+  body += "<section id=\"configuration\">\n<h2>Configuration and what it promises</h2>\n";
+  body += definition_rows({
+      {"stream", info.name},
+      {"rule", d.configuration},
+      {"guarantee", guarantee_text(rule) + " (alpha = " + format_rounded(info.config.alpha) + ")"},
+      {"conditions", conditions_text(info.config)},
+      {"created", timestamp_text(info.created_at_ms)},
+      {"state", info.closed_at_ms ? "closed " + iso_time(*info.closed_at_ms) : std::string("open")},
+      {"tests decided", std::to_string(info.tests)},
+      {"discoveries", std::to_string(info.rejections)},
+      {"alpha-wealth now", format_rounded(info.wealth, 6)},
+      {"next level", info.closed_at_ms ? std::string("none (closed)") : format_rounded(info.next_level, 6)},
+  });
+  body +=
+      "<p>The guarantee is the published rule's, and it holds only under its conditions. Levels are "
+      "fixed before each p-value is read; a test is a discovery when its p-value is at most its level.</p>\n";
+  body += "</section>\n<section id=\"charts\">\n<h2>Over the stream</h2>\n";
+  body += "<p class=\"note\" id=\"thinning-note\" hidden></p>\n";
+  body +=
+      figure("chart-levels", "p-values against their levels",
+             "Scatter chart, log scale: the p-value of each of " + std::to_string(n) +
+                 " tests (circles; discoveries as filled triangles) and the level it was given (line). " +
+                 std::to_string(discoveries) + " discoveries. The numbers are in the table of decisions.",
+             "Each mark is a test, in step order; the line is its level. A test is a discovery when its "
+             "p-value is on or below the line (filled triangles). Hover or tap a mark for its id, p-value "
+             "and level. A p-value of 0 is drawn at the bottom of the chart. Table: Decisions, below.");
+  body += figure("chart-wealth", "Alpha-wealth after each test",
+                 "Line chart: alpha-wealth after each of " + std::to_string(n) + " tests, from " +
+                     format_rounded(info.config.initial_wealth) + " at the start to " +
+                     format_rounded(info.wealth) + " now. The numbers are in the table of decisions.",
+                 "Wealth is spent on each test and earned back on each discovery (how much depends on the "
+                 "rule). Reserved wealth for running tests is not recorded yet (launch-time levels come "
+                 "later); this chart shows wealth after each decision only. Table: Decisions, below.");
+  body += figure("chart-discoveries", "Discoveries so far",
+                 "Step chart: the number of discoveries after each test, reaching " +
+                     std::to_string(discoveries) + " after " + std::to_string(n) + " tests.",
+                 "Each step up is one discovery (marked with a triangle). Table: Decisions, below.");
+  body += "</section>\n<section id=\"decisions\">\n<h2>Decisions</h2>\n";
+  body +=
+      "<p>Every test in step order, with its full-precision numbers (as <code>alphaledger history</code> "
+      "prints them). <label><input type=\"checkbox\" id=\"only-discoveries\"> only discoveries</label></p>\n";
+  body += "<div class=\"table-box\" id=\"decisions-table\"></div>\n</section>\n";
+  return page("stream", title, subtitle, body, data);
+}
+
+// ---- Replay ------------------------------------------------------------------------------------
+
+std::string render_replay_report(const ReplayReportData& d) {
+  const CompactLog& log = *d.log;
+  const ReplayResult& r = *d.result;
+  const std::size_t n = log.size();
+  Json ids = Json::array(), p = Json::array(), finished = Json::array(), truth = Json::array(),
+       line = Json::array();
+  bool any_time = false;
+  for (std::size_t i = 0; i < n; ++i) {
+    const CompactRecord& c = log.records[i];
+    ids.push_back(std::string(log.id(c)));
+    p.push_back(c.p_value);
+    line.push_back(c.line);
+    const bool has_time = (c.flags & CompactRecord::kHasTime) != 0;
+    any_time = any_time || has_time;
+    finished.push_back(has_time ? Json(c.finished_at) : Json(nullptr));
+    if (log.has_truth) truth.push_back((c.flags & CompactRecord::kIsNull) != 0 ? 1 : 0);
+  }
+  Json input = {{"id", std::move(ids)}, {"p_value", std::move(p)}, {"line", std::move(line)}};
+  if (any_time) input["finished_at"] = std::move(finished);
+  if (log.has_truth) input["is_null"] = std::move(truth);
+  Json others = Json::object();
+  for (std::size_t c = 0; c < d.input_column_names.size() && c < d.input_columns.size(); ++c) {
+    if (d.input_columns[c].size() == n) others[d.input_column_names[c]] = d.input_columns[c];
+  }
+  input["columns"] = std::move(others);
+
+  std::vector<bool> keep(n);
+  Json rules = Json::array();
+  std::string bh_name;
+  for (std::size_t k = 0; k < r.procedures.size(); ++k) {
+    const Procedure& proc = r.procedures[k];
+    const auto& decisions = r.decisions[k];
+    Json level = Json::array(), rejected = Json::array(), wealth = Json::array();
+    bool has_wealth = false;
+    for (std::size_t i = 0; i < decisions.size(); ++i) {
+      level.push_back(decisions[i].level);
+      rejected.push_back(decisions[i].rejected ? 1 : 0);
+      if (decisions[i].rejected) keep[i] = true;
+      if (decisions[i].wealth) has_wealth = true;
+      wealth.push_back(decisions[i].wealth ? Json(*decisions[i].wealth) : Json(nullptr));
+    }
+    Json rule = {{"rule", proc.name}, {"online", proc.online()}, {"guarantee", guarantee_text(proc.name)}};
+    bool extra = false;
+    for (const auto& e : d.extra) extra = extra || e == proc.name;
+    rule["added_for_report"] = extra;
+    rule["level"] = std::move(level);
+    rule["rejected"] = std::move(rejected);
+    if (has_wealth) rule["wealth"] = std::move(wealth);
+    if (d.summaries != nullptr && k < d.summaries->size()) {
+      const ReplaySummary& s = (*d.summaries)[k];
+      rule["summary"] = {{"tests", s.tests},
+                         {"rejections", s.rejections},
+                         {"false_discoveries", optional_json(s.false_discoveries)},
+                         {"fdp", optional_json(s.fdp)},
+                         {"power", optional_json(s.power)}};
+    }
+    if (proc.name == "bh" && bh_name.empty()) bh_name = proc.name;
+    rules.push_back(std::move(rule));
+  }
+  Json data;
+  data["report"] = "replay";
+  data["format"] = 1;
+  data["source"] = log.source;
+  data["tests"] = n;
+  data["has_truth"] = log.has_truth;
+  data["generated_at"] = timestamp_text(d.generated_at_ms);
+  data["input"] = std::move(input);
+  data["rules"] = std::move(rules);
+  data["hindsight"] = bh_name.empty() ? Json(nullptr) : Json(bh_name);
+  data["drawn"] = drawing_indices(n, keep, kMaxDrawnPoints);
+
+  const std::string title = "Replay of " + log.source;
+  const std::string subtitle =
+      std::to_string(n) + " tests decided in order by " + std::to_string(r.procedures.size()) + " procedure" +
+      (r.procedures.size() == 1 ? "" : "s") + "; report made " + timestamp_text(d.generated_at_ms);
+  std::string names;
+  for (const auto& proc : r.procedures) names += (names.empty() ? "" : ", ") + proc.name;
+  std::string body;
+  body += "<section id=\"summary\">\n<h2>What each rule finds</h2>\n";
+  body +=
+      "<p>The same log, in the same order, decided by each rule as if the tests had arrived one at a time "
+      "(the online rules), and by hindsight procedures that see every p-value at once (bh, storey-bh: a "
+      "baseline no online rule can use).";
+  if (!d.extra.empty())
+    body += " The hindsight BH answer was added for this report; it is not in the CSV output.";
+  body += "</p>\n";
+  if (log.has_truth)
+    body +=
+        "<p>The log says which tests are null (<code>is_null</code>), so each rule's false discovery "
+        "proportion (FDP: false discoveries over discoveries) and power (share of non-null tests found) "
+        "are known.</p>\n";
+  body += "<div class=\"table-box\" id=\"summary-table\"></div>\n";
+  body += figure("chart-summary", log.has_truth ? "FDP and power per rule" : "Discoveries per rule",
+                 log.has_truth ? "Bar chart: false discovery proportion and power of each rule (" + names +
+                                     "). The numbers are in the table above."
+                               : "Bar chart: number of discoveries of each rule (" + names +
+                                     "). The numbers are in the table above.",
+                 log.has_truth ? "Hatched bars: FDP; plain bars: power. Table: above." : "Table: above.");
+  body += "</section>\n<section id=\"over-time\">\n<h2>Discoveries over the log</h2>\n";
+  body += "<p class=\"note\" id=\"thinning-note\" hidden></p>\n";
+  body += figure("chart-discoveries", "Discoveries so far, per rule",
+                 "Line chart: the number of discoveries of each rule (" + names + ") after each of " +
+                     std::to_string(n) + " tests. The per-test table below has every decision.",
+                 "One line per rule, each with its own colour, dash pattern and marker shape. A hindsight "
+                 "procedure's line counts its final answer in log order. Table: Per test, below.");
+  body += "</section>\n<section id=\"per-test\">\n<h2>Per test</h2>\n";
+  body +=
+      "<p>Every test of the log with its own columns (id, p_value, finished_at and is_null when given, the "
+      "line in the file, and the log's other columns when it was read from a file), then each rule's "
+      "level and decision (<strong>R</strong> = "
+      "rejected, a discovery). <label><input type=\"checkbox\" id=\"only-discoveries\"> only tests some "
+      "rule rejects</label></p>\n";
+  body += "<div class=\"table-box\" id=\"tests-table\"></div>\n</section>\n";
+  return page("replay", title, subtitle, body, data);
+}
+
+// ---- Simulation ----------------------------------------------------------------------------------
+
+std::string render_simulation_report(const SimulationReportData& d) {
+  Json rows = Json::array();
+  double target = 0.05;
+  for (std::size_t v = 0; v < d.values.size(); ++v) {
+    for (const ProcedureSummary& s : d.summaries[v]) {
+      target = s.target;
+      Json row;
+      row["value"] = d.values[v];
+      row["rule"] = s.rule;
+      row["runs"] = s.runs;
+      row["tests"] = s.tests;
+      row["mean_rejections"] = number_or_null(s.mean_rejections);
+      row["fdr"] = number_or_null(s.fdr);
+      row["fdr_se"] = number_or_null(s.fdr_se);
+      row["mfdr"] = number_or_null(s.mfdr);
+      row["power"] = number_or_null(s.power);
+      row["power_se"] = number_or_null(s.power_se);
+      row["fwer"] = number_or_null(s.fwer);
+      row["fwer_se"] = number_or_null(s.fwer_se);
+      row["promised"] = std::string(error_metric_name(s.metric));
+      row["promised_value"] = number_or_null(s.promised);
+      row["promised_se"] = number_or_null(s.promised_se);
+      row["target"] = s.target;
+      row["exceeds_target"] = s.exceeds_target;
+      rows.push_back(std::move(row));
+    }
+  }
+  const SimulationModel& m = d.model;
+  Json model = {{"tests", m.tests},
+                {"nonnull_fraction", m.nonnull_fraction},
+                {"effect", m.effect},
+                {"effect_sd", m.effect_sd},
+                {"null_mean", m.null_mean},
+                {"nonnull_pattern", pattern_text(m.pattern)},
+                {"correlation", correlation_text(m.correlation)}};
+  const std::string swept_label = d.parameter == "nonnull_fraction" ? "non-null fraction"
+                                  : d.parameter == "effect"         ? "effect (mean z of a non-null test)"
+                                                                    : std::string();
+  Json data;
+  data["report"] = "simulation";
+  data["format"] = 1;
+  data["swept"] = d.parameter.empty() ? Json(nullptr) : Json(d.parameter);
+  data["swept_label"] = swept_label;
+  data["values"] = d.values;
+  data["model"] = std::move(model);
+  data["runs"] = d.runs;
+  data["seed"] = d.seed;
+  data["target"] = target;
+  data["generated_at"] = timestamp_text(d.generated_at_ms);
+  data["rows"] = std::move(rows);
+
+  std::string values_text;
+  for (double v : d.values) values_text += (values_text.empty() ? "" : ", ") + format_rounded(v);
+  const std::string title = "Simulation" + (d.parameter.empty() ? std::string() : " across " + swept_label);
+  const std::string subtitle = std::to_string(d.runs) + " simulated streams of " + std::to_string(m.tests) +
+                               " one-sided z-tests per setting, seed " + std::to_string(d.seed) +
+                               "; report made " + timestamp_text(d.generated_at_ms);
+  std::string body;
+  body += "<section id=\"settings\">\n<h2>Settings</h2>\n";
+  body += definition_rows({
+      {"swept",
+       d.parameter.empty() ? std::string("nothing (one setting)") : swept_label + ": " + values_text},
+      {"tests per stream", std::to_string(m.tests)},
+      {"streams per setting", std::to_string(d.runs)},
+      {"non-null fraction", d.parameter == "nonnull_fraction" ? "swept" : format_rounded(m.nonnull_fraction)},
+      {"non-null pattern", pattern_text(m.pattern)},
+      {"effect", d.parameter == "effect" ? "swept" : format_rounded(m.effect)},
+      {"effect sd", format_rounded(m.effect_sd)},
+      {"null mean", format_rounded(m.null_mean)},
+      {"correlation", correlation_text(m.correlation)},
+      {"seed", std::to_string(d.seed)},
+      {"target (alpha)", format_rounded(target)},
+  });
+  body +=
+      "<p>Every rule decides the very same simulated p-values in each stream, and every setting uses the "
+      "same seed, so differences between rules and between settings are not noise from different "
+      "draws. Error bars are plus or minus 2 Monte Carlo standard errors over the streams.</p>\n";
+  body += "</section>\n<section id=\"charts\">\n<h2>Error rate and power</h2>\n";
+  const std::string x = d.parameter.empty() ? std::string("the one setting") : swept_label;
+  body += figure("chart-fdr", "Realized FDR per rule",
+                 "Line chart with error bars: realized FDR of each rule across " + x + ", with the target " +
+                     format_rounded(target) + " as a dashed black line. The numbers are in the table below.",
+                 "FDR: mean over streams of false discoveries over max(discoveries, 1). A rule keeps its "
+                 "promise when its point is at or below the dashed line, allowing for the error bar. "
+                 "alpha-investing promises mFDR and alpha-spending FWER; see the table. Table: below.");
+  body += figure(
+      "chart-power", "Power per rule",
+      "Line chart with error bars: power of each rule across " + x + ". The numbers are in the table below.",
+      "Power: mean over streams of the share of non-null tests that were rejected. Each rule has its "
+      "own colour, dash pattern and marker shape. Table: below.");
+  body += "</section>\n<section id=\"results\">\n<h2>Results</h2>\n";
+  body +=
+      "<p>One row per setting and rule, as the CSV output of the same run, plus the promise and the check "
+      "(ABOVE TARGET: the realized promised rate is above the target by more than 3 standard errors).</p>\n";
+  body += "<div class=\"table-box\" id=\"results-table\"></div>\n</section>\n";
+  return page("simulation", title, subtitle, body, data);
+}
+
+}  // namespace alphaledger
