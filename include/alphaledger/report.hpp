@@ -6,13 +6,14 @@
 // which is embedded in the page, so the file opens offline and fetches nothing. Long streams are
 // thinned for drawing only (drawing_indices), never in the tables or the embedded data.
 //
-// Example (what `alphaledger replay log.csv --rules lord++,bh --report r.html` does):
+// Example (what `alphaledger replay log.csv --rules lord++,bh --report r.html` does; compiled only):
 //   auto procs = resolve_procedures({"lord++", "bh"}, RuleSpec{}, true);
 //   auto log = read_compact_log_file("log.csv", std::nullopt);
 //   ReplayResult r{*procs, {}};
 //   for (const auto& p : *procs) { r.decisions.emplace_back();
 //     replay_each(*log, p, [&](std::size_t, const Decision& d) { r.decisions.back().push_back(d); }); }
-//   auto html = render_replay_report(*log, r, summarize(*log, *procs));
+//   const auto summaries = summarize(*log, *procs);
+//   auto html = render_replay_report({.log = &*log, .result = &r, .summaries = &summaries});
 //   write_file_atomically("r.html", html, "--report");
 //
 // Thread-safety: free functions, no shared state.
@@ -90,11 +91,11 @@ struct ReplayReportData {
   const CompactLog* log = nullptr;
   const ReplayResult* result = nullptr;
   const std::vector<ReplaySummary>* summaries = nullptr;
-  std::vector<std::string> extra;
+  std::vector<std::string> extra = {};
   // The log's own other columns (team, metric...), which the log reader does not keep: names, and
   // per name one text per record in log order (empty strings where a row has none).
-  std::vector<std::string> input_column_names;
-  std::vector<std::vector<std::string>> input_columns;
+  std::vector<std::string> input_column_names = {};
+  std::vector<std::vector<std::string>> input_columns = {};
   std::int64_t generated_at_ms = 0;
 };
 std::string render_replay_report(const ReplayReportData& data);

@@ -7,6 +7,8 @@
 #include <nlohmann/json.hpp>
 #include <unordered_map>
 
+#include "harness/json_input.hpp"
+#include "harness/json_text.hpp"
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/report.hpp"
 #include "cli/command.hpp"
@@ -122,7 +124,7 @@ void read_other_columns(const std::string& path, std::optional<std::string_view>
         if (c < 0) continue;
         const std::string text = value.is_string()
                                      ? value.get<std::string>()
-                                     : value.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
+                                     : json_text(value);
         data.input_columns[static_cast<std::size_t>(c)][at->second] = excerpt(text, kMaxOtherCell);
       }
     }

@@ -167,7 +167,7 @@ Status write_file_atomically(const std::string& path, std::string_view content, 
   auto fail = [&](const char* what, int err) -> Status {
     ::close(fd);
     ::unlink(tmp.c_str());
-    return storage_error(std::string(option) + " '" + excerpt(path) + "': " + what +
+    return io_error(std::string(option) + " '" + excerpt(path) + "': " + what +
                          " failed: " + std::strerror(err) + " (nothing was written)");
   };
   (void)::fchmod(fd, 0644);  // mkstemp makes 0600; a report is meant to be shared
@@ -184,7 +184,7 @@ Status write_file_atomically(const std::string& path, std::string_view content, 
   if (::close(fd) != 0) {
     const int err = errno;
     ::unlink(tmp.c_str());
-    return storage_error(std::string(option) + " '" + excerpt(path) +
+    return io_error(std::string(option) + " '" + excerpt(path) +
                          "': closing failed: " + std::strerror(err) + " (nothing was written)");
   }
   if (::rename(tmp.c_str(), path.c_str()) != 0) {

@@ -8,7 +8,8 @@
 #include <string>
 
 #include "alphaledger/report.hpp"
-#include "harness/format.hpp"
+#include "alphaledger/text.hpp"
+#include "harness/json_text.hpp"
 #include "harness/report_assets.hpp"
 
 namespace alphaledger {
@@ -29,7 +30,7 @@ Json optional_json(const std::optional<T>& v) {
   return Json(*v);
 }
 
-std::string dump(const Json& j) { return j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace); }
+std::string dump(const Json& j) { return json_text(j); }
 
 // ISO 8601 UTC with milliseconds, as the ledger prints decided_at (the harness does not link the
 // store, so the few lines are here too).

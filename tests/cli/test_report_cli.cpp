@@ -15,10 +15,11 @@
 #include <string>
 #include <vector>
 
-#include "cli/run_command.hpp"
+#include "support/process.hpp"
+#include "support/text.hpp"
 
-using alphaledger::testing::run_alphaledger;
-using alphaledger::testing::slurp;
+using alphaledger::test_support::run_alphaledger;
+const auto slurp = [](const std::string& path) { return alphaledger::test_support::read_file(path); };
 namespace fs = std::filesystem;
 
 namespace {

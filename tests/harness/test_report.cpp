@@ -167,7 +167,7 @@ TEST_CASE("Report: write_file_atomically replaces the file in one step and leave
   const auto missing =
       al::write_file_atomically((dir / "no-such-folder" / "r.html").string(), "x", "--report");
   REQUIRE_FALSE(missing);
-  CHECK(missing.error().kind == al::ErrorKind::kInvalidInput);
+  CHECK(missing.error().kind == al::ErrorKind::kInvalidArgument);
   CHECK(missing.error().message.find("--report") != std::string::npos);
   CHECK(missing.error().message.find("does not exist") != std::string::npos);
 
