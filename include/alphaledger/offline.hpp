@@ -1,5 +1,5 @@
-// Hindsight baselines that need the whole list of p-values at once: Benjamini–Hochberg (1995) and
-// Storey-BH (Storey, Taylor & Siegmund 2004). Used by replay and simulate to show what an offline
+// Hindsight baselines that need the whole list of p-values (or e-values) at once: Benjamini–Hochberg
+// (1995), Storey-BH (Storey, Taylor & Siegmund 2004) and e-BH (Wang & Ramdas 2022). Used by replay and simulate to show what an offline
 // analysis would have found. Pure math.
 //
 // Example (step-up: the second smallest p-value is above its bound, the third is within its own):
@@ -27,5 +27,11 @@ OfflineDecisions benjamini_hochberg(const std::vector<double>& p, double alpha);
 // capped at 1; BH at alpha / pi0, rejecting only p <= lambda.
 // REQUIRES: every p in [0, 1]; 0 < alpha < 1; 0 < lambda < 1.
 OfflineDecisions storey_bh(const std::vector<double>& p, double alpha, double lambda);
+
+// e-BH on e-values (Wang & Ramdas 2022): with e_(1) >= ... >= e_(m),
+// k = max{k : e_(k) >= m / (alpha k)}; reject the k largest, i.e. every e >= m / (alpha k).
+// `threshold` is that e-value threshold (+infinity when nothing is rejected); FDR <= alpha under any
+// dependence. REQUIRES: every e >= 0 (may be +infinity); 0 < alpha < 1.
+OfflineDecisions e_benjamini_hochberg(const std::vector<double>& e, double alpha);
 
 }  // namespace alphaledger

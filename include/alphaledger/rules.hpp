@@ -8,6 +8,7 @@
 //   lord++           Ramdas et al. (2017); FDR <= alpha under independence
 //   saffron          Ramdas et al. (2018); FDR <= alpha under independence
 //   addis            Tian & Ramdas (2019); FDR <= alpha under independence, uniformly conservative nulls
+//   e-lond           Xu & Ramdas (2024); FDR <= alpha under any dependence; takes e-values
 //
 // Example (docs/methods.md section 14.3, LORD++ with the defaults):
 //   auto config = resolve_config(RuleSpec{.rule = "lord++"});
@@ -47,6 +48,7 @@ enum class RuleKind : std::uint8_t {
   kLordPlusPlus = 4,
   kSaffron = 5,
   kAddis = 6,
+  kELond = 7,  // takes e-values, not p-values
 };
 
 // Stored on disk: do not change the numbers.
@@ -55,6 +57,8 @@ enum class Evaluation : std::uint8_t { kExact = 1, kFast = 2 };
 std::string_view rule_name(RuleKind kind);                // "lord++", ...
 Result<RuleKind> parse_rule_name(std::string_view name);  // refuses unknown names, listing the known
 std::string_view evaluation_name(Evaluation e);           // "exact" / "fast"
+// True for rules whose tests report e-values (e-lond): a test is rejected when e >= 1/level.
+bool rule_takes_e_values(RuleKind kind);
 Result<Evaluation> parse_evaluation(std::string_view name);
 
 // What a user asks for: every parameter optional. resolve_config() fills defaults and validates.
@@ -130,6 +134,9 @@ class Rule {
   // Decides a test with p-value p and advances the state: launch() then finish() of that launch.
   // REQUIRES: 0 <= p <= 1 (callers validate input; see validate_p_value()).
   Outcome record(double p);
+  // The same for a rule that takes e-values (e-lond): rejected iff e >= 1 / level.
+  // REQUIRES: rule_takes_e_values(kind); e finite and >= 0 (see validate_e_value()).
+  Outcome record_e(double e);
 
   // Launch-time events (methods.md section 9.1). launch() reserves the next test's level from the
   // outcomes finished so far and changes the state (the level is spent, the clock advances).
@@ -138,6 +145,8 @@ class Rule {
   // outside [0, 1] is kInvalidArgument; a launch number never launched is kInvalidArgument; one already
   // finished or abandoned is kConflict. On error the Rule is unchanged.
   Result<Outcome> finish(std::uint64_t launch, double p);
+  // finish() for an e-value rule. Either call on the wrong kind of rule is kInvalidInput.
+  Result<Outcome> finish_e(std::uint64_t launch, double e);
   // The test will never report a p-value: no rejection, no deposit; saffron/addis count it as
   // advancing the clock. Errors as finish().
   Status abandon(std::uint64_t launch);
@@ -169,6 +178,10 @@ class Rule {
   double exact_sum() const;    // over the deposit list with the published gamma
   double mixture_sum() const;  // over the head slots and accumulators, fixed order
   void advance(bool tick, bool rejected);
+  // Whether evidence x (a p-value, or an e-value for e-lond) rejects at `level`.
+  bool rejects(double x, double level) const {
+    return config_.kind == RuleKind::kELond ? x >= 1.0 / level : x <= level;
+  }
   void set_head_mask();              // fast mode: head_mask_ from head_
   void fill_window();                // exact mode: window_ for the clocks from clock_ on
   void add_to_window(double c_new);  // exact mode: a deposit made at clock_
@@ -213,5 +226,7 @@ class Rule {
 
 // Checks a p-value: finite and in [0, 1]. The message names the field and the value.
 Status validate_p_value(double p);
+// Checks an e-value: finite and >= 0. The message names the field and the value.
+Status validate_e_value(double e);
 
 }  // namespace alphaledger

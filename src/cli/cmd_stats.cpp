@@ -11,6 +11,7 @@
 #include <string>
 #include <vector>
 
+#include "alphaledger/anytime.hpp"
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/stats.hpp"
 #include "alphaledger/store.hpp"
@@ -135,6 +136,62 @@ void add_result_json(Json& j, const Comparison& c, bool with_interval, bool with
   }
 }
 
+// ---- --anytime: the always-valid numbers beside the fixed-horizon ones ----------------------
+
+struct AnytimeOptions {
+  bool on = false;
+  std::optional<double> mixture_sd;
+};
+
+void add_anytime_options(CLI::App* sub, AnytimeOptions& a) {
+  sub->add_flag("--anytime", a.on,
+                "also give the always-valid p-value, the e-value and the confidence sequence: valid however "
+                "often the running test is looked at (normal mixture; docs/statistics.md)");
+  sub->add_option("--mixture-sd", a.mixture_sd,
+                  "with --anytime (required there): the mixing scale, about the effect you hope to detect, on "
+                  "the scale of the estimate (e.g. 0.005 = half a percentage point)");
+}
+
+// The always-valid evidence for one look, or nothing without --anytime.
+Result<std::optional<AnytimeEvidence>> anytime_of(const AnytimeOptions& a, const Result<EffectEstimate>& effect,
+                                                  Alternative alternative, double confidence) {
+  if (!a.on) {
+    if (a.mixture_sd) return invalid_input("--mixture-sd is used only with --anytime; add --anytime or drop it");
+    return std::optional<AnytimeEvidence>{};
+  }
+  if (!a.mixture_sd) {
+    return invalid_input(
+        "--anytime needs --mixture-sd: the effect you hope to detect, on the scale of the estimate (e.g. "
+        "--mixture-sd 0.005 for half a percentage point); it sets the power, never the validity");
+  }
+  if (!effect) return effect.error();
+  MixtureSettings settings{.mixture_sd = *a.mixture_sd, .alpha = 1.0 - confidence, .alternative = alternative};
+  auto e = anytime_evidence(*effect, settings);
+  if (!e) {
+    Error err = e.error();
+    if (err.message.rfind("mixture_sd", 0) == 0) err.message = "--" + err.message.replace(0, 10, "mixture-sd");
+    return err;
+  }
+  return std::optional<AnytimeEvidence>(*e);
+}
+
+void add_anytime_json(Json& j, const std::optional<AnytimeEvidence>& e, const AnytimeOptions& a) {
+  if (!e) return;
+  j["mixture_sd"] = *a.mixture_sd;
+  j["anytime_p_value"] = e->p_value;
+  j["e_value"] = json_number(e->e_value);  // null only if it overflows a double
+  j["cs_low"] = json_number(e->cs_low);
+  j["cs_high"] = json_number(e->cs_high);
+}
+
+void add_anytime_text(TextBlock& t, const std::optional<AnytimeEvidence>& e, double confidence, int digits) {
+  if (!e) return;
+  t.add("anytime_p_value", format_number(e->p_value) + "  (always valid: whenever you look and stop)");
+  t.add("e_value", text_number(e->e_value) + "  (mixture likelihood ratio at this look)");
+  t.add("cs_low", text_number(e->cs_low, digits) + "  (" + percent_text(confidence) + " confidence sequence)");
+  t.add("cs_high", text_number(e->cs_high, digits));
+}
+
 // ---- pvalue proportions -------------------------------------------------------------------
 
 struct ProportionsOptions {
@@ -142,6 +199,7 @@ struct ProportionsOptions {
   std::string alternative = "two-sided";
   std::string method = "pooled";
   double confidence = 0.95;
+  AnytimeOptions anytime;
 };
 
 Status run_pvalue_proportions(const ProportionsOptions& o, const GlobalOptions& g, std::ostream& out) {
@@ -155,6 +213,8 @@ Status run_pvalue_proportions(const ProportionsOptions& o, const GlobalOptions& 
   if (!method) return method.error();
   auto c = compare_proportions(*control, *treatment, *method, *alt, o.confidence);
   if (!c) return with_flag(c.error(), o.control, o.treatment);
+  auto anytime = anytime_of(o.anytime, effect_of_proportions(*control, *treatment), *alt, o.confidence);
+  if (!anytime) return with_flag(anytime.error(), o.control, o.treatment);
 
   // Cochran's rule of thumb for the normal approximation: every expected count at least 5.
   std::string note;
@@ -182,6 +242,7 @@ Status run_pvalue_proportions(const ProportionsOptions& o, const GlobalOptions& 
     j["control_rate"] = p0;
     j["treatment_rate"] = p1;
     add_result_json(j, *c, true, /*with_lift=*/true);
+    add_anytime_json(j, *anytime, o.anytime);
     if (!note.empty()) j["note"] = note;
     out << json_text(j) << '\n';
     return {};
@@ -206,6 +267,7 @@ Status run_pvalue_proportions(const ProportionsOptions& o, const GlobalOptions& 
   t.add("ci_low",
         text_number(c->ci_low) + "  (" + percent_text(c->confidence) + " " + kIntervalText[m] + " interval)");
   t.add("ci_high", text_number(c->ci_high));
+  add_anytime_text(t, *anytime, c->confidence, 4);
   if (!note.empty()) t.add("note", note);
   t.print(out);
   return {};
@@ -218,6 +280,7 @@ struct MeansOptions {
   std::string alternative = "two-sided";
   bool pooled_variance = false;
   double confidence = 0.95;
+  AnytimeOptions anytime;
 };
 
 Status run_pvalue_means(const MeansOptions& o, const GlobalOptions& g, std::ostream& out) {
@@ -229,6 +292,8 @@ Status run_pvalue_means(const MeansOptions& o, const GlobalOptions& g, std::ostr
   if (!alt) return alt.error();
   auto c = compare_means(*control, *treatment, o.pooled_variance, *alt, o.confidence);
   if (!c) return with_flag(c.error(), o.control, o.treatment);
+  auto anytime = anytime_of(o.anytime, effect_of_means(*control, *treatment), *alt, o.confidence);
+  if (!anytime) return with_flag(anytime.error(), o.control, o.treatment);
   if (g.json) {
     Json j;
     j["test"] = "means";
@@ -241,6 +306,7 @@ Status run_pvalue_means(const MeansOptions& o, const GlobalOptions& g, std::ostr
     j["treatment_mean"] = treatment->mean;
     j["treatment_sd"] = treatment->sd;
     add_result_json(j, *c, true);
+    add_anytime_json(j, *anytime, o.anytime);
     out << json_text(j) << '\n';
     return {};
   }
@@ -260,6 +326,7 @@ Status run_pvalue_means(const MeansOptions& o, const GlobalOptions& g, std::ostr
   t.add("estimate", text_number(c->estimate, 6) + "  (treatment minus control)");
   t.add("ci_low", text_number(c->ci_low, 6) + "  (" + percent_text(c->confidence) + " interval)");
   t.add("ci_high", text_number(c->ci_high, 6));
+  add_anytime_text(t, *anytime, c->confidence, 6);
   t.print(out);
   return {};
 }
@@ -492,6 +559,7 @@ void add_stats_commands(CLI::App& app, CommandContext& ctx) {
            "(exact, for small counts); default pooled")
         ->check(CLI::IsMember({"pooled", "unpooled", "fisher"}));
     sub->add_option("--confidence", o->confidence, "confidence of the interval, in (0, 1); default 0.95");
+    add_anytime_options(sub, o->anytime);
     sub->callback(
         [&ctx, o] { ctx.run = [&ctx, o] { return run_pvalue_proportions(*o, ctx.global, std::cout); }; });
   }
@@ -505,6 +573,7 @@ void add_stats_commands(CLI::App& app, CommandContext& ctx) {
     sub->add_flag("--pooled-variance", o->pooled_variance,
                   "assume equal variances (the pooled t-test) instead of Welch's test");
     sub->add_option("--confidence", o->confidence, "confidence of the interval, in (0, 1); default 0.95");
+    add_anytime_options(sub, o->anytime);
     sub->callback([&ctx, o] { ctx.run = [&ctx, o] { return run_pvalue_means(*o, ctx.global, std::cout); }; });
   }
   {

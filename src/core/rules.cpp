@@ -42,13 +42,14 @@ struct RuleNameEntry {
   RuleKind kind;
   std::string_view name;
 };
-constexpr std::array<RuleNameEntry, 6> kRuleNames = {{
+constexpr std::array<RuleNameEntry, 7> kRuleNames = {{
     {RuleKind::kAlphaSpending, "alpha-spending"},
     {RuleKind::kAlphaInvesting, "alpha-investing"},
     {RuleKind::kLond, "lond"},
     {RuleKind::kLordPlusPlus, "lord++"},
     {RuleKind::kSaffron, "saffron"},
     {RuleKind::kAddis, "addis"},
+    {RuleKind::kELond, "e-lond"},
 }};
 
 std::string num(double v) {
@@ -173,7 +174,7 @@ Result<RuleKind> parse_rule_name(std::string_view name) {
   for (const auto& e : kRuleNames)
     if (e.name == name) return e.kind;
   return invalid_input("unknown rule '" + std::string(name) +
-                       "'; accepted: alpha-spending, alpha-investing, lond, lord++, saffron, addis");
+                       "'; accepted: alpha-spending, alpha-investing, lond, lord++, saffron, addis, e-lond");
 }
 
 std::string_view evaluation_name(Evaluation e) { return e == Evaluation::kFast ? "fast" : "exact"; }
@@ -189,6 +190,7 @@ std::string default_spending(RuleKind kind) {
     case RuleKind::kAlphaSpending:
       return "power:1.6";
     case RuleKind::kLond:
+    case RuleKind::kELond:
       return "jm";
     case RuleKind::kLordPlusPlus:
       return "jm";
@@ -288,6 +290,15 @@ Result<RuleConfig> resolve_config(const RuleSpec& spec) {
   return c;
 }
 
+bool rule_takes_e_values(RuleKind kind) { return kind == RuleKind::kELond; }
+
+Status validate_e_value(double e) {
+  if (!(e >= 0.0) || !std::isfinite(e)) {
+    return invalid_input("e_value must be a finite number >= 0, got " + num(e));
+  }
+  return {};
+}
+
 Status validate_p_value(double p) {
   if (!(p >= 0.0 && p <= 1.0)) {
     return invalid_input("p_value must be a number in [0, 1], got " + num(p));
@@ -306,6 +317,7 @@ Rule::Rule(const RuleConfig& config) : config_(config) {
   switch (config_.kind) {
     case RuleKind::kAlphaSpending:
     case RuleKind::kLond:
+    case RuleKind::kELond:
       wealth_ = config_.alpha;
       break;
     case RuleKind::kAlphaInvesting:
@@ -397,6 +409,7 @@ double Rule::level_now() const {
     case RuleKind::kAlphaSpending:
       return a * sequence_->gamma(t);
     case RuleKind::kLond:
+    case RuleKind::kELond:  // e-LOND's level is LOND's (Xu & Ramdas 2024)
       return a * sequence_->gamma(t) * static_cast<double>(rejections_ + 1);
     case RuleKind::kAlphaInvesting: {
       const double w = std::max(wealth_ - investing_reserved_, 0.0);
@@ -477,6 +490,8 @@ void Rule::ensure_window() {
   }
 }
 
+Outcome Rule::record_e(double e) { return record(e); }  // rejects() reads e as an e-value
+
 Outcome Rule::record(double p) {
   if (!running_.empty()) {
     // Tests are running: the general path (rules_launch.cpp). Without running tests the code
@@ -487,12 +502,13 @@ Outcome Rule::record(double p) {
   ensure_window();
   Outcome o;
   o.level = level_now();
-  o.rejected = p <= o.level;
+  o.rejected = rejects(p, o.level);
   o.step = ++step_;
   const double a = config_.alpha;
   switch (config_.kind) {
     case RuleKind::kAlphaSpending:
     case RuleKind::kLond:
+    case RuleKind::kELond:
       wealth_ -= a * sequence_->gamma(o.step);
       break;
     case RuleKind::kAlphaInvesting:

@@ -43,6 +43,7 @@ Reservation Rule::launch() {
   switch (config_.kind) {
     case RuleKind::kAlphaSpending:
     case RuleKind::kLond:
+    case RuleKind::kELond:
       wealth_ -= config_.alpha * sequence_->gamma(r.launch);
       break;
     case RuleKind::kAlphaInvesting:
@@ -76,9 +77,21 @@ Status Rule::check_running(std::uint64_t launch, std::string_view event) const {
 }
 
 Result<Outcome> Rule::finish(std::uint64_t launch, double p) {
+  if (rule_takes_e_values(config_.kind)) {
+    return invalid_input(std::string(rule_name(config_.kind)) + " takes e-values, not p-values");
+  }
   if (auto s = validate_p_value(p); !s) return s.error();
   if (auto s = check_running(launch, "finish"); !s) return s.error();
   return finish_running(launch, p);
+}
+
+Result<Outcome> Rule::finish_e(std::uint64_t launch, double e) {
+  if (!rule_takes_e_values(config_.kind)) {
+    return invalid_input(std::string(rule_name(config_.kind)) + " takes p-values, not e-values");
+  }
+  if (auto s = validate_e_value(e); !s) return s.error();
+  if (auto s = check_running(launch, "finish"); !s) return s.error();
+  return finish_running(launch, e);
 }
 
 Outcome Rule::finish_running(std::uint64_t launch, double p) {
@@ -88,10 +101,11 @@ Outcome Rule::finish_running(std::uint64_t launch, double p) {
   Outcome o;
   o.step = launch;
   o.level = run.level;
-  o.rejected = p <= run.level;
+  o.rejected = rejects(p, run.level);
   switch (config_.kind) {
     case RuleKind::kAlphaSpending:
     case RuleKind::kLond:
+    case RuleKind::kELond:
       break;
     case RuleKind::kAlphaInvesting: {
       const double paid = run.level / (1 - run.level);

@@ -102,3 +102,45 @@ TEST_CASE("Stats CLI: plan --stream uses the stream's next level and leaves the 
   CHECK(run_alphaledger({"--ledger", ledger, "--json", "next", "s1"}).out == next.out);
   CHECK(run_alphaledger({"--ledger", ledger, "plan", "means", "--sd", "1", "--min-effect", "1", "--stream", "nope"}).exit_code == 3);
 }
+
+// Expected values: the closed form of docs/methods.md section 10.1 evaluated by hand with Python's
+// math module (float64): estimate 0.009, variance 0.059*0.941/20000 + 0.05*0.95/20000 = 5.15095e-06,
+// tau = 0.005 -> Lambda = 280.3022234548783, 1/Lambda = 0.0035675778367879243, 95% radius gives
+// 0.00205754553244318 .. 0.015942454467556818. The core formula itself is checked against Boost.Math
+// quadrature in tests/core/test_anytime.cpp.
+TEST_CASE("Stats CLI: pvalue proportions --anytime adds the always-valid numbers") {
+  const auto r = run_alphaledger({"--json", "pvalue", "proportions", "--control", "20000:1000", "--treatment",
+                                  "20000:1180", "--anytime", "--mixture-sd", "0.005"});
+  REQUIRE(r.exit_code == 0);
+  const auto j = nlohmann::json::parse(r.out);
+  CHECK(j["anytime_p_value"].get<double>() == doctest::Approx(0.0035675778367879243).epsilon(1e-10));
+  CHECK(j["e_value"].get<double>() == doctest::Approx(280.3022234548783).epsilon(1e-10));
+  CHECK(j["cs_low"].get<double>() == doctest::Approx(0.00205754553244318).epsilon(1e-9));
+  CHECK(j["cs_high"].get<double>() == doctest::Approx(0.015942454467556818).epsilon(1e-9));
+  CHECK(j["mixture_sd"].get<double>() == 0.005);
+  // The fixed-horizon p-value is still there and smaller: peeking costs evidence.
+  CHECK(j["p_value"].get<double>() < j["anytime_p_value"].get<double>());
+  // Text output labels the numbers.
+  const auto t = run_alphaledger({"pvalue", "means", "--control", "500:10:2", "--treatment", "500:10.4:2",
+                                  "--anytime", "--mixture-sd", "0.3"});
+  REQUIRE(t.exit_code == 0);
+  CHECK(t.out.find("anytime_p_value") != std::string::npos);
+  CHECK(t.out.find("always valid") != std::string::npos);
+  CHECK(t.out.find("confidence sequence") != std::string::npos);
+}
+
+// Common practice, no source: the mixing scale is required with --anytime and only there.
+TEST_CASE("Stats CLI: --anytime and --mixture-sd refuse bad combinations with exit 2") {
+  const struct { std::vector<std::string> args; std::string says; } kCases[] = {
+      {{"pvalue", "proportions", "--control", "100:10", "--treatment", "100:12", "--anytime"}, "--anytime needs --mixture-sd"},
+      {{"pvalue", "proportions", "--control", "100:10", "--treatment", "100:12", "--mixture-sd", "0.1"}, "--mixture-sd is used only with --anytime"},
+      {{"pvalue", "means", "--control", "10:1:1", "--treatment", "10:2:1", "--anytime", "--mixture-sd", "0"}, "--mixture-sd must be a finite number > 0"},
+      {{"pvalue", "means", "--control", "10:1:1", "--treatment", "10:2:1", "--anytime", "--mixture-sd", "-1"}, "--mixture-sd must be a finite number > 0"},
+  };
+  for (const auto& c : kCases) {
+    CAPTURE(c.says);
+    const auto r = run_alphaledger(c.args);
+    CHECK(r.exit_code == 2);
+    CHECK(r.err.find(c.says) != std::string::npos);
+  }
+}

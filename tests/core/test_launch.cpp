@@ -202,6 +202,9 @@ void run_invariants(const Variant& v, std::uint64_t seed, int events) {
   auto check = [&]() {
     const double r_or_1 = static_cast<double>(std::max<std::uint64_t>(rejections, 1));
     switch (c.kind) {
+      case RuleKind::kELond:  // takes e-values: tests/core/test_elond.cpp
+        FAIL("e-lond is not among this test's rules");
+        break;
       case RuleKind::kAlphaSpending: {
         double sum = 0;
         for (std::size_t t = 1; t < tests.size(); ++t) sum += tests[t].level;
