@@ -116,6 +116,9 @@ std::string conditions_text(const RuleConfig& c) {
       return "Needs null p-values independent of each other and of the non-null ones; candidate "
              "threshold lambda = " +
              format_rounded(c.candidate_threshold) + ".";
+    case RuleKind::kELond:
+      return "Holds under any dependence between the tests. Each null e-value must have mean at most 1; a "
+             "test is rejected when its e-value reaches 1 / level.";
     case RuleKind::kAddis:
       return "Needs null p-values independent of each other and of the non-null ones, and conservative "
              "nulls (uniformly conservative); candidate threshold lambda = " +
