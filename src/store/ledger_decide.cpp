@@ -1,0 +1,228 @@
+// Decisions in the Ledger over a Store: decide and decide_batch (ledger_impl.hpp).
+#include <algorithm>
+#include <string>
+#include <unordered_map>
+
+#include "alphaledger/text.hpp"
+#include "store/codec.hpp"
+#include "store/ledger_impl.hpp"
+
+namespace alphaledger::store {
+
+Result<DecideResult> StoreLedger::decide(std::string_view stream, std::string_view id, double p_value) {
+  if (auto s = store::validate_stream_name(stream); !s) return s.error();
+  if (auto s = validate_test_id(id); !s) return s.error();
+  if (auto s = validate_p_value(p_value); !s)
+    return invalid_input("test " + in_quotes(id) + ": " + s.error().message);
+  SlotGuard slot(*this, stream);
+  if (auto s = load(stream, *slot); !s) return s.error();
+  if (!slot->exists) return unknown_stream(stream, location());
+  if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
+  auto prior = find_decided(stream, id);
+  if (!prior) return prior.error();
+  if (*prior) {
+    auto r = repeat_or_conflict(stream, **prior, p_value);
+    if (!r) return Error{r.error().kind, r.error().message + " (the ledger is unchanged)", r.error().code};
+    return r;
+  }
+
+  // The cached rule and head advance in place (no copy of a long exact-mode state); until the
+  // write succeeds the slot counts as not loaded, so a failure (or an exception) makes the next
+  // call reload the stream from the store, which is the truth.
+  slot->loaded = false;
+  Rule& rule = *slot->rule;
+  StoredHead& head = slot->head;
+  WriteBatch batch;
+  DecideResult result = decide_into(stream, rule, head, std::string(id), p_value, batch);
+  head.rule_state = rule.encode_state();
+  batch.put(store::head_key(stream), store::encode_head(head));
+  if (auto s = store_->write(batch, true); !s) return s.error();
+  slot->loaded = true;
+  return result;
+}
+
+Result<Ledger::BatchResult> StoreLedger::decide_batch(std::string_view stream,
+                                                      const std::vector<TestInput>& tests,
+                                                      std::size_t group_size) {
+  return decide_batch_streamed(stream, tests, group_size, nullptr);
+}
+
+Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view stream,
+                                                               const std::vector<TestInput>& tests,
+                                                               std::size_t group_size,
+                                                               const GroupCallback& on_durable) {
+  if (auto s = store::validate_stream_name(stream); !s) return s.error();
+  for (std::size_t i = 0; i < tests.size(); ++i) {
+    const auto& t = tests[i];
+    if (auto s = validate_test_id(t.id); !s) {
+      return invalid_input("test " + std::to_string(i + 1) + " of the batch: " + s.error().message);
+    }
+    if (auto s = validate_p_value(t.p_value); !s) {
+      return invalid_input("test " + std::to_string(i + 1) + " of the batch (" + in_quotes(t.id) +
+                           "): " + s.error().message);
+    }
+  }
+  if (group_size == 0) group_size = 1;
+  SlotGuard slot(*this, stream);
+  if (auto s = load(stream, *slot); !s) return s.error();
+  if (!slot->exists) return unknown_stream(stream, location());
+  if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
+
+  BatchResult out;
+  // First pass, before anything is written: every id is looked up, so a conflict (with the
+  // ledger, or between two rows of the batch) refuses the batch with the ledger unchanged.
+  // first_row[i] is i for a row that decides a new id, the first such row for a later row with
+  // the same new id, and kStoredRow for an id the ledger already holds (its record in `stored`).
+  constexpr std::size_t kStoredRow = static_cast<std::size_t>(-1);
+  std::vector<std::size_t> first_row(tests.size());
+  std::unordered_map<std::size_t, DecisionRecord> stored;  // row -> record already in the ledger
+  {
+    std::unordered_map<std::string_view, std::size_t> first_new;  // id -> first index, new ids
+    first_new.reserve(tests.size());
+    std::string key;  // the index key, built in one reused buffer
+    for (std::size_t i = 0; i < tests.size(); ++i) {
+      const auto& t = tests[i];
+      if (auto it = first_new.find(t.id); it != first_new.end()) {
+        const double first_p = tests[it->second].p_value;
+        if (first_p != t.p_value) {
+          out.error =
+              conflict("test " + in_quotes(t.id) + " appears twice in the batch with different p-values (" +
+                       readable_number(first_p) + " at position " + std::to_string(it->second + 1) + ", " +
+                       readable_number(t.p_value) + " at position " + std::to_string(i + 1) +
+                       "); a test id is decided once (the ledger is unchanged)");
+          out.stopped_at = i;
+          return out;
+        }
+        first_row[i] = it->second;
+        continue;
+      }
+      auto found = find_decided(stream, t.id, key);
+      if (!found) return found.error();
+      if (*found) {
+        if (auto r = repeat_or_conflict(stream, **found, t.p_value); !r) {
+          out.error = Error{r.error().kind, r.error().message + " (the ledger is unchanged)", r.error().code};
+          out.stopped_at = i;
+          return out;
+        }
+        first_row[i] = kStoredRow;
+        stored.emplace(i, std::move(**found));
+      } else {
+        first_new.emplace(t.id, i);
+        first_row[i] = i;
+      }
+    }
+  }
+
+  // As in decide(): the cached state advances in place and counts as loaded only after each
+  // successful write. Every row gives one result, in input order, so row j's result is
+  // out.decided[j] once its group is durable and group[j - out.decided.size()] before.
+  Rule& rule = *slot->rule;
+  StoredHead& head = slot->head;
+  const std::size_t group_capacity = std::min(group_size, tests.size());
+  WriteBatch batch;
+  batch.ops.reserve(2 * group_capacity + 1);
+  std::vector<DecideResult> group;
+  group.reserve(group_capacity);
+  out.decided.reserve(tests.size());
+  std::size_t group_start = 0;
+
+  // Writes the group (if it decided anything), then publishes it. Returns false on failure,
+  // having recorded the error in `out`.
+  auto flush = [&]() -> bool {
+    if (!batch.empty()) {
+      head.rule_state = rule.encode_state();
+      batch.put(store::head_key(stream), store::encode_head(head));
+      if (auto s = store_->write(batch, true); !s) {
+        out.error = s.error();
+        out.stopped_at = group_start;
+        return false;  // the slot stays not loaded: the next call reloads from the store
+      }
+      slot->loaded = true;
+    }
+    if (on_durable && !group.empty()) on_durable(group);
+    for (auto& d : group) out.decided.push_back(std::move(d));
+    group.clear();
+    batch.ops.clear();  // keeps the capacity for the next group
+    return true;
+  };
+
+  for (std::size_t i = 0; i < tests.size(); ++i) {
+    const auto& t = tests[i];
+    const std::size_t first = first_row[i];
+    if (first == kStoredRow) {
+      group.push_back(DecideResult{std::string(stream), stored.at(i), true});
+    } else if (first != i) {
+      const DecisionRecord& earlier =
+          first < out.decided.size() ? out.decided[first].record : group[first - out.decided.size()].record;
+      group.push_back(DecideResult{std::string(stream), earlier, true});
+    } else {
+      slot->loaded = false;
+      group.push_back(decide_into(stream, rule, head, t.id, t.p_value, batch));
+    }
+    if (group.size() >= group_size) {
+      if (!flush()) return out;
+      group_start = i + 1;
+    }
+  }
+  flush();
+  return out;
+}
+
+// The stored decision for `id`, if any.
+Result<std::optional<DecisionRecord>> StoreLedger::find_decided(std::string_view stream,
+                                                                std::string_view id) {
+  std::string key;
+  return find_decided(stream, id, key);
+}
+
+// The same, building the index key in `key` (a buffer the caller reuses across calls).
+Result<std::optional<DecisionRecord>> StoreLedger::find_decided(std::string_view stream, std::string_view id,
+                                                                std::string& key) {
+  store::assign_index_key(key, stream, id);
+  auto index = store_->get(key);
+  if (!index) return index.error();
+  if (!*index) return std::optional<DecisionRecord>{};
+  const std::string where =
+      "ledger " + location() + ", stream " + in_quotes(stream) + ", test " + in_quotes(id) + ": ";
+  auto step = store::decode_step(**index);
+  if (!step) return corruption(where + step.error().message);
+  auto bytes = store_->get(store::record_key(stream, *step));
+  if (!bytes) return bytes.error();
+  if (!*bytes)
+    return corruption(where + "the index points to step " + std::to_string(*step) + ", which has no record");
+  auto rec = store::decode_record(**bytes);
+  if (!rec) return corruption(where + rec.error().message);
+  if (rec->record.id != id) return corruption(where + "the index points to a record of another test");
+  return std::optional<DecisionRecord>{std::move(rec->record)};
+}
+
+Result<DecideResult> StoreLedger::repeat_or_conflict(std::string_view stream, const DecisionRecord& prior,
+                                                     double p_value) {
+  if (prior.p_value == p_value) return DecideResult{std::string(stream), prior, true};
+  return conflict("test " + in_quotes(prior.id) + " was already decided in stream " + in_quotes(stream) +
+                  " at step " + std::to_string(prior.step) + " with p_value " +
+                  readable_number(prior.p_value) + "; a test id is decided once, so p_value " +
+                  readable_number(p_value) + " is refused");
+}
+
+// Decides one new test on `rule` / `head` and adds its record and index entry to `batch`.
+DecideResult StoreLedger::decide_into(std::string_view stream, Rule& rule, StoredHead& head, std::string id,
+                                      double p_value, WriteBatch& batch) {
+  const Outcome o = rule.record(p_value);
+  DecisionRecord rec;
+  rec.step = o.step;
+  rec.id = std::move(id);
+  rec.p_value = p_value;
+  rec.level = o.level;
+  rec.rejected = o.rejected;
+  rec.wealth = o.wealth;
+  rec.decided_at_ms = clock_();
+  Digest hash{};
+  batch.put(store::record_key(stream, rec.step), store::encode_record(rec, head.last_hash, &hash));
+  batch.put(store::index_key(stream, rec.id), store::encode_step(rec.step));
+  head.steps = rec.step;
+  head.last_hash = hash;  // head.rule_state is filled when the batch is written
+  return DecideResult{std::string(stream), std::move(rec), false};
+}
+
+}  // namespace alphaledger::store

@@ -1,0 +1,150 @@
+// The Ledger over a Store: the class StoreLedger, shared by ledger.cpp (open, create, status,
+// streams) and ledger_decide.cpp (decide, decide_batch). Internal to the store.
+//
+// Each stream has an in-memory copy of its configuration, rule and head, loaded on first use and
+// guarded by the stream's mutex. A decision advances that copy, is written as one synced batch
+// (record, id index entry, head with the rule's new state), and only then is the copy trusted
+// again; if the write fails, the copy is marked stale and the stream is reloaded from the store
+// on next use, so the store is always the truth. Only streams that exist keep a copy: a name that
+// turns out not to exist is dropped from the cache before the call returns (SlotGuard).
+#pragma once
+
+#include <cstdint>
+#include <map>
+#include <memory>
+#include <mutex>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "alphaledger/ledger.hpp"
+#include "store/codec.hpp"
+#include "store/ledger_internal.hpp"
+
+namespace alphaledger::store {
+
+Error closed_stream(std::string_view name, std::int64_t closed_at_ms);
+
+// One stream's cached state. `mu` serialises every decision on the stream. A slot is in the
+// cache only while a call works on it or while it holds a stream that exists; `retired` marks a
+// slot dropped from the cache, which a caller still holding it must not use.
+struct StreamSlot {
+  std::mutex mu;
+  bool retired = false;
+  bool loaded = false;
+  bool exists = false;
+  StoredConfig config;
+  std::string encoded_config;
+  std::optional<Rule> rule;
+  StoredHead head;
+};
+
+class StoreLedger final : public Ledger {
+ public:
+  using Ledger::verify;
+
+  StoreLedger(std::unique_ptr<Store> store, Clock clock)
+      : store_(std::move(store)), clock_(std::move(clock)) {}
+
+  std::string location() const override { return store_->describe(); }
+
+  std::size_t cached_streams() const override;
+
+  Result<Created> create_stream(std::string_view name, const RuleConfig& config) override;
+
+  Result<Created> create_stream_directed(std::string_view name, const RuleConfig& config,
+                                         Alternative alternative) override;
+
+  Result<DecideResult> decide(std::string_view stream, std::string_view id, double p_value) override;
+
+  Result<BatchResult> decide_batch(std::string_view stream, const std::vector<TestInput>& tests,
+                                   std::size_t group_size) override;
+
+  Result<BatchResult> decide_batch_streamed(std::string_view stream, const std::vector<TestInput>& tests,
+                                            std::size_t group_size, const GroupCallback& on_durable) override;
+
+  Result<Closing> close_stream(std::string_view stream) override;
+
+  Result<double> next_level(std::string_view stream) override;
+
+  Result<StreamInfo> status(std::string_view stream) override;
+
+  Result<std::vector<StreamInfo>> streams() override;
+
+  Result<std::vector<DecisionRecord>> history(std::string_view stream) override;
+
+  Result<HistoryPage> history_page(std::string_view stream, std::uint64_t from_step,
+                                   std::size_t limit) override;
+
+  Status for_each_decision(std::string_view stream, std::uint64_t from_step,
+                           const DecisionVisitor& visit) override;
+
+  Result<VerifyReport> verify(std::string_view stream, const std::vector<Anchor>& anchors) override;
+
+  Result<std::string> chain_hash_at(std::string_view stream, std::uint64_t step) override;
+
+  Status check_format();
+
+ private:
+  // The locked slot of one stream: while it is held, no other call works on the stream. On
+  // release, a slot that does not hold an existing stream (an unknown name, a failed load or
+  // create) is dropped from the cache and retired, so names that do not exist never stay in
+  // memory. A caller that fetched a slot which was retired before it got the lock takes a fresh
+  // one, so a name never has two live slots. Lock order: a slot's mu, then slots_mu_.
+  class SlotGuard {
+   public:
+    SlotGuard(StoreLedger& ledger, std::string_view name) : ledger_(ledger), name_(name) {
+      while (true) {
+        slot_ = ledger_.slot_for(name);
+        lock_ = std::unique_lock(slot_->mu);
+        if (!slot_->retired) break;
+        lock_.unlock();
+      }
+    }
+    ~SlotGuard() {
+      if (slot_->exists) return;
+      std::lock_guard lock(ledger_.slots_mu_);
+      auto it = ledger_.slots_.find(name_);
+      if (it != ledger_.slots_.end() && it->second == slot_) ledger_.slots_.erase(it);
+      slot_->retired = true;
+    }
+    SlotGuard(const SlotGuard&) = delete;
+    SlotGuard& operator=(const SlotGuard&) = delete;
+    StreamSlot& operator*() { return *slot_; }
+    StreamSlot* operator->() { return slot_.get(); }
+
+   private:
+    StoreLedger& ledger_;
+    std::string_view name_;
+    std::shared_ptr<StreamSlot> slot_;
+    std::unique_lock<std::mutex> lock_;
+  };
+
+  std::shared_ptr<StreamSlot> slot_for(std::string_view name);
+
+  // REQUIRES: slot.mu held.
+  Status load(std::string_view name, StreamSlot& slot);
+
+  StreamInfo info_of(const StreamSlot& slot) const;
+
+  // The stored decision for `id`, if any.
+  Result<std::optional<DecisionRecord>> find_decided(std::string_view stream, std::string_view id);
+  // The same, building the index key in `key` (a buffer the caller reuses across calls).
+  Result<std::optional<DecisionRecord>> find_decided(std::string_view stream, std::string_view id,
+                                                     std::string& key);
+
+  Result<DecideResult> repeat_or_conflict(std::string_view stream, const DecisionRecord& prior,
+                                          double p_value);
+
+  // Decides one new test on `rule` / `head` and adds its record and index entry to `batch`.
+  DecideResult decide_into(std::string_view stream, Rule& rule, StoredHead& head, std::string id,
+                           double p_value, WriteBatch& batch);
+
+  std::unique_ptr<Store> store_;
+  Clock clock_;
+  mutable std::mutex slots_mu_;
+  std::map<std::string, std::shared_ptr<StreamSlot>, std::less<>> slots_;
+};
+
+}  // namespace alphaledger::store
