@@ -89,6 +89,9 @@ constexpr std::size_t kRecordHashSize = 32;
 // An encoded record without its id bytes: version, step, id length, p-value, level, rejected,
 // wealth, time, previous hash, hash.
 constexpr std::size_t kRecordFixedSize = 1 + 8 + 2 + 8 + 8 + 1 + 8 + 8 + 32 + kRecordHashSize;
+// An encoded event without its id bytes: version, entry, kind, launch, id length, level, p-value,
+// rejected, wealth, time, launch time, previous hash, hash.
+constexpr std::size_t kEventFixedSize = 1 + 8 + 1 + 8 + 2 + 8 + 8 + 1 + 8 + 8 + 8 + 32 + kRecordHashSize;
 
 }  // namespace
 
@@ -342,6 +345,84 @@ Result<StoredRecord> decode_record(std::string_view bytes) {
 Digest recompute_record_hash(std::string_view encoded) {
   if (encoded.size() < kRecordHashSize) return sha256(encoded);
   return sha256(encoded.substr(0, encoded.size() - kRecordHashSize));
+}
+
+std::string_view event_kind_name(EventKind kind) {
+  switch (kind) {
+    case EventKind::kLaunch:
+      return "launch";
+    case EventKind::kFinish:
+      return "finish";
+    case EventKind::kAbandon:
+      return "abandon";
+  }
+  return "unknown";
+}
+
+std::string encode_event(const EventRecord& e, const Digest& prev_hash, Digest* hash) {
+  std::string out;
+  out.reserve(kEventFixedSize + e.id.size());
+  put_u8(out, kEventVersion);
+  put_u64(out, e.entry);
+  put_u8(out, static_cast<std::uint8_t>(e.kind));
+  put_u64(out, e.launch);
+  put_text16(out, e.id);
+  put_f64(out, e.level);
+  put_f64(out, e.p_value);
+  put_u8(out, e.rejected ? 1 : 0);
+  put_f64(out, e.wealth);
+  put_u64(out, static_cast<std::uint64_t>(e.at_ms));
+  put_u64(out, static_cast<std::uint64_t>(e.launched_at_ms));
+  out.append(reinterpret_cast<const char*>(prev_hash.data()), prev_hash.size());
+  const Digest h = sha256(out);
+  out.append(reinterpret_cast<const char*>(h.data()), h.size());
+  if (hash != nullptr) *hash = h;
+  return out;
+}
+
+Result<StoredEvent> decode_event(std::string_view bytes) {
+  Reader r{bytes};
+  const auto version = r.u8();
+  if (!r.ok) return corruption("event record is empty");
+  if (version != kEventVersion) {
+    return corruption("event record has version " + std::to_string(version) + ", expected " +
+                      std::to_string(kEventVersion));
+  }
+  StoredEvent s;
+  s.event.entry = r.u64();
+  const auto kind = r.u8();
+  s.event.launch = r.u64();
+  s.event.id = std::string(r.bytes(r.u16()));
+  s.event.level = r.f64();
+  s.event.p_value = r.f64();
+  const auto rejected = r.u8();
+  s.event.wealth = r.f64();
+  s.event.at_ms = static_cast<std::int64_t>(r.u64());
+  s.event.launched_at_ms = static_cast<std::int64_t>(r.u64());
+  s.prev_hash = r.digest();
+  s.hash = r.digest();
+  if (!r.ok || !r.in.empty()) return corruption("event record is truncated or has trailing bytes");
+  if (kind < 1 || kind > 3)
+    return corruption("event record has kind " + std::to_string(kind) + ", expected 1, 2 or 3");
+  s.event.kind = static_cast<EventKind>(kind);
+  if (rejected > 1)
+    return corruption("event record has rejected = " + std::to_string(rejected) + ", expected 0 or 1");
+  s.event.rejected = rejected == 1;
+  if (s.event.entry == 0 || s.event.launch == 0)
+    return corruption("event record has entry or launch number 0; both count from 1");
+  if (s.event.kind != EventKind::kFinish &&
+      (s.event.rejected || std::bit_cast<std::uint64_t>(s.event.p_value) != 0)) {
+    return corruption("a " + std::string(event_kind_name(s.event.kind)) +
+                      " event record carries a p-value or a rejection; only a finish does");
+  }
+  if (s.event.kind == EventKind::kLaunch && s.event.launched_at_ms != s.event.at_ms)
+    return corruption("a launch event record has a launch time other than its own time");
+  return s;
+}
+
+Result<std::uint8_t> entry_version(std::string_view bytes) {
+  if (bytes.empty()) return corruption("chain entry is empty");
+  return static_cast<std::uint8_t>(bytes[0]);
 }
 
 std::string encode_step(std::uint64_t step) {

@@ -29,6 +29,7 @@ inline constexpr std::uint8_t kHeadVersion = 1;        // an open stream's head
 inline constexpr std::uint8_t kClosedHeadVersion = 2;  // a closed stream's head (adds the closing time)
 inline constexpr std::uint8_t kClosingVersion = 1;     // the closing entry hashed into the chain
 inline constexpr std::uint8_t kRecordVersion = 1;
+inline constexpr std::uint8_t kEventVersion = 2;  // a launch-time event in the chain (EventRecord)
 
 inline constexpr std::string_view kFormatKey = "m/format";
 
@@ -100,6 +101,40 @@ std::string encode_record(const DecisionRecord& r, const Digest& prev_hash, Dige
 Result<StoredRecord> decode_record(std::string_view bytes);
 // SHA-256 of the bytes of an encoded record before its hash field.
 Digest recompute_record_hash(std::string_view encoded);
+
+// Launch-time events (docs/ledger-format.md "Event record"): a chain entry of value version 2 that
+// records one launch, finish or abandon of a test. A version-1 decision record is a launch and
+// its finish at once. The numbers of the kinds never change meaning.
+enum class EventKind : std::uint8_t { kLaunch = 1, kFinish = 2, kAbandon = 3 };
+std::string_view event_kind_name(EventKind kind);  // "launch", "finish", "abandon"
+
+struct EventRecord {
+  EventKind kind = EventKind::kLaunch;
+  std::uint64_t entry = 0;   // position in the stream's chain (the number in its record key)
+  std::uint64_t launch = 0;  // the test's launch number (Rule::launch)
+  std::string id;
+  double level = 0;          // the level reserved at launch (repeated in the finish and abandon)
+  double p_value = 0;        // finish only; 0 in a launch or abandon
+  bool rejected = false;     // finish only; false in a launch or abandon
+  double wealth = 0;         // alpha-wealth right after the event
+  std::int64_t at_ms = 0;    // when the event happened, milliseconds since the Unix epoch
+  // When the test was launched (equal to at_ms in a launch), so a finish alone gives a history row.
+  std::int64_t launched_at_ms = 0;
+  friend bool operator==(const EventRecord&, const EventRecord&) = default;
+};
+struct StoredEvent {
+  EventRecord event;
+  Digest prev_hash{};
+  Digest hash{};
+};
+// Encodes and fills in the event's hash (returned in `hash` when not null).
+std::string encode_event(const EventRecord& e, const Digest& prev_hash, Digest* hash = nullptr);
+// Decodes and checks the fields (kind known, entry and launch numbers at least 1, a launch or
+// abandon without p-value or rejection, a launch's launched_at equal to its time); does not check the hash. Errors: kCorruption.
+Result<StoredEvent> decode_event(std::string_view bytes);
+// The value version of a chain entry (its first byte): kRecordVersion or kEventVersion, which tells
+// decode_record from decode_event. Empty bytes: kCorruption.
+Result<std::uint8_t> entry_version(std::string_view bytes);
 
 std::string encode_step(std::uint64_t step);  // the id index value
 Result<std::uint64_t> decode_step(std::string_view bytes);
