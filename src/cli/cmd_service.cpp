@@ -22,6 +22,13 @@
 namespace alphaledger::cli {
 namespace {
 
+// The service's messages name what was wrong, not our flags; the command line says which flag
+// gave the value.
+Error given_with(const std::string& flag, Error e) {
+  e.message += " (given with " + flag + ")";
+  return e;
+}
+
 struct PipeOptions {
   std::string stream;
 };
@@ -78,12 +85,12 @@ Status run_pipe_command(const PipeOptions& o, const GlobalOptions& g, std::ostre
 
 Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
   auto listen = parse_listen_address(o.listen);
-  if (!listen) return listen.error();
+  if (!listen) return given_with("--listen HOST:PORT", listen.error());
   HttpOptions options;
   options.listen = *listen;
   if (o.token_file) {
     auto token = read_token_file(*o.token_file);
-    if (!token) return token.error();
+    if (!token) return given_with("--token-file FILE", token.error());
     options.token = *token;
   }
   options.threads = o.threads;

@@ -72,6 +72,16 @@ class JsonLogSink final : public spdlog::sinks::base_sink<std::mutex> {
   void flush_() override { std::cerr.flush(); }
 };
 
+// Lower layers say what happened; the flag that would fix it is the command line's to name.
+alphaledger::Error with_flag_hint(alphaledger::Error error, const CLI::App& app) {
+  if (error.code == "no_ledger") {
+    error.message += app.got_subcommand("recover")
+                         ? " (give the damaged ledger folder with --ledger DIR)"
+                         : " (create a stream first, or give the ledger folder with --ledger DIR)";
+  }
+  return error;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -153,7 +163,7 @@ int main(int argc, char** argv) {
   }
   std::cout.flush();
   if (!status) {
-    const Failure f = failure_from(status.error());
+    const Failure f = failure_from(with_flag_hint(status.error(), app));
     print_failure(std::cerr, f, ctx.global.json);
     return f.exit_code;
   }

@@ -157,7 +157,7 @@ Result<ListenAddress> parse_listen_address(std::string_view text) {
   const std::string accepted =
       "; accepted: HOST:PORT with an IPv4 address or 'localhost' and a port in [0, 65535], e.g. "
       "127.0.0.1:8742";
-  if (colon == std::string::npos) return invalid_input("--listen '" + t + "' has no port" + accepted);
+  if (colon == std::string::npos) return invalid_input("listen address '" + t + "' has no port" + accepted);
   ListenAddress a;
   a.host = t.substr(0, colon);
   if (a.host.empty()) a.host = "127.0.0.1";
@@ -165,12 +165,12 @@ Result<ListenAddress> parse_listen_address(std::string_view text) {
   int value = -1;
   auto [p, ec] = std::from_chars(port.data(), port.data() + port.size(), value);
   if (port.empty() || ec != std::errc() || p != port.data() + port.size() || value < 0 || value > 65535) {
-    return invalid_input("--listen '" + t + "': bad port '" + port + "'" + accepted);
+    return invalid_input("listen address '" + t + "': bad port '" + port + "'" + accepted);
   }
   a.port = value;
   in_addr addr{};
   if (a.host != "localhost" && inet_pton(AF_INET, a.host.c_str(), &addr) != 1) {
-    return invalid_input("--listen '" + t + "': bad host '" + a.host + "'" + accepted);
+    return invalid_input("listen address '" + t + "': bad host '" + a.host + "'" + accepted);
   }
   return a;
 }
@@ -186,7 +186,7 @@ bool is_loopback_host(std::string_view host) {
 Result<std::string> read_token_file(const std::string& path) {
   std::ifstream in(path, std::ios::binary);
   if (!in)
-    return invalid_input("--token-file " + path + ": cannot open the file (does it exist, can it be read?)");
+    return invalid_input("token file " + path + ": cannot open the file (does it exist, can it be read?)");
   std::string line;
   std::getline(in, line);
   std::size_t b = 0, e = line.size();
@@ -194,11 +194,11 @@ Result<std::string> read_token_file(const std::string& path) {
   while (e > b && (line[e - 1] == ' ' || line[e - 1] == '\t' || line[e - 1] == '\r')) --e;
   std::string token = line.substr(b, e - b);
   if (token.empty())
-    return invalid_input("--token-file " + path + ": the first line is empty; it must hold the token");
+    return invalid_input("token file " + path + ": the first line is empty; it must hold the token");
   for (char c : token) {
     const auto u = static_cast<unsigned char>(c);
     if (u <= 0x20 || u >= 0x7f) {
-      return invalid_input("--token-file " + path +
+      return invalid_input("token file " + path +
                            ": the token must be visible ASCII characters without spaces");
     }
   }

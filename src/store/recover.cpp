@@ -195,7 +195,7 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
     return invalid_input("recover --to " + target + ": the target is the damaged ledger itself");
   }
   if (!fs::is_directory(source, ec)) {
-    return not_found("no ledger at " + source + " (give the damaged ledger folder with --ledger DIR)", "no_ledger");
+    return not_found("no ledger at " + source, "no_ledger");  // the CLI adds which flag names it
   }
 
   // 1. The strict, read-only open: what damage is there? Writes nothing.

@@ -106,6 +106,10 @@ TEST_CASE("CliErrors: refusals exit 3 as no_ledger, unknown_stream and conflict"
   const std::string db = s.sub("ledger");
   const auto none = expect_failure({"--ledger", db, "next", "checkout"}, 3, "no_ledger");
   CHECK(message_of(none).find("no ledger at") != std::string::npos);
+  // The store says what happened; the command line adds the flag that names a ledger.
+  CHECK(message_of(none).find("--ledger DIR") != std::string::npos);
+  const auto none_recover = expect_failure({"--ledger", db, "recover", "--to", s.sub("copy")}, 3, "no_ledger");
+  CHECK(message_of(none_recover).find("give the damaged ledger folder with --ledger DIR") != std::string::npos);
   REQUIRE(run_alphaledger({"--ledger", db, "new", "checkout", "--rule", "lord++"}).exit_code == 0);
   const auto unknown = expect_failure({"--ledger", db, "status", "checkuot"}, 3, "unknown_stream");
   CHECK(message_of(unknown).find("no stream named 'checkuot'") != std::string::npos);
@@ -406,4 +410,17 @@ TEST_CASE("CliErrors: the top-level help ends with the caution for clinical and 
   CHECK(r.out.find("qualified") != std::string::npos);
   CHECK(r.out.find("local regulator") != std::string::npos);
   CHECK(r.out.find("Subcommands:") < caution);  // in the footer, after the list of commands
+}
+
+TEST_CASE("CliErrors: serve names the flag that gave a bad address or token file") {
+  TempDir s;
+  const std::string db = s.sub("ledger");
+  REQUIRE(run_alphaledger({"--ledger", db, "new", "checkout", "--rule", "lord++"}).exit_code == 0);
+  // The service's message names the value; the command line adds the flag (our contract).
+  const auto bad_listen = expect_failure({"--ledger", db, "serve", "--listen", "127.0.0.1"}, 2, "invalid_input");
+  CHECK(message_of(bad_listen).find("has no port") != std::string::npos);
+  CHECK(message_of(bad_listen).find("(given with --listen HOST:PORT)") != std::string::npos);
+  const auto bad_token =
+      expect_failure({"--ledger", db, "serve", "--token-file", s.sub("absent-token")}, 2, "invalid_input");
+  CHECK(message_of(bad_token).find("(given with --token-file FILE)") != std::string::npos);
 }

@@ -109,6 +109,8 @@ TEST_CASE("HttpService: options and addresses are checked") {
   CHECK_FALSE(parse_listen_address("127.0.0.1:70000").ok());
   CHECK_FALSE(parse_listen_address("example.org:80").ok());
   CHECK(parse_listen_address("example.org:80").error().message.find("example.org") != std::string::npos);
+  // The service names the value, not the command line's flag (the CLI adds that).
+  CHECK(parse_listen_address("127.0.0.1").error().message.find("--listen") == std::string::npos);
   CHECK(is_loopback_host("127.0.0.1"));
   CHECK(is_loopback_host("127.1.2.3"));
   CHECK(is_loopback_host("localhost"));
