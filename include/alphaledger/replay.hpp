@@ -51,6 +51,7 @@ struct Decision {
   double level = 0;
   bool rejected = false;
   std::optional<double> wealth;  // empty for the offline baselines
+  std::uint64_t launch = 0;      // launch number (1-based, launch order); 0 unless the log has launched_at
 };
 
 struct ReplayResult {
@@ -58,6 +59,12 @@ struct ReplayResult {
   std::vector<std::vector<Decision>> decisions;  // [procedure][record], records in log order
 };
 
+// Online rules decide each record in log order with record(p); when the log has launched_at
+// (TestLog::has_launch) they go through launch()/finish() instead: every test launches at its
+// launched_at and finishes at its finished_at, events in time order, finishes before launches at
+// equal times, launches at equal times in file order (docs/formats.md, "Launch times"). Decisions
+// stay in log order (the order of finished_at); `step` is then the position in the log and `launch`
+// the launch number. The offline baselines ignore launch times.
 ReplayResult replay(const TestLog& log, const std::vector<Procedure>& procedures);
 
 struct ReplaySummary {

@@ -4,8 +4,9 @@
 // everywhere (docs/formats.md, "One meaning for each input").
 //
 // Columns / keys: id (required), p_value (required unless summary columns are given, see
-// docs/formats.md), finished_at (optional: ISO 8601 date or date-time, or a number), is_null
-// (optional 0/1). Other columns are ignored.
+// docs/formats.md), finished_at (optional: ISO 8601 date or date-time, or a number), launched_at
+// (optional, same forms; when the log has it, every row needs launched_at and finished_at, and
+// finished_at must not be earlier), is_null (optional 0/1). Other columns are ignored.
 //
 // Every error is kInvalidArgument and names the file, line, field, value (as excerpt()) and what is
 // accepted, e.g.
@@ -35,6 +36,7 @@ struct TestRecord {
   std::string id;
   double p_value = 0;
   std::optional<double> finished_at;  // seconds since 1970-01-01T00:00:00Z, or the plain number
+  std::optional<double> launched_at;  // the same scale; only in logs with the launched_at column
   std::optional<bool> is_null;
   std::size_t line = 0;  // 1-based line in the source (the header is line 1 in CSV)
 };
@@ -43,6 +45,7 @@ struct TestLog {
   std::string source;               // file name used in messages
   std::vector<TestRecord> records;  // in decision order (see order_by_finished_at)
   bool has_truth = false;           // every row had is_null
+  bool has_launch = false;          // the log has launched_at (then every row has both times)
 };
 
 struct ReadOptions {
@@ -53,16 +56,17 @@ struct ReadOptions {
 };
 
 // ---- A log held compactly -------------------------------------------------------------------
-// What replay and decide --file read: one fixed-size row per test (40 bytes) and every id in one
+// What replay and decide --file read: one fixed-size row per test (48 bytes) and every id in one
 // text arena, with no per-row strings or maps, so 10^6 rows cost about 50 MB. read_test_log()
 // reads through the same path and expands the rows into a TestLog.
 struct CompactRecord {
-  static constexpr std::uint8_t kHasTime = 1, kHasTruth = 2, kIsNull = 4;
+  static constexpr std::uint8_t kHasTime = 1, kHasTruth = 2, kIsNull = 4, kHasLaunch = 8;
   std::uint64_t id_offset = 0;  // into CompactLog::ids
   std::uint16_t id_size = 0;    // an id is at most 256 bytes (validate_test_id)
   std::uint8_t flags = 0;
   double p_value = 0;
   double finished_at = 0;  // meaningful only with kHasTime
+  double launched_at = 0;  // meaningful only with kHasLaunch
   std::uint64_t line = 0;  // 1-based line in the source
 };
 
@@ -71,6 +75,7 @@ struct CompactLog {
   std::string ids;                     // every id, back to back
   std::vector<CompactRecord> records;  // in decision order (see ReadOptions::order_by_finished_at)
   bool has_truth = false;              // every row had is_null
+  bool has_launch = false;             // the log has launched_at (then every row has both times)
 
   std::size_t size() const { return records.size(); }
   std::string_view id(const CompactRecord& r) const {

@@ -76,16 +76,22 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
     return {};
   }
   // Each procedure in turn over the read log; decisions are written as they are made.
-  if (!g.json) out << "rule,step,id,p_value,level,rejected,wealth\n";
+  // A log with launch times adds the launch number after the step (docs/formats.md).
+  const bool launches = log->has_launch;
+  if (!g.json) out << (launches ? "rule,step,launch,id,p_value,level,rejected,wealth\n" : "rule,step,id,p_value,level,rejected,wealth\n");
   std::string row;
   for (const Procedure& proc : *procs) {
     const std::string& name = proc.name;
     replay_each(*log, proc, [&](std::size_t k, const Decision& d) {
       const CompactRecord& r = log->records[k];
       if (g.json) {
-        nlohmann::ordered_json j = {
-            {"rule", name},         {"step", d.step},   {"id", std::string(log->id(r))},
-            {"p_value", r.p_value}, {"level", d.level}, {"rejected", d.rejected ? 1 : 0}};
+        nlohmann::ordered_json j = {{"rule", name}, {"step", d.step}};
+        if (launches)  // null for bh / storey-bh
+          j["launch"] = d.launch > 0 ? nlohmann::ordered_json(d.launch) : nlohmann::ordered_json(nullptr);
+        j["id"] = std::string(log->id(r));
+        j["p_value"] = r.p_value;
+        j["level"] = d.level;
+        j["rejected"] = d.rejected ? 1 : 0;
         j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
         row += json_line(j);
       } else {
@@ -93,6 +99,10 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
         row += ',';
         append_number(row, d.step);
         row += ',';
+        if (launches) {
+          if (d.launch > 0) append_number(row, d.launch);  // empty for bh / storey-bh
+          row += ',';
+        }
         const std::string_view id = log->id(r);
         if (id.find_first_of(",\"\n\r") == std::string_view::npos)
           row += id;

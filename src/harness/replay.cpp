@@ -104,6 +104,44 @@ Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>
   return out;
 }
 
+namespace {
+
+// Decides a log with launch times through the rule's launch/finish events (docs/formats.md,
+// "Launch times"): launches in order of (launched_at, line), finishes in log order (the order of
+// finished_at); at equal times the finishes come first, except that a test is never finished before
+// its own launch (a test launched and finished at the same moment waits for the launches before it
+// in file order). Decisions are handed out in log order, with the step being the position in the
+// log and `launch` the launch number. Memory: two numbers a row beside the rule's running tests.
+template <typename Launched, typename Finished, typename Line, typename PValue>
+void decide_with_launches(std::size_t n, const RuleConfig& config, Launched launched_at, Finished finished_at,
+                          Line line, PValue p_value,
+                          const std::function<void(std::size_t, const Decision&)>& each) {
+  std::vector<std::size_t> order(n);
+  for (std::size_t i = 0; i < n; ++i) order[i] = i;
+  std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) {
+    const double ta = launched_at(a), tb = launched_at(b);
+    return ta != tb ? ta < tb : line(a) < line(b);
+  });
+  std::vector<std::uint64_t> launch_of(n, 0);  // 0: not launched yet
+  Rule rule(config);
+  std::size_t next_launch = 0;
+  for (std::size_t k = 0; k < n; ++k) {
+    // Every launch strictly earlier than this finish, then (at an equal time) only those needed
+    // to launch this test itself.
+    while (next_launch < n &&
+           (launched_at(order[next_launch]) < finished_at(k) || launch_of[k] == 0)) {
+      launch_of[order[next_launch]] = rule.launch().launch;
+      ++next_launch;
+    }
+    const auto o = rule.finish(launch_of[k], p_value(k));
+    // Cannot fail: the launch is running and the reader checked p in [0, 1].
+    const Outcome out = o ? *o : Outcome{launch_of[k], 0, false, 0};
+    each(k, Decision{k + 1, out.level, out.rejected, out.wealth, launch_of[k]});
+  }
+}
+
+}  // namespace
+
 ReplayResult replay(const TestLog& log, const std::vector<Procedure>& procedures) {
   ReplayResult result;
   result.procedures = procedures;
@@ -113,7 +151,14 @@ ReplayResult replay(const TestLog& log, const std::vector<Procedure>& procedures
   for (const auto& proc : procedures) {
     std::vector<Decision> ds;
     ds.reserve(p.size());
-    if (const auto* rc = std::get_if<RuleConfig>(&proc.config)) {
+    if (const auto* rc = std::get_if<RuleConfig>(&proc.config); rc && log.has_launch) {
+      const auto& rs = log.records;
+      decide_with_launches(
+          rs.size(), *rc, [&](std::size_t i) { return rs[i].launched_at.value_or(0); },
+          [&](std::size_t i) { return rs[i].finished_at.value_or(0); }, [&](std::size_t i) { return rs[i].line; },
+          [&](std::size_t i) { return rs[i].p_value; },
+          [&](std::size_t, const Decision& d) { ds.push_back(d); });
+    } else if (rc) {
       Rule rule(*rc);
       for (double x : p) {
         const Outcome o = rule.record(x);
@@ -158,7 +203,16 @@ std::vector<ReplaySummary> summarize(const ReplayResult& result, const TestLog& 
 
 void replay_each(const CompactLog& log, const Procedure& procedure,
                  const std::function<void(std::size_t, const Decision&)>& each) {
-  if (const auto* rc = std::get_if<RuleConfig>(&procedure.config)) {
+  const auto* rc = std::get_if<RuleConfig>(&procedure.config);
+  if (rc && log.has_launch) {
+    const auto& rs = log.records;
+    decide_with_launches(
+        rs.size(), *rc, [&](std::size_t i) { return rs[i].launched_at; },
+        [&](std::size_t i) { return rs[i].finished_at; }, [&](std::size_t i) { return rs[i].line; },
+        [&](std::size_t i) { return rs[i].p_value; }, each);
+    return;
+  }
+  if (rc) {
     Rule rule(*rc);
     for (std::size_t i = 0; i < log.size(); ++i) {
       const Outcome o = rule.record(log.records[i].p_value);

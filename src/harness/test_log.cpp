@@ -151,6 +151,23 @@ Result<LogFormat> log_format_for(std::string_view path, std::optional<std::strin
 
 namespace {
 
+// A row with launched_at needs finished_at, and may not finish before it launched. The texts are
+// the cells as written, quoted in the message (as excerpt()).
+Status check_launch_order(std::string_view id, double launched_at, bool has_finished, double finished_at,
+                          std::string_view launched_text, std::string_view finished_text) {
+  if (!has_finished) {
+    return invalid_input("test '" + std::string(id) +
+                         "': launched_at is given but finished_at is missing; a test with a launch time "
+                         "needs the time it finished");
+  }
+  if (finished_at < launched_at) {
+    return invalid_input("test '" + std::string(id) + "': finished_at '" + excerpt(trim(finished_text)) +
+                         "' is earlier than launched_at '" + excerpt(trim(launched_text)) +
+                         "'; a test cannot finish before it was launched");
+  }
+  return {};
+}
+
 // Turns one row's fields into a record (line 0, no location in messages): common to CSV, JSON
 // Lines, pipe and HTTP.
 Result<TestRecord> make_record(const std::map<std::string, std::string>& f,
@@ -167,6 +184,15 @@ Result<TestRecord> make_record(const std::map<std::string, std::string>& f,
     auto v = parse_time_text(t->second);
     if (!v) return v.error();
     r.finished_at = *v;
+  }
+  if (auto t = f.find("launched_at"); t != f.end() && !trim(t->second).empty()) {
+    auto v = parse_time_text(t->second);
+    if (!v) return invalid_input("test '" + r.id + "': launched_at: " + v.error().message);
+    r.launched_at = *v;
+    if (auto s = check_launch_order(r.id, *v, r.finished_at.has_value(), r.finished_at.value_or(0), t->second,
+                                    r.finished_at ? f.at("finished_at") : std::string());
+        !s)
+      return s.error();
   }
   if (auto n = f.find("is_null"); n != f.end() && !trim(n->second).empty()) {
     const std::string v(trim(n->second));
@@ -199,15 +225,14 @@ Result<std::map<std::string, std::string>> json_fields(const nlohmann::json& obj
       if (!v.is_number())
         return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(v));
       f[key] = format_number(v.get<double>());
-    } else if (key == "finished_at") {
+    } else if (key == "finished_at" || key == "launched_at") {
       if (v.is_null()) continue;
       if (v.is_string())
         f[key] = v.get<std::string>();
       else if (v.is_number())
         f[key] = format_number(v.get<double>());
       else
-        return invalid_input("finished_at must be a JSON string (ISO 8601) or a number, got " +
-                             describe_json(v));
+        return invalid_input(key + " must be a JSON string (ISO 8601) or a number, got " + describe_json(v));
     } else if (key == "is_null") {
       if (v.is_null()) continue;
       if (v.is_boolean())
@@ -327,6 +352,10 @@ void append_record(CompactLog& log, const TestRecord& r) {
     c.flags |= CompactRecord::kHasTime;
     c.finished_at = *r.finished_at;
   }
+  if (r.launched_at) {
+    c.flags |= CompactRecord::kHasLaunch;
+    c.launched_at = *r.launched_at;
+  }
   if (r.is_null) c.flags |= CompactRecord::kHasTruth | (*r.is_null ? CompactRecord::kIsNull : 0);
   c.line = r.line;
   log.records.push_back(c);
@@ -357,6 +386,27 @@ Status check_unique_ids(const CompactLog& log, std::string_view source) {
     }
   }
   return {};
+}
+
+// A log with launched_at (a CSV column, or a key of any JSON Lines row) needs it on every row: the
+// first row without it (in file order) is refused. Sets log.has_launch.
+Status check_launch_column(CompactLog& log, bool csv_column) {
+  const auto has = [](const CompactRecord& r) { return (r.flags & CompactRecord::kHasLaunch) != 0; };
+  const auto first_with = std::find_if(log.records.begin(), log.records.end(), has);
+  if (!csv_column && first_with == log.records.end()) return {};
+  log.has_launch = true;
+  const auto first_without = std::find_if_not(log.records.begin(), log.records.end(), has);
+  if (first_without == log.records.end()) return {};
+  const std::string id(log.id(*first_without));
+  if (csv_column) {
+    return invalid_input(where(log.source, first_without->line) + "test '" + id +
+                         "': launched_at is empty; when the log has a launched_at column every row needs "
+                         "a launch time (ISO 8601 date or date-time, or a number), or leave the column out");
+  }
+  return invalid_input(where(log.source, first_without->line) + "test '" + id +
+                       "': no launched_at, but line " + std::to_string(first_with->line) +
+                       " has one; when any row has launched_at every row needs it (ISO 8601 date or "
+                       "date-time, or a number)");
 }
 
 // A row without finished_at keeps its place right after the row before it (docs/formats.md). A
@@ -404,7 +454,7 @@ void order_by_time(CompactLog& log) {
 // goes through make_record itself.
 struct CsvColumns {
   std::vector<std::string> header;
-  std::ptrdiff_t id = -1, p_value = -1, finished_at = -1, is_null = -1;
+  std::ptrdiff_t id = -1, p_value = -1, finished_at = -1, launched_at = -1, is_null = -1;
 };
 
 Status csv_row(CompactLog& log, const CsvColumns& cols, const std::vector<std::string_view>& cells,
@@ -438,6 +488,19 @@ Status csv_row(CompactLog& log, const CsvColumns& cols, const std::vector<std::s
     c.flags |= CompactRecord::kHasTime;
     c.finished_at = *v;
   }
+  if (const std::string_view t = cell(cols.launched_at); !trim(t).empty()) {
+    auto v = parse_time_text(t);
+    if (!v) {
+      return invalid_input(where(log.source, line_no) + "test '" + std::string(id) +
+                           "': launched_at: " + v.error().message);
+    }
+    c.flags |= CompactRecord::kHasLaunch;
+    c.launched_at = *v;
+    if (auto s = check_launch_order(id, c.launched_at, (c.flags & CompactRecord::kHasTime) != 0, c.finished_at,
+                                    t, cell(cols.finished_at));
+        !s)
+      return invalid_input(where(log.source, line_no) + s.error().message);
+  }
   if (const std::string_view n = trim(cell(cols.is_null)); !n.empty()) {
     if (n == "1" || n == "true")
       c.flags |= CompactRecord::kHasTruth | CompactRecord::kIsNull;
@@ -463,6 +526,7 @@ TestRecord CompactLog::record(std::size_t i) const {
   r.id = std::string(id(c));
   r.p_value = c.p_value;
   if (c.flags & CompactRecord::kHasTime) r.finished_at = c.finished_at;
+  if (c.flags & CompactRecord::kHasLaunch) r.launched_at = c.launched_at;
   if (c.flags & CompactRecord::kHasTruth) r.is_null = (c.flags & CompactRecord::kIsNull) != 0;
   r.line = c.line;
   return r;
@@ -523,6 +587,7 @@ Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, L
           if (name == "id") cols.id = index;
           if (name == "p_value") cols.p_value = index;
           if (name == "finished_at") cols.finished_at = index;
+          if (name == "launched_at") cols.launched_at = index;
           if (name == "is_null") cols.is_null = index;
         }
         if (cols.id < 0) {
@@ -562,6 +627,8 @@ Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, L
       !log.records.empty() && std::all_of(log.records.begin(), log.records.end(), [](const CompactRecord& r) {
         return (r.flags & CompactRecord::kHasTruth) != 0;
       });
+  if (auto s = check_launch_column(log, format == LogFormat::kCsv && cols.launched_at >= 0); !s)
+    return s.error();
   if (options.order_by_finished_at) order_by_time(log);
   return log;
 }

@@ -188,3 +188,24 @@ TEST_CASE("Replay: --json on an id that is not UTF-8 is a clear input error") {
   CHECK(j.exit_code == 2);
   CHECK(j.err.find("bad-utf8.jsonl:1: not valid JSON") != std::string::npos);
 }
+
+TEST_CASE("Replay: launched_at adds the launch column; bad launch times exit 2 with file:line") {
+  // Source: docs/formats.md "Launch times" (our format).
+  const std::string path = write_temp("launch.csv",
+                                      "id,launched_at,finished_at,p_value\n"
+                                      "A,1,5,0.00001\n"
+                                      "B,2,3,0.0002\n");
+  const auto r = run_alphaledger({"replay", path, "--rules", "lord++,bh"});
+  REQUIRE(r.exit_code == 0);
+  CHECK(r.out.rfind("rule,step,launch,id,p_value,level,rejected,wealth\n", 0) == 0);
+  CHECK(r.out.find("\nlord++,1,2,B,") != std::string::npos);
+  CHECK(r.out.find("\nlord++,2,1,A,") != std::string::npos);
+  CHECK(r.out.find("\nbh,1,,B,") != std::string::npos);
+  const std::string bad = write_temp("launch_bad.csv",
+                                     "id,launched_at,finished_at,p_value\n"
+                                     "A,2025-03-05,2025-03-04,0.1\n");
+  const auto e = run_alphaledger({"replay", bad});
+  CHECK(e.exit_code == 2);
+  CHECK(e.err.find("launch_bad.csv:2:") != std::string::npos);
+  CHECK(e.out.empty());
+}
