@@ -16,6 +16,12 @@ ROOT = os.path.dirname(os.path.abspath(__file__))
 
 class CMakeBuild(build_ext):
     def build_extension(self, ext):
+        target = self.get_ext_fullpath(ext.name)
+        os.makedirs(os.path.dirname(target), exist_ok=True)
+        prebuilt = os.environ.get("ALPHALEDGER_PREBUILT_MODULE")
+        if prebuilt:  # the module already built by CMake (build/python/alphaledger/_native*.so)
+            shutil.copyfile(prebuilt, target)
+            return
         build_dir = os.path.abspath(os.path.join(self.build_temp, "cmake"))
         os.makedirs(build_dir, exist_ok=True)
         configure = ["cmake", "-S", ROOT, "-B", build_dir, "-DCMAKE_BUILD_TYPE=Release",
@@ -32,8 +38,6 @@ class CMakeBuild(build_ext):
         built = glob.glob(os.path.join(build_dir, "python", "alphaledger", "_native*.so"))
         if len(built) != 1:
             raise RuntimeError(f"expected one built _native module in {build_dir}, found {built}")
-        target = self.get_ext_fullpath(ext.name)
-        os.makedirs(os.path.dirname(target), exist_ok=True)
         shutil.copyfile(built[0], target)
 
 
