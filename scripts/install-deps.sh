@@ -5,6 +5,7 @@ set -euo pipefail
 packages=(g++ cmake ninja-build libboost-math-dev libspdlog-dev libcli11-dev librocksdb-dev
           doctest-dev nlohmann-json3-dev libcpp-httplib-dev pkgconf
           clang-14 libclang-rt-14-dev   # libFuzzer and sanitizers for scripts/fuzz.sh
+          pybind11-dev python3-pybind11 python3-pandas  # the Python module and its tests (docs/python.md)
           libjs-chart.js                # Chart.js, embedded into the HTML reports (docs/reports.md)
           chromium)                     # a real browser for the report tests (tests/cli/test_report_cli.cpp)
 if [ "${1:-}" = "--with-references" ]; then
