@@ -97,7 +97,7 @@ Result<RuleConfig> resolve_config(const RuleSpec& spec);
 // Which parameters a rule takes (used to refuse flags that no listed rule takes).
 bool rule_takes(RuleKind kind, std::string_view parameter);  // "initial_wealth", "payout", ...
 
-// The result of recording (or finishing) one test.
+// The result of deciding (or finishing) one test.
 struct Outcome {
   std::uint64_t step = 0;  // the test's launch number: 1-based position in launch order
   double level = 0;        // the level granted, fixed before the p-value was read
