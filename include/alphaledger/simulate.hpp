@@ -7,7 +7,9 @@
 // share_t (the non-null fraction, or a pattern over time with that average). A non-null test has
 // mean mu ~ Normal(effect, effect_sd), drawn per test; a null test has mean null_mean (negative
 // means conservative nulls). z_t = mean_t + e_t with e_t ~ Normal(0, 1), independent or positively
-// correlated between neighbours, and p_t = 1 - Phi(z_t) = erfc(z_t / sqrt 2) / 2.
+// correlated between neighbours, and p_t = 1 - Phi(z_t) = erfc(z_t / sqrt 2) / 2. Optionally tests
+// overlap in time (mean_duration: levels reserved at launch, decided at finish), e-value rules see
+// the likelihood ratio of z_t at the effect, and each test can be looked at K times (PeekingSpec).
 //
 // Paired design: within one run every procedure decides the very same p-values, so differences
 // between procedures are paired, not noise. Determinism: run r of seed s is generated from its own
@@ -147,7 +149,7 @@ double peeking_mixture_sd(const PeekingSpec& peeking, const SimulationModel& mod
 
 // What a plan needs generated beyond the p-values (SimulationPlan::needs()).
 struct StreamNeeds {
-  bool e_values = false;  // e_value: the likelihood ratio of z against the model's effect
+  bool e_values = false;     // e_value: the likelihood ratio of z against the model's effect
   PeekingSpec peeking = {};  // looks > 0: the per-test summaries of the looks
 };
 
@@ -205,10 +207,10 @@ Result<std::vector<Procedure>> resolve_simulation_procedures(const std::vector<s
 
 // Which evidence a row of the plan decides on.
 enum class Evidence : std::uint8_t {
-  kFinal,         // the final p-value (e-value rules: the likelihood ratio at the effect)
-  kPeekFixed,     // peeking: stop at the first look whose fixed-horizon p <= level (not valid)
-  kPeekAnytime,   // peeking: the always-valid p-value, used at its running minimum
-  kPeekMixture,   // peeking, e-value rules: the mixture ratio, stopped when it reaches 1 / level
+  kFinal,        // the final p-value (e-value rules: the likelihood ratio at the effect)
+  kPeekFixed,    // peeking: stop at the first look whose fixed-horizon p <= level (not valid)
+  kPeekAnytime,  // peeking: the always-valid p-value, used at its running minimum
+  kPeekMixture,  // peeking, e-value rules: the mixture ratio, stopped when it reaches 1 / level
 };
 // The suffix a row's name gets: "", ":peek-fixed", ":peek-anytime", ":peek-mixture".
 std::string_view evidence_suffix(Evidence evidence);

@@ -17,7 +17,6 @@
 #include "alphaledger/test_log.hpp"
 #include "alphaledger/text.hpp"
 #include "cli/command.hpp"
-#include "alphaledger/text.hpp"
 #include "harness/simulate_report.hpp"
 
 namespace alphaledger::cli {

@@ -1,7 +1,6 @@
 // Simulated streams of one-sided z-tests and the metrics over runs (include/alphaledger/simulate.hpp,
 // docs/simulate.md). Numbers in, numbers out: no I/O, no logging, no clock, no globals.
 #include "alphaledger/simulate.hpp"
-#include "alphaledger/text.hpp"
 
 #include <algorithm>
 #include <bit>
@@ -11,6 +10,7 @@
 
 #include "alphaledger/anytime.hpp"
 #include "alphaledger/offline.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger {
 namespace {
@@ -28,7 +28,9 @@ double capped_exp(double x) { return std::exp(std::min(x, kMaxLogDouble)); }
 
 // The number of later launches a test runs for: Geometric on {0, 1, ...} with mean d, by inversion,
 // floor(log u / log q) with q = d / (1 + d), log q = -log1p(1 / d). REQUIRES: d > 0.
-double geometric_draw(RandomStream& r, double d) { return std::floor(std::log(r.uniform()) / -std::log1p(1.0 / d)); }
+double geometric_draw(RandomStream& r, double d) {
+  return std::floor(std::log(r.uniform()) / -std::log1p(1.0 / d));
+}
 
 // The splitmix64 output function (Steele, Lea & Flood 2014), a bijection of 64-bit words.
 std::uint64_t mix64(std::uint64_t z) {
@@ -251,7 +253,8 @@ Status validate_peeking(const PeekingSpec& p) {
                          std::to_string(p.looks));
   }
   if (!(std::isfinite(p.mixture_sd) && p.mixture_sd >= 0 && p.mixture_sd <= kMaxMean)) {
-    return invalid_input("--mixture-sd must be a number in (0, 40] (0: the effect), got " + num(p.mixture_sd));
+    return invalid_input("--mixture-sd must be a number in (0, 40] (0: the effect), got " +
+                         num(p.mixture_sd));
   }
   return {};
 }
@@ -561,10 +564,10 @@ std::vector<RunTally> SimulationPlan::decide(const SimulatedStream& stream) cons
       }
     } else {
       const auto& oc = std::get<OfflineConfig>(rows_[i].config);
-      const OfflineDecisions od = oc.method == OfflineMethod::kEBh ? e_benjamini_hochberg(stream.e_value, oc.alpha)
-                                  : oc.method == OfflineMethod::kBh
-                                      ? benjamini_hochberg(stream.p_value, oc.alpha)
-                                      : storey_bh(stream.p_value, oc.alpha, oc.candidate_threshold);
+      const OfflineDecisions od =
+          oc.method == OfflineMethod::kEBh  ? e_benjamini_hochberg(stream.e_value, oc.alpha)
+          : oc.method == OfflineMethod::kBh ? benjamini_hochberg(stream.p_value, oc.alpha)
+                                            : storey_bh(stream.p_value, oc.alpha, oc.candidate_threshold);
       t = tally_decisions(stream, od.rejected);
     }
     out.push_back(t);

@@ -164,7 +164,8 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
         << " later tests launch (geometric); levels are fixed at launch\n";
   }
   if (st.looks > 0) {
-    out << "peeking: " << st.looks << " looks per test; :peek-fixed stops at the first fixed-horizon p <= level, "
+    out << "peeking: " << st.looks
+        << " looks per test; :peek-fixed stops at the first fixed-horizon p <= level, "
         << ":peek-anytime uses the always-valid p-value, :peek-mixture the mixture e-value\n";
   }
   const std::string eval = evaluation_note(rows);
@@ -173,8 +174,8 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
 
   std::size_t width = 16;
   for (const auto& r : rows) width = std::max(width, r.rule.size() + 2);
-  out << pad("rule", width, true) << pad("rejections", 11) << pad("FDR", 8) << pad("+-SE", 8) << pad("mFDR", 8)
-      << pad("FWER", 8) << pad("+-SE", 8) << pad("power", 8) << pad("+-SE", 8) << "  "
+  out << pad("rule", width, true) << pad("rejections", 11) << pad("FDR", 8) << pad("+-SE", 8)
+      << pad("mFDR", 8) << pad("FWER", 8) << pad("+-SE", 8) << pad("power", 8) << pad("+-SE", 8) << "  "
       << pad("promise", 20, true) << "check\n";
   for (const auto& r : rows) {
     const std::string promise = std::string(error_metric_name(r.metric)) + " <= " + format_rounded(r.target);
@@ -211,7 +212,8 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
 
   // Which promises the chosen scenario does not cover (docs/simulate.md lists the sources).
   bool peek_fixed = false;
-  for (const auto& r : rows) peek_fixed = peek_fixed || r.rule.ends_with(evidence_suffix(Evidence::kPeekFixed));
+  for (const auto& r : rows)
+    peek_fixed = peek_fixed || r.rule.ends_with(evidence_suffix(Evidence::kPeekFixed));
   if (peek_fixed) {
     out << wrap(
         "Note: a fixed-horizon p-value checked at every look and stopped at the first p <= level is not a "

@@ -21,7 +21,8 @@ SimulationResult run(const std::vector<std::string>& rules, const SimulationMode
   auto procs = resolve_simulation_procedures(rules, RuleSpec{.evaluation = "fast"});
   REQUIRE_MESSAGE(procs.ok(), (procs.ok() ? "" : procs.error().message));
   const SimulationPlan plan(*procs, peeking);
-  auto r = run_simulation(plan, m, {.runs = runs, .seed = seed, .threads = test_threads(), .keep_runs = keep_runs});
+  auto r = run_simulation(plan, m,
+                          {.runs = runs, .seed = seed, .threads = test_threads(), .keep_runs = keep_runs});
   REQUIRE_MESSAGE(r.ok(), (r.ok() ? "" : r.error().message));
   return std::move(r).value();
 }
@@ -40,7 +41,8 @@ SimulationModel model(double f, double effect, const char* correlation = "none")
 // ---------------------------------------------------------------------------------------------
 // e-values.
 
-TEST_CASE("Evidence: the simulated e-value is the likelihood ratio at the effect, with mean 1 under the null") {
+TEST_CASE(
+    "Evidence: the simulated e-value is the likelihood ratio at the effect, with mean 1 under the null") {
   // e = exp(mu z - mu^2 / 2) is the N(mu, 1) / N(0, 1) density ratio at z; for Z ~ N(0, 1),
   // E[e] = exp(-mu^2 / 2) E[exp(mu Z)] = 1 (the normal moment generating function, common practice)
   // and Var[e] = exp(mu^2) - 1.
@@ -61,7 +63,8 @@ TEST_CASE("Evidence: the simulated e-value is the likelihood ratio at the effect
   CHECK(generate_stream(m, 3, 0).e_value.empty());
 }
 
-TEST_CASE("Evidence: e-lond equals Rule::record_e and e-bh equals e_benjamini_hochberg on the same e-values") {
+TEST_CASE(
+    "Evidence: e-lond equals Rule::record_e and e-bh equals e_benjamini_hochberg on the same e-values") {
   const SimulationModel m = model(0.2, 3.5);
   const auto r = run({"e-lond", "e-bh", "lord++"}, m, 8, 4, {}, true);
   REQUIRE(r.summaries.size() == 3);
@@ -113,7 +116,8 @@ TEST_CASE("Evidence: e-bh is refused with a bad alpha and resolves beside the ot
 
 TEST_CASE("Evidence: with one look the peeking summaries are the final evidence") {
   SimulationModel m = model(0.3, 2);
-  const SimulatedStream s = generate_stream(m, 2, 0, {.e_values = false, .peeking = {.looks = 1, .mixture_sd = 2}});
+  const SimulatedStream s =
+      generate_stream(m, 2, 0, {.e_values = false, .peeking = {.looks = 1, .mixture_sd = 2}});
   const SimulatedStream base = generate_stream(m, 2, 0);
   CHECK(s.p_value == base.p_value);  // the looks have their own random stream
   for (std::size_t t = 0; t < s.p_value.size(); ++t) {
@@ -127,7 +131,8 @@ TEST_CASE("Evidence: with one look the peeking summaries are the final evidence"
 TEST_CASE("Evidence: the last of many looks is the final z, and peeking only lowers the minimum p") {
   SimulationModel m = model(0.3, 2);
   m.tests = 200;
-  const SimulatedStream s = generate_stream(m, 2, 1, {.e_values = false, .peeking = {.looks = 50, .mixture_sd = 0}});
+  const SimulatedStream s =
+      generate_stream(m, 2, 1, {.e_values = false, .peeking = {.looks = 50, .mixture_sd = 0}});
   for (std::size_t t = 0; t < s.p_value.size(); ++t) {
     REQUIRE(s.p_min_fixed[t] <= s.p_value[t]);
     REQUIRE(s.e_max_mixture[t] >= s.e_last_mixture[t]);
@@ -146,7 +151,8 @@ TEST_CASE("Evidence: Ville - the always-valid p-value stays valid over 1000 look
   const double alpha = 0.05;
   double ever_anytime = 0, ever_fixed = 0, n = 0;
   for (std::uint64_t k = 0; k < 4; ++k) {
-    const SimulatedStream s = generate_stream(m, 17, k, {.e_values = false, .peeking = {.looks = 1000, .mixture_sd = 1}});
+    const SimulatedStream s =
+        generate_stream(m, 17, k, {.e_values = false, .peeking = {.looks = 1000, .mixture_sd = 1}});
     for (std::size_t t = 0; t < s.p_value.size(); ++t) {
       ever_anytime += s.p_min_anytime[t] <= alpha ? 1 : 0;
       ever_fixed += s.p_min_fixed[t] <= alpha ? 1 : 0;
@@ -170,7 +176,7 @@ TEST_CASE("Evidence: peeking rows - fixed-horizon peeking breaks FDR, the always
   // stopping) fed at a level fixed before the test's data keeps the rule's FDR guarantee.
   SimulationModel m = model(0.1, 3);
   m.tests = 300;
-  const auto r = run({"lord++", "e-lond", "bh"}, m, 300, 6, {.looks = 100, .mixture_sd = 0});
+  const auto r = run({"lord++", "e-lond", "bh"}, m, 200, 6, {.looks = 50, .mixture_sd = 0});
   std::vector<std::string> names;
   for (const auto& s : r.summaries) names.push_back(s.rule);
   CHECK(names == std::vector<std::string>{"lord++", "lord++:peek-fixed", "lord++:peek-anytime", "e-lond",
