@@ -22,7 +22,8 @@
 namespace alphaledger {
 
 // Stored nowhere; names are the CLI's.
-enum class OfflineMethod { kBh, kStoreyBh };
+// kEBh: e-BH on e-values (offline.hpp); simulate resolves it (resolve_simulation_procedures).
+enum class OfflineMethod { kBh, kStoreyBh, kEBh };
 
 struct OfflineConfig {
   OfflineMethod method = OfflineMethod::kBh;

@@ -7,7 +7,9 @@
 // share_t (the non-null fraction, or a pattern over time with that average). A non-null test has
 // mean mu ~ Normal(effect, effect_sd), drawn per test; a null test has mean null_mean (negative
 // means conservative nulls). z_t = mean_t + e_t with e_t ~ Normal(0, 1), independent or positively
-// correlated between neighbours, and p_t = 1 - Phi(z_t) = erfc(z_t / sqrt 2) / 2.
+// correlated between neighbours, and p_t = 1 - Phi(z_t) = erfc(z_t / sqrt 2) / 2. Optionally tests
+// overlap in time (mean_duration: levels reserved at launch, decided at finish), e-value rules see
+// the likelihood ratio of z_t at the effect, and each test can be looked at K times (PeekingSpec).
 //
 // Paired design: within one run every procedure decides the very same p-values, so differences
 // between procedures are paired, not noise. Determinism: run r of seed s is generated from its own
@@ -118,26 +120,67 @@ struct SimulationModel {
                                   // Positive: anti-conservative (invalid) nulls, for stress only.
   PatternSpec pattern;            // Default: constant
   CorrelationSpec correlation;    // Default: none
+  // Overlap between tests. Tests launch in stream order; test t runs while D_t further tests launch,
+  // then finishes (before the next launch), with D_t ~ Geometric on {0, 1, 2, ...} with mean
+  // mean_duration: P(D_t = k) = (1 - q) q^k, q = mean_duration / (1 + mean_duration). Tests still
+  // running at the end of the stream finish there, in launch order. 0 (the default): every test
+  // finishes before the next launches, the synchronous rules exactly. In [0, 1000000].
+  double mean_duration = 0;
 };
 
 // Checks every field. On failure returns kInvalidArgument naming the field (as its CLI flag), the
 // value and the accepted range, e.g. "--nonnull-fraction must be in [0, 1], got 1.5".
 Status validate_model(const SimulationModel& model);
 
-// One simulated stream: p-values and the truth, in arrival order.
+// Watching tests while they run (simulate --peeking K). Each test's data arrive in K equal
+// increments of a fixed sample; at look k the cumulative data give the fixed-horizon z-statistic
+// z_k = S(k/K) / sqrt(k/K), where S(s) = mean s + B(s) and B is a Brownian motion with B(1) = e_t, the
+// test's noise term (so the last look is the test's z_t and the correlation between tests is kept).
+// At each look the evidence is also measured by the one-sided normal-mixture likelihood ratio of
+// anytime.hpp (estimate S(s)/s, variance 1/s, mixing scale mixture_sd on the same scale as the
+// effect), whose running minimum of 1/ratio is the always-valid p-value.
+struct PeekingSpec {
+  std::uint64_t looks = 0;  // K; 0 = no peeking (only the final p-value exists). In [0, 100000].
+  double mixture_sd = 0;    // tau > 0; 0 = the model's |effect| (1 when the effect is 0)
+};
+Status validate_peeking(const PeekingSpec& peeking);
+// The mixing scale used for `model`: peeking.mixture_sd, or |effect| (1 when the effect is 0).
+double peeking_mixture_sd(const PeekingSpec& peeking, const SimulationModel& model);
+
+// What a plan needs generated beyond the p-values (SimulationPlan::needs()).
+struct StreamNeeds {
+  bool e_values = false;     // e_value: the likelihood ratio of z against the model's effect
+  PeekingSpec peeking = {};  // looks > 0: the per-test summaries of the looks
+};
+
+// One simulated stream: p-values and the truth, in launch order.
 struct SimulatedStream {
   std::vector<double> p_value;
   std::vector<std::uint8_t> is_null;  // 1 = null, 0 = non-null
   std::uint64_t nonnulls = 0;
+  // mean_duration > 0 only: the launch (0-based) before which test t finishes, in (t, n]; n means
+  // at the end of the stream. Empty when every test finishes before the next launches.
+  std::vector<std::uint64_t> finish_before;
+  // needs.e_values only: e_t = exp(mu z_t - mu^2 / 2) with mu = the model's effect, the likelihood
+  // ratio of N(mu, 1) against N(0, 1) at z_t; E[e_t] = 1 for a null of mean 0 and <= 1 for a
+  // conservative null (mean < 0) when mu >= 0, so it is an e-value. Capped at the largest double.
+  std::vector<double> e_value;
+  // needs.peeking.looks > 0 only, per test over its K looks:
+  std::vector<double> p_min_fixed;     // min_k of the fixed-horizon p-value 1 - Phi(z_k)
+  std::vector<double> p_min_anytime;   // min_k of min(1, 1 / ratio_k): the always-valid p-value at the end
+  std::vector<double> e_max_mixture;   // max_k ratio_k
+  std::vector<double> e_last_mixture;  // ratio_K, the mixture likelihood ratio at the last look
 };
 
-// Fills `out` (buffers are reused) with run `run` of seed `seed`. Three random streams per run,
-// one each for the truth (purpose 1), the non-null means (2) and the noise (3), so changing the
-// effect or the correlation does not change which tests are non-null.
-// REQUIRES: validate_model(model) succeeded.
+// Fills `out` (buffers are reused) with run `run` of seed `seed`. Independent random streams per
+// run, one each for the truth (purpose 1), the non-null means (2), the noise (3), the durations (4)
+// and the paths between looks (5), so changing the effect, the correlation, the duration or the
+// looks does not change which tests are non-null, and the final z_t do not depend on the duration
+// or the looks. REQUIRES: validate_model(model) and validate_peeking(needs.peeking) succeeded.
 void generate_stream(const SimulationModel& model, std::uint64_t seed, std::uint64_t run,
-                     SimulatedStream& out);
-SimulatedStream generate_stream(const SimulationModel& model, std::uint64_t seed, std::uint64_t run);
+                     SimulatedStream& out, const StreamNeeds& needs = {});
+SimulatedStream generate_stream(const SimulationModel& model, std::uint64_t seed, std::uint64_t run,
+                                const StreamNeeds& needs = {});
 
 // p = 1 - Phi(z), computed as erfc(z / sqrt 2) / 2 so that it stays accurate for large z.
 double upper_tail_p_value(double z);
@@ -157,22 +200,50 @@ struct RunTally {
 // Counts R and V from a list of decisions. REQUIRES: rejected.size() == stream.p_value.size().
 RunTally tally_decisions(const SimulatedStream& stream, const std::vector<bool>& rejected);
 
+// resolve_procedures(names, flags, true) plus "e-bh", e-BH (offline.hpp) on the simulated
+// e-values, at the flags' alpha. Errors as resolve_procedures().
+Result<std::vector<Procedure>> resolve_simulation_procedures(const std::vector<std::string>& names,
+                                                             const RuleSpec& flags);
+
+// Which evidence a row of the plan decides on.
+enum class Evidence : std::uint8_t {
+  kFinal,        // the final p-value (e-value rules: the likelihood ratio at the effect)
+  kPeekFixed,    // peeking: stop at the first look whose fixed-horizon p <= level (not valid)
+  kPeekAnytime,  // peeking: the always-valid p-value, used at its running minimum
+  kPeekMixture,  // peeking, e-value rules: the mixture ratio, stopped when it reaches 1 / level
+};
+// The suffix a row's name gets: "", ":peek-fixed", ":peek-anytime", ":peek-mixture".
+std::string_view evidence_suffix(Evidence evidence);
+
 // The procedures of one simulation with a prototype Rule for each online rule (built once;
 // copying a Rule is cheap, so every run starts from a fresh copy).
+//
+// Rows: without peeking, one row per procedure. With peeking, every online p-value rule R gives
+// three rows, "R" (the final p-value, looked at once), "R:peek-fixed" and "R:peek-anytime"; e-lond
+// gives "e-lond" and "e-lond:peek-mixture"; the offline baselines (bh, storey-bh, e-bh) keep one
+// row on the final evidence, since they need every result at once.
 class SimulationPlan {
  public:
-  // REQUIRES: procedures came from resolve_procedures().
-  explicit SimulationPlan(std::vector<Procedure> procedures);
+  // REQUIRES: procedures came from resolve_procedures(); validate_peeking(peeking) succeeded.
+  explicit SimulationPlan(std::vector<Procedure> procedures, PeekingSpec peeking = {});
 
-  const std::vector<Procedure>& procedures() const { return procedures_; }
+  // One per row, named as the row (the rule name plus evidence_suffix()).
+  const std::vector<Procedure>& procedures() const { return rows_; }
+  const std::vector<Evidence>& evidence() const { return evidence_; }
+  const PeekingSpec& peeking() const { return peeking_; }
+  StreamNeeds needs() const;
 
-  // Decides the stream with every procedure, each from its start state; one tally per
-  // procedure, in order. Every procedure sees the identical p-values.
+  // Decides the stream with every row, each from its start state; one tally per row, in order.
+  // Every row sees the identical stream. When the stream has finish_before, online rules decide
+  // through Rule::launch() / finish() in the stream's event order; otherwise (and for the final
+  // evidence) through record(), the synchronous rules exactly.
   std::vector<RunTally> decide(const SimulatedStream& stream) const;
 
  private:
-  std::vector<Procedure> procedures_;
+  std::vector<Procedure> rows_;
+  std::vector<Evidence> evidence_;
   std::vector<std::optional<Rule>> prototypes_;  // empty for offline procedures
+  PeekingSpec peeking_;
 };
 
 // One run, start to end: generate_stream() then plan.decide(). The unit of all simulation work.

@@ -17,7 +17,6 @@
 #include "alphaledger/test_log.hpp"
 #include "alphaledger/text.hpp"
 #include "cli/command.hpp"
-#include "alphaledger/text.hpp"
 #include "harness/simulate_report.hpp"
 
 namespace alphaledger::cli {
@@ -31,6 +30,9 @@ struct SimulateOptions {
   std::string tests, runs, seed = "1", threads;
   std::string nonnull_fraction = "0.1";  // one value, or a comma-separated list (a sweep)
   std::string effect = "3";
+  std::string mean_duration = "0";  // one value, or a list (a sweep)
+  std::string peeking = "0";
+  double mixture_sd = 0;
   double effect_sd = 0;
   double null_mean = 0;
   std::string pattern = "constant";
@@ -122,7 +124,7 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
       if (n == "lord++" || n == "saffron" || n == "addis") flags.evaluation = "fast";
     }
   }
-  auto procs = resolve_procedures(*names, flags, /*allow_offline=*/true);
+  auto procs = resolve_simulation_procedures(*names, flags);
   if (!procs) return procs.error();
 
   if (o.report) {
@@ -132,16 +134,30 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
   if (!fractions) return fractions.error();
   auto effects = parse_sweep(o.effect, "--effect");
   if (!effects) return effects.error();
-  if (fractions->size() > 1 && effects->size() > 1) {
+  auto durations = parse_sweep(o.mean_duration, "--mean-duration");
+  if (!durations) return durations.error();
+  if ((fractions->size() > 1) + (effects->size() > 1) + (durations->size() > 1) > 1) {
     return invalid_input(
-        "--nonnull-fraction and --effect both list several values; a sweep varies one parameter at a time "
-        "(give one of them a single value)");
+        "more than one of --nonnull-fraction, --effect and --mean-duration list several values; a sweep "
+        "varies one parameter at a time (give the others a single value)");
   }
   // The swept parameter's name as a CSV column, or empty for a single setting.
-  const std::string parameter = fractions->size() > 1 ? "nonnull_fraction"
-                                : effects->size() > 1 ? "effect"
-                                                      : "";
-  const std::vector<double>& values = effects->size() > 1 ? *effects : *fractions;
+  const std::string parameter = fractions->size() > 1   ? "nonnull_fraction"
+                                : effects->size() > 1   ? "effect"
+                                : durations->size() > 1 ? "mean_duration"
+                                                        : "";
+  const std::vector<double>& values = effects->size() > 1     ? *effects
+                                      : durations->size() > 1 ? *durations
+                                                              : *fractions;
+  PeekingSpec peeking;
+  auto looks = parse_whole(o.peeking, "--peeking", 0, 100'000);
+  if (!looks) return looks.error();
+  peeking.looks = *looks;
+  peeking.mixture_sd = o.mixture_sd;
+  if (o.mixture_sd != 0 && peeking.looks == 0) {
+    return invalid_input("--mixture-sd is used only with --peeking K (K >= 1 looks per test)");
+  }
+  if (auto s = validate_peeking(peeking); !s) return s.error();
 
   SimulationModel model;
   auto tests = parse_whole(o.tests, "--tests", 1, 100'000'000);
@@ -149,6 +165,7 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
   model.tests = *tests;
   model.nonnull_fraction = fractions->front();
   model.effect = effects->front();
+  model.mean_duration = durations->front();
   model.effect_sd = o.effect_sd;
   model.null_mean = o.null_mean;
   auto pattern = parse_nonnull_pattern(o.pattern);
@@ -163,6 +180,7 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
     SimulationModel m = model;
     if (parameter == "effect") m.effect = v;
     if (parameter == "nonnull_fraction") m.nonnull_fraction = v;
+    if (parameter == "mean_duration") m.mean_duration = v;
     if (auto s = validate_model(m); !s) return s.error();
     models.push_back(m);
   }
@@ -182,12 +200,13 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
     run.threads = static_cast<unsigned>(*threads);
   }
 
-  const SimulationPlan plan(std::move(*procs));
+  const SimulationPlan plan(std::move(*procs), peeking);
   spdlog::info(
       "simulate: {} runs x {} tests, seed {}, {} threads, non-null share {} ({}), effect {} (sd {}), "
-      "null mean {}, correlation {}",
+      "null mean {}, correlation {}, mean duration {}, looks {}",
       run.runs, model.tests, run.seed, run.threads, model.nonnull_fraction, pattern_text(model.pattern),
-      model.effect, model.effect_sd, model.null_mean, correlation_text(model.correlation));
+      model.effect, model.effect_sd, model.null_mean, correlation_text(model.correlation),
+      model.mean_duration, peeking.looks);
   // A sweep runs the same seed at every value, so the settings differ only in the swept parameter.
   Progress progress(run.runs * models.size());
   std::vector<std::vector<ProcedureSummary>> summaries;
@@ -210,7 +229,7 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
     } else if (o.table) {
       if (!parameter.empty())
         out << (v == 0 ? "" : "\n") << "== " << parameter << " = " << format_number(values[v]) << "\n";
-      write_simulation_table(out, summaries[v], {models[v], run.runs, run.seed, run.threads});
+      write_simulation_table(out, summaries[v], {models[v], run.runs, run.seed, run.threads, peeking.looks});
     }
   }
   if (!g.json && !o.table) {
@@ -245,7 +264,7 @@ void add_simulate_command(CLI::App& app, CommandContext& ctx) {
   sub->add_option(
       "--rules", opts->rules,
       "comma-separated rules; default all: alpha-spending, alpha-investing, lond, lord++, saffron, "
-      "addis, bh, storey-bh");
+      "addis, bh, storey-bh; also e-lond and e-bh (on likelihood-ratio e-values)");
   sub->add_option("--tests", opts->tests, "tests per stream, 1 to 100000000")->required()->type_name("INT");
   sub->add_option("--runs", opts->runs, "number of simulated streams, 1 to 100000000")
       ->required()
@@ -257,6 +276,19 @@ void add_simulate_command(CLI::App& app, CommandContext& ctx) {
   sub->add_option("--effect", opts->effect,
                   "mean z of a non-null test; default 3; a comma-separated list runs a sweep")
       ->type_name("FLOAT[,FLOAT...]");
+  sub->add_option("--mean-duration", opts->mean_duration,
+                  "tests overlap: each runs while a random number of later tests launch (geometric, this "
+                  "mean); levels are fixed at launch; default 0 (one test after another); a comma-separated "
+                  "list runs a sweep")
+      ->type_name("FLOAT[,FLOAT...]");
+  sub->add_option("--peeking", opts->peeking,
+                  "look at each test K times as its data arrive and add rows per rule: stop at the first "
+                  "fixed-horizon p <= level (:peek-fixed, not valid), the always-valid p-value "
+                  "(:peek-anytime), e-lond on mixture e-values (:peek-mixture); default 0 (no peeking)")
+      ->type_name("INT");
+  sub->add_option("--mixture-sd", opts->mixture_sd,
+                  "with --peeking: mixing scale of the always-valid evidence, on the scale of --effect; "
+                  "default the effect");
   sub->add_option("--effect-sd", opts->effect_sd, "spread of that mean between non-null tests; default 0");
   sub->add_option("--null-mean", opts->null_mean,
                   "mean z of a null test; negative means conservative nulls; default 0");

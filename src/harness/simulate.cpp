@@ -1,7 +1,6 @@
 // Simulated streams of one-sided z-tests and the metrics over runs (include/alphaledger/simulate.hpp,
 // docs/simulate.md). Numbers in, numbers out: no I/O, no logging, no clock, no globals.
 #include "alphaledger/simulate.hpp"
-#include "alphaledger/text.hpp"
 
 #include <algorithm>
 #include <bit>
@@ -9,7 +8,9 @@
 #include <cmath>
 #include <limits>
 
+#include "alphaledger/anytime.hpp"
 #include "alphaledger/offline.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger {
 namespace {
@@ -18,6 +19,18 @@ constexpr double kTwoPi = 6.283185307179586476925286766559;
 constexpr double kInvSqrt2 = 0.70710678118654752440084436210485;
 constexpr std::uint64_t kMaxTests = 100'000'000;
 constexpr double kMaxMean = 40;
+constexpr double kMaxMeanDuration = 1'000'000;
+constexpr std::uint64_t kMaxLooks = 100'000;
+constexpr double kMaxLogDouble = 709.0;  // exp(709) < DBL_MAX
+
+// exp(x) capped at exp(709), so an overwhelming likelihood ratio stays a finite e-value.
+double capped_exp(double x) { return std::exp(std::min(x, kMaxLogDouble)); }
+
+// The number of later launches a test runs for: Geometric on {0, 1, ...} with mean d, by inversion,
+// floor(log u / log q) with q = d / (1 + d), log q = -log1p(1 / d). REQUIRES: d > 0.
+double geometric_draw(RandomStream& r, double d) {
+  return std::floor(std::log(r.uniform()) / -std::log1p(1.0 / d));
+}
 
 // The splitmix64 output function (Steele, Lea & Flood 2014), a bijection of 64-bit words.
 std::uint64_t mix64(std::uint64_t z) {
@@ -227,19 +240,55 @@ Status validate_model(const SimulationModel& m) {
   if (m.correlation.kind == Correlation::kBlocks && m.correlation.block_size < 1) {
     return invalid_input("--correlation blocks needs SIZE >= 1");
   }
+  if (!(m.mean_duration >= 0 && m.mean_duration <= kMaxMeanDuration)) {
+    return invalid_input("--mean-duration must be a number of launches in [0, 1000000], got " +
+                         num(m.mean_duration));
+  }
   return {};
+}
+
+Status validate_peeking(const PeekingSpec& p) {
+  if (p.looks > kMaxLooks) {
+    return invalid_input("--peeking must be a whole number of looks in [0, 100000], got " +
+                         std::to_string(p.looks));
+  }
+  if (!(std::isfinite(p.mixture_sd) && p.mixture_sd >= 0 && p.mixture_sd <= kMaxMean)) {
+    return invalid_input("--mixture-sd must be a number in (0, 40] (0: the effect), got " +
+                         num(p.mixture_sd));
+  }
+  return {};
+}
+
+double peeking_mixture_sd(const PeekingSpec& p, const SimulationModel& m) {
+  if (p.mixture_sd > 0) return p.mixture_sd;
+  return m.effect != 0 ? std::abs(m.effect) : 1.0;
 }
 
 double upper_tail_p_value(double z) { return 0.5 * std::erfc(z * kInvSqrt2); }
 
-void generate_stream(const SimulationModel& m, std::uint64_t seed, std::uint64_t run, SimulatedStream& out) {
+void generate_stream(const SimulationModel& m, std::uint64_t seed, std::uint64_t run, SimulatedStream& out,
+                     const StreamNeeds& needs) {
   RandomStream truth(seed, run, 1);
   RandomStream effects(seed, run, 2);
   RandomStream noise(seed, run, 3);
+  RandomStream durations(seed, run, 4);
+  RandomStream paths(seed, run, 5);
   const std::uint64_t n = m.tests;
   out.p_value.resize(n);
   out.is_null.resize(n);
   out.nonnulls = 0;
+  const bool overlap = m.mean_duration > 0;
+  out.finish_before.resize(overlap ? n : 0);
+  out.e_value.resize(needs.e_values ? n : 0);
+  const std::uint64_t looks = needs.peeking.looks;
+  for (auto* v : {&out.p_min_fixed, &out.p_min_anytime, &out.e_max_mixture, &out.e_last_mixture}) {
+    v->resize(looks > 0 ? n : 0);
+  }
+  std::vector<double> path(looks);  // the cumulative noise W(k / K), k = 1..K
+  MixtureSettings mixture;
+  mixture.mixture_sd = peeking_mixture_sd(needs.peeking, m);
+  mixture.alternative = Alternative::kGreater;  // the simulated tests are one-sided
+  const double look_sd = looks > 0 ? std::sqrt(1.0 / static_cast<double>(looks)) : 0.0;
   const double f = m.nonnull_fraction;
   const double nd = static_cast<double>(n);
   const double rho = m.correlation.rho;
@@ -287,15 +336,47 @@ void generate_stream(const SimulationModel& m, std::uint64_t seed, std::uint64_t
         e = shared_weight * shared + own_weight * noise.normal();
         break;
     }
-    out.p_value[t] = upper_tail_p_value(mean + e);
+    const double z = mean + e;
+    out.p_value[t] = upper_tail_p_value(z);
     out.is_null[t] = nonnull ? 0 : 1;
     out.nonnulls += nonnull ? 1 : 0;
+    if (overlap) {
+      const double d = geometric_draw(durations, m.mean_duration);
+      const double left = static_cast<double>(n - t - 1);  // launches after this one
+      out.finish_before[t] = d >= left ? n : t + 1 + static_cast<std::uint64_t>(d);
+    }
+    if (needs.e_values) out.e_value[t] = capped_exp(m.effect * z - 0.5 * m.effect * m.effect);
+    if (looks > 0) {
+      // A Brownian path on the looks tied to end at the test's own noise: W(k/K) from independent
+      // N(0, 1/K) steps, then B(s) = W(s) - s W(1) + s e (a Brownian bridge plus s e), so B(1) = e.
+      double w = 0;
+      for (std::uint64_t k = 0; k < looks; ++k) path[k] = (w += look_sd * paths.normal());
+      const double w_end = path[looks - 1];
+      double p_fixed = 1, p_anytime = 1, e_max = 0, e_last = 1;
+      for (std::uint64_t k = 1; k <= looks; ++k) {
+        const bool last = k == looks;
+        const double s = last ? 1.0 : static_cast<double>(k) / static_cast<double>(looks);
+        const double b = last ? e : path[k - 1] - s * w_end + s * e;
+        const double sum = mean * s + b;  // S(s), the cumulative data
+        const double zk = last ? z : sum / std::sqrt(s);
+        p_fixed = std::min(p_fixed, upper_tail_p_value(zk));
+        const double log_ratio = *log_mixture_likelihood_ratio({sum / s, 1.0 / s}, mixture);
+        p_anytime = std::min(p_anytime, std::min(1.0, std::exp(-log_ratio)));
+        e_last = capped_exp(log_ratio);
+        e_max = std::max(e_max, e_last);
+      }
+      out.p_min_fixed[t] = p_fixed;
+      out.p_min_anytime[t] = p_anytime;
+      out.e_max_mixture[t] = e_max;
+      out.e_last_mixture[t] = e_last;
+    }
   }
 }
 
-SimulatedStream generate_stream(const SimulationModel& model, std::uint64_t seed, std::uint64_t run) {
+SimulatedStream generate_stream(const SimulationModel& model, std::uint64_t seed, std::uint64_t run,
+                                const StreamNeeds& needs) {
   SimulatedStream s;
-  generate_stream(model, seed, run, s);
+  generate_stream(model, seed, run, s, needs);
   return s;
 }
 
@@ -312,36 +393,181 @@ RunTally tally_decisions(const SimulatedStream& stream, const std::vector<bool>&
   return t;
 }
 
-SimulationPlan::SimulationPlan(std::vector<Procedure> procedures) : procedures_(std::move(procedures)) {
-  for (const auto& p : procedures_) {
-    if (const auto* rc = std::get_if<RuleConfig>(&p.config)) {
-      prototypes_.emplace_back(Rule(*rc));
+Result<std::vector<Procedure>> resolve_simulation_procedures(const std::vector<std::string>& names,
+                                                             const RuleSpec& flags) {
+  std::vector<std::string> others;
+  std::optional<std::size_t> e_bh_at;
+  for (const auto& name : names) {
+    if (name == "e-bh") {
+      e_bh_at = others.size();
     } else {
-      prototypes_.emplace_back(std::nullopt);
+      others.push_back(name);
+    }
+  }
+  auto procs = resolve_procedures(others, flags, /*allow_offline=*/true);
+  if (!procs || !e_bh_at) return procs;
+  OfflineConfig oc;
+  oc.method = OfflineMethod::kEBh;
+  oc.alpha = flags.alpha.value_or(0.05);
+  if (!(oc.alpha > 0 && oc.alpha < 1)) {
+    return invalid_input("alpha must satisfy 0 < alpha < 1, got " + num(oc.alpha));
+  }
+  procs->insert(procs->begin() + static_cast<std::ptrdiff_t>(*e_bh_at), Procedure{"e-bh", oc});
+  return procs;
+}
+
+std::string_view evidence_suffix(Evidence evidence) {
+  switch (evidence) {
+    case Evidence::kFinal:
+      return "";
+    case Evidence::kPeekFixed:
+      return ":peek-fixed";
+    case Evidence::kPeekAnytime:
+      return ":peek-anytime";
+    case Evidence::kPeekMixture:
+      return ":peek-mixture";
+  }
+  return "";
+}
+
+SimulationPlan::SimulationPlan(std::vector<Procedure> procedures, PeekingSpec peeking) : peeking_(peeking) {
+  for (const auto& p : procedures) {
+    std::vector<Evidence> kinds = {Evidence::kFinal};
+    if (const auto* rc = std::get_if<RuleConfig>(&p.config); rc && peeking.looks > 0) {
+      if (rule_takes_e_values(rc->kind)) {
+        kinds.push_back(Evidence::kPeekMixture);
+      } else {
+        kinds.push_back(Evidence::kPeekFixed);
+        kinds.push_back(Evidence::kPeekAnytime);
+      }
+    }
+    for (Evidence kind : kinds) {
+      Procedure row = p;
+      row.name += evidence_suffix(kind);
+      rows_.push_back(std::move(row));
+      evidence_.push_back(kind);
+      if (const auto* rc = std::get_if<RuleConfig>(&p.config)) {
+        prototypes_.emplace_back(Rule(*rc));
+      } else {
+        prototypes_.emplace_back(std::nullopt);
+      }
     }
   }
 }
 
+StreamNeeds SimulationPlan::needs() const {
+  StreamNeeds n;
+  n.peeking = peeking_;
+  for (const auto& p : rows_) {
+    if (const auto* rc = std::get_if<RuleConfig>(&p.config)) {
+      n.e_values = n.e_values || rule_takes_e_values(rc->kind);
+    } else if (std::get<OfflineConfig>(p.config).method == OfflineMethod::kEBh) {
+      n.e_values = true;
+    }
+  }
+  return n;
+}
+
+namespace {
+
+// The order in which running tests finish: tests grouped by the launch they finish before (n: at
+// the end), in launch order within a group (a stable counting sort). first[k]..first[k+1] index
+// `order` for the tests that finish just before launch k.
+struct FinishSchedule {
+  std::vector<std::uint64_t> first;
+  std::vector<std::uint64_t> order;
+
+  explicit FinishSchedule(const std::vector<std::uint64_t>& finish_before) {
+    const std::size_t n = finish_before.size();
+    first.assign(n + 2, 0);
+    for (auto f : finish_before) ++first[f + 1];
+    for (std::size_t k = 1; k < first.size(); ++k) first[k] += first[k - 1];
+    order.resize(n);
+    std::vector<std::uint64_t> next(first.begin(), first.end() - 1);
+    for (std::size_t t = 0; t < n; ++t) order[next[finish_before[t]]++] = t;
+  }
+};
+
+// The evidence test t reports when it finishes, given the level reserved at its launch. A test
+// that stops early reports the evidence that stopped it; any value at or past the level gives the
+// same decision and the same state, so the extreme over the looks stands for it.
+double reported_evidence(const SimulatedStream& s, Evidence evidence, bool takes_e, std::size_t t,
+                         double level) {
+  switch (evidence) {
+    case Evidence::kFinal:
+      return takes_e ? s.e_value[t] : s.p_value[t];
+    case Evidence::kPeekFixed:  // stop at the first look with p <= level, else run to the end
+      return s.p_min_fixed[t] <= level ? s.p_min_fixed[t] : s.p_value[t];
+    case Evidence::kPeekAnytime:  // the running minimum, whether the test stopped early or not
+      return s.p_min_anytime[t];
+    case Evidence::kPeekMixture:  // stop when the ratio reaches 1 / level, else its value at the end
+      return s.e_max_mixture[t] >= 1.0 / level ? s.e_max_mixture[t] : s.e_last_mixture[t];
+  }
+  return s.p_value[t];
+}
+
+RunTally decide_by_events(Rule rule, const SimulatedStream& s, Evidence evidence,
+                          const FinishSchedule& schedule) {
+  RunTally tally;
+  tally.nonnulls = s.nonnulls;
+  const bool takes_e = rule_takes_e_values(rule.config().kind);
+  const std::size_t n = s.p_value.size();
+  std::vector<Reservation> reserved(n);
+  const auto finish = [&](std::size_t t) {
+    const double x = reported_evidence(s, evidence, takes_e, t, reserved[t].level);
+    auto o = takes_e ? rule.finish_e(reserved[t].launch, x) : rule.finish(reserved[t].launch, x);
+    if (o.ok() && o->rejected) {
+      ++tally.rejections;
+      tally.false_discoveries += s.is_null[t];
+    }
+  };
+  for (std::size_t k = 0; k <= n; ++k) {
+    for (std::uint64_t i = schedule.first[k]; i < schedule.first[k + 1]; ++i) finish(schedule.order[i]);
+    if (k < n) reserved[k] = rule.launch();
+  }
+  return tally;
+}
+
+}  // namespace
+
 std::vector<RunTally> SimulationPlan::decide(const SimulatedStream& stream) const {
   std::vector<RunTally> out;
-  out.reserve(procedures_.size());
+  out.reserve(rows_.size());
   const std::size_t n = stream.p_value.size();
-  for (std::size_t i = 0; i < procedures_.size(); ++i) {
+  std::optional<FinishSchedule> schedule;
+  for (std::size_t i = 0; i < rows_.size(); ++i) {
     RunTally t;
     t.nonnulls = stream.nonnulls;
     if (prototypes_[i]) {
-      Rule rule = *prototypes_[i];
-      for (std::size_t k = 0; k < n; ++k) {
-        if (rule.record(stream.p_value[k]).rejected) {
-          ++t.rejections;
-          t.false_discoveries += stream.is_null[k];
+      const bool takes_e = rule_takes_e_values(prototypes_[i]->config().kind);
+      if (evidence_[i] == Evidence::kFinal && stream.finish_before.empty()) {
+        Rule rule = *prototypes_[i];  // synchronous: record(), today's rules exactly
+        for (std::size_t k = 0; k < n; ++k) {
+          const bool rejected =
+              takes_e ? rule.record_e(stream.e_value[k]).rejected : rule.record(stream.p_value[k]).rejected;
+          if (rejected) {
+            ++t.rejections;
+            t.false_discoveries += stream.is_null[k];
+          }
         }
+      } else {
+        if (!schedule) {
+          if (stream.finish_before.empty()) {
+            std::vector<std::uint64_t> next(n);
+            for (std::size_t k = 0; k < n; ++k) next[k] = k + 1;
+            schedule.emplace(next);
+          } else {
+            schedule.emplace(stream.finish_before);
+          }
+        }
+        t = decide_by_events(*prototypes_[i], stream, evidence_[i], *schedule);
       }
     } else {
-      const auto& oc = std::get<OfflineConfig>(procedures_[i].config);
-      const OfflineDecisions od = oc.method == OfflineMethod::kBh
-                                      ? benjamini_hochberg(stream.p_value, oc.alpha)
-                                      : storey_bh(stream.p_value, oc.alpha, oc.candidate_threshold);
+      const auto& oc = std::get<OfflineConfig>(rows_[i].config);
+      const OfflineDecisions od =
+          oc.method == OfflineMethod::kEBh  ? e_benjamini_hochberg(stream.e_value, oc.alpha)
+          : oc.method == OfflineMethod::kBh ? benjamini_hochberg(stream.p_value, oc.alpha)
+                                            : storey_bh(stream.p_value, oc.alpha, oc.candidate_threshold);
       t = tally_decisions(stream, od.rejected);
     }
     out.push_back(t);
@@ -351,7 +577,7 @@ std::vector<RunTally> SimulationPlan::decide(const SimulatedStream& stream) cons
 
 std::vector<RunTally> simulate_run(const SimulationPlan& plan, const SimulationModel& model,
                                    std::uint64_t seed, std::uint64_t run) {
-  return plan.decide(generate_stream(model, seed, run));
+  return plan.decide(generate_stream(model, seed, run, plan.needs()));
 }
 
 // ---------------------------------------------------------------------------------------------

@@ -1,6 +1,7 @@
 // simulate's CSV, JSON and table output (src/harness/simulate_report.hpp).
 #include "harness/simulate_report.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <nlohmann/json.hpp>
@@ -158,17 +159,28 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
               ? std::string("independent tests")
               : "correlated tests (" + correlation_text(m.correlation) + ")")
       << "\n";
+  if (m.mean_duration > 0) {
+    out << "tests overlap: each runs while on average " << format_rounded(m.mean_duration)
+        << " later tests launch (geometric); levels are fixed at launch\n";
+  }
+  if (st.looks > 0) {
+    out << "peeking: " << st.looks
+        << " looks per test; :peek-fixed stops at the first fixed-horizon p <= level, "
+        << ":peek-anytime uses the always-valid p-value, :peek-mixture the mixture e-value\n";
+  }
   const std::string eval = evaluation_note(rows);
   if (!eval.empty()) out << "evaluation: " << eval << "\n";
   out << "\n";
 
-  out << pad("rule", 16, true) << pad("rejections", 11) << pad("FDR", 8) << pad("+-SE", 8) << pad("mFDR", 8)
-      << pad("FWER", 8) << pad("+-SE", 8) << pad("power", 8) << pad("+-SE", 8) << "  "
+  std::size_t width = 16;
+  for (const auto& r : rows) width = std::max(width, r.rule.size() + 2);
+  out << pad("rule", width, true) << pad("rejections", 11) << pad("FDR", 8) << pad("+-SE", 8)
+      << pad("mFDR", 8) << pad("FWER", 8) << pad("+-SE", 8) << pad("power", 8) << pad("+-SE", 8) << "  "
       << pad("promise", 20, true) << "check\n";
   for (const auto& r : rows) {
     const std::string promise = std::string(error_metric_name(r.metric)) + " <= " + format_rounded(r.target);
     const std::string check = r.exceeds_target ? "ABOVE TARGET" : std::isnan(r.promised_se) ? "-" : "ok";
-    out << pad(r.rule, 16, true) << pad(fixed(r.mean_rejections, 1), 11) << pad(fixed(r.fdr, 4), 8)
+    out << pad(r.rule, width, true) << pad(fixed(r.mean_rejections, 1), 11) << pad(fixed(r.fdr, 4), 8)
         << pad(fixed(r.fdr_se, 4), 8) << pad(fixed(r.mfdr, 4), 8) << pad(fixed(r.fwer, 4), 8)
         << pad(fixed(r.fwer_se, 4), 8) << pad(fixed(r.power, 4), 8) << pad(fixed(r.power_se, 4), 8) << "  "
         << pad(promise, 20, true) << check << "\n";
@@ -199,6 +211,14 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
          "standard error over streams.\n";
 
   // Which promises the chosen scenario does not cover (docs/simulate.md lists the sources).
+  bool peek_fixed = false;
+  for (const auto& r : rows)
+    peek_fixed = peek_fixed || r.rule.ends_with(evidence_suffix(Evidence::kPeekFixed));
+  if (peek_fixed) {
+    out << wrap(
+        "Note: a fixed-horizon p-value checked at every look and stopped at the first p <= level is not a "
+        "valid p-value, so the :peek-fixed rows have no promise; they show what such peeking costs.");
+  }
   if (m.null_mean > 0) {
     out << wrap(
         "Note: with a positive null mean the null p-values are not valid, so no rule promises anything "
@@ -211,6 +231,8 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
     std::string covered;
     for (const auto& [name, why] : std::vector<std::pair<std::string_view, std::string_view>>{
              {"alpha-spending", "any dependence"},
+             {"e-lond", "any dependence"},
+             {"e-bh", "any dependence"},
              {"lond", "positive regression dependence"},
              {"bh", "positive regression dependence"}}) {
       if (!listed(rows, name)) continue;

@@ -18,6 +18,7 @@ struct SimulationSettings {
   std::uint64_t runs = 0;
   std::uint64_t seed = 1;
   unsigned threads = 1;
+  std::uint64_t looks = 0;  // --peeking K
 };
 
 // Header `rule,runs,tests,mean_rejections,fdr,fdr_se,mfdr,power,power_se,fwer`, then one row per

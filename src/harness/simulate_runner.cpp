@@ -18,6 +18,7 @@ std::uint64_t runs_per_chunk(std::uint64_t runs) {
 Result<SimulationResult> run_simulation(const SimulationPlan& plan, const SimulationModel& model,
                                         const SimulationOptions& options) {
   if (auto s = validate_model(model); !s) return s.error();
+  if (auto s = validate_peeking(plan.peeking()); !s) return s.error();
   if (options.runs < 1 || options.runs > 100'000'000) {
     return invalid_input("--runs must be a whole number in [1, 100000000], got " +
                          std::to_string(options.runs));
@@ -37,6 +38,7 @@ Result<SimulationResult> run_simulation(const SimulationPlan& plan, const Simula
   std::mutex progress_mutex;
   std::uint64_t finished = 0;
 
+  const StreamNeeds needs = plan.needs();
   auto worker = [&] {
     SimulatedStream stream;
     while (true) {
@@ -45,7 +47,7 @@ Result<SimulationResult> run_simulation(const SimulationPlan& plan, const Simula
       const std::uint64_t first = c * per_chunk;
       const std::uint64_t last = std::min(options.runs, first + per_chunk);
       for (std::uint64_t run = first; run < last; ++run) {
-        generate_stream(model, options.seed, run, stream);
+        generate_stream(model, options.seed, run, stream, needs);
         std::vector<RunTally> tallies = plan.decide(stream);
         for (std::size_t i = 0; i < procs; ++i) chunk_totals[c][i].add(tallies[i]);
         if (options.keep_runs) result.runs[run] = std::move(tallies);
