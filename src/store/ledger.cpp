@@ -56,16 +56,17 @@ std::string describe_config(const RuleConfig& c) {
 }
 
 Error store::unknown_stream(std::string_view name, const std::string& where) {
-  return not_found("no stream named " + in_quotes(name) + " in ledger " + where +
-                       " (create it first: alphaledger new " + std::string(name) + " --rule RULE)",
-                   "unknown_stream");
+  // The command line adds how to create it (src/cli/cli_errors.cpp).
+  return with_reason(not_found("no stream named " + in_quotes(name) + " in ledger " + where, "unknown_stream"),
+                     "unknown_stream", std::string(name));
 }
 namespace store {
 
 Error closed_stream(std::string_view name, std::int64_t closed_at_ms) {
-  return conflict("stream " + in_quotes(name) + " is closed since " + format_timestamp(closed_at_ms) +
-                  "; it takes no more tests (its history stays readable: alphaledger history " +
-                  std::string(name) + "; for new tests create a new stream)");
+  // The command line adds how to read its history (src/cli/cli_errors.cpp).
+  return with_reason(conflict("stream " + in_quotes(name) + " is closed since " + format_timestamp(closed_at_ms) +
+                              "; it takes no more tests (for new tests create a new stream)"),
+                     "closed_stream", std::string(name));
 }
 
 std::size_t StoreLedger::cached_streams() const {
