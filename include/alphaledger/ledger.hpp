@@ -36,6 +36,7 @@
 #include "alphaledger/rules.hpp"
 #include "alphaledger/stats.hpp"
 #include "alphaledger/store.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger {
 
@@ -43,9 +44,7 @@ namespace alphaledger {
 using Clock = std::function<std::int64_t()>;
 std::int64_t system_clock_ms();
 
-// ISO 8601 UTC with milliseconds, e.g. 1700000000000 -> "2023-11-14T22:13:20.000Z": how
-// decided_at and created_at are printed.
-std::string format_timestamp(std::int64_t ms);
+// format_timestamp(ms), how decided_at and created_at are printed, is in alphaledger/text.hpp.
 
 // The configuration in one line for people, e.g. "lord++ alpha=0.05 initial_wealth=0.025
 // spending=jm evaluation=exact" (only the parameters the rule takes; numbers round-trip).

@@ -63,7 +63,25 @@ struct Error {
   // "unknown_stream" or "no_ledger" (both kNotFound), "verification_failed" (kConflict); empty
   // otherwise. Front ends show it as the error's code word, in place of the kind's own word.
   std::string code = {};
+  // For front ends that add advice of their own (the command line adds the command to run next):
+  // a finer word than `code`, never printed ("closed_stream", "damaged_ledger", "damaged_record"),
+  // and what the error is about (a stream name, a ledger folder). Both empty when there is no advice.
+  std::string reason = {};
+  std::string subject = {};
 };
+
+// `e` with another message: kind, code, reason and subject kept.
+inline Error with_message(Error e, std::string message) {
+  e.message = std::move(message);
+  return e;
+}
+
+// `e` with reason and subject set (see Error).
+inline Error with_reason(Error e, std::string reason, std::string subject) {
+  e.reason = std::move(reason);
+  e.subject = std::move(subject);
+  return e;
+}
 
 inline Error invalid_input(std::string message) { return {ErrorKind::kInvalidArgument, std::move(message)}; }
 // The error's machine word, as front ends show it (`code` in JSON errors): the error's own `code`

@@ -56,6 +56,9 @@ Result<double> parse_p_value_text(std::string_view text);
 // optional seconds, fraction and offset), as seconds since 1970-01-01T00:00:00Z; or a plain number
 // (parse_number_text), taken as it is.
 Result<double> parse_time_text(std::string_view text);
+// Milliseconds since 1970-01-01T00:00:00Z as ISO 8601 UTC with milliseconds, e.g. 1700000000000
+// -> "2023-11-14T22:13:20.000Z": how every time the ledger keeps (decided_at, created_at) is printed.
+std::string format_timestamp(std::int64_t ms);
 
 // The whole of `text` as a finite double in std::from_chars' syntax (no blanks, no '+'; "inf" and
 // "nan" are refused), or nothing. For option values whose own messages say what is accepted.

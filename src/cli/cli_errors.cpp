@@ -10,9 +10,22 @@
 
 namespace alphaledger::cli {
 
+std::string command_advice(const Error& e) {
+  // Lower layers say what happened; the command to run next is the command line's to say.
+  if (e.subject.empty()) return {};
+  if (e.reason == "unknown_stream") return " (create it first: alphaledger new " + e.subject + " --rule RULE)";
+  if (e.reason == "closed_stream") return " (its history stays readable: alphaledger history " + e.subject + ")";
+  if (e.reason == "damaged_record") return " (run alphaledger verify " + e.subject + ")";
+  if (e.reason == "damaged_ledger") {
+    return " Copy what can be proven into a new folder with: alphaledger --ledger " + e.subject +
+           " recover --to NEWDIR (docs/ledger.md \"Damaged files\")";
+  }
+  return {};
+}
+
 Failure failure_from(const Error& e) {
   // The one mapping of error kinds to exit codes (docs/errors.md); the word is code_word().
-  const auto with = [&](int exit_code) { return Failure{exit_code, code_word(e), e.message}; };
+  const auto with = [&](int exit_code) { return Failure{exit_code, code_word(e), e.message + command_advice(e)}; };
   switch (e.kind) {
     case ErrorKind::kInvalidArgument:
       return with(2);

@@ -30,7 +30,12 @@ struct Failure {
 //   kInvalidArgument -> 2 invalid_input
 //   kNotFound        -> 3 not_found        kConflict -> 3 conflict
 //   kCorruption      -> 4 corruption       kIOError  -> 4 storage     kBusy -> 4 busy
+// The message is the error's, followed by command_advice(e).
 Failure failure_from(const Error& e);
+// The command to run next, for the errors whose reason has one (Error::reason in result.hpp):
+// unknown_stream -> how to create it, closed_stream -> how to read its history, damaged_record ->
+// verify, damaged_ledger -> recover. Empty otherwise. Starts with a space.
+std::string command_advice(const Error& e);
 Failure usage_failure(std::string message);     // 2 usage: the command line itself is wrong
 Failure internal_failure(std::string message);  // 4 internal: an unexpected failure inside the tool
 

@@ -24,80 +24,91 @@ std::string steps_text(std::uint64_t first, std::uint64_t last) {
   return "steps " + std::to_string(first) + ".." + std::to_string(last);
 }
 
+// One line (text) or one JSON object for a recovered stream.
+void print_stream(std::ostream& out, const StreamRecovery& s, bool json) {
+  const bool lost_known = s.known_steps && *s.known_steps > s.kept_steps;
+  // Steps may be lost (a closing that was not proven alone loses none).
+  const bool steps_lost = lost_known || !s.problem.empty() || !s.head_problem.empty();
+  if (json) {
+    Json j{{"stream", s.stream}, {"kept_steps", s.kept_steps}};
+    j["known_steps"] = s.known_steps ? Json(*s.known_steps) : Json(nullptr);
+    j["lost_from_step"] = !steps_lost ? Json(nullptr) : Json(s.kept_steps + 1);
+    j["lost_to_step"] = lost_known ? Json(*s.known_steps) : Json(nullptr);
+    j["complete"] = s.complete();
+    j["problem"] = s.problem;
+    // Only for a stream that is closed in the new ledger, as status --json shows closed_at.
+    if (s.closed_at_ms) {
+      j["closed_at"] = format_timestamp(*s.closed_at_ms);
+      j["closing_hash"] = s.closing_hash;
+      j["closing_proven"] = s.closing_proven;
+      j["closing_problem"] = s.closing_problem;
+    }
+    if (!s.head_problem.empty()) j["head_problem"] = s.head_problem;
+    out << dump(j) << '\n';
+    return;
+  }
+  out << "stream " << s.stream << ": ";
+  if (s.kept_steps == 0) {
+    out << "no steps kept";
+  } else {
+    out << "kept " << steps_text(1, s.kept_steps);
+  }
+  if (lost_known) {
+    out << "; lost " << steps_text(s.kept_steps + 1, *s.known_steps);
+  } else if (steps_lost) {
+    out << "; later steps, if any, lost";
+  }
+  if (!s.problem.empty()) out << " (" << s.problem << ")";
+  if (!s.head_problem.empty()) out << "; " << s.head_problem;
+  if (s.closed_at_ms) {
+    out << "; closed since " << format_timestamp(*s.closed_at_ms);
+    if (s.closing_proven) {
+      out << ", closing kept (closing hash " << s.closing_hash << ")";
+    } else {
+      out << ", closing NOT proven: " << s.closing_problem << " (new closing hash " << s.closing_hash << ")";
+    }
+  }
+  out << '\n';
+}
+
+// The closing summary of a recovery: one JSON object, or a few lines of text.
+void print_summary(std::ostream& out, const RecoveryReport& report, bool json) {
+  std::string other_names;
+  for (const auto& k : report.other_key_names) other_names += (other_names.empty() ? "" : ", ") + k;
+  if (report.other_keys_copied > report.other_key_names.size()) other_names += ", ...";
+  if (json) {
+    Json j{{"recovered_to", report.target},           {"source", report.source},
+           {"streams", report.streams.size()},        {"complete", report.complete()},
+           {"source_problem", report.source_problem}, {"other_keys_copied", report.other_keys_copied}};
+    j["other_keys_verified"] = false;  // copied as they were: the format says nothing about them
+    j["other_key_names"] = report.other_key_names;
+    j["streams_without_configuration"] = report.streams_without_configuration;
+    out << dump(j) << '\n';
+    return;
+  }
+  out << "recovered " << report.streams.size() << " stream(s) from " << report.source << " into "
+      << report.target << "; the new ledger passes verify\n";
+  if (!report.source_problem.empty()) out << "damage found in the source: " << report.source_problem << '\n';
+  if (report.other_keys_copied > 0)
+    out << report.other_keys_copied
+        << " key(s) that are no part of the ledger format were copied as they were, NOT verified: " << other_names
+        << '\n';
+  for (const auto& name : report.streams_without_configuration)
+    out << "stream " << name
+        << ": records or a head without a configuration; nothing of it can be proven, nothing copied\n";
+}
+
 Status run_recover(const RecoverOptions& o, const GlobalOptions& g, std::ostream& out) {
   const std::string source = ledger_path(g);
   auto report = recover_ledger(source, o.to);
-  if (!report) return report.error();
-  for (const auto& s : report->streams) {
-    const bool lost_known = s.known_steps && *s.known_steps > s.kept_steps;
-    // Steps may be lost (a closing that was not proven alone loses none).
-    const bool steps_lost = lost_known || !s.problem.empty() || !s.head_problem.empty();
-    if (g.json) {
-      Json j{{"stream", s.stream}, {"kept_steps", s.kept_steps}};
-      j["known_steps"] = s.known_steps ? Json(*s.known_steps) : Json(nullptr);
-      j["lost_from_step"] = !steps_lost ? Json(nullptr) : Json(s.kept_steps + 1);
-      j["lost_to_step"] = lost_known ? Json(*s.known_steps) : Json(nullptr);
-      j["complete"] = s.complete();
-      j["problem"] = s.problem;
-      // Only for a stream that is closed in the new ledger, as status --json shows closed_at.
-      if (s.closed_at_ms) {
-        j["closed_at"] = format_timestamp(*s.closed_at_ms);
-        j["closing_hash"] = s.closing_hash;
-        j["closing_proven"] = s.closing_proven;
-        j["closing_problem"] = s.closing_problem;
-      }
-      if (!s.head_problem.empty()) j["head_problem"] = s.head_problem;
-      out << dump(j) << '\n';
-      continue;
-    }
-    out << "stream " << s.stream << ": ";
-    if (s.kept_steps == 0) {
-      out << "no steps kept";
-    } else {
-      out << "kept " << steps_text(1, s.kept_steps);
-    }
-    if (lost_known) {
-      out << "; lost " << steps_text(s.kept_steps + 1, *s.known_steps);
-    } else if (steps_lost) {
-      out << "; later steps, if any, lost";
-    }
-    if (!s.problem.empty()) out << " (" << s.problem << ")";
-    if (!s.head_problem.empty()) out << "; " << s.head_problem;
-    if (s.closed_at_ms) {
-      out << "; closed since " << format_timestamp(*s.closed_at_ms);
-      if (s.closing_proven) {
-        out << ", closing kept (closing hash " << s.closing_hash << ")";
-      } else {
-        out << ", closing NOT proven: " << s.closing_problem << " (new closing hash " << s.closing_hash
-            << ")";
-      }
-    }
-    out << '\n';
+  if (!report) {
+    // The library names the folder; the command line names the flag that gave it.
+    if (report.error().kind == ErrorKind::kInvalidArgument)
+      return with_message(report.error(), "recover --to: " + report.error().message);
+    return report.error();
   }
-  std::string other_names;
-  for (const auto& k : report->other_key_names) other_names += (other_names.empty() ? "" : ", ") + k;
-  if (report->other_keys_copied > report->other_key_names.size()) other_names += ", ...";
-  if (g.json) {
-    Json j{{"recovered_to", report->target},           {"source", report->source},
-           {"streams", report->streams.size()},        {"complete", report->complete()},
-           {"source_problem", report->source_problem}, {"other_keys_copied", report->other_keys_copied}};
-    j["other_keys_verified"] = false;  // copied as they were: the format says nothing about them
-    j["other_key_names"] = report->other_key_names;
-    j["streams_without_configuration"] = report->streams_without_configuration;
-    out << dump(j) << '\n';
-  } else {
-    out << "recovered " << report->streams.size() << " stream(s) from " << report->source << " into "
-        << report->target << "; the new ledger passes verify\n";
-    if (!report->source_problem.empty())
-      out << "damage found in the source: " << report->source_problem << '\n';
-    if (report->other_keys_copied > 0)
-      out << report->other_keys_copied
-          << " key(s) that are no part of the ledger format were copied as they were, NOT verified: "
-          << other_names << '\n';
-    for (const auto& name : report->streams_without_configuration)
-      out << "stream " << name
-          << ": records or a head without a configuration; nothing of it can be proven, nothing copied\n";
-  }
+  for (const auto& s : report->streams) print_stream(out, s, g.json);
+  print_summary(out, *report, g.json);
   out.flush();
   if (!report->complete()) {
     return corruption(

@@ -83,7 +83,8 @@ Status run_pipe_command(const PipeOptions& o, const GlobalOptions& g, std::ostre
   return {};
 }
 
-Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
+// The HTTP options from the command line; the access log (when on) writes to `log`.
+Result<HttpOptions> http_options(const ServeOptions& o, ServiceLog& log) {
   auto listen = parse_listen_address(o.listen);
   if (!listen) return given_with("--listen HOST:PORT", listen.error());
   HttpOptions options;
@@ -96,7 +97,6 @@ Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
   options.threads = o.threads;
   options.max_body_bytes = o.max_body_bytes;
   options.io_timeout_seconds = o.timeout_seconds;
-  ServiceLog log;
   if (o.access_log == "on") {
     options.access_log = [&log](const AccessLogEntry& e) {
       nlohmann::ordered_json j;
@@ -110,16 +110,12 @@ Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
       log.write(std::move(j));
     };
   }
-  // Handlers before any thread exists, so no worker is ended by SIGTERM/SIGINT.
-  auto signals = StopSignals::install();
-  if (!signals) return signals.error();
-  // An existing ledger only (create one with `alphaledger new`): exit 3 "no ledger at ...".
-  auto ledger = Ledger::open(ledger_path(g), RocksStoreOptions{.create_if_missing = false});
-  if (!ledger) return ledger.error();
-  auto service = HttpService::create(**ledger, options);
-  if (!service) return service.error();
-  auto port = (*service)->bind();
-  if (!port) return port.error();
+  return options;
+}
+
+// Warnings about a readable token file or an open address without a token, then "listening".
+void log_start(ServiceLog& log, const ServeOptions& o, const HttpOptions& options, int port,
+               const std::string& ledger) {
   if (o.token_file) {
     struct stat st {};
     if (::stat(o.token_file->c_str(), &st) == 0 && (st.st_mode & S_IROTH) != 0) {
@@ -129,22 +125,23 @@ Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
                            " can be read by every user; make it private (chmod 600, or 640 with a group)"}});
     }
   }
-  if (!is_loopback_host(listen->host) && !options.token) {
+  if (!is_loopback_host(options.listen.host) && !options.token) {
     log.write({{"event", "warning"},
                {"message",
                 "listening on a non-loopback address without --token-file: anyone who can reach it can "
                 "decide tests"}});
   }
   log.write({{"event", "listening"},
-             {"address", listen->host + ":" + std::to_string(*port)},
-             {"ledger", ledger_path(g)},
+             {"address", options.listen.host + ":" + std::to_string(port)},
+             {"ledger", ledger},
              {"auth", options.token.has_value()}});
+}
 
-  // Watches for SIGTERM/SIGINT and stops the server; stop() is repeated until run() returns, in
-  // case the signal came before the server started listening.
+// Runs `svc` until SIGTERM/SIGINT: a watcher thread stops the server; stop() is repeated until
+// run() returns, in case the signal came before the server started listening.
+Status run_until_stopped(HttpService& svc, StopSignals& signals, ServiceLog& log) {
   std::atomic<bool> finished{false};
-  HttpService& svc = **service;
-  const int stop_fd = (*signals)->fd();
+  const int stop_fd = signals.fd();
   std::thread watcher([&] {
     bool stopping = false;
     while (!finished.load()) {
@@ -152,7 +149,7 @@ Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
       const int r = ::poll(&p, 1, 100);
       if (!stopping && r > 0 && (p.revents & POLLIN) != 0) {
         stopping = true;
-        const int sig = (*signals)->signal_number();
+        const int sig = signals.signal_number();
         log.write({{"event", "stopping"}, {"signal", std::string(sig == SIGINT ? "SIGINT" : "SIGTERM")}});
       }
       if (stopping) svc.stop();
@@ -161,6 +158,25 @@ Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
   const Status ran = svc.run();
   finished = true;
   watcher.join();
+  return ran;
+}
+
+Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
+  ServiceLog log;
+  auto options = http_options(o, log);
+  if (!options) return options.error();
+  // Handlers before any thread exists, so no worker is ended by SIGTERM/SIGINT.
+  auto signals = StopSignals::install();
+  if (!signals) return signals.error();
+  // An existing ledger only (create one with `alphaledger new`): exit 3 "no ledger at ...".
+  auto ledger = Ledger::open(ledger_path(g), RocksStoreOptions{.create_if_missing = false});
+  if (!ledger) return ledger.error();
+  auto service = HttpService::create(**ledger, *options);
+  if (!service) return service.error();
+  auto port = (*service)->bind();
+  if (!port) return port.error();
+  log_start(log, o, *options, *port, ledger_path(g));
+  const Status ran = run_until_stopped(**service, **signals, log);
   service->reset();  // every in-flight request has been answered
   ledger->reset();   // closes the ledger cleanly
   log.write({{"event", "stopped"}});

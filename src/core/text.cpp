@@ -3,6 +3,8 @@
 
 #include <algorithm>
 #include <charconv>
+#include <chrono>
+#include <cstdio>
 #include <cmath>
 #include <string>
 
@@ -341,6 +343,20 @@ std::string excerpt(std::string_view value, std::size_t max_bytes) {
   }
   if (value.size() > n) out += "...(" + std::to_string(value.size()) + " bytes)";
   return out;
+}
+
+std::string format_timestamp(std::int64_t ms) {
+  using namespace std::chrono;
+  const sys_time<milliseconds> tp{milliseconds{ms}};
+  const auto day = floor<days>(tp);
+  const year_month_day ymd{day};
+  const hh_mm_ss<milliseconds> t{tp - day};
+  char buf[40];
+  std::snprintf(buf, sizeof buf, "%04d-%02u-%02uT%02d:%02d:%02d.%03dZ", static_cast<int>(ymd.year()),
+                static_cast<unsigned>(ymd.month()), static_cast<unsigned>(ymd.day()),
+                static_cast<int>(t.hours().count()), static_cast<int>(t.minutes().count()),
+                static_cast<int>(t.seconds().count()), static_cast<int>(t.subseconds().count()));
+  return buf;
 }
 
 }  // namespace alphaledger

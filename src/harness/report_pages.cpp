@@ -34,21 +34,7 @@ std::string dump(const Json& j) { return json_text(j); }
 
 // ISO 8601 UTC with milliseconds, as the ledger prints decided_at (the harness does not link the
 // store, so the few lines are here too).
-std::string iso_time(std::int64_t ms) {
-  using namespace std::chrono;
-  const sys_time<milliseconds> tp{milliseconds{ms}};
-  const auto day = floor<days>(tp);
-  const year_month_day ymd{day};
-  const hh_mm_ss<milliseconds> t{tp - day};
-  char buf[40];
-  std::snprintf(buf, sizeof buf, "%04d-%02u-%02uT%02d:%02d:%02d.%03dZ", static_cast<int>(ymd.year()),
-                static_cast<unsigned>(ymd.month()), static_cast<unsigned>(ymd.day()),
-                static_cast<int>(t.hours().count()), static_cast<int>(t.minutes().count()),
-                static_cast<int>(t.seconds().count()), static_cast<int>(t.subseconds().count()));
-  return buf;
-}
-
-std::string timestamp_text(std::int64_t ms) { return ms > 0 ? iso_time(ms) : std::string("-"); }
+std::string timestamp_text(std::int64_t ms) { return ms > 0 ? format_timestamp(ms) : std::string("-"); }
 
 // The page around a report's own sections.
 std::string page(std::string_view kind, const std::string& title, const std::string& subtitle,
@@ -174,7 +160,7 @@ std::string render_stream_report(const StreamReportData& d) {
   data["guarantee"] = guarantee_text(rule);
   data["conditions"] = conditions_text(info.config);
   data["created_at"] = timestamp_text(info.created_at_ms);
-  data["closed_at"] = info.closed_at_ms ? Json(iso_time(*info.closed_at_ms)) : Json(nullptr);
+  data["closed_at"] = info.closed_at_ms ? Json(format_timestamp(*info.closed_at_ms)) : Json(nullptr);
   data["generated_at"] = timestamp_text(d.generated_at_ms);
   data["tests"] = info.tests;
   data["rejections"] = info.rejections;
@@ -203,7 +189,7 @@ std::string render_stream_report(const StreamReportData& d) {
       {"guarantee", guarantee_text(rule) + " (alpha = " + format_rounded(info.config.alpha) + ")"},
       {"conditions", conditions_text(info.config)},
       {"created", timestamp_text(info.created_at_ms)},
-      {"state", info.closed_at_ms ? "closed " + iso_time(*info.closed_at_ms) : std::string("open")},
+      {"state", info.closed_at_ms ? "closed " + format_timestamp(*info.closed_at_ms) : std::string("open")},
       {"tests decided", std::to_string(info.tests)},
       {"discoveries", std::to_string(info.rejections)},
       {"alpha-wealth now", format_rounded(info.wealth, 6)},

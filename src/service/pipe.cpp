@@ -92,7 +92,7 @@ class PipeRun {
       if (!out_)
         return io_error("cannot write the answer to line " + std::to_string(work[k].line) + " to the output");
       ++summary_.lines;
-      if (fatal) return Error{fatal->kind, "line " + std::to_string(work[k].line) + ": " + fatal->message, fatal->code};
+      if (fatal) return with_message(*fatal, "line " + std::to_string(work[k].line) + ": " + fatal->message);
     }
     return {};
   }

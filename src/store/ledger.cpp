@@ -25,20 +25,6 @@ std::int64_t system_clock_ms() {
   return duration_cast<milliseconds>(system_clock::now().time_since_epoch()).count();
 }
 
-std::string format_timestamp(std::int64_t ms) {
-  using namespace std::chrono;
-  const sys_time<milliseconds> tp{milliseconds{ms}};
-  const auto day = floor<days>(tp);
-  const year_month_day ymd{day};
-  const hh_mm_ss<milliseconds> t{tp - day};
-  char buf[40];
-  std::snprintf(buf, sizeof buf, "%04d-%02u-%02uT%02d:%02d:%02d.%03dZ", static_cast<int>(ymd.year()),
-                static_cast<unsigned>(ymd.month()), static_cast<unsigned>(ymd.day()),
-                static_cast<int>(t.hours().count()), static_cast<int>(t.minutes().count()),
-                static_cast<int>(t.seconds().count()), static_cast<int>(t.subseconds().count()));
-  return buf;
-}
-
 using store::readable_number;
 
 std::string describe_config(const RuleConfig& c) {
@@ -56,16 +42,17 @@ std::string describe_config(const RuleConfig& c) {
 }
 
 Error store::unknown_stream(std::string_view name, const std::string& where) {
-  return not_found("no stream named " + in_quotes(name) + " in ledger " + where +
-                       " (create it first: alphaledger new " + std::string(name) + " --rule RULE)",
-                   "unknown_stream");
+  // The command line adds how to create it (src/cli/cli_errors.cpp).
+  return with_reason(not_found("no stream named " + in_quotes(name) + " in ledger " + where, "unknown_stream"),
+                     "unknown_stream", std::string(name));
 }
 namespace store {
 
 Error closed_stream(std::string_view name, std::int64_t closed_at_ms) {
-  return conflict("stream " + in_quotes(name) + " is closed since " + format_timestamp(closed_at_ms) +
-                  "; it takes no more tests (its history stays readable: alphaledger history " +
-                  std::string(name) + "; for new tests create a new stream)");
+  // The command line adds how to read its history (src/cli/cli_errors.cpp).
+  return with_reason(conflict("stream " + in_quotes(name) + " is closed since " + format_timestamp(closed_at_ms) +
+                              "; it takes no more tests (for new tests create a new stream)"),
+                     "closed_stream", std::string(name));
 }
 
 std::size_t StoreLedger::cached_streams() const {

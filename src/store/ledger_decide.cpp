@@ -22,7 +22,7 @@ Result<DecideResult> StoreLedger::decide(std::string_view stream, std::string_vi
   if (!prior) return prior.error();
   if (*prior) {
     auto r = repeat_or_conflict(stream, **prior, p_value);
-    if (!r) return Error{r.error().kind, r.error().message + " (the ledger is unchanged)", r.error().code};
+    if (!r) return with_message(r.error(), r.error().message + " (the ledger is unchanged)");
     return r;
   }
 
@@ -100,7 +100,7 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
       if (!found) return found.error();
       if (*found) {
         if (auto r = repeat_or_conflict(stream, **found, t.p_value); !r) {
-          out.error = Error{r.error().kind, r.error().message + " (the ledger is unchanged)", r.error().code};
+          out.error = with_message(r.error(), r.error().message + " (the ledger is unchanged)");
           out.stopped_at = i;
           return out;
         }

@@ -11,9 +11,9 @@ Status visit_records(Store& store, const std::string& where, std::string_view st
                      std::uint64_t hi, const Ledger::DecisionVisitor& visit) {
   if (lo == 0 || lo > hi) return {};
   auto problem = [&](std::uint64_t step, const std::string& what) {
-    return corruption("ledger " + where + ", stream " + in_quotes(stream) + ": the record for step " +
-                         std::to_string(step) + " " + what + " (run alphaledger verify " +
-                         std::string(stream) + ")");
+    return with_reason(corruption("ledger " + where + ", stream " + in_quotes(stream) + ": the record for step " +
+                                  std::to_string(step) + " " + what),
+                       "damaged_record", std::string(stream));
   };
   std::uint64_t expected = lo;
   std::string expected_key = record_key(stream, lo);  // rewritten in place for each next step

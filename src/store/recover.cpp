@@ -186,13 +186,13 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
   report.target = target;
   if (fs::exists(target, ec)) {
     if (!fs::is_directory(target, ec) || !fs::is_empty(target, ec)) {
-      return invalid_input("recover --to " + target +
-                           ": the target exists and is not an empty folder (give a new or empty folder; "
+      return invalid_input("the target folder " + target +
+                           " exists and is not an empty folder (give a new or empty folder; "
                            "recover never writes over anything)");
     }
   }
   if (fs::exists(source, ec) && fs::exists(target, ec) && fs::equivalent(source, target, ec)) {
-    return invalid_input("recover --to " + target + ": the target is the damaged ledger itself");
+    return invalid_input("the target folder " + target + " is the damaged ledger itself");
   }
   if (!fs::is_directory(source, ec)) {
     return not_found("no ledger at " + source, "no_ledger");  // the CLI adds which flag names it

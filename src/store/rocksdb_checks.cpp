@@ -163,7 +163,7 @@ Result<std::unique_ptr<rocksdb::DB>> open_checked(const std::string& path, bool 
         problem->find("missing") == std::string::npos) {
       return io_error("cannot open ledger " + path + ": " + *problem);
     }
-    return corruption(damaged(path, *problem));
+    return damaged(path, *problem);
   }
 }
 

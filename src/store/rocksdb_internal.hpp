@@ -74,8 +74,9 @@ std::string lock_holder(const std::string& lock_file);
 // The cause of a RocksDB failure in our words: what kind of failure, and which file if it says.
 std::string cause_of(const rocksdb::Status& s, const std::string& folder, const std::string& hint = {});
 Error translate(const rocksdb::Status& s, const std::string& what, const std::string& folder);
-// The message for a damaged ledger folder: what was found and that nothing was changed.
-std::string damaged(const std::string& path, const std::string& detail);
+// The error for a damaged ledger folder (corruption, reason "damaged_ledger", subject the folder):
+// what was found and that nothing was changed.
+Error damaged(const std::string& path, const std::string& detail);
 
 // ---- the seal file and the checked open (rocksdb_checks.cpp) ---------------------------------
 

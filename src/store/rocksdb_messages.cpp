@@ -125,10 +125,10 @@ Error translate(const rocksdb::Status& s, const std::string& what, const std::st
   return io_error(what + ": " + cause_of(s, folder));
 }
 
-std::string damaged(const std::string& path, const std::string& detail) {
-  return "ledger " + path + " is corrupt: " + detail +
-         ". Nothing was changed. Copy what can be proven into a new folder with: alphaledger --ledger " +
-         path + " recover --to NEWDIR (docs/ledger.md \"Damaged files\")";
+Error damaged(const std::string& path, const std::string& detail) {
+  // The command line adds how to copy what can be proven (src/cli/cli_errors.cpp).
+  return with_reason(corruption("ledger " + path + " is corrupt: " + detail + ". Nothing was changed."),
+                     "damaged_ledger", path);
 }
 
 }  // namespace alphaledger::rocks

@@ -324,8 +324,8 @@ Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path, const
   }
   const bool has_current = exists && fs::exists(fs::path(path) / "CURRENT", ec);
   if (exists && !has_current && has_ledger_files(path)) {
-    return corruption(damaged(
-        path, "file " + (fs::path(path) / "CURRENT").string() + " (the pointer to the MANIFEST) is missing"));
+    return damaged(path,
+                   "file " + (fs::path(path) / "CURRENT").string() + " (the pointer to the MANIFEST) is missing");
   }
   if (!has_current) {
     if (!options.create_if_missing || options.read_only) {
@@ -386,7 +386,7 @@ Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path, const
           "ledger " + path + " is in use: its lock file " + lock_file + " is held by " + holder +
           "; wait for it to finish, or stop it (alphaledger serve holds the ledger while it runs)");
     }
-    if (s.IsCorruption()) return corruption(damaged(path, cause_of(s, path)));
+    if (s.IsCorruption()) return damaged(path, cause_of(s, path));
     return translate(s, "cannot open ledger " + path, path);
   }
   auto store = std::make_unique<RocksStore>(std::unique_ptr<rocksdb::DB>(raw), path, false);

@@ -130,6 +130,42 @@ TEST_CASE("CliErrors: a damaged ledger exits 4 as corruption") {
   std::ofstream(db + "/CURRENT", std::ios::trunc) << "garbage\n";
   const auto j = expect_failure({"--ledger", db, "status", "s"}, 4, "corruption");
   CHECK(message_of(j).find("is corrupt") != std::string::npos);
+  // The store says what is damaged; the command line adds how to copy what can be proven.
+  CHECK(message_of(j).find("alphaledger --ledger " + db + " recover --to NEWDIR") != std::string::npos);
+}
+
+TEST_CASE("CliErrors: lower layers say what happened, the command line adds the command to run next") {
+  using alphaledger::cli::failure_from;
+  // Errors as the store builds them (src/store/ledger.cpp, rocksdb_messages.cpp): no command in
+  // the message, the reason and subject for the front end.
+  const auto unknown = alphaledger::with_reason(
+      alphaledger::not_found("no stream named 'x' in ledger db", "unknown_stream"), "unknown_stream", "x");
+  CHECK(failure_from(unknown).message ==
+        "no stream named 'x' in ledger db (create it first: alphaledger new x --rule RULE)");
+  const auto closed = alphaledger::with_reason(alphaledger::conflict("stream 's' is closed"), "closed_stream", "s");
+  CHECK(failure_from(closed).message ==
+        "stream 's' is closed (its history stays readable: alphaledger history s)");
+  CHECK(failure_from(closed).code == "conflict");  // the reason is never the printed code word
+  const auto damaged = alphaledger::with_reason(alphaledger::corruption("ledger db is corrupt: x. Nothing was changed."),
+                                                "damaged_ledger", "db");
+  CHECK(failure_from(damaged).message.find("Nothing was changed. Copy what can be proven into a new folder with: "
+                                           "alphaledger --ledger db recover --to NEWDIR") != std::string::npos);
+  // with_message keeps the reason, so advice survives a prefix such as "line 3: ".
+  CHECK(failure_from(alphaledger::with_message(closed, "line 3: " + closed.message)).message ==
+        "line 3: stream 's' is closed (its history stays readable: alphaledger history s)");
+  // No reason, no advice.
+  CHECK(failure_from(alphaledger::conflict("stream 's' is closed")).message == "stream 's' is closed");
+}
+
+TEST_CASE("CliErrors: closed streams and unknown streams are advised on the command line only") {
+  TempDir s;
+  const std::string db = s.sub("db");
+  REQUIRE(run_alphaledger({"--ledger", db, "new", "s", "--rule", "lond"}).exit_code == 0);
+  REQUIRE(run_alphaledger({"--ledger", db, "close", "s"}).exit_code == 0);
+  const auto closed = expect_failure({"--ledger", db, "decide", "s", "--id", "a", "--p", "0.01"}, 3, "conflict");
+  CHECK(message_of(closed).find("its history stays readable: alphaledger history s") != std::string::npos);
+  const auto unknown = expect_failure({"--ledger", db, "status", "t"}, 3, "unknown_stream");
+  CHECK(message_of(unknown).find("create it first: alphaledger new t --rule RULE") != std::string::npos);
 }
 
 TEST_CASE("CliErrors: storage failures exit 4 as storage") {

@@ -1,0 +1,26 @@
+// Times as the ledger prints them (alphaledger/text.hpp format_timestamp), checked against GNU
+// coreutils `date -u -d @SECONDS +%FT%T.%3N` (run on Debian 12 when this test was written).
+#include <doctest/doctest.h>
+
+#include <cstdint>
+
+#include "alphaledger/text.hpp"
+
+using alphaledger::format_timestamp;
+using alphaledger::parse_time_text;
+
+TEST_CASE("TextTime: format_timestamp prints ISO 8601 UTC with milliseconds, as GNU date does") {
+  CHECK(format_timestamp(0) == "1970-01-01T00:00:00.000Z");
+  CHECK(format_timestamp(1700000000000) == "2023-11-14T22:13:20.000Z");  // date -u -d @1700000000
+  CHECK(format_timestamp(951782400123) == "2000-02-29T00:00:00.123Z");   // a leap day
+  CHECK(format_timestamp(-1) == "1969-12-31T23:59:59.999Z");             // date -u -d @-0.001
+}
+
+TEST_CASE("TextTime: a printed time reads back to the same second count") {
+  for (const std::int64_t ms : {std::int64_t{0}, std::int64_t{1700000000000}, std::int64_t{951782400123}}) {
+    CAPTURE(ms);
+    const auto back = parse_time_text(format_timestamp(ms));
+    REQUIRE(back.ok());
+    CHECK(*back * 1000 == doctest::Approx(static_cast<double>(ms)).epsilon(1e-15));
+  }
+}
