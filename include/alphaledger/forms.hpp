@@ -32,7 +32,8 @@ namespace alphaledger {
 
 // ---- decisions ---------------------------------------------------------------------------------
 
-// {"step","id","p_value","level","rejected" (1/0),"wealth","stream","decided_at","repeat"}. With a
+// {"step","id","p_value","level","rejected" (1/0),"wealth","stream","decided_at","launch",
+// "launched_at","repeat"}. With a
 // non-empty `rule`, a first key "rule" holds it (decide --file rows carry replay's rule column).
 std::string decision_json(const DecideResult& d, std::string_view rule = {});
 
@@ -45,7 +46,8 @@ std::string decision_csv(const DecisionRecord& r, std::string_view rule);
 // A stream's status: {"stream","rule", the parameters its rule takes (alpha always;
 // initial_wealth, candidate_threshold, discard_threshold, payout, spending, evaluation as the rule
 // takes them), "alternative" (only when not two-sided), "created_at","tests","rejections","wealth",
-// "next_level", "closed_at" (only for a closed stream)}.
+// "next_level","running" (tests launched, not yet decided or abandoned),"reserved" (the sum of
+// their levels), "closed_at" (only for a closed stream)}.
 std::string stream_json(const StreamInfo& s);
 // stream_json plus "created": false when the stream existed with this configuration (`new`).
 std::string stream_created_json(const StreamInfo& s, bool created);
@@ -58,14 +60,32 @@ std::string next_level_json(std::string_view stream, std::uint64_t step, double 
 
 // ---- history -----------------------------------------------------------------------------------
 
-// {"rule","step","id","p_value","level","rejected" (1/0),"wealth","decided_at"}.
+// {"rule","step","id","p_value","level","rejected" (1/0),"wealth","decided_at","launch",
+// "reserved_at" (when the test was launched),"abandoned" (true/false)}. An abandoned test has
+// p_value 0, rejected 0, and decided_at is when it was abandoned. The launch time is not called
+// launched_at here because replay reads a launched_at column as launch times (docs/formats.md),
+// and a history file must replay as before.
 std::string history_row_json(const DecisionRecord& r, std::string_view rule);
-inline constexpr std::string_view kHistoryCsvHeader = "rule,step,id,p_value,level,rejected,wealth,decided_at";
+inline constexpr std::string_view kHistoryCsvHeader =
+    "rule,step,id,p_value,level,rejected,wealth,decided_at,launch,reserved_at,abandoned";
 std::string history_row_csv(const DecisionRecord& r, std::string_view rule);
 // One page of history: {"stream","from","limit","total","next_step" (null at the end),
 // "decisions": [history_row_json, ...]}.
 std::string history_page_json(std::string_view stream, std::uint64_t from, std::uint64_t limit,
                               const HistoryPage& page, std::string_view rule);
+
+// ---- launch-time events -----------------------------------------------------------------------
+
+// {"stream","id","launch","level","wealth","launched_at","step","repeat"} (`launch`, pipe, HTTP).
+std::string launch_json(const LaunchResult& l);
+// {"stream","id","launch","level","wealth","launched_at","abandoned_at","step","repeat"}.
+std::string abandon_json(const AbandonResult& a);
+// {"stream","id","launch","level","launched_at"}: one running test (`running --json`, a line each).
+std::string running_json(std::string_view stream, const RunningEntry& r);
+// {"stream","running": [running_json, ...]} (GET /v1/streams/{s}/running).
+std::string running_list_json(std::string_view stream, const std::vector<RunningEntry>& running);
+inline constexpr std::string_view kRunningCsvHeader = "id,launch,level,launched_at";
+std::string running_csv(const RunningEntry& r);
 
 // ---- verify ------------------------------------------------------------------------------------
 

@@ -61,10 +61,18 @@ struct StreamInfo {
   std::uint64_t rejections = 0;
   double wealth = 0;
   double next_level = 0;
+  // Tests launched and not yet decided or abandoned, and the sum of the levels reserved for them
+  // (summed in launch order; Rule::reserved).
+  std::uint64_t running = 0;
+  double reserved = 0;
   // Set once the stream is closed (Ledger::close_stream): the time it was closed.
   std::optional<std::int64_t> closed_at_ms;
 };
 
+// One test as the history shows it. `step` is the position of its last entry in the stream's
+// chain (its decision, or its abandon): the number anchors and verify --at-step use. In a stream
+// where no test was launched on its own, step and launch are equal. `level` is the level reserved
+// for the test at its launch, the one it was decided against.
 struct DecisionRecord {
   std::uint64_t step = 0;
   std::string id;
@@ -72,13 +80,51 @@ struct DecisionRecord {
   double level = 0;
   bool rejected = false;
   double wealth = 0;
-  std::int64_t decided_at_ms = 0;
+  std::int64_t decided_at_ms = 0;  // for an abandoned test: when it was abandoned
+  std::uint64_t launch = 0;        // launch number, 1-based, in launch order
+  std::int64_t launched_at_ms = 0; // equal to decided_at_ms when decided without a launch first
+  // The test was abandoned (Ledger::abandon): never decided, p_value 0, rejected false.
+  bool abandoned = false;
 };
 
 struct DecideResult {
   std::string stream;
   DecisionRecord record;
   bool repeat = false;  // the id was decided before with the same p-value; nothing changed
+};
+
+// A test's reservation (Ledger::launch).
+struct LaunchResult {
+  std::string stream;
+  std::string id;
+  std::uint64_t launch = 0;         // launch number, 1-based
+  double level = 0;                 // the level its decision will be made against
+  double wealth = 0;                // alpha-wealth right after the launch
+  std::int64_t launched_at_ms = 0;
+  std::uint64_t step = 0;           // the launch's position in the stream's chain
+  bool repeat = false;              // the id was already running: the stored reservation, nothing changed
+};
+
+// A test abandoned (Ledger::abandon): it never reports a p-value.
+struct AbandonResult {
+  std::string stream;
+  std::string id;
+  std::uint64_t launch = 0;
+  double level = 0;  // the level that had been reserved for it
+  double wealth = 0; // alpha-wealth right after the abandon
+  std::int64_t launched_at_ms = 0;
+  std::int64_t abandoned_at_ms = 0;
+  std::uint64_t step = 0;  // the abandon's position in the stream's chain
+  bool repeat = false;     // it was abandoned before; nothing changed
+};
+
+// A running test (Ledger::running).
+struct RunningEntry {
+  std::string id;
+  std::uint64_t launch = 0;
+  double level = 0;
+  std::int64_t launched_at_ms = 0;
+  friend bool operator==(const RunningEntry&, const RunningEntry&) = default;
 };
 
 struct TestInput {
@@ -165,7 +211,9 @@ class Ledger {
   // Decides one test. Unknown stream: kNotFound. Bad id or p-value: kInvalidArgument. Same id and
   // same p-value as before: the stored decision with repeat = true. Same id, other p-value:
   // kConflict. On any failure the ledger is unchanged. The decision is durable (synced) before
-  // this returns.
+  // this returns. A running id (launch()) is decided against the level reserved at its launch
+  // (a finish event); an abandoned id is kConflict. An id never launched is launched and decided
+  // at once, as before launches existed (docs/ledger.md "Launch-time levels").
   virtual Result<DecideResult> decide(std::string_view stream, std::string_view id, double p_value) = 0;
 
   // Decides tests in order with one synced write per group (group commit). Every input is
@@ -199,6 +247,23 @@ class Ledger {
                                                     std::size_t group_size,
                                                     const GroupCallback& on_durable) = 0;
 
+  // Launches a test: reserves its level from the outcomes decided so far (Rule::launch) and
+  // records the launch in the chain, durable before this returns. An id already running: the
+  // stored reservation with repeat = true. An id already decided or abandoned: kConflict naming
+  // what happened to it. Unknown stream: kNotFound; closed stream: kConflict; bad id:
+  // kInvalidArgument. On any failure the ledger is unchanged.
+  virtual Result<LaunchResult> launch(std::string_view stream, std::string_view id) = 0;
+  // Abandons a running test: it will never be decided (Rule::abandon). Unknown id: kNotFound
+  // (code unknown_test); an id already decided: kConflict; an id already abandoned: the stored
+  // abandon with repeat = true. Closed stream: kConflict. On any failure the ledger is unchanged.
+  virtual Result<AbandonResult> abandon(std::string_view stream, std::string_view id) = 0;
+  // The running tests in launch order. Unknown stream: kNotFound. Reads the chain from the
+  // earliest running launch on.
+  virtual Result<std::vector<RunningEntry>> running(std::string_view stream) = 0;
+  // One running test by id. Unknown id: kNotFound (code unknown_test); decided or abandoned:
+  // kConflict saying so (its level is no longer reserved). Unknown stream: kNotFound.
+  virtual Result<RunningEntry> running_test(std::string_view stream, std::string_view id) = 0;
+
   // Closes a stream: it takes no more tests, and its history stays readable and verifiable. The
   // closing time is hashed into the chain (docs/ledger-format.md "Closing"), so verify covers it.
   // Closing a closed stream succeeds, changes nothing and returns newly_closed == false. Unknown
@@ -217,16 +282,19 @@ class Ledger {
   virtual Result<StreamInfo> status(std::string_view stream) = 0;
   // Every stream, by name in byte order.
   virtual Result<std::vector<StreamInfo>> streams() = 0;
-  // Every decision in step order, in one vector (for_each_decision reads the same without holding
-  // them all). Unknown stream: kNotFound; an undecodable or missing record: kCorruption.
+  // Every decided or abandoned test in step order, in one vector (abandoned ones have abandoned
+  // set; launches still running are not listed). Unknown stream: kNotFound; an undecodable or
+  // missing record: kCorruption.
   virtual Result<std::vector<DecisionRecord>> history(std::string_view stream) = 0;
-  // At most `limit` records with step >= from_step, in step order, reading only those records
-  // (from_step 0 is taken as 1). A from_step past the last record gives an empty page. Unknown
+  // The decided and abandoned tests among the chain entries from_step .. from_step + limit - 1,
+  // in step order, reading only those entries (from_step 0 is taken as 1); a launch entry gives
+  // no row, so a page can hold fewer than `limit` rows. `total` counts chain entries. A from_step past the last record gives an empty page. Unknown
   // stream: kConflict; limit 0: kInvalidArgument; an undecodable or missing record: kCorruption.
   virtual Result<HistoryPage> history_page(std::string_view stream, std::uint64_t from_step,
                                            std::size_t limit) = 0;
-  // Calls visit(record) for each record with step >= from_step (0 is taken as 1) up to the last
-  // record at the time of the call, in step order, until visit returns false. Holds one record at
+  // Calls visit(record) for each decided test whose step >= from_step (0 is taken as 1) up to the
+  // last chain entry at the time of the call, in step order, until visit returns false. Abandoned
+  // tests and running launches are not decisions and are skipped. Holds one record at
   // a time and no lock while visiting, so visit may call back into this Ledger. Errors as
   // history_page (an error after some records were visited stops the walk there).
   using DecisionVisitor = std::function<bool(const DecisionRecord&)>;

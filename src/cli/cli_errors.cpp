@@ -16,6 +16,11 @@ std::string command_advice(const Error& e) {
   if (e.reason == "unknown_stream") return " (create it first: alphaledger new " + e.subject + " --rule RULE)";
   if (e.reason == "closed_stream") return " (its history stays readable: alphaledger history " + e.subject + ")";
   if (e.reason == "damaged_record") return " (run alphaledger verify " + e.subject + ")";
+  if (e.reason == "not_launched") {
+    return " (the running tests: alphaledger running " + e.subject + "; launch one with: alphaledger launch " +
+           e.subject + " --id ID)";
+  }
+  if (e.reason == "running_in_batch") return " (alphaledger decide " + e.subject + " --id ID --p P)";
   if (e.reason == "damaged_ledger") {
     return " Copy what can be proven into a new folder with: alphaledger --ledger " + e.subject +
            " recover --to NEWDIR (docs/ledger.md \"Damaged files\")";

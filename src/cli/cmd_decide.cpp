@@ -33,6 +33,10 @@ std::string decision_text(const DecideResult& d) {
         "not rejected  p_value " + format_rounded(r.p_value, 6) + " > level " + format_rounded(r.level, 6);
   }
   line += "  wealth " + format_rounded(r.wealth, 6);
+  if (r.launched_at_ms != r.decided_at_ms) {  // launched before (alphaledger launch): say when
+    line += "  (launch " + std::to_string(r.launch) + ", level reserved at " + format_timestamp(r.launched_at_ms) +
+            ")";
+  }
   if (d.repeat)
     line += "  (repeat: decided before at " + format_timestamp(r.decided_at_ms) + "; nothing changed)";
   return line;

@@ -1,5 +1,5 @@
-// The ledger commands: new, decide, next, status, streams, history, verify, close (docs/ledger.md),
-// one file each (cmd_new.cpp ... cmd_close.cpp); this file holds what they share.
+// The ledger commands: new, decide, next, status, streams, history, verify, close, and launch,
+// abandon, running (docs/ledger.md), one file each (cmd_new.cpp ... cmd_close.cpp, cmd_launch.cpp); this file holds what they share.
 #include "cli/ledger_common.hpp"
 
 namespace alphaledger::cli {
@@ -23,6 +23,7 @@ void add_ledger_commands(CLI::App& app, CommandContext& ctx) {
   add_history_command(app, ctx);
   add_verify_command(app, ctx);
   add_close_command(app, ctx);
+  add_launch_commands(app, ctx);
 }
 
 }  // namespace alphaledger::cli

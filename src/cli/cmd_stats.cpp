@@ -373,21 +373,30 @@ struct PlanOptions {
   std::optional<double> min_effect, level, power;
   std::optional<std::string> n_per_arm;  // parsed here, so "-5" is not wrapped to a huge unsigned
   std::optional<std::string> stream;
+  std::optional<std::string> test;  // a running test of the stream: plan at its reserved level
   std::string alternative = "two-sided";
 };
 
-// The level the stream's next test would get now, and that test's step.
+// The level the stream's next test would get now, and that test's step; or, with a test id, the
+// level reserved for that running test and its launch number (in `step`).
 struct StreamLevel {
   double level = 0;
   std::uint64_t step = 0;
+  bool reserved = false;
 };
 
-Result<StreamLevel> stream_level(const GlobalOptions& g, const std::string& stream) {
+Result<StreamLevel> stream_level(const GlobalOptions& g, const std::string& stream,
+                                 const std::optional<std::string>& test) {
   auto ledger = Ledger::open(ledger_path(g), RocksStoreOptions{.create_if_missing = false});
   if (!ledger) return ledger.error();
+  if (test) {
+    auto running = (*ledger)->running_test(stream, *test);
+    if (!running) return running.error();
+    return StreamLevel{running->level, running->launch, true};
+  }
   auto info = (*ledger)->status(stream);
   if (!info) return info.error();
-  return StreamLevel{info->next_level, info->tests + 1};
+  return StreamLevel{info->next_level, info->tests + 1, false};
 }
 
 // The level of a plan given neither --level nor --stream: the usual level of a single test. Said
@@ -403,6 +412,9 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
         "stream's next test would get); without either, the plan uses level " +
         format_number(kDefaultPlanLevel));
   }
+  if (o.test && !o.stream) {
+    return invalid_input("--test ID names a running test of a stream: give the stream too (--stream S --test ID)");
+  }
   PlanRequest request;
   request.alternative = *alt;
   request.min_effect = o.min_effect;
@@ -417,8 +429,12 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
   }
   std::optional<StreamLevel> from_stream;
   if (o.stream) {
-    auto s = stream_level(g, *o.stream);
+    auto s = stream_level(g, *o.stream, o.test);
     if (!s) return s.error();
+    if (!(s->level > 0.0) && s->reserved) {
+      return invalid_input("test '" + excerpt(*o.test) + "' of stream '" + *o.stream +
+                           "' has level 0 reserved: no sample size reaches any power");
+    }
     if (!(s->level > 0.0)) {
       return invalid_input("stream '" + *o.stream + "' would give its next test (step " +
                            std::to_string(s->step) +
@@ -429,13 +445,14 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
   } else {
     request.level = o.level.value_or(kDefaultPlanLevel);
   }
-  const char* level_source = from_stream ? "stream" : o.level ? "given" : "default";
+  const bool reserved = from_stream && from_stream->reserved;
+  const char* level_source = reserved ? "reserved" : from_stream ? "stream" : o.level ? "given" : "default";
   auto plan =
       o.proportions ? plan_proportions(o.baseline_or_sd, request) : plan_means(o.baseline_or_sd, request);
   if (!plan) return plan.error();
 
-  std::string note;
-  if (from_stream) {
+  std::string note;  // none for a reserved level: the decision uses exactly it
+  if (from_stream && !reserved) {
     note =
         "this is the level the next test of stream '" + *o.stream + "' (step " +
         std::to_string(from_stream->step) +
@@ -463,7 +480,11 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
     j["min_effect"] = plan->min_effect;
     j[o.proportions ? "baseline" : "sd"] = o.baseline_or_sd;
     j["alternative"] = std::string(alternative_name(plan->alternative));
-    if (from_stream) {
+    if (reserved) {
+      j["stream"] = *o.stream;
+      j["test"] = *o.test;
+      j["launch"] = from_stream->step;
+    } else if (from_stream) {
       j["stream"] = *o.stream;
       j["step"] = from_stream->step;
       j["note"] = note;
@@ -479,7 +500,9 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
                                      std::to_string(2 * plan->n_per_arm) + " users in both arms)"
                                : "  (given)"));
   t.add("level", format_rounded(plan->level, 6) +
-                     (from_stream ? "  (next level of stream " + *o.stream + ")"
+                     (reserved      ? "  (reserved for running test " + *o.test + " of stream " + *o.stream +
+                                     ", launch " + std::to_string(from_stream->step) + ")"
+                      : from_stream ? "  (next level of stream " + *o.stream + ")"
                       : o.level   ? std::string("  (given)")
                                   : std::string("  (default: no --level or --stream given)")));
   if (plan->solved == PlanTarget::kPower) {
@@ -498,7 +521,7 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
                            : std::string()));
   t.add(o.proportions ? "baseline" : "sd", format_rounded(o.baseline_or_sd, 6));
   t.add("alternative", std::string(alternative_name(plan->alternative)));
-  if (from_stream) t.add("note", note);
+  if (!note.empty()) t.add("note", note);
   t.print(out);
   return {};
 }
@@ -531,6 +554,8 @@ void add_plan_command(CLI::App* plan, CommandContext& ctx, bool proportions) {
   sub->add_option("--level", o->level,
                   "the test's level, in (0, 1); default 0.05 when --stream is not given either");
   sub->add_option("--stream", o->stream, "plan at the level the next test of this ledger stream would get");
+  sub->add_option("--test", o->test,
+                  "with --stream: plan at the level reserved for this running test (alphaledger launch)");
   sub->add_option("--power", o->power, "the chance of detecting min_effect, in (0, 1); default 0.8");
   sub->add_option(
       "--n-per-arm", o->n_per_arm,

@@ -44,7 +44,9 @@ Status run_status(const StreamOptions& o, const GlobalOptions& g, std::ostream& 
       << "created     " << format_timestamp(info->created_at_ms) << "\n"
       << "tests       " << info->tests << "\n"
       << "rejections  " << info->rejections << "\n"
-      << "wealth      " << format_rounded(info->wealth, 6) << "\n";
+      << "wealth      " << format_rounded(info->wealth, 6) << "\n"
+      << "running     " << info->running << " tests, reserved " << format_rounded(info->reserved, 6)
+      << " (alphaledger running " << info->name << " lists them)\n";
   if (info->closed_at_ms) {
     out << "closed      " << format_timestamp(*info->closed_at_ms) << " (takes no more tests)\n";
   } else {
@@ -70,6 +72,7 @@ Status run_streams(const GlobalOptions& g, std::ostream& out) {
     } else {
       out << s.name << "  " << rule_name(s.config.kind) << "  tests " << s.tests << "  rejections "
           << s.rejections << "  wealth " << format_rounded(s.wealth, 6);
+      if (s.running > 0) out << "  running " << s.running;
       if (s.closed_at_ms) out << "  closed " << format_timestamp(*s.closed_at_ms);
       out << "\n";
     }

@@ -26,5 +26,6 @@ void add_stream_read_commands(CLI::App& app, CommandContext& ctx);  // next, sta
 void add_history_command(CLI::App& app, CommandContext& ctx);
 void add_verify_command(CLI::App& app, CommandContext& ctx);
 void add_close_command(CLI::App& app, CommandContext& ctx);
+void add_launch_commands(CLI::App& app, CommandContext& ctx);  // launch, abandon, running
 
 }  // namespace alphaledger::cli

@@ -48,6 +48,15 @@ std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger,
       }
       continue;
     }
+    if (batch->error && batch->decided.empty() && batch->error->code == "running_test") {
+      // A launched test is finished by decide() alone (a batch does not finish launched tests):
+      // the group goes one by one, in order, so every level stays the one of arrival order.
+      for (std::size_t k : group) {
+        pending.pop_front();
+        if (!decide_one(k)) return out;
+      }
+      continue;
+    }
     // Decided inputs (a prefix of the group) are answered; the ledger may also have refused one
     // input (a conflict), which decides nothing and so does not depend on its neighbours: it is
     // answered with the error and the rest of the group is batched again.

@@ -45,6 +45,8 @@ Json stream_object(const StreamInfo& s) {
   j["rejections"] = s.rejections;
   j["wealth"] = number(s.wealth);
   j["next_level"] = number(s.next_level);
+  j["running"] = s.running;
+  j["reserved"] = number(s.reserved);
   // Shown only for a closed stream, after next_level.
   if (s.closed_at_ms) j["closed_at"] = format_timestamp(*s.closed_at_ms);
   return j;
@@ -60,6 +62,9 @@ Json history_row_object(const DecisionRecord& r, std::string_view rule) {
   j["rejected"] = r.rejected ? 1 : 0;
   j["wealth"] = number(r.wealth);
   j["decided_at"] = format_timestamp(r.decided_at_ms);
+  j["launch"] = r.launch;
+  j["reserved_at"] = format_timestamp(r.launched_at_ms);
+  j["abandoned"] = r.abandoned;
   return j;
 }
 
@@ -92,6 +97,8 @@ std::string decision_json(const DecideResult& d, std::string_view rule) {
   j["wealth"] = number(d.record.wealth);
   j["stream"] = d.stream;
   j["decided_at"] = format_timestamp(d.record.decided_at_ms);
+  j["launch"] = d.record.launch;
+  j["launched_at"] = format_timestamp(d.record.launched_at_ms);
   j["repeat"] = d.repeat;
   return json_text(j);
 }
@@ -133,7 +140,70 @@ std::string history_row_json(const DecisionRecord& r, std::string_view rule) {
 }
 
 std::string history_row_csv(const DecisionRecord& r, std::string_view rule) {
-  return csv_row(r, rule) + ',' + format_timestamp(r.decided_at_ms);
+  return csv_row(r, rule) + ',' + format_timestamp(r.decided_at_ms) + ',' + std::to_string(r.launch) + ',' +
+         format_timestamp(r.launched_at_ms) + (r.abandoned ? ",1" : ",0");
+}
+
+std::string launch_json(const LaunchResult& l) {
+  Json j;
+  j["stream"] = l.stream;
+  j["id"] = l.id;
+  j["launch"] = l.launch;
+  j["level"] = number(l.level);
+  j["wealth"] = number(l.wealth);
+  j["launched_at"] = format_timestamp(l.launched_at_ms);
+  j["step"] = l.step;
+  j["repeat"] = l.repeat;
+  return json_text(j);
+}
+
+std::string abandon_json(const AbandonResult& a) {
+  Json j;
+  j["stream"] = a.stream;
+  j["id"] = a.id;
+  j["launch"] = a.launch;
+  j["level"] = number(a.level);
+  j["wealth"] = number(a.wealth);
+  j["launched_at"] = format_timestamp(a.launched_at_ms);
+  j["abandoned_at"] = format_timestamp(a.abandoned_at_ms);
+  j["step"] = a.step;
+  j["repeat"] = a.repeat;
+  return json_text(j);
+}
+
+namespace {
+Json running_object(std::string_view stream, const RunningEntry& r) {
+  Json j;
+  j["stream"] = std::string(stream);
+  j["id"] = r.id;
+  j["launch"] = r.launch;
+  j["level"] = number(r.level);
+  j["launched_at"] = format_timestamp(r.launched_at_ms);
+  return j;
+}
+}  // namespace
+
+std::string running_json(std::string_view stream, const RunningEntry& r) {
+  return json_text(running_object(stream, r));
+}
+
+std::string running_list_json(std::string_view stream, const std::vector<RunningEntry>& running) {
+  Json j;
+  j["stream"] = std::string(stream);
+  j["running"] = Json::array();
+  for (const auto& r : running) j["running"].push_back(running_object(stream, r));
+  return json_text(j);
+}
+
+std::string running_csv(const RunningEntry& r) {
+  std::string row = csv_field(r.id);
+  row += ',';
+  row += std::to_string(r.launch);
+  row += ',';
+  append_csv_number(row, r.level);
+  row += ',';
+  row += format_timestamp(r.launched_at_ms);
+  return row;
 }
 
 std::string history_page_json(std::string_view stream, std::uint64_t from, std::uint64_t limit,

@@ -33,10 +33,12 @@ http::Response protocol_error(int status, const std::string& what, std::size_t m
 inline constexpr std::string_view kCreateExample =
     R"({"name": "checkout-team", "rule": "lord++", "alpha": 0.05})";
 inline constexpr std::string_view kDecideExample = R"({"id": "exp-0142", "p_value": 0.0004})";
+inline constexpr std::string_view kLaunchExample = R"({"id": "exp-0150"})";
 inline constexpr std::string_view kRouteList =
     "routes: GET /v1/health, GET|POST /v1/streams, GET /v1/streams/{name}, GET /v1/streams/{name}/next, POST "
     "/v1/streams/{name}/tests, GET /v1/streams/{name}/history?from=STEP&limit=N, GET "
-    "/v1/streams/{name}/verify?expect=STEP:HASH, POST /v1/streams/{name}/close";
+    "/v1/streams/{name}/verify?expect=STEP:HASH, POST /v1/streams/{name}/close, POST "
+    "/v1/streams/{name}/launches, POST /v1/streams/{name}/tests/{id}/abandon, GET /v1/streams/{name}/running";
 
 // History pages (docs/http.md "History"): without `limit`, kDefaultPage records; never more than
 // kMaxPage in one answer, so one request never holds a whole long history in memory.

@@ -22,6 +22,9 @@ const Routes::Route Routes::kRoutes[] = {
     {"GET", "streams/*/history", &Routes::history},
     {"GET", "streams/*/verify", &Routes::verify},
     {"POST", "streams/*/close", &Routes::close},
+    {"POST", "streams/*/launches", &Routes::launch},
+    {"POST", "streams/*/tests/?/abandon", &Routes::abandon},
+    {"GET", "streams/*/running", &Routes::running},
 };
 
 namespace {
@@ -45,7 +48,8 @@ std::optional<std::vector<std::string>> path_segments(std::string_view path) {
   return parts;
 }
 
-// Whether `parts` (after "v1") fit `pattern`; the segment under "*" goes to `stream`.
+// Whether `parts` (after "v1") fit `pattern`; the segment under "*" goes to `stream`; "?" stands
+// for any one segment (the handler reads it from the path, e.g. a test id).
 bool matches(std::string_view pattern, const std::vector<std::string>& parts, std::string& stream) {
   std::size_t k = 1;  // parts[0] is "v1"
   while (!pattern.empty()) {
@@ -54,7 +58,7 @@ bool matches(std::string_view pattern, const std::vector<std::string>& parts, st
     if (k >= parts.size()) return false;
     if (want == "*")
       stream = parts[k];
-    else if (parts[k] != want)
+    else if (want != "?" && parts[k] != want)
       return false;
     ++k;
     pattern = slash == std::string_view::npos ? std::string_view() : pattern.substr(slash + 1);
@@ -259,6 +263,62 @@ Response Routes::verify(const Request& req, const std::string& name) {
   auto v = ledger_.verify(name, *anchors);
   if (!v) return ledger_error(v.error());
   return json_answer(v->ok ? 200 : 409, verify_json(name, *v));
+}
+
+// POST /v1/streams/{name}/launches with {"id": ...}: Ledger::launch. 201 with launch_json for a
+// new launch, 200 with repeat true for an id already running; refusals as decide.
+Response Routes::launch(const Request& req, const std::string& name) {
+  Response error;
+  auto body = json_body(req, kLaunchExample, error);
+  if (!body) return error;
+  auto it = body->find("id");
+  if (it == body->end() || !it->is_string()) {
+    return error_response(400, "invalid_input",
+                          "the body needs an 'id' string, e.g. " + std::string(kLaunchExample));
+  }
+  const std::string id = it->get<std::string>();
+  if (auto v = validate_test_id(id); !v) return error_response(400, "invalid_input", "id: " + v.error().message);
+  auto s = find_stream(name, error);
+  if (!s) return error;
+  if (s->closed_at_ms) return closed_answer(*s);
+  auto l = ledger_.launch(name, id);
+  if (!l) {
+    note_write(&l.error());
+    return ledger_error(l.error());
+  }
+  if (!l->repeat) note_write(nullptr);
+  return json_answer(l->repeat ? 200 : 201, launch_json(*l));
+}
+
+// POST /v1/streams/{name}/tests/{id}/abandon (empty body): Ledger::abandon. 201 with abandon_json
+// when newly abandoned, 200 with repeat true when abandoned before; unknown id 404, decided 409.
+Response Routes::abandon(const Request& req, const std::string& name) {
+  auto parts = path_segments(req.path);
+  if (!parts || parts->size() != 6)
+    return error_response(400, "invalid_request", "the path " + excerpt(req.path) + " names no test");
+  const std::string& id = (*parts)[4];
+  if (auto v = validate_test_id(id); !v)
+    return error_response(400, "invalid_input", "test id in the path: " + v.error().message);
+  Response error;
+  auto s = find_stream(name, error);
+  if (!s) return error;
+  if (s->closed_at_ms) return closed_answer(*s);
+  auto a = ledger_.abandon(name, id);
+  if (!a) {
+    note_write(&a.error());
+    return ledger_error(a.error());
+  }
+  if (!a->repeat) note_write(nullptr);
+  return json_answer(a->repeat ? 200 : 201, abandon_json(*a));
+}
+
+// GET /v1/streams/{name}/running: {"stream","running":[...]} in launch order.
+Response Routes::running(const Request&, const std::string& name) {
+  Response error;
+  if (!find_stream(name, error)) return error;
+  auto r = ledger_.running(name);
+  if (!r) return ledger_error(r.error());
+  return json_answer(200, running_list_json(name, *r));
 }
 
 }  // namespace alphaledger::routes

@@ -42,6 +42,9 @@ class Routes {
   http::Response history(const http::Request& req, const std::string& stream);
   http::Response close(const http::Request& req, const std::string& stream);
   http::Response verify(const http::Request& req, const std::string& stream);
+  http::Response launch(const http::Request& req, const std::string& stream);
+  http::Response abandon(const http::Request& req, const std::string& stream);
+  http::Response running(const http::Request& req, const std::string& stream);
 
   // Remembers the outcome of a write for health(): a storage failure makes it 503 until a later
   // write succeeds.

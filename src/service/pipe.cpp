@@ -10,17 +10,45 @@
 #include "alphaledger/test_log.hpp"
 #include "alphaledger/text.hpp"
 #include "harness/json_input.hpp"
+#include "harness/json_text.hpp"
 #include "service/json_input.hpp"
 
 namespace alphaledger {
 namespace {
 
+// What a line asks for: its "event" key, absent meaning decide (docs/http.md, "pipe").
+enum class LineEvent { kDecide, kLaunch, kAbandon };
+
 // One input line, parsed or refused.
 struct LineWork {
   std::uint64_t line = 0;
-  std::optional<TestInput> input;  // set when the line is a valid test
+  LineEvent event = LineEvent::kDecide;
+  std::optional<TestInput> input;  // set when the line is a valid test (for launch and abandon: the id)
   std::string error;               // otherwise, why not
 };
+
+// The event of a line: absent or "decide", "launch", "abandon"; anything else is refused.
+Result<LineEvent> line_event(const nlohmann::json& j) {
+  auto it = j.find("event");
+  if (it == j.end()) return LineEvent::kDecide;
+  const char* accepted = "; accepted: \"launch\", \"abandon\", \"decide\" (the same as no event)";
+  if (!it->is_string()) return invalid_input("event must be a JSON string" + std::string(accepted));
+  const auto& e = it->get_ref<const std::string&>();
+  if (e == "decide") return LineEvent::kDecide;
+  if (e == "launch") return LineEvent::kLaunch;
+  if (e == "abandon") return LineEvent::kAbandon;
+  return invalid_input("unknown event " + excerpt(e) + std::string(accepted));
+}
+
+// The id of a launch or abandon line: a JSON string passing validate_test_id.
+Result<std::string> event_id(const nlohmann::json& j) {
+  auto it = j.find("id");
+  if (it == j.end()) return invalid_input("missing field 'id' (a launch or abandon names the test's id)");
+  if (!it->is_string()) return invalid_input("id must be a JSON string, got " + excerpt(json_text(*it)));
+  const auto& id = it->get_ref<const std::string&>();
+  if (auto s = validate_test_id(id); !s) return invalid_input("id: " + s.error().message);
+  return id;
+}
 
 LineWork parse_line(std::uint64_t line_no, std::string_view text, Alternative direction) {
   LineWork w;
@@ -33,6 +61,21 @@ LineWork parse_line(std::uint64_t line_no, std::string_view text, Alternative di
   auto j = parse_json_object(t);
   if (!j) {
     w.error = j.error().message;
+    return w;
+  }
+  auto event = line_event(*j);
+  if (!event) {
+    w.error = event.error().message;
+    return w;
+  }
+  w.event = *event;
+  if (w.event != LineEvent::kDecide) {
+    auto id = event_id(*j);
+    if (!id) {
+      w.error = id.error().message;
+      return w;
+    }
+    w.input = TestInput{std::move(*id), 0};
     return w;
   }
   auto input = test_from_json(*j, direction);  // summary rows in the stream's frozen direction
@@ -57,9 +100,69 @@ class PipeRun {
   PipeRun(Ledger& ledger, std::string_view stream, std::ostream& out)
       : ledger_(ledger), stream_(stream), out_(out) {}
 
-  // Decides and answers a group of complete lines. Returns an error on storage failure or when
-  // the output cannot be written.
+  // Answers a group of complete lines in order: runs of decide lines together (group commit),
+  // each launch or abandon on its own. Returns an error on storage failure or when the output
+  // cannot be written.
   Status answer(std::vector<LineWork>& work) {
+    std::vector<LineWork> run;
+    for (auto& w : work) {
+      if (!w.input || w.event == LineEvent::kDecide) {
+        run.push_back(std::move(w));
+        continue;
+      }
+      if (!run.empty()) {
+        if (auto s = answer_decides(run); !s) return s;
+        run.clear();
+      }
+      if (auto s = answer_event(w); !s) return s;
+    }
+    if (!run.empty()) return answer_decides(run);
+    return {};
+  }
+
+  PipeSummary summary_;
+
+ private:
+  Status answer_event(const LineWork& w) {
+    std::string text;
+    std::optional<Error> failure;
+    bool repeat = false;
+    if (w.event == LineEvent::kLaunch) {
+      auto l = ledger_.launch(stream_, w.input->id);
+      if (l) {
+        text = launch_json(*l);
+        repeat = l->repeat;
+      } else {
+        failure = l.error();
+      }
+    } else {
+      auto a = ledger_.abandon(stream_, w.input->id);
+      if (a) {
+        text = abandon_json(*a);
+        repeat = a->repeat;
+      } else {
+        failure = a.error();
+      }
+    }
+    if (failure) {
+      text = line_error_json(w.line, failure->message);
+      ++summary_.bad;
+    } else if (repeat) {
+      ++summary_.repeats;
+    } else {
+      ++summary_.decided;
+    }
+    out_ << text << '\n';
+    out_.flush();
+    if (!out_) return io_error("cannot write the answer to line " + std::to_string(w.line) + " to the output");
+    ++summary_.lines;
+    if (failure && is_storage_failure(failure->kind))
+      return with_message(*failure, "line " + std::to_string(w.line) + ": " + failure->message);
+    return {};
+  }
+
+  // Decides and answers a run of decide lines (and refused lines).
+  Status answer_decides(std::vector<LineWork>& work) {
     std::vector<TestInput> inputs;
     for (const auto& w : work) {
       if (w.input) inputs.push_back(*w.input);
@@ -97,9 +200,6 @@ class PipeRun {
     return {};
   }
 
-  PipeSummary summary_;
-
- private:
   Ledger& ledger_;
   std::string stream_;
   std::ostream& out_;

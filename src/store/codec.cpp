@@ -425,6 +425,53 @@ Result<std::uint8_t> entry_version(std::string_view bytes) {
   return static_cast<std::uint8_t>(bytes[0]);
 }
 
+Result<ChainEntry> decode_entry(std::string_view bytes) {
+  auto version = entry_version(bytes);
+  if (!version) return version.error();
+  ChainEntry e;
+  if (*version == kEventVersion) {
+    auto ev = decode_event(bytes);
+    if (!ev) return ev.error();
+    e.is_event = true;
+    e.event = std::move(*ev);
+    return e;
+  }
+  if (*version != kRecordVersion) {
+    return corruption("chain entry has version " + std::to_string(*version) + ", this build reads versions " +
+                      std::to_string(kRecordVersion) + " and " + std::to_string(kEventVersion));
+  }
+  auto rec = decode_record(bytes);
+  if (!rec) return rec.error();
+  e.record = std::move(*rec);
+  return e;
+}
+
+std::optional<DecisionRecord> history_row(const ChainEntry& e) {
+  if (!e.is_event) {
+    DecisionRecord r = e.record.record;
+    r.launch = r.step;
+    r.launched_at_ms = r.decided_at_ms;
+    return r;
+  }
+  if (e.event.event.kind == EventKind::kLaunch) return std::nullopt;
+  return event_row(e.event.event);
+}
+
+DecisionRecord event_row(const EventRecord& ev) {
+  DecisionRecord r;
+  r.step = ev.entry;
+  r.id = ev.id;
+  r.p_value = ev.p_value;
+  r.level = ev.level;
+  r.rejected = ev.rejected;
+  r.wealth = ev.wealth;
+  r.decided_at_ms = ev.at_ms;
+  r.launch = ev.launch;
+  r.launched_at_ms = ev.launched_at_ms;
+  r.abandoned = ev.kind == EventKind::kAbandon;
+  return r;
+}
+
 std::string encode_step(std::uint64_t step) {
   std::string out;
   put_u64(out, step);

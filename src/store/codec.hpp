@@ -136,6 +136,24 @@ Result<StoredEvent> decode_event(std::string_view bytes);
 // decode_record from decode_event. Empty bytes: kCorruption.
 Result<std::uint8_t> entry_version(std::string_view bytes);
 
+// One chain entry of either version, decoded (decode_record or decode_event by its first byte).
+struct ChainEntry {
+  bool is_event = false;  // value version 2 (event) rather than 1 (decision record)
+  StoredRecord record;    // when !is_event
+  StoredEvent event;      // when is_event
+  std::uint64_t entry() const { return is_event ? event.event.entry : record.record.step; }
+  const std::string& id() const { return is_event ? event.event.id : record.record.id; }
+  const Digest& hash() const { return is_event ? event.hash : record.hash; }
+  const Digest& prev_hash() const { return is_event ? event.prev_hash : record.prev_hash; }
+};
+// Errors: kCorruption (empty, unknown version, or what the decoder of its version refuses).
+Result<ChainEntry> decode_entry(std::string_view bytes);
+// The history row an entry gives: a decision record (launch = step, launched_at = decided_at), a
+// finish, or an abandon (abandoned set, decided_at = the abandon's time); none for a launch.
+std::optional<DecisionRecord> history_row(const ChainEntry& e);
+// The history row of a finish or abandon event.
+DecisionRecord event_row(const EventRecord& e);
+
 std::string encode_step(std::uint64_t step);  // the id index value
 Result<std::uint64_t> decode_step(std::string_view bytes);
 

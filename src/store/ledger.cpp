@@ -168,9 +168,19 @@ Result<std::vector<StreamInfo>> StoreLedger::streams() {
   return out;
 }
 
+Result<std::uint64_t> StoreLedger::entries(std::string_view stream) {
+  if (auto s = store::validate_stream_name(stream); !s) return s.error();
+  SlotGuard slot(*this, stream);
+  if (auto s = load(stream, *slot); !s) return s.error();
+  if (!slot->exists) return unknown_stream(stream, location());
+  return slot->head.steps;
+}
+
 Result<std::vector<DecisionRecord>> StoreLedger::history(std::string_view stream) {
+  auto count = entries(stream);
+  if (!count) return count.error();
   std::vector<DecisionRecord> out;
-  auto s = for_each_decision(stream, 1, [&](const DecisionRecord& r) {
+  auto s = store::visit_records(*store_, location(), stream, 1, *count, [&](const DecisionRecord& r) {
     out.push_back(r);
     return true;
   });
@@ -183,32 +193,33 @@ Result<HistoryPage> StoreLedger::history_page(std::string_view stream, std::uint
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (limit == 0)
     return invalid_input("a history page holds at least 1 record: limit must be at least 1, got 0");
-  auto info = status(stream);
-  if (!info) return info.error();
+  auto count = entries(stream);
+  if (!count) return count.error();
+  const std::uint64_t total = *count;
   HistoryPage page;
-  page.total = info->tests;
+  page.total = total;
   if (from_step == 0) from_step = 1;
-  if (from_step > info->tests) return page;
+  if (from_step > total) return page;
   // The last step of the page, without overflow for any limit.
-  const std::uint64_t last = info->tests - from_step < limit - 1 ? info->tests : from_step + (limit - 1);
+  const std::uint64_t last = total - from_step < limit - 1 ? total : from_step + (limit - 1);
   page.records.reserve(static_cast<std::size_t>(std::min<std::uint64_t>(last - from_step + 1, 4096)));
   auto s = store::visit_records(*store_, location(), stream, from_step, last, [&](const DecisionRecord& r) {
     page.records.push_back(r);
     return true;
   });
   if (!s) return s.error();
-  page.next_step = last < info->tests ? last + 1 : 0;
+  page.next_step = last < total ? last + 1 : 0;
   return page;
 }
 
 Status StoreLedger::for_each_decision(std::string_view stream, std::uint64_t from_step,
                                       const DecisionVisitor& visit) {
-  // The record count comes from the head (through the cache); the records themselves are
+  // The entry count comes from the head (through the cache); the entries themselves are
   // immutable once written, so they are read without holding the stream's lock.
-  auto info = status(stream);
-  if (!info) return info.error();
-  return store::visit_records(*store_, location(), stream, from_step == 0 ? 1 : from_step, info->tests,
-                              visit);
+  auto count = entries(stream);
+  if (!count) return count.error();
+  return store::visit_records(*store_, location(), stream, from_step == 0 ? 1 : from_step, *count, visit,
+                              false);
 }
 
 Result<VerifyReport> StoreLedger::verify(std::string_view stream, const std::vector<Anchor>& anchors) {
@@ -216,10 +227,10 @@ Result<VerifyReport> StoreLedger::verify(std::string_view stream, const std::vec
 }
 
 Result<std::string> StoreLedger::chain_hash_at(std::string_view stream, std::uint64_t step) {
-  auto info = status(stream);
-  if (!info) return info.error();
-  if (step < 1 || step > info->tests) {
-    return invalid_input("step must be between 1 and " + std::to_string(info->tests) +
+  auto count = entries(stream);
+  if (!count) return count.error();
+  if (step < 1 || step > *count) {
+    return invalid_input("step must be between 1 and " + std::to_string(*count) +
                          " (the records of stream " + in_quotes(stream) + "), got " + std::to_string(step));
   }
   auto bytes = store_->get(store::record_key(stream, step));
@@ -227,10 +238,10 @@ Result<std::string> StoreLedger::chain_hash_at(std::string_view stream, std::uin
   if (!*bytes)
     return corruption("ledger " + location() + ": the record for step " + std::to_string(step) +
                       " is missing");
-  auto rec = store::decode_record(**bytes);
+  auto rec = store::decode_entry(**bytes);
   if (!rec)
     return corruption("ledger " + location() + ": step " + std::to_string(step) + ": " + rec.error().message);
-  return store::to_hex(rec->hash);
+  return store::to_hex(rec->hash());
 }
 
 Status StoreLedger::check_format() {
@@ -295,9 +306,11 @@ Status StoreLedger::load(std::string_view name, StreamSlot& slot) {
   if (!head) return corruption(where + head.error().message);
   Rule rule(config->config);
   if (auto s = rule.restore_state(head->rule_state); !s) return corruption(where + s.error().message);
-  if (rule.tests() != head->steps) {
+  // Every test has one launch (a decision record or a launch event) in the chain, and a finish
+  // or abandon adds one more entry: never fewer entries than tests.
+  if (rule.tests() > head->steps) {
     return corruption(where + "the rule state counts " + std::to_string(rule.tests()) +
-                      " tests but the head counts " + std::to_string(head->steps));
+                      " tests but the head counts " + std::to_string(head->steps) + " chain entries");
   }
   slot.config = std::move(*config);
   slot.encoded_config = std::move(**config_bytes);
@@ -318,6 +331,8 @@ StreamInfo StoreLedger::info_of(const StreamSlot& slot) const {
   info.rejections = slot.rule->rejections();
   info.wealth = slot.rule->wealth();
   info.next_level = slot.rule->next_level();
+  info.running = slot.rule->running_count();
+  info.reserved = slot.rule->reserved();
   info.closed_at_ms = slot.head.closed_at_ms;
   return info;
 }

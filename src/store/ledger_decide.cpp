@@ -18,12 +18,27 @@ Result<DecideResult> StoreLedger::decide(std::string_view stream, std::string_vi
   if (auto s = load(stream, *slot); !s) return s.error();
   if (!slot->exists) return unknown_stream(stream, location());
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
-  auto prior = find_decided(stream, id);
-  if (!prior) return prior.error();
-  if (*prior) {
-    auto r = repeat_or_conflict(stream, **prior, p_value);
+  std::string key;
+  auto found = look_up(stream, id, key);
+  if (!found) return found.error();
+  using Phase = TestLookup::Phase;
+  if (found->phase == Phase::kDecided) {
+    auto r = repeat_or_conflict(stream, found->row, p_value);
     if (!r) return with_message(r.error(), r.error().message + " (the ledger is unchanged)");
     return r;
+  }
+  if (found->phase == Phase::kAbandoned) return not_running(stream, *found, "decide");
+  if (found->phase == Phase::kRunning) {
+    // A launched test is decided against the level reserved at its launch (a finish event).
+    slot->loaded = false;
+    WriteBatch batch;
+    auto result = finish_into(stream, *slot->rule, slot->head, found->event, p_value, batch);
+    if (!result) return result.error();  // the rule is unchanged on error; reloaded anyway
+    slot->head.rule_state = slot->rule->encode_state();
+    batch.put(store::head_key(stream), store::encode_head(slot->head));
+    if (auto s = store_->write(batch, true); !s) return s.error();
+    slot->loaded = true;
+    return result;
   }
 
   // The cached rule and head advance in place (no copy of a long exact-mode state); until the
@@ -97,6 +112,13 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
         continue;
       }
       auto found = find_decided(stream, t.id, key);
+      if (!found && found.error().kind == ErrorKind::kConflict) {  // a running or abandoned id
+        out.error = Error{ErrorKind::kConflict,
+                          "test " + std::to_string(i + 1) + " of the batch: " + found.error().message,
+                          found.error().code};
+        out.stopped_at = i;
+        return out;
+      }
       if (!found) return found.error();
       if (*found) {
         if (auto r = repeat_or_conflict(stream, **found, t.p_value); !r) {
@@ -175,25 +197,29 @@ Result<std::optional<DecisionRecord>> StoreLedger::find_decided(std::string_view
   return find_decided(stream, id, key);
 }
 
-// The same, building the index key in `key` (a buffer the caller reuses across calls).
+// The same, building the index key in `key` (a buffer the caller reuses across calls). A running
+// or abandoned id is kConflict: a batch does not finish launched tests (docs/ledger.md).
 Result<std::optional<DecisionRecord>> StoreLedger::find_decided(std::string_view stream, std::string_view id,
                                                                 std::string& key) {
-  store::assign_index_key(key, stream, id);
-  auto index = store_->get(key);
-  if (!index) return index.error();
-  if (!*index) return std::optional<DecisionRecord>{};
-  const std::string where =
-      "ledger " + location() + ", stream " + in_quotes(stream) + ", test " + in_quotes(id) + ": ";
-  auto step = store::decode_step(**index);
-  if (!step) return corruption(where + step.error().message);
-  auto bytes = store_->get(store::record_key(stream, *step));
-  if (!bytes) return bytes.error();
-  if (!*bytes)
-    return corruption(where + "the index points to step " + std::to_string(*step) + ", which has no record");
-  auto rec = store::decode_record(**bytes);
-  if (!rec) return corruption(where + rec.error().message);
-  if (rec->record.id != id) return corruption(where + "the index points to a record of another test");
-  return std::optional<DecisionRecord>{std::move(rec->record)};
+  auto found = look_up(stream, id, key);
+  if (!found) return found.error();
+  switch (found->phase) {
+    case TestLookup::Phase::kNone:
+      return std::optional<DecisionRecord>{};
+    case TestLookup::Phase::kDecided:
+      return std::optional<DecisionRecord>{std::move(found->row)};
+    case TestLookup::Phase::kRunning:
+      return with_reason(conflict("test " + in_quotes(id) + " is running (launched at " +
+                                      format_timestamp(found->event.at_ms) +
+                                      "); a batch does not finish launched tests: decide it on its own "
+                                      "(the ledger is unchanged)",
+                                  "running_test"),
+                         "running_in_batch", std::string(stream));
+    case TestLookup::Phase::kAbandoned:
+      break;
+  }
+  auto e = not_running(stream, *found, "decide");
+  return with_message(e, e.message + " (the ledger is unchanged)");
 }
 
 Result<DecideResult> StoreLedger::repeat_or_conflict(std::string_view stream, const DecisionRecord& prior,
@@ -208,6 +234,22 @@ Result<DecideResult> StoreLedger::repeat_or_conflict(std::string_view stream, co
 // Decides one new test on `rule` / `head` and adds its record and index entry to `batch`.
 DecideResult StoreLedger::decide_into(std::string_view stream, Rule& rule, StoredHead& head, std::string id,
                                       double p_value, WriteBatch& batch) {
+  if (head.steps != rule.tests()) {
+    // A finish or abandon event is in the chain, so entry numbers and launch numbers differ: the
+    // test is written as a launch event and its finish (docs/ledger-format.md "Event record").
+    EventRecord launched;
+    launched.kind = EventKind::kLaunch;
+    launched.id = std::move(id);
+    const Reservation r = rule.launch();
+    launched.launch = r.launch;
+    launched.level = r.level;
+    launched.wealth = r.wealth;
+    launched.at_ms = clock_();
+    launched.launched_at_ms = launched.at_ms;
+    append_event(stream, head, launched, batch);
+    auto finished = finish_into(stream, rule, head, launched, p_value, batch);
+    return std::move(*finished);  // cannot fail: the test was launched just above, p was validated
+  }
   const Outcome o = rule.record(p_value);
   DecisionRecord rec;
   rec.step = o.step;
@@ -217,6 +259,8 @@ DecideResult StoreLedger::decide_into(std::string_view stream, Rule& rule, Store
   rec.rejected = o.rejected;
   rec.wealth = o.wealth;
   rec.decided_at_ms = clock_();
+  rec.launch = o.step;
+  rec.launched_at_ms = rec.decided_at_ms;
   Digest hash{};
   batch.put(store::record_key(stream, rec.step), store::encode_record(rec, head.last_hash, &hash));
   batch.put(store::index_key(stream, rec.id), store::encode_step(rec.step));

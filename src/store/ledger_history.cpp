@@ -8,7 +8,16 @@
 namespace alphaledger::store {
 
 Status visit_records(Store& store, const std::string& where, std::string_view stream, std::uint64_t lo,
-                     std::uint64_t hi, const Ledger::DecisionVisitor& visit) {
+                     std::uint64_t hi, const Ledger::DecisionVisitor& visit, bool with_abandoned) {
+  return visit_entries(store, where, stream, lo, hi, [&](const ChainEntry& e) {
+    auto row = history_row(e);
+    if (!row || (row->abandoned && !with_abandoned)) return true;
+    return visit(*row);
+  });
+}
+
+Status visit_entries(Store& store, const std::string& where, std::string_view stream, std::uint64_t lo,
+                     std::uint64_t hi, const std::function<bool(const ChainEntry&)>& visit) {
   if (lo == 0 || lo > hi) return {};
   auto problem = [&](std::uint64_t step, const std::string& what) {
     return with_reason(corruption("ledger " + where + ", stream " + in_quotes(stream) + ": the record for step " +
@@ -27,18 +36,18 @@ Status visit_records(Store& store, const std::string& where, std::string_view st
         bad = problem(expected, "is missing");
         return false;
       }
-      auto rec = decode_record(value);
+      auto rec = decode_entry(value);
       if (!rec) {
         bad = problem(expected, "cannot be read: " + rec.error().message);
         return false;
       }
-      if (rec->record.step != expected) {
-        bad = problem(expected, "says step " + std::to_string(rec->record.step));
+      if (rec->entry() != expected) {
+        bad = problem(expected, "says step " + std::to_string(rec->entry()));
         return false;
       }
       ++expected;
       set_record_key_step(expected_key, expected);
-      if (!visit(rec->record)) {
+      if (!visit(*rec)) {
         stopped = true;
         return false;
       }

@@ -64,6 +64,14 @@ class StoreLedger final : public Ledger {
   Result<BatchResult> decide_batch_streamed(std::string_view stream, const std::vector<TestInput>& tests,
                                             std::size_t group_size, const GroupCallback& on_durable) override;
 
+  Result<LaunchResult> launch(std::string_view stream, std::string_view id) override;
+
+  Result<AbandonResult> abandon(std::string_view stream, std::string_view id) override;
+
+  Result<std::vector<RunningEntry>> running(std::string_view stream) override;
+
+  Result<RunningEntry> running_test(std::string_view stream, std::string_view id) override;
+
   Result<Closing> close_stream(std::string_view stream) override;
 
   Result<double> next_level(std::string_view stream) override;
@@ -128,6 +136,20 @@ class StoreLedger final : public Ledger {
 
   StreamInfo info_of(const StreamSlot& slot) const;
 
+  // The number of chain entries of an existing stream (its head's count).
+  Result<std::uint64_t> entries(std::string_view stream);
+
+  // Where an id stands: the latest chain entry the id index points to (ledger_launch.cpp).
+  struct TestLookup {
+    enum class Phase { kNone, kDecided, kRunning, kAbandoned } phase = Phase::kNone;
+    DecisionRecord row;  // kDecided, kAbandoned: the history row
+    EventRecord event;   // kRunning: the launch event; kAbandoned: the abandon event
+  };
+  Result<TestLookup> look_up(std::string_view stream, std::string_view id, std::string& key);
+  // The refusal for an id that is no longer running (decided or abandoned), for `what` (launch,
+  // abandon, decide).
+  Error not_running(std::string_view stream, const TestLookup& found, std::string_view what);
+
   // The stored decision for `id`, if any.
   Result<std::optional<DecisionRecord>> find_decided(std::string_view stream, std::string_view id);
   // The same, building the index key in `key` (a buffer the caller reuses across calls).
@@ -137,7 +159,16 @@ class StoreLedger final : public Ledger {
   Result<DecideResult> repeat_or_conflict(std::string_view stream, const DecisionRecord& prior,
                                           double p_value);
 
-  // Decides one new test on `rule` / `head` and adds its record and index entry to `batch`.
+  // Finishes running test (its launch event `launched`) with p_value and adds the finish event and
+  // index entry to `batch` (ledger_launch.cpp).
+  Result<DecideResult> finish_into(std::string_view stream, Rule& rule, StoredHead& head,
+                                   const EventRecord& launched, double p_value, WriteBatch& batch);
+  // Adds event `e` (entry and hash filled here) as the next chain entry to `batch`, with the id's
+  // index entry pointing to it, and advances `head`.
+  void append_event(std::string_view stream, StoredHead& head, EventRecord& e, WriteBatch& batch);
+
+  // Decides one new test on `rule` / `head` and adds its record and index entry to `batch`: a
+  // decision record while entry n is launch n, else a launch and a finish event.
   DecideResult decide_into(std::string_view stream, Rule& rule, StoredHead& head, std::string id,
                            double p_value, WriteBatch& batch);
 

@@ -8,6 +8,7 @@
 #include <charconv>
 #include <cmath>
 #include <cstdint>
+#include <functional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -51,8 +52,15 @@ Error unknown_stream(std::string_view name, const std::string& where);
 // step order, one at a time, reading those records and no others, until visit returns false.
 // A record that is missing, out of place or undecodable: kCorruption naming the step (the caller
 // knows from the head that steps up to hi exist). `where` is the ledger's location, for messages.
+// Entries of either version (docs/ledger-format.md "Event record"): a launch gives no row; an
+// abandon gives a row with abandoned set, visited only when `with_abandoned`.
 Status visit_records(Store& store, const std::string& where, std::string_view stream, std::uint64_t lo,
-                     std::uint64_t hi, const Ledger::DecisionVisitor& visit);
+                     std::uint64_t hi, const Ledger::DecisionVisitor& visit, bool with_abandoned = true);
+
+struct ChainEntry;
+// The same walk over the raw chain entries lo..hi.
+Status visit_entries(Store& store, const std::string& where, std::string_view stream, std::uint64_t lo,
+                     std::uint64_t hi, const std::function<bool(const ChainEntry&)>& visit);
 
 // Ledger::verify over a store (ledger_verify.cpp).
 Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::string_view stream,

@@ -1,6 +1,7 @@
 // Ledger::verify: one pass over a stream's records, replaying them through the rule, holding one
 // record at a time; then the head, the closing entry, the id index and the anchors.
 #include <algorithm>
+#include <map>
 #include <optional>
 
 #include "alphaledger/text.hpp"
@@ -105,6 +106,90 @@ Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::
   std::string expected_key = record_key(stream, 1);  // rewritten in place for each next step
   std::optional<VerifyReport> bad;
   std::optional<Error> io_error;
+  // Tests launched and not yet finished or abandoned in the walk: their id, launch entry and time,
+  // and where the id index points (memory: the running tests, not the history).
+  struct Launched {
+    std::string id;
+    std::uint64_t entry = 0;
+    std::int64_t at_ms = 0;
+    std::optional<std::uint64_t> indexed;
+  };
+  std::map<std::uint64_t, Launched> running_ids;
+  std::uint64_t launches = 0;  // tests launched: decision records and launch events (one id each)
+  auto mismatch = [](const char* what, double got, double stored) {
+    return "replaying the rule gives " + std::string(what) + " " + readable_number(got) +
+           " but the record has " + readable_number(stored);
+  };
+  // Replays one entry through the rule; the problem text when it disagrees.
+  auto replay_entry = [&](const ChainEntry& e) -> std::optional<std::string> {
+    if (!e.is_event) {
+      const DecisionRecord& r = e.record.record;
+      if (auto v = validate_p_value(r.p_value); !v) return "the stored " + v.error().message;
+      const Outcome o = rule.record(r.p_value);
+      ++launches;
+      if (o.step != r.step) {
+        return "a decision record at step " + std::to_string(r.step) + " is launch " + std::to_string(o.step) +
+               "; decision records are only written while each step is a launch";
+      }
+      if (!same_bits(o.level, r.level) || o.rejected != r.rejected || !same_bits(o.wealth, r.wealth)) {
+        return "replaying the rule gives level " + readable_number(o.level) + ", rejected " +
+               (o.rejected ? "1" : "0") + ", wealth " + readable_number(o.wealth) + " but the record has level " +
+               readable_number(r.level) + ", rejected " + (r.rejected ? "1" : "0") + ", wealth " +
+               readable_number(r.wealth);
+      }
+      return std::nullopt;
+    }
+    const EventRecord& ev = e.event.event;
+    if (ev.kind == EventKind::kLaunch) {
+      const Reservation r = rule.launch();
+      ++launches;
+      if (r.launch != ev.launch) {
+        return "the launch event says launch " + std::to_string(ev.launch) + " but it is launch " +
+               std::to_string(r.launch);
+      }
+      if (!same_bits(r.level, ev.level)) return mismatch("the reserved level", r.level, ev.level);
+      if (!same_bits(r.wealth, ev.wealth)) return mismatch("wealth", r.wealth, ev.wealth);
+      running_ids.emplace(ev.launch, Launched{ev.id, ev.entry, ev.at_ms, std::nullopt});
+      return std::nullopt;
+    }
+    const std::string what(event_kind_name(ev.kind));
+    auto it = running_ids.find(ev.launch);
+    if (it == running_ids.end()) {
+      return "the " + what + " event names launch " + std::to_string(ev.launch) +
+             ", which is not a running launch event before it";
+    }
+    if (it->second.id != ev.id) {
+      return "the " + what + " event names test " + in_quotes(excerpt(ev.id)) + " but launch " +
+             std::to_string(ev.launch) + " is test " + in_quotes(excerpt(it->second.id));
+    }
+    if (ev.launched_at_ms != it->second.at_ms) {
+      return "the " + what + " event says the test was launched at " + format_timestamp(ev.launched_at_ms) +
+             " but its launch event says " + format_timestamp(it->second.at_ms);
+    }
+    if (ev.kind == EventKind::kFinish) {
+      if (auto v = validate_p_value(ev.p_value); !v) return "the stored " + v.error().message;
+      auto o = rule_takes_e_values(rule.config().kind) ? rule.finish_e(ev.launch, ev.p_value)
+                                                       : rule.finish(ev.launch, ev.p_value);
+      if (!o) return "the rule refuses the finish: " + o.error().message;
+      if (!same_bits(o->level, ev.level) || o->rejected != ev.rejected || !same_bits(o->wealth, ev.wealth)) {
+        return "replaying the rule gives reserved level " + readable_number(o->level) + ", rejected " +
+               (o->rejected ? "1" : "0") + ", wealth " + readable_number(o->wealth) +
+               " but the finish event has level " + readable_number(ev.level) + ", rejected " +
+               (ev.rejected ? "1" : "0") + ", wealth " + readable_number(ev.wealth);
+      }
+    } else {
+      const double reserved = [&] {
+        for (const auto& t : rule.running())
+          if (t.launch == ev.launch) return t.level;
+        return 0.0;
+      }();
+      if (auto st = rule.abandon(ev.launch); !st) return "the rule refuses the abandon: " + st.error().message;
+      if (!same_bits(reserved, ev.level)) return mismatch("the reserved level", reserved, ev.level);
+      if (!same_bits(rule.wealth(), ev.wealth)) return mismatch("wealth", rule.wealth(), ev.wealth);
+    }
+    running_ids.erase(it);
+    return std::nullopt;
+  };
   auto s = store.scan(record_prefix(stream), [&](std::string_view key, std::string_view value) {
     const std::string step_text = "step " + std::to_string(expected);
     if (key != expected_key) {
@@ -112,22 +197,21 @@ Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::
                  "the record for " + step_text + " is missing (next stored key is " + excerpt(key, 80) + ")");
       return false;
     }
-    auto rec = decode_record(value);
+    auto rec = decode_entry(value);
     if (!rec) {
       bad = fail(expected, "the record cannot be read: " + rec.error().message);
       return false;
     }
-    const DecisionRecord& r = rec->record;
-    if (r.step != expected) {
-      bad = fail(expected, "the record stored at " + step_text + " says step " + std::to_string(r.step) +
+    if (rec->entry() != expected) {
+      bad = fail(expected, "the record stored at " + step_text + " says step " + std::to_string(rec->entry()) +
                                " (records were moved or reordered)");
       return false;
     }
-    if (recompute_record_hash(value) != rec->hash) {
+    if (recompute_record_hash(value) != rec->hash()) {
       bad = fail(expected, "the record's contents do not match its hash (the record was changed)");
       return false;
     }
-    if (rec->prev_hash != prev) {
+    if (rec->prev_hash() != prev) {
       if (expected == 1) {
         bad = fail(1,
                    "the first record does not link to the stream's configuration (the configuration "
@@ -138,21 +222,16 @@ Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::
       }
       return false;
     }
-    if (auto v = validate_p_value(r.p_value); !v) {
-      bad = fail(expected, "the stored " + v.error().message);
+    if (auto problem = replay_entry(*rec)) {
+      bad = fail(expected, *problem);
       return false;
     }
-    const Outcome o = rule.record(r.p_value);
-    if (!same_bits(o.level, r.level) || o.rejected != r.rejected || !same_bits(o.wealth, r.wealth)) {
-      bad = fail(expected, "replaying the rule gives level " + readable_number(o.level) + ", rejected " +
-                               (o.rejected ? "1" : "0") + ", wealth " + readable_number(o.wealth) +
-                               " but the record has level " + readable_number(r.level) + ", rejected " +
-                               (r.rejected ? "1" : "0") + ", wealth " + readable_number(r.wealth));
-      return false;
-    }
-    // Each record's id must point back to its own step. With the count check below, this makes
-    // the index and the records agree one to one without holding every id in memory.
-    auto index = store.get(index_key(stream, r.id));
+    const std::string& id = rec->id();
+    // Each decided or abandoned test's id must point back to its own entry; a launch's id to the
+    // launch while it runs, else to its finish or abandon (checked there, and for the tests still
+    // running after the walk). With the count check below, this makes the index and the tests
+    // agree one to one without holding every id in memory.
+    auto index = store.get(index_key(stream, id));
     if (!index) {
       io_error = index.error();
       return false;
@@ -161,25 +240,27 @@ Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::
     if (*index) {
       if (auto st = decode_step(**index); st) indexed = *st;
     }
-    if (!indexed || *indexed != expected) {
+    const bool is_launch = rec->is_event && rec->event.event.kind == EventKind::kLaunch;
+    if (is_launch) running_ids.at(rec->event.event.launch).indexed = indexed;
+    if (!indexed || (is_launch ? *indexed < expected : *indexed != expected)) {
       std::string twice;
       if (indexed && *indexed < expected) {  // is it an earlier record with the same id?
         auto earlier = store.get(record_key(stream, *indexed));
         if (earlier && *earlier) {
-          auto e = decode_record(**earlier);
-          if (e && e->record.id == r.id) twice = " (the id appears twice in the history)";
+          auto e = decode_entry(**earlier);
+          if (e && e->id() == id) twice = " (the id appears twice in the history)";
         }
       }
-      bad = fail(expected, "the test id index for " + in_quotes(excerpt(r.id)) + " points to " +
+      bad = fail(expected, "the test id index for " + in_quotes(excerpt(id)) + " points to " +
                                (indexed ? "step " + std::to_string(*indexed) : std::string("no valid step")) +
                                twice);
       return false;
     }
-    if (auto p = anchor_problem(expected, rec->hash)) {
+    if (auto p = anchor_problem(expected, rec->hash())) {
       bad = fail(expected, *p);
       return false;
     }
-    prev = rec->hash;
+    prev = rec->hash();
     ++expected;
     set_record_key_step(expected_key, expected);
     return true;
@@ -211,6 +292,13 @@ Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::
   if (head->rule_state != rule.encode_state()) {
     return fail(steps, "the stored rule state does not equal the state replayed from the history");
   }
+  for (const auto& [launch, t] : running_ids) {
+    if (t.indexed != t.entry) {
+      return fail(t.entry, "the test id index for running test " + in_quotes(excerpt(t.id)) + " points to " +
+                               (t.indexed ? "step " + std::to_string(*t.indexed) : std::string("no valid step")) +
+                               ", not to its launch");
+    }
+  }
   // Every record's id points to its own step, so the ids are distinct and each has its entry:
   // the index agrees with the records exactly when it holds no more entries than there are records.
   const std::string index_prefix_text = index_prefix(stream);
@@ -220,7 +308,7 @@ Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::
     return true;
   });
   if (!s) return s.error();
-  if (entries != steps) {
+  if (entries != launches) {
     // Find the entry without a record, to name it.
     std::optional<VerifyReport> index_bad;
     s = store.scan(index_prefix_text, [&](std::string_view key, std::string_view value) {
@@ -234,8 +322,8 @@ Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::
           return false;
         }
         if (*bytes) {
-          auto rec = decode_record(**bytes);
-          has_record = rec && rec->record.id == id;
+          auto rec = decode_entry(**bytes);
+          has_record = rec && rec->id() == id;
         }
       }
       if (!has_record) {
@@ -248,7 +336,7 @@ Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::
     if (io_error) return *io_error;
     if (index_bad) return *index_bad;
     return fail(0, "the test id index holds " + std::to_string(entries) + " entries for " +
-                       std::to_string(steps) + " records");
+                       std::to_string(launches) + " tests");
   }
   // Anchors past the last record: the ledger lost its tail (or the anchor is not from here).
   if (next_anchor < step_anchors.size()) {

@@ -39,6 +39,8 @@ DecideResult sample_decision() {
   d.record.rejected = true;
   d.record.wealth = 0.07466975969353125;
   d.record.decided_at_ms = 1700000000001;
+  d.record.launch = 1;
+  d.record.launched_at_ms = 1700000000001;
   return d;
 }
 
@@ -64,7 +66,7 @@ TEST_CASE("forms: decision_json has the documented keys and round-trips numbers"
   const DecideResult d = sample_decision();
   const Json j = Json::parse(decision_json(d));
   CHECK(keys_of(j) == std::vector<std::string>{"step", "id", "p_value", "level", "rejected", "wealth",
-                                               "stream", "decided_at", "repeat"});
+                                               "stream", "decided_at", "launch", "launched_at", "repeat"});
   CHECK(j["id"] == "exp \"1\"");
   CHECK(same_bits(j["level"].get<double>(), d.record.level));
   CHECK(same_bits(j["wealth"].get<double>(), d.record.wealth));
@@ -87,7 +89,8 @@ TEST_CASE("forms: non-finite numbers are null in JSON and empty in CSV") {
   CHECK(row["level"].is_null());
   CHECK(row["wealth"].is_null());
   CHECK(row["p_value"] == 0.0004);
-  CHECK(history_row_csv(r, "lord++") == "lord++,1,\"exp \"\"1\"\"\",4e-04,,1,,2023-11-14T22:13:20.001Z");
+  CHECK(history_row_csv(r, "lord++") ==
+        "lord++,1,\"exp \"\"1\"\"\",4e-04,,1,,2023-11-14T22:13:20.001Z,1,2023-11-14T22:13:20.001Z,0");
   DecideResult d = sample_decision();
   d.record = r;
   CHECK(Json::parse(decision_json(d))["level"].is_null());
@@ -104,8 +107,9 @@ TEST_CASE("forms: stream_json shows alternative and closed_at only when they app
   REQUIRE(keys.size() >= 8);
   CHECK(std::vector<std::string>(keys.begin(), keys.begin() + 3) ==
         std::vector<std::string>{"stream", "rule", "alpha"});
-  CHECK(std::vector<std::string>(keys.end() - 5, keys.end()) ==
-        std::vector<std::string>{"created_at", "tests", "rejections", "wealth", "next_level"});
+  CHECK(std::vector<std::string>(keys.end() - 7, keys.end()) ==
+        std::vector<std::string>{"created_at", "tests", "rejections", "wealth", "next_level", "running",
+                                 "reserved"});
   CHECK_FALSE(plain.contains("alternative"));
   CHECK_FALSE(plain.contains("closed_at"));
   StreamInfo closed = sample_stream(Alternative::kGreater);
@@ -122,6 +126,40 @@ TEST_CASE("forms: stream_json shows alternative and closed_at only when they app
   const Json list = Json::parse(stream_list_json({sample_stream(Alternative::kLess), closed}));
   REQUIRE(list["streams"].size() == 2);
   CHECK(list["streams"][0]["alternative"] == "less");
+}
+
+// The launch-time forms (docs/formats.md "Output forms"): keys in this order; numbers read back
+// to the identical double (nlohmann::json 3.11 parser as the reader; common practice, no source).
+TEST_CASE("forms: launch, abandon and running forms have the documented keys") {
+  LaunchResult l;
+  l.stream.append("s");
+  l.id.append("exp-0150");
+  l.launch = 3;
+  l.level = 0.0009301234567891234;
+  l.wealth = 0.021;
+  l.launched_at_ms = 1700000000000;
+  l.step = 4;
+  const Json lj = Json::parse(launch_json(l));
+  CHECK(keys_of(lj) ==
+        std::vector<std::string>{"stream", "id", "launch", "level", "wealth", "launched_at", "step", "repeat"});
+  CHECK(same_bits(lj["level"].get<double>(), l.level));
+  CHECK(lj["launched_at"] == "2023-11-14T22:13:20.000Z");
+  AbandonResult a;
+  a.stream.append("s");
+  a.id.append("x");
+  a.abandoned_at_ms = 1700000001000;
+  CHECK(keys_of(Json::parse(abandon_json(a))) ==
+        std::vector<std::string>{"stream", "id", "launch", "level", "wealth", "launched_at", "abandoned_at",
+                                 "step", "repeat"});
+  RunningEntry r;  // field by field: GCC 12's -Wrestrict misfires on the aggregate (GCC PR 105651)
+  r.id.append("exp \"2\"");
+  r.launch = 5;
+  r.level = 0.25;
+  r.launched_at_ms = 1700000000000;
+  CHECK(running_csv(r) == "\"exp \"\"2\"\"\",5,0.25,2023-11-14T22:13:20.000Z");
+  const Json list = Json::parse(running_list_json("s", {r}));
+  REQUIRE(list["running"].size() == 1);
+  CHECK(keys_of(list["running"][0]) == std::vector<std::string>{"stream", "id", "launch", "level", "launched_at"});
 }
 
 TEST_CASE("forms: verify_json has one shape for ok and failed reports") {

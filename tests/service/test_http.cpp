@@ -611,5 +611,59 @@ TEST_CASE("Server: a second serve on the same address refuses to start (exit 4, 
   CHECK(first.stop() == std::optional<int>(0));
 }
 
+
+// The launch-time routes (docs/http.md): the same idempotence and status codes as decide (201 new,
+// 200 repeat, 404 unknown, 409 refused), the decision at the reserved level (docs/methods.md 9.1),
+// and the running list and stream status answering what the CLI prints.
+TEST_CASE("Server: launches, abandon and running tests") {
+  TempDir dir;
+  const std::string db = dir.file("db");
+  std::string running;
+  {
+    ServerProcess server(db, dir.file("server.log"));
+    Api api(server.port());
+    REQUIRE(api.post("/v1/streams", R"({"name": "team", "rule": "lord++"})").status == 201);
+    const Reply l1 = api.post("/v1/streams/team/launches", R"({"id": "exp-1"})");
+    REQUIRE(l1.status == 201);
+    CHECK(l1.body["launch"] == 1);
+    const Reply l1again = api.post("/v1/streams/team/launches", R"({"id": "exp-1"})");
+    CHECK(l1again.status == 200);
+    CHECK(l1again.body["repeat"] == true);
+    CHECK(l1again.body["level"] == l1.body["level"]);
+    REQUIRE(api.post("/v1/streams/team/launches", R"({"id": "exp-2"})").status == 201);
+    CHECK(api.post("/v1/streams/team/launches", R"({"name": "exp-3"})").status == 400);
+    const Reply status = api.get("/v1/streams/team");
+    CHECK(status.body["running"] == 2);
+    const Reply d = api.decide("team", "exp-1", 0.0001);
+    REQUIRE(d.status == 201);
+    CHECK(d.body["level"] == l1.body["level"]);
+    CHECK(d.body["launch"] == 1);
+    const Reply ab = api.post("/v1/streams/team/tests/exp-2/abandon", "");
+    REQUIRE(ab.status == 201);
+    CHECK(api.post("/v1/streams/team/tests/exp-2/abandon", "").status == 200);
+    const Reply unknown = api.post("/v1/streams/team/tests/nope/abandon", "");
+    CHECK(unknown.status == 404);
+    CHECK(unknown.body["error"]["code"] == "unknown_test");
+    const Reply decided = api.post("/v1/streams/team/tests/exp-1/abandon", "");
+    CHECK(decided.status == 409);
+    CHECK(decided.body["error"]["code"] == "decided_test");
+    CHECK(api.decide("team", "exp-2", 0.1).status == 409);  // abandoned
+    CHECK(api.post("/v1/streams/team/launches", R"({"id": "exp-1"})").status == 409);
+    REQUIRE(api.post("/v1/streams/team/launches", R"({"id": "exp-4"})").status == 201);
+    const Reply list = api.get("/v1/streams/team/running");
+    REQUIRE(list.status == 200);
+    REQUIRE(list.body["running"].size() == 1);
+    CHECK(list.body["running"][0]["id"] == "exp-4");
+    CHECK(api.get("/v1/streams/nope/running").status == 404);
+    running = list.raw;
+    api.close();
+    REQUIRE(server.stop() == std::optional<int>(0));
+  }
+  // The CLI's running --json prints the same objects, one a line.
+  const auto parsed = nlohmann::ordered_json::parse(running);
+  CHECK(parsed["running"][0].dump() + "\n" == cli_output(dir, {"--ledger", db, "--json", "running", "team"}));
+  CHECK(cli_output(dir, {"--ledger", db, "verify", "team"}).find("ok") != std::string::npos);
+}
+
 }  // namespace
 }  // namespace alphaledger

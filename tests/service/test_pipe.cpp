@@ -502,5 +502,43 @@ TEST_CASE("replay reads standard input when the file is '-'") {
   CHECK(lines[2].find(",b,") != std::string::npos);
 }
 
+
+// Launch and abandon lines (docs/http.md "Launch and abandon lines"): answered in order with the
+// forms of launch --json and abandon --json; a decide of a launched id uses the reserved level
+// (docs/methods.md 9.1: the level is fixed at launch); retries are repeats; refusals name the line.
+TEST_CASE("Pipe: launch and abandon events, finishing at the reserved level, in input order") {
+  PipeFixture f;
+  const std::string input = std::string(R"({"event":"launch","id":"e1"})") + "\n" +
+                            R"({"event":"launch","id":"e2"})" + "\n" + test_line("n1", 0.0001) + "\n" +
+                            test_line("e1", 0.0002) + "\n" + R"({"event":"abandon","id":"e2"})" + "\n" +
+                            R"({"event":"launch","id":"e1"})" + "\n" + R"({"event":"abandon","id":"zz"})" +
+                            "\n" + R"({"event":"stop","id":"e3"})" + "\n" + R"({"event":"abandon","id":"e2"})" +
+                            "\n";
+  auto [summary, answers] = f.run(input);
+  REQUIRE(summary.ok());
+  REQUIRE(answers.size() == 9);
+  const auto e1 = nlohmann::json::parse(answers[0]);
+  CHECK(e1["launch"] == 1);
+  CHECK(e1["repeat"] == false);
+  const auto n1 = nlohmann::json::parse(answers[2]);
+  CHECK(n1["launch"] == 3);
+  const auto d1 = nlohmann::json::parse(answers[3]);
+  CHECK(d1["id"] == "e1");
+  CHECK(d1["level"].get<double>() == e1["level"].get<double>());
+  CHECK(d1["launch"] == 1);
+  CHECK(nlohmann::json::parse(answers[4])["abandoned_at"].is_string());
+  CHECK(answers[5].find("\"line\":6") != std::string::npos);  // e1 was decided: no second launch
+  CHECK(answers[6].find("\"line\":7") != std::string::npos);  // zz never launched
+  CHECK(answers[6].find("zz") != std::string::npos);
+  CHECK(answers[7].find("unknown event") != std::string::npos);
+  CHECK(nlohmann::json::parse(answers[8])["repeat"] == true);
+  CHECK(summary->bad == 3);
+  auto v = f.ledger->verify("s");
+  REQUIRE(v.ok());
+  CHECK(v->ok);
+  auto status = f.ledger->status("s");
+  CHECK(status->running == 0);
+}
+
 }  // namespace
 }  // namespace alphaledger
