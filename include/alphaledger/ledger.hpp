@@ -28,6 +28,7 @@
 #include <functional>
 #include <memory>
 #include <optional>
+#include <span>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -84,6 +85,13 @@ struct DecideResult {
 
 struct TestInput {
   std::string id;
+  double p_value = 0;
+};
+
+// A test of a batch whose id the caller holds (decide --file points into the log it read, so a
+// 10^6-row log is not copied into 10^6 strings). The id must outlive the call.
+struct TestView {
+  std::string_view id;
   double p_value = 0;
 };
 
@@ -176,7 +184,9 @@ class Ledger {
   // Only a storage failure can stop a batch part-way: the groups written before it stay
   // durable and are returned in `decided`.
   struct BatchResult {
-    std::vector<DecideResult> decided;  // durable, in input order (repeats included)
+    std::vector<DecideResult> decided;  // durable, in input order (repeats included); empty
+                                        // from decide_batch_streamed, whose callback gets them
+    std::size_t durable = 0;            // rows decided and durable (repeats included)
     std::optional<Error> error;         // set if the batch was refused or stopped early
     std::size_t stopped_at = 0;         // index of the input that failed, when error is set
   };
@@ -192,11 +202,19 @@ class Ledger {
 
   // decide_batch that also calls on_durable(group) after each group is synced (and before the
   // next group is decided), with that group's results in input order, repeats included. The CLI
-  // prints each group there, so nothing is printed before it is durable. on_durable runs with
-  // the stream's lock held: it must not call back into this Ledger for the same stream.
+  // prints each group there, so nothing is printed before it is durable. With on_durable set, the
+  // results are not also kept in BatchResult::decided (`durable` counts them), so memory does not
+  // grow with the batch. on_durable runs with the stream's lock held: it must not call back into
+  // this Ledger for the same stream.
   using GroupCallback = std::function<void(const std::vector<DecideResult>&)>;
   virtual Result<BatchResult> decide_batch_streamed(std::string_view stream,
                                                     const std::vector<TestInput>& tests,
+                                                    std::size_t group_size,
+                                                    const GroupCallback& on_durable) = 0;
+  // The same over views of the tests (nothing copied). Besides the tests and one result group,
+  // a batch holds about 9 bytes per row while it runs (a row number in a hash table of the new
+  // ids and one per row for repeats); a batch holds at most 2^32 - 2 tests (more: kInvalidArgument).
+  virtual Result<BatchResult> decide_batch_streamed(std::string_view stream, std::span<const TestView> tests,
                                                     std::size_t group_size,
                                                     const GroupCallback& on_durable) = 0;
 

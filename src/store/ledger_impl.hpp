@@ -64,6 +64,9 @@ class StoreLedger final : public Ledger {
   Result<BatchResult> decide_batch_streamed(std::string_view stream, const std::vector<TestInput>& tests,
                                             std::size_t group_size, const GroupCallback& on_durable) override;
 
+  Result<BatchResult> decide_batch_streamed(std::string_view stream, std::span<const TestView> tests,
+                                            std::size_t group_size, const GroupCallback& on_durable) override;
+
   Result<Closing> close_stream(std::string_view stream) override;
 
   Result<double> next_level(std::string_view stream) override;
