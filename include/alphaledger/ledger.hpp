@@ -211,9 +211,9 @@ class Ledger {
                                                     const std::vector<TestInput>& tests,
                                                     std::size_t group_size,
                                                     const GroupCallback& on_durable) = 0;
-  // The same over views of the tests (nothing copied). Besides the tests and one result group,
-  // a batch holds about 9 bytes per row while it runs (a row number in a hash table of the new
-  // ids and one per row for repeats); a batch holds at most 2^32 - 2 tests (more: kInvalidArgument).
+  // The same over views of the tests (nothing copied). Besides them and one result group, a batch
+  // holds 12 to 20 bytes a row (a 32-bit row number a row, a table of 32-bit row numbers of the new
+  // ids with 2 to 4 slots a row); at most 2^32 - 3 tests (more: kInvalidArgument).
   virtual Result<BatchResult> decide_batch_streamed(std::string_view stream, std::span<const TestView> tests,
                                                     std::size_t group_size,
                                                     const GroupCallback& on_durable) = 0;
