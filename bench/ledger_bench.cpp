@@ -27,6 +27,7 @@
 #include <cstdlib>
 #include <ctime>
 #include <filesystem>
+#include <memory>
 #include <random>
 #include <string>
 #include <vector>
@@ -125,8 +126,7 @@ std::string bench_id(std::size_t i) {
 // The ledger's CPU cost per decision without a disk: decide_batch on the in-memory store, 4096
 // decisions per write, with the rule `config` (ids and p-values built before the clock starts).
 void memory_batch(const std::vector<double>& p, double seconds, const RuleConfig& config, const char* label) {
-  MemoryStore mem;
-  auto ledger = must(Ledger::open(borrow_store(mem)));
+  auto ledger = must(Ledger::open(std::make_unique<MemoryStore>()));
   if (!ledger->create_stream("bench", config)) std::exit(1);
   constexpr std::size_t kGroup = 4096;
   std::size_t done = 0;
@@ -326,8 +326,7 @@ int main(int argc, char** argv) {
     report("read-only open + next_level + close", ops, seconds_since(t_ro));
   }
   {
-    MemoryStore mem;
-    auto ledger = must(Ledger::open(borrow_store(mem)));
+    auto ledger = must(Ledger::open(std::make_unique<MemoryStore>()));
     if (!ledger->create_stream("bench", lord())) return 1;
     std::size_t ops = 0;
     const auto t0 = SteadyClock::now();

@@ -28,6 +28,7 @@
 #include <functional>
 #include <memory>
 #include <optional>
+#include <span>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -132,6 +133,13 @@ struct TestInput {
   double p_value = 0;
 };
 
+// A test of a batch whose id the caller holds (decide --file points into the log it read, so a
+// 10^6-row log is not copied into 10^6 strings). The id must outlive the call.
+struct TestView {
+  std::string_view id;
+  double p_value = 0;
+};
+
 // A chain hash noted earlier (from verify's output), to check that the ledger still holds it:
 // the record at `step` must have this chain hash. Step 0 names the configuration (the chain's
 // start); `closing` names the closing entry of a closed stream instead of a step.
@@ -223,7 +231,9 @@ class Ledger {
   // Only a storage failure can stop a batch part-way: the groups written before it stay
   // durable and are returned in `decided`.
   struct BatchResult {
-    std::vector<DecideResult> decided;  // durable, in input order (repeats included)
+    std::vector<DecideResult> decided;  // durable, in input order (repeats included); empty
+                                        // from decide_batch_streamed, whose callback gets them
+    std::size_t durable = 0;            // rows decided and durable (repeats included)
     std::optional<Error> error;         // set if the batch was refused or stopped early
     std::size_t stopped_at = 0;         // index of the input that failed, when error is set
   };
@@ -239,11 +249,19 @@ class Ledger {
 
   // decide_batch that also calls on_durable(group) after each group is synced (and before the
   // next group is decided), with that group's results in input order, repeats included. The CLI
-  // prints each group there, so nothing is printed before it is durable. on_durable runs with
-  // the stream's lock held: it must not call back into this Ledger for the same stream.
+  // prints each group there, so nothing is printed before it is durable. With on_durable set, the
+  // results are not also kept in BatchResult::decided (`durable` counts them), so memory does not
+  // grow with the batch. on_durable runs with the stream's lock held: it must not call back into
+  // this Ledger for the same stream.
   using GroupCallback = std::function<void(const std::vector<DecideResult>&)>;
   virtual Result<BatchResult> decide_batch_streamed(std::string_view stream,
                                                     const std::vector<TestInput>& tests,
+                                                    std::size_t group_size,
+                                                    const GroupCallback& on_durable) = 0;
+  // The same over views of the tests (nothing copied). Besides them and one result group, a batch
+  // holds 12 to 20 bytes a row (a 32-bit row number a row, a table of 32-bit row numbers of the new
+  // ids with 2 to 4 slots a row); at most 2^32 - 3 tests (more: kInvalidArgument).
+  virtual Result<BatchResult> decide_batch_streamed(std::string_view stream, std::span<const TestView> tests,
                                                     std::size_t group_size,
                                                     const GroupCallback& on_durable) = 0;
 

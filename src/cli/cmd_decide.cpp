@@ -2,8 +2,10 @@
 #include <spdlog/spdlog.h>
 #include <unistd.h>
 
+#include <cstdint>
 #include <cstdio>
 #include <iostream>
+#include <memory>
 
 #include "alphaledger/forms.hpp"
 #include "alphaledger/test_log.hpp"
@@ -56,10 +58,19 @@ Status run_decide_one(const DecideOptions& o, const GlobalOptions& g, std::ostre
   return {};
 }
 
-// The tests of a --file log, in decision order; the log keeps the line numbers for messages.
+// The tests of a --file log, in decision order, as views into the log's ids (not copied), and
+// each row's source line for messages. The log's 48-byte rows are released once these are built;
+// the moment both exist (about 48 + 24 bytes a row, plus the ids) is the command's peak memory.
 struct BatchInput {
-  CompactLog log;
-  std::vector<TestInput> inputs;
+  std::string source;                // the log's name in messages
+  std::unique_ptr<std::string> ids;  // every id, back to back (the log's arena), never moved
+  std::vector<TestView> tests;       // ids point into *ids
+  // Most logs are decided in file order with one row a line: row i is on line first_line + i, and
+  // no line numbers are kept. Otherwise (a log sorted by finished_at) lines[i] is row i's line.
+  std::uint64_t first_line = 0;
+  std::vector<std::uint64_t> lines;
+
+  std::uint64_t line_of(std::size_t row) const { return lines.empty() ? first_line + row : lines[row]; }
 };
 
 Result<BatchInput> read_batch(const DecideOptions& o, const StreamInfo& info) {
@@ -70,10 +81,25 @@ Result<BatchInput> read_batch(const DecideOptions& o, const StreamInfo& info) {
   read_options.alternative = info.alternative;  // summary rows in the stream's direction
   auto log = read_log_argument(*o.file, forced, read_options);
   if (!log) return log.error();
-  BatchInput b{std::move(*log), {}};
-  b.inputs.reserve(b.log.size());
-  for (const auto& r : b.log.records) b.inputs.push_back({std::string(b.log.id(r)), r.p_value});
-  b.log.ids = {};  // the inputs hold the ids now; the records keep the line numbers for messages
+  BatchInput b;
+  b.source = std::move(log->source);
+  // On the heap, so that moving `b` (into the Result) cannot move the bytes the views point to
+  // (a short string would be copied, not handed over); trimmed to its size (it grew by doubling).
+  b.ids = std::make_unique<std::string>(std::move(log->ids));
+  b.ids->shrink_to_fit();
+  const std::string_view ids = *b.ids;
+  const auto& records = log->records;
+  if (!records.empty()) b.first_line = records.front().line;
+  bool in_file_order = true;
+  for (std::size_t i = 0; i < records.size() && in_file_order; ++i) {
+    in_file_order = records[i].line == b.first_line + i;
+  }
+  b.tests.reserve(records.size());
+  if (!in_file_order) b.lines.reserve(records.size());
+  for (const auto& r : records) {
+    b.tests.push_back({ids.substr(r.id_offset, r.id_size), r.p_value});
+    if (!in_file_order) b.lines.push_back(r.line);
+  }
   return b;
 }
 
@@ -116,11 +142,10 @@ class BatchPrinter {
 };
 
 // The error that stopped a batch, with where in the log it happened.
-Error batch_error(const Ledger::BatchResult& batch, const CompactLog& log) {
-  const CompactRecord& at = log.records[batch.stopped_at];
+Error batch_error(const Ledger::BatchResult& batch, const BatchInput& input) {
   Error e = *batch.error;
-  e.message = log.source + ":" + std::to_string(at.line) + ": " + e.message;
-  if (is_storage_failure(e.kind) && !batch.decided.empty()) {
+  e.message = input.source + ":" + std::to_string(input.line_of(batch.stopped_at)) + ": " + e.message;
+  if (is_storage_failure(e.kind) && batch.durable > 0) {
     e.message += " (the rows printed above are decided and durable; run the same command again to resume)";
   }
   return e;
@@ -134,18 +159,18 @@ Status run_decide_file(const DecideOptions& o, const GlobalOptions& g, std::ostr
   if (!info) return info.error();
   auto batch_input = read_batch(o, *info);
   if (!batch_input) return batch_input.error();
-  const auto& [log, inputs] = *batch_input;
+  const BatchInput& input = *batch_input;
 
-  BatchPrinter printer(out, g.json, std::string(rule_name(info->config.kind)), inputs.size());
+  BatchPrinter printer(out, g.json, std::string(rule_name(info->config.kind)), input.tests.size());
   printer.header();
-  auto batch = (*ledger)->decide_batch_streamed(o.stream, inputs, o.sync_every,
+  auto batch = (*ledger)->decide_batch_streamed(o.stream, std::span<const TestView>(input.tests), o.sync_every,
                                                 [&](const std::vector<DecideResult>& group) {
                                                   printer.print(group);  // after the group's sync
                                                 });
   printer.finish();
   if (!batch) return batch.error();
-  if (batch->error) return batch_error(*batch, log);
-  spdlog::info("decided {} tests from {}: {} new, {} already in the ledger", printer.done(), log.source,
+  if (batch->error) return batch_error(*batch, input);
+  spdlog::info("decided {} tests from {}: {} new, {} already in the ledger", printer.done(), input.source,
                printer.done() - printer.repeats(), printer.repeats());
   return {};
 }

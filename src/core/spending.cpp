@@ -4,6 +4,7 @@
 #include <algorithm>
 #include <atomic>
 #include <charconv>
+#include <iterator>
 #include <cmath>
 #include <limits>
 #include <map>
@@ -27,6 +28,36 @@ constexpr std::size_t kEagerTableSize = 4096;
 constexpr std::uint32_t kLazyMisses = 1024;  // formula calls past the eager part before filling
 constexpr std::size_t kJmHeadLags = 16;      // methods.md 15.4(b) hybrid: exact head L = 16
 constexpr double kMixtureMass = 1.0 - 1e-9;  // methods.md 15.6: strict validity margin
+
+// The hybrid mixture of the default sequence "jm" as fit_hybrid_mixture() returns it (the derived
+// vectors come from GeometricMixture::finish()). Fitting it (NNLS over 35 timescales) was about a
+// quarter of the CPU time of a read command on a fast-mode stream (docs/benchmarks.md "CLI fixed
+// cost"), so the default sequence uses these stored values; other jm:C are fitted on first use.
+// tests/core/test_mixture_stored.cpp checks that a fresh fit gives exactly these bits.
+constexpr double kJmHead[] = {
+    0x1.c10c507b36102p-5, 0x1.869d74dd0393ep-7, 0x1.4cb1e2f9737e2p-7, 0x1.14ae797aaf299p-7,
+    0x1.d523214895f4bp-8, 0x1.95d6d2501e78bp-8, 0x1.65132699c44a9p-8, 0x1.3e87941aec9d7p-8,
+    0x1.1f5d496809ebdp-8, 0x1.05ace53d5f162p-8, 0x1.e04d2a3bc71e9p-9, 0x1.bbb931dfdf43fp-9,
+    0x1.9c44c3c66087p-9, 0x1.80efc26869c4p-9, 0x1.68f8531d656a8p-9, 0x1.53c9244c518a9p-9,
+};
+constexpr double kJmWeight[] = {
+    0x1.fb6aca6ed25f9p-7, 0x1.9fbd26f5415b8p-6, 0x1.e9f19cec637bdp-6, 0x1.089380d6e5612p-5,
+    0x1.0fdccea23b9a3p-5, 0x1.1035b93c46f26p-5, 0x1.0c37785007246p-5, 0x1.05a6c8bc850dep-5,
+    0x1.fb0e4fadf435cp-6, 0x1.e90ab4d18f924p-6, 0x1.d618a4a85d6a9p-6, 0x1.c2cd8b200c2c4p-6,
+    0x1.af867cb0bf554p-6, 0x1.9c8a053d6cdfep-6, 0x1.89fd812960a6bp-6, 0x1.7806a6faa073bp-6,
+    0x1.66aae04dac43dp-6, 0x1.560707c7dd9f3p-6, 0x1.4605b2a5f6237p-6, 0x1.36cf0eeb1210fp-6,
+    0x1.2827e87f04bb5p-6, 0x1.1a64eeda67098p-6, 0x1.0cf5d55411c07p-6, 0x1.00a576404918cp-6,
+    0x1.eb8eb3b601abp-7, 0x1.b091d0698403cp-7, 0x1.42aa5764556c9p-6, 0x1.0b33fd782cab1p-4,
+};
+constexpr double kJmRate[] = {
+    0x1.999999999999ap-2, 0x1.7c3d2c4d63ff7p-3, 0x1.60fb8a566f626p-4, 0x1.47ae147ae147bp-5,
+    0x1.3030f03de998fp-6, 0x1.1a62d511f2b54p-7, 0x1.0624dd2f1a9fcp-8, 0x1.e6b4b396428e4p-10,
+    0x1.c3d154e984554p-11, 0x1.a36e2eb1c432dp-12, 0x1.855d5c78353f2p-13, 0x1.697443ee0377p-14,
+    0x1.4f8b588e368f1p-15, 0x1.377de3935dcc1p-16, 0x1.2129cff19c5f3p-17, 0x1.0c6f7a0b5ed8dp-18,
+    0x1.f26305b896134p-20, 0x1.cea94cb5c6febp-21, 0x1.ad7f29abcaf48p-22, 0x1.8eb59e2d44dc4p-23,
+    0x1.72210a2b05989p-24, 0x1.5798ee2308c3ap-25, 0x1.3ef7b1bdd0af8p-26, 0x1.281a6e88d1478p-27,
+    0x1.12e0be826d695p-28, 0x1.fe591c62e77f3p-30, 0x1.d9c3e40e1ba59p-31, 0x1.7b031cd8161e2p-34,
+};
 
 double jm_shape(double j) {
   const double l = std::log(j);
@@ -206,8 +237,6 @@ GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo
   return m;
 }
 
-namespace {
-
 // methods.md 15.4(b): exact head of L lags, tail fitted by NNLS on log-spaced timescales.
 GeometricMixture fit_hybrid_mixture(const SpendingSequence& seq) {
   GeometricMixture m;
@@ -253,7 +282,14 @@ GeometricMixture fit_hybrid_mixture(const SpendingSequence& seq) {
   return m;
 }
 
-}  // namespace
+GeometricMixture stored_jm_mixture() {
+  GeometricMixture m;
+  m.head.assign(std::begin(kJmHead), std::end(kJmHead));
+  m.weight.assign(std::begin(kJmWeight), std::end(kJmWeight));
+  m.rate.assign(std::begin(kJmRate), std::end(kJmRate));
+  m.finish();
+  return m;
+}
 
 double jm_shape_sum() {
   constexpr std::uint64_t kN = 100000;
@@ -408,7 +444,9 @@ Result<std::shared_ptr<const SpendingSequence>> SpendingSequence::shared(std::st
 
 const GeometricMixture& SpendingSequence::mixture() const {
   std::call_once(mixture_->once, [this] {
-    if (kind_ == SpendingKind::kJm) {
+    if (kind_ == SpendingKind::kJm && parameter_ == kJmConstant) {
+      mixture_->value = stored_jm_mixture();
+    } else if (kind_ == SpendingKind::kJm) {
       mixture_->value = fit_hybrid_mixture(*this);
     } else {
       mixture_->value =

@@ -13,6 +13,14 @@ namespace alphaledger {
 // [u_lo, u_hi]; weights renormalised so the mass is exactly `mass`.
 GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi, double mass);
 
+// Fits the hybrid mixture of a jm sequence: its first 16 lags exact, the tail a nonnegative
+// least-squares fit on log-spaced timescales, scaled to stay nonincreasing and below mass 1.
+GeometricMixture fit_hybrid_mixture(const SpendingSequence& seq);
+
+// The mixture fit_hybrid_mixture() gives for the default "jm" (C = kJmConstant), from stored
+// values: what SpendingSequence::mixture() uses for that sequence.
+GeometricMixture stored_jm_mixture();
+
 // Nonnegative least squares min ||A w - b||, w >= 0 (Lawson–Hanson active set, Householder QR on
 // the passive columns). A is row-major rows x cols. Deterministic.
 std::vector<double> nonnegative_least_squares(const std::vector<double>& a, std::size_t rows,

@@ -1,5 +1,8 @@
 // Decisions in the Ledger over a Store: decide and decide_batch (ledger_impl.hpp).
 #include <algorithm>
+#include <cstdint>
+#include <functional>
+#include <span>
 #include <string>
 #include <unordered_map>
 
@@ -56,17 +59,69 @@ Result<DecideResult> StoreLedger::decide(std::string_view stream, std::string_vi
   return result;
 }
 
+namespace {
+
+// The batch's new ids, each with the first row that gives it: open addressing with linear
+// probing over 32-bit row numbers (4 bytes a slot, at most half full), the ids themselves staying
+// where the caller holds them. A std::unordered_map of string_view to row cost ~50 bytes a row.
+class FirstRowTable {
+ public:
+  static constexpr std::uint32_t kEmpty = static_cast<std::uint32_t>(-1);
+
+  explicit FirstRowTable(std::size_t rows) {
+    std::size_t capacity = 16;
+    while (capacity < 2 * rows) capacity *= 2;
+    slots_.assign(capacity, kEmpty);
+    mask_ = capacity - 1;
+  }
+
+  // The slot that holds `id`'s row, or the empty slot where it belongs.
+  std::uint32_t& slot(std::string_view id, std::span<const TestView> tests) {
+    std::size_t at = std::hash<std::string_view>{}(id) & mask_;
+    while (slots_[at] != kEmpty && tests[slots_[at]].id != id) at = (at + 1) & mask_;
+    return slots_[at];
+  }
+
+ private:
+  std::vector<std::uint32_t> slots_;
+  std::size_t mask_ = 0;
+};
+
+std::vector<TestView> views_of(const std::vector<TestInput>& tests) {
+  std::vector<TestView> views;
+  views.reserve(tests.size());
+  for (const auto& t : tests) views.push_back({t.id, t.p_value});
+  return views;
+}
+
+}  // namespace
+
 Result<Ledger::BatchResult> StoreLedger::decide_batch(std::string_view stream,
                                                       const std::vector<TestInput>& tests,
                                                       std::size_t group_size) {
-  return decide_batch_streamed(stream, tests, group_size, nullptr);
+  const std::vector<TestView> views = views_of(tests);
+  return decide_batch_streamed(stream, std::span<const TestView>(views), group_size, nullptr);
 }
 
 Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view stream,
                                                                const std::vector<TestInput>& tests,
                                                                std::size_t group_size,
                                                                const GroupCallback& on_durable) {
+  const std::vector<TestView> views = views_of(tests);
+  return decide_batch_streamed(stream, std::span<const TestView>(views), group_size, on_durable);
+}
+
+Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view stream,
+                                                               std::span<const TestView> tests,
+                                                               std::size_t group_size,
+                                                               const GroupCallback& on_durable) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
+  // Row numbers are 32-bit below; the largest value marks a row whose id the ledger holds.
+  constexpr std::uint32_t kStoredRow = static_cast<std::uint32_t>(-1);
+  if (tests.size() >= kStoredRow - 1) {
+    return invalid_input("a batch holds at most " + std::to_string(kStoredRow - 2) + " tests, got " +
+                         std::to_string(tests.size()) + "; split it");
+  }
   for (std::size_t i = 0; i < tests.size(); ++i) {
     const auto& t = tests[i];
     if (auto s = validate_test_id(t.id); !s) {
@@ -87,28 +142,27 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
   // First pass, before anything is written: every id is looked up, so a conflict (with the
   // ledger, or between two rows of the batch) refuses the batch with the ledger unchanged.
   // first_row[i] is i for a row that decides a new id, the first such row for a later row with
-  // the same new id, and kStoredRow for an id the ledger already holds (its record in `stored`).
-  constexpr std::size_t kStoredRow = static_cast<std::size_t>(-1);
-  std::vector<std::size_t> first_row(tests.size());
-  std::unordered_map<std::size_t, DecisionRecord> stored;  // row -> record already in the ledger
+  // the same new id, and kStoredRow for an id the ledger already holds (its record is read again
+  // when its row's turn comes, rather than kept: a resumed 10^6-row batch would hold them all).
+  std::vector<std::uint32_t> first_row(tests.size());
+  std::string key;  // the index key, built in one reused buffer
   {
-    std::unordered_map<std::string_view, std::size_t> first_new;  // id -> first index, new ids
-    first_new.reserve(tests.size());
-    std::string key;  // the index key, built in one reused buffer
+    FirstRowTable first_new(tests.size());
     for (std::size_t i = 0; i < tests.size(); ++i) {
       const auto& t = tests[i];
-      if (auto it = first_new.find(t.id); it != first_new.end()) {
-        const double first_p = tests[it->second].p_value;
+      std::uint32_t& seen = first_new.slot(t.id, tests);
+      if (seen != FirstRowTable::kEmpty) {
+        const double first_p = tests[seen].p_value;
         if (first_p != t.p_value) {
           out.error =
               conflict("test " + in_quotes(t.id) + " appears twice in the batch with different p-values (" +
-                       readable_number(first_p) + " at position " + std::to_string(it->second + 1) + ", " +
+                       readable_number(first_p) + " at position " + std::to_string(seen + 1) + ", " +
                        readable_number(t.p_value) + " at position " + std::to_string(i + 1) +
                        "); a test id is decided once (the ledger is unchanged)");
           out.stopped_at = i;
           return out;
         }
-        first_row[i] = it->second;
+        first_row[i] = seen;
         continue;
       }
       auto found = find_decided(stream, t.id, key);
@@ -127,26 +181,37 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
           return out;
         }
         first_row[i] = kStoredRow;
-        stored.emplace(i, std::move(**found));
       } else {
-        first_new.emplace(t.id, i);
-        first_row[i] = i;
+        seen = static_cast<std::uint32_t>(i);
+        first_row[i] = static_cast<std::uint32_t>(i);
       }
     }
   }
 
   // As in decide(): the cached state advances in place and counts as loaded only after each
   // successful write. Every row gives one result, in input order, so row j's result is
-  // out.decided[j] once its group is durable and group[j - out.decided.size()] before.
+  // group[j - group_start] while its group is being decided, and afterwards out.decided[j] (or
+  // kept[j] with on_durable set).
   Rule& rule = *slot->rule;
   StoredHead& head = slot->head;
+  // With on_durable set, results go to the callback and only rows a later repeat in the batch
+  // points to are kept (in `kept`): a 10^6-row batch does not hold 10^6 results at once.
+  const bool keep_all = !on_durable;
+  std::unordered_map<std::size_t, DecisionRecord> kept;  // row -> record, rows repeated later
+  std::vector<bool> repeated_later;
+  if (!keep_all) {
+    repeated_later.assign(tests.size(), false);
+    for (std::size_t i = 0; i < tests.size(); ++i) {
+      if (first_row[i] != kStoredRow && first_row[i] != i) repeated_later[first_row[i]] = true;
+    }
+  }
   const std::size_t group_capacity = std::min(group_size, tests.size());
   WriteBatch batch;
   batch.ops.reserve(2 * group_capacity + 1);
   std::vector<DecideResult> group;
   group.reserve(group_capacity);
-  out.decided.reserve(tests.size());
-  std::size_t group_start = 0;
+  if (keep_all) out.decided.reserve(tests.size());
+  std::size_t group_start = 0;  // the first row of the group being decided
 
   // Writes the group (if it decided anything), then publishes it. Returns false on failure,
   // having recorded the error in `out`.
@@ -162,7 +227,14 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
       slot->loaded = true;
     }
     if (on_durable && !group.empty()) on_durable(group);
-    for (auto& d : group) out.decided.push_back(std::move(d));
+    out.durable += group.size();
+    if (keep_all) {
+      for (auto& d : group) out.decided.push_back(std::move(d));
+    } else {
+      for (std::size_t j = 0; j < group.size(); ++j) {
+        if (repeated_later[group_start + j]) kept.emplace(group_start + j, std::move(group[j].record));
+      }
+    }
     group.clear();
     batch.ops.clear();  // keeps the capacity for the next group
     return true;
@@ -172,14 +244,24 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
     const auto& t = tests[i];
     const std::size_t first = first_row[i];
     if (first == kStoredRow) {
-      group.push_back(DecideResult{std::string(stream), stored.at(i), true});
+      // Read again: the stream's lock has been held since the first pass, so it is still there.
+      auto found = find_decided(stream, t.id, key);
+      if (!found || !*found) {
+        out.error = !found ? found.error()
+                           : corruption("ledger " + location() + ", stream " + in_quotes(stream) + ", test " +
+                                        in_quotes(t.id) + ": its record went missing during the batch");
+        out.stopped_at = group_start;  // this group is not written; the slot reloads if it advanced
+        return out;
+      }
+      group.push_back(DecideResult{std::string(stream), std::move(**found), true});
     } else if (first != i) {
-      const DecisionRecord& earlier =
-          first < out.decided.size() ? out.decided[first].record : group[first - out.decided.size()].record;
+      const DecisionRecord& earlier = first >= group_start ? group[first - group_start].record
+                                      : keep_all           ? out.decided[first].record
+                                                           : kept.at(first);
       group.push_back(DecideResult{std::string(stream), earlier, true});
     } else {
       slot->loaded = false;
-      group.push_back(decide_into(stream, rule, head, t.id, t.p_value, batch));
+      group.push_back(decide_into(stream, rule, head, std::string(t.id), t.p_value, batch));
     }
     if (group.size() >= group_size) {
       if (!flush()) return out;

@@ -64,6 +64,9 @@ class StoreLedger final : public Ledger {
   Result<BatchResult> decide_batch_streamed(std::string_view stream, const std::vector<TestInput>& tests,
                                             std::size_t group_size, const GroupCallback& on_durable) override;
 
+  Result<BatchResult> decide_batch_streamed(std::string_view stream, std::span<const TestView> tests,
+                                            std::size_t group_size, const GroupCallback& on_durable) override;
+
   Result<LaunchResult> launch(std::string_view stream, std::string_view id) override;
 
   Result<AbandonResult> abandon(std::string_view stream, std::string_view id) override;

@@ -127,6 +127,17 @@ bool has_ledger_files(const std::string& path) {
   return false;
 }
 
+rocksdb::Status open_read_only(const rocksdb::Options& options, const std::string& path, rocksdb::DB** db) {
+  const std::vector<rocksdb::ColumnFamilyDescriptor> families{
+      {rocksdb::kDefaultColumnFamilyName, rocksdb::ColumnFamilyOptions(options)}};
+  std::vector<rocksdb::ColumnFamilyHandle*> handles;
+  auto s = rocksdb::DB::OpenForReadOnly(rocksdb::DBOptions(options), path, families, &handles, db);
+  // The database keeps its own handle of the default family (DefaultColumnFamily()), which every
+  // call here uses; the one returned is released at once.
+  for (auto* h : handles) delete h;
+  return s;
+}
+
 // The read-only open with every check; on success the checked database. A read-only open beside
 // a process that is writing can meet a log record or MANIFEST entry that is still being written:
 // then it tries again a few times before calling the folder damaged.
@@ -138,7 +149,7 @@ Result<std::unique_ptr<rocksdb::DB>> open_checked(const std::string& path, bool 
   for (int attempt = 0;; ++attempt) {
     rocksdb::DB* raw = nullptr;
     // Read the seal before the log: the seal never runs ahead of what is synced.
-    auto s = rocksdb::DB::OpenForReadOnly(options, path, &raw);
+    auto s = open_read_only(options, path, &raw);
     std::unique_ptr<rocksdb::DB> db(raw);
     std::optional<std::string> problem;
     if (!s.ok()) {

@@ -99,6 +99,13 @@ bool has_ledger_files(const std::string& path);
 // The read-only open with every check; on success the checked database.
 Result<std::unique_ptr<rocksdb::DB>> open_checked(const std::string& path, bool check_all_files);
 
+// rocksdb::DB::OpenForReadOnly without its first attempt to open the folder as a "fully
+// compacted" database. That attempt (made when max_open_files is -1, as here) reads the MANIFEST
+// and opens every table file; on every ledger measured it then failed, and the ordinary read-only
+// open did it all again (docs/benchmarks.md). This is the ordinary open alone, with the same
+// options and checks.
+rocksdb::Status open_read_only(const rocksdb::Options& options, const std::string& path, rocksdb::DB** db);
+
 // The seal of one read-write open, shared by the store and by the listener RocksDB calls when it
 // writes a table file (during the open too, before the store exists).
 class SealKeeper {

@@ -276,7 +276,7 @@ class RocksStore final : public Store {
     if (!s.ok()) {
       // Keep a usable object: a read-only view, so reads keep working and writes keep failing.
       rocksdb::DB* ro = nullptr;
-      if (rocksdb::DB::OpenForReadOnly(base_options(true), path_, &ro).ok()) db_.reset(ro);
+      if (open_read_only(base_options(true), path_, &ro).ok()) db_.reset(ro);
       return io_error(cause_of(s, path_));
     }
     db_.reset(raw);

@@ -399,20 +399,24 @@ TEST_CASE("Ledger: decide_batch writes groups, reports them only when durable, a
     REQUIRE(ledger->create_stream("s", config).ok());
     const auto writes_before = faults->writes_attempted();
     std::vector<std::size_t> sizes;
+    std::vector<DecideResult> reported;
     auto r = ledger->decide_batch_streamed("s", inputs, 8, [&](const std::vector<DecideResult>& group) {
       sizes.push_back(group.size());
       for (const auto& d : group) {  // already in the store
         CHECK(mem.get(store::record_key("s", d.record.step))->has_value());
+        reported.push_back(d);
       }
     });
     REQUIRE(r.ok());
     CHECK_FALSE(r->error.has_value());
     CHECK(faults->writes_attempted() - writes_before == 7);  // ceil(50 / 8) synced writes
     CHECK(sizes == std::vector<std::size_t>{8, 8, 8, 8, 8, 8, 2});
-    REQUIRE(r->decided.size() == 50);
+    CHECK(r->durable == 50);
+    CHECK(r->decided.empty());  // the callback had them; a streamed batch does not keep them
+    REQUIRE(reported.size() == 50);
     for (std::size_t i = 0; i < 50; ++i) {
-      CHECK(same_bits(r->decided[i].record.level, expected[i].level));
-      CHECK(r->decided[i].record.rejected == expected[i].rejected);
+      CHECK(same_bits(reported[i].record.level, expected[i].level));
+      CHECK(reported[i].record.rejected == expected[i].rejected);
     }
     // Running the same batch again (a resumed run) repeats every decision and writes nothing.
     const auto dump = copy_contents(mem);
