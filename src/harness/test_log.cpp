@@ -131,6 +131,11 @@ void append_record(CompactLog& log, const TestRecord& r) {
     c.launched_at = *r.launched_at;
   }
   if (r.is_null) c.flags |= CompactRecord::kHasTruth | (*r.is_null ? CompactRecord::kIsNull : 0);
+  if (r.e_value) {
+    c.flags |= CompactRecord::kHasE;
+    c.e_value = *r.e_value;
+  }
+  if (!r.has_p_value) c.flags |= CompactRecord::kNoP;
   c.line = r.line;
   log.records.push_back(c);
 }
@@ -140,7 +145,7 @@ void append_record(CompactLog& log, const TestRecord& r) {
 // goes through make_record itself.
 struct CsvColumns {
   std::vector<std::string> header;
-  std::ptrdiff_t id = -1, p_value = -1, finished_at = -1, launched_at = -1, is_null = -1;
+  std::ptrdiff_t id = -1, p_value = -1, finished_at = -1, launched_at = -1, is_null = -1, e_value = -1;
 };
 
 Status csv_row(CompactLog& log, const CsvColumns& cols, const std::vector<std::string_view>& cells,
@@ -154,7 +159,7 @@ Status csv_row(CompactLog& log, const CsvColumns& cols, const std::vector<std::s
     for (std::size_t i = 0; i < cols.header.size(); ++i) {
       if (!cols.header[i].empty()) fields[cols.header[i]] = std::string(cells[i]);
     }
-    auto rec = make_record(fields, direction);
+    auto rec = make_record(fields, direction, /*e_may_replace_p=*/true);
     if (!rec) return invalid_input(where(log.source, line_no) + rec.error().message);
     rec->line = line_no;
     append_record(log, *rec);
@@ -168,6 +173,14 @@ Status csv_row(CompactLog& log, const CsvColumns& cols, const std::vector<std::s
     return invalid_input(where(log.source, line_no) + "test '" + std::string(id) + "': " + p.error().message);
   }
   c.p_value = *p;
+  if (cols.e_value >= 0) {
+    auto e = detail::parse_e_value_text(cell(cols.e_value));
+    if (!e) {
+      return invalid_input(where(log.source, line_no) + "test '" + std::string(id) + "': " + e.error().message);
+    }
+    c.flags |= CompactRecord::kHasE;
+    c.e_value = *e;
+  }
   if (const std::string_view t = cell(cols.finished_at); !trim(t).empty()) {
     auto v = parse_time_text(t);
     if (!v) return invalid_input(where(log.source, line_no) + v.error().message);
@@ -214,6 +227,8 @@ TestRecord CompactLog::record(std::size_t i) const {
   if (c.flags & CompactRecord::kHasTime) r.finished_at = c.finished_at;
   if (c.flags & CompactRecord::kHasLaunch) r.launched_at = c.launched_at;
   if (c.flags & CompactRecord::kHasTruth) r.is_null = (c.flags & CompactRecord::kIsNull) != 0;
+  if (c.flags & CompactRecord::kHasE) r.e_value = c.e_value;
+  r.has_p_value = (c.flags & CompactRecord::kNoP) == 0;
   r.line = c.line;
   return r;
 }
@@ -258,6 +273,7 @@ Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, L
           if (name == "finished_at") cols.finished_at = index;
           if (name == "launched_at") cols.launched_at = index;
           if (name == "is_null") cols.is_null = index;
+          if (name == "e_value") cols.e_value = index;
         }
         if (cols.id < 0) {
           return invalid_input(where(source, line_no) +
@@ -276,7 +292,7 @@ Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, L
       if (!parsed) return invalid_input(where(source, line_no) + parsed.error().message);
       auto f = json_fields(*parsed);
       if (!f) return invalid_input(where(source, line_no) + f.error().message);
-      auto rec = make_record(*f, options.alternative);
+      auto rec = make_record(*f, options.alternative, /*e_may_replace_p=*/true);
       if (!rec) return invalid_input(where(source, line_no) + rec.error().message);
       rec->line = line_no;
       append_record(log, *rec);
@@ -298,6 +314,7 @@ Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, L
       });
   if (auto s = check_launch_column(log, format == LogFormat::kCsv && cols.launched_at >= 0); !s)
     return s.error();
+  if (auto s = detail::check_evidence_columns(log); !s) return s.error();
   if (options.order_by_finished_at) order_by_time(log);
   return log;
 }
@@ -319,6 +336,9 @@ TestLog expand(CompactLog&& compact) {
   TestLog log;
   log.source = std::move(compact.source);
   log.has_truth = compact.has_truth;
+  log.has_launch = compact.has_launch;
+  log.has_p_values = compact.has_p_values;
+  log.has_e_values = compact.has_e_values;
   log.records.reserve(compact.size());
   for (std::size_t i = 0; i < compact.size(); ++i) log.records.push_back(compact.record(i));
   return log;

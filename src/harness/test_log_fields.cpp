@@ -12,6 +12,7 @@
 #include <set>
 #include <sstream>
 
+#include "alphaledger/rules.hpp"
 #include "alphaledger/stats.hpp"
 #include "alphaledger/text.hpp"
 #include "harness/json_input.hpp"
@@ -170,16 +171,37 @@ Status check_launch_order(std::string_view id, double launched_at, bool has_fini
 
 // Turns one row's fields into a record (line 0, no location in messages): common to CSV, JSON
 // Lines, pipe and HTTP.
+Result<double> parse_e_value_text(std::string_view text) {
+  if (trim(text).empty()) return invalid_input("e_value is empty; give a number >= 0 (an e-value)");
+  auto v = parse_number_text(text, "e_value");
+  if (!v) return v.error();
+  if (auto s = validate_e_value(*v); !s) return s.error();
+  return *v == 0 ? 0.0 : *v;  // -0 is 0
+}
+
 Result<TestRecord> make_record(const std::map<std::string, std::string>& f,
-                               std::optional<Alternative> direction) {
+                               std::optional<Alternative> direction, bool e_may_replace_p) {
   TestRecord r;
   auto id = f.find("id");
   if (id == f.end()) return invalid_input("missing field 'id' (a text of 1 to 256 bytes)");
   if (auto s = validate_test_id(id->second); !s) return s.error();
   r.id = id->second;
-  auto p = row_p_value(f, direction);
-  if (!p) return invalid_input("test '" + r.id + "': " + p.error().message);
-  r.p_value = *p;
+  if (auto e = f.find("e_value"); e != f.end()) {
+    auto v = parse_e_value_text(e->second);
+    if (!v) return invalid_input("test '" + r.id + "': " + v.error().message);
+    r.e_value = *v;
+  }
+  const auto p_given = f.find("p_value");
+  const bool summary = std::any_of(f.begin(), f.end(), [](const auto& kv) {
+    return is_summary_column(kv.first) && !trim(kv.second).empty();
+  });
+  if (e_may_replace_p && r.e_value && (p_given == f.end() || trim(p_given->second).empty()) && !summary) {
+    r.has_p_value = false;
+  } else {
+    auto p = row_p_value(f, direction);
+    if (!p) return invalid_input("test '" + r.id + "': " + p.error().message);
+    r.p_value = *p;
+  }
   if (auto t = f.find("finished_at"); t != f.end() && !trim(t->second).empty()) {
     auto v = parse_time_text(t->second);
     if (!v) return v.error();
@@ -224,6 +246,10 @@ Result<std::map<std::string, std::string>> json_fields(const nlohmann::json& obj
       if (v.is_null()) continue;  // absent: summary columns
       if (!v.is_number())
         return invalid_input("p_value must be a JSON number in [0, 1], got " + describe_json(v));
+      f[key] = format_number(v.get<double>());
+    } else if (key == "e_value") {
+      if (v.is_null()) continue;
+      if (!v.is_number()) return invalid_input("e_value must be a JSON number >= 0, got " + describe_json(v));
       f[key] = format_number(v.get<double>());
     } else if (key == "finished_at" || key == "launched_at") {
       if (v.is_null()) continue;

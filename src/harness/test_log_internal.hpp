@@ -26,9 +26,12 @@ Status check_launch_order(std::string_view id, double launched_at, bool has_fini
                           std::string_view launched_text, std::string_view finished_text);
 
 // Turns one row's fields into a record (line 0, no location in messages): common to CSV, JSON
-// Lines, pipe and HTTP.
+// Lines, pipe and HTTP. `e_may_replace_p`: a row with e_value may leave out p_value (log rows only).
 Result<TestRecord> make_record(const std::map<std::string, std::string>& f,
-                               std::optional<Alternative> direction);
+                               std::optional<Alternative> direction, bool e_may_replace_p = false);
+
+// An e-value written as text: a finite number >= 0; an empty cell is refused.
+Result<double> parse_e_value_text(std::string_view text);
 
 // The JSON types each known key accepts, turned into the text a CSV cell would hold, so that CSV
 // and JSON rows then go through the same make_record.
@@ -41,6 +44,10 @@ Status check_unique_ids(const CompactLog& log, std::string_view source);
 
 // A log with launched_at needs it on every row. Sets log.has_launch.
 Status check_launch_column(CompactLog& log, bool csv_column);
+
+// A log with e_value (or p_value) on any row needs it on every row. Sets log.has_e_values and
+// log.has_p_values.
+Status check_evidence_columns(CompactLog& log);
 
 // Orders the rows by finished_at; a row without it keeps its place after the row before it.
 void order_by_time(CompactLog& log);

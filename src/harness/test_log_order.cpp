@@ -60,6 +60,32 @@ Status check_launch_column(CompactLog& log, bool csv_column) {
                        "date-time, or a number)");
 }
 
+Status check_evidence_columns(CompactLog& log) {
+  const auto has_e = [](const CompactRecord& r) { return (r.flags & CompactRecord::kHasE) != 0; };
+  const auto has_p = [](const CompactRecord& r) { return (r.flags & CompactRecord::kNoP) == 0; };
+  const auto first_e = std::find_if(log.records.begin(), log.records.end(), has_e);
+  if (first_e != log.records.end()) {
+    const auto without = std::find_if_not(log.records.begin(), log.records.end(), has_e);
+    if (without != log.records.end()) {
+      return invalid_input(where(log.source, without->line) + "test '" + std::string(log.id(*without)) +
+                           "': no e_value, but line " + std::to_string(first_e->line) +
+                           " has one; when any row has e_value every row needs it (a number >= 0)");
+    }
+  }
+  const auto first_p = std::find_if(log.records.begin(), log.records.end(), has_p);
+  if (first_p != log.records.end()) {
+    const auto without = std::find_if_not(log.records.begin(), log.records.end(), has_p);
+    if (without != log.records.end()) {
+      return invalid_input(where(log.source, without->line) + "test '" + std::string(log.id(*without)) +
+                           "': no p_value, but line " + std::to_string(first_p->line) +
+                           " has one; when any row has p_value every row needs it (a number in [0, 1])");
+    }
+  }
+  log.has_e_values = !log.records.empty() && first_e != log.records.end();
+  log.has_p_values = log.records.empty() || first_p != log.records.end();
+  return {};
+}
+
 // A row without finished_at keeps its place right after the row before it (docs/formats.md). A
 // log whose times already ascend keeps its order without sorting (a stable sort would too).
 void order_by_time(CompactLog& log) {
