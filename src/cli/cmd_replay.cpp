@@ -3,6 +3,7 @@
 #include <cmath>
 #include <iostream>
 #include <nlohmann/json.hpp>
+#include <unistd.h>
 
 #include "alphaledger/replay.hpp"
 #include "alphaledger/report.hpp"
@@ -33,6 +34,28 @@ void append_number(std::string& row, std::uint64_t v) {
   char buf[24];
   row.append(buf, std::to_chars(buf, buf + sizeof buf, v).ptr);
 }
+
+// A progress line on stderr for long replays, only when stderr is a terminal: never in stdout,
+// never when stderr is piped or redirected. Rewritten in place with a carriage return.
+class Progress {
+ public:
+  Progress(std::size_t tests, std::size_t rules)
+      : total_(tests * rules), on_(total_ >= kLong && isatty(STDERR_FILENO) == 1) {}
+  void tick(std::string_view rule) {
+    if (!on_ || ++done_ % kEvery != 0) return;
+    std::cerr << "\rreplay: " << rule << ", " << done_ << " of " << total_ << " decisions" << std::flush;
+  }
+  ~Progress() {
+    if (on_ && done_ >= kEvery) std::cerr << "\r\033[K" << std::flush;  // clear the line
+  }
+
+ private:
+  static constexpr std::size_t kLong = 200000;  // decisions; a shorter replay is done before it matters
+  static constexpr std::size_t kEvery = 65536;
+  std::size_t total_;
+  bool on_;
+  std::size_t done_ = 0;
+};
 
 // One output line, by the one JSON writer (harness/json_text.hpp: never throws; ids are valid
 // UTF-8 already, the log reader refuses any other).
@@ -91,9 +114,11 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
         << (e_values ? "e_value,level,rejected,wealth\n" : "level,rejected,wealth\n");
   }
   std::string row;
+  Progress progress(log->size(), procs->size());
   for (const Procedure& proc : *procs) {
     const std::string& name = proc.name;
     replay_each(*log, proc, [&](std::size_t k, const Decision& d) {
+      progress.tick(name);
       if (o.rejected_only && !d.rejected) return;
       const CompactRecord& r = log->records[k];
       if (g.json) {

@@ -239,3 +239,18 @@ TEST_CASE("Replay: --summary names each rule's guarantee; --rejected-only keeps 
   CHECK(std::count(only.out.begin(), only.out.end(), '\n') == 1 + 7 + 20);  // header, then 7 + 20 rejections
   CHECK(only.out.find(",0,") == std::string::npos);  // no row with rejected = 0
 }
+
+TEST_CASE("Replay: no progress line when stderr is not a terminal") {
+  // 210,000 decisions pass the length at which a terminal would see a progress line.
+  std::string text = "id,p_value\n";
+  for (int i = 0; i < 70000; ++i) {
+    text += 't';
+    text += std::to_string(i);
+    text += i % 50 == 0 ? ",0.00001\n" : ",0.5\n";
+  }
+  const std::string path = write_temp("long.csv", text);
+  const auto rows = run_alphaledger({"replay", path, "--rules", "lord++,lond,alpha-spending", "--rejected-only"});
+  REQUIRE(rows.exit_code == 0);
+  CHECK(rows.err.empty());  // piped: nothing on stderr
+  CHECK(rows.out.find("replay:") == std::string::npos);
+}
