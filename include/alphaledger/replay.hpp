@@ -22,7 +22,7 @@
 namespace alphaledger {
 
 // Stored nowhere; names are the CLI's.
-// kEBh: e-BH on e-values (offline.hpp); simulate resolves it (resolve_simulation_procedures).
+// kEBh: e-BH on e-values (offline.hpp).
 enum class OfflineMethod { kBh, kStoreyBh, kEBh };
 
 struct OfflineConfig {
@@ -35,12 +35,21 @@ struct Procedure {
   std::string name;  // "lord++", "bh", ...
   std::variant<RuleConfig, OfflineConfig> config;
   bool online() const { return std::holds_alternative<RuleConfig>(config); }
+  // Whether the procedure reads e-values (e-lond, e-bh) rather than p-values.
+  bool takes_e_values() const;
 };
+
+// What each procedure guarantees at its alpha (docs/rules.md): "FDR", "mFDR" or "FWER".
+std::string_view guarantee_of(const Procedure& procedure);
+
+// Checks that `log` has the column every procedure reads: e_value for e-lond and e-bh, p_value
+// (or summary columns) for the others. The error names the rule and the missing column.
+Status check_log_columns(const CompactLog& log, const std::vector<Procedure>& procedures);
 
 // Resolves rule names with one set of flags (the `rule` field of `flags` is ignored). A flag
 // applies to every listed procedure that takes it; a flag that no listed procedure takes is an
 // error; a rule whose conditions the flags break is an error naming the condition.
-// `allow_offline`: whether bh / storey-bh are accepted (replay and simulate only).
+// `allow_offline`: whether bh / storey-bh / e-bh are accepted (replay and simulate only).
 Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>& names,
                                                   const RuleSpec& flags, bool allow_offline);
 
@@ -65,7 +74,9 @@ struct ReplayResult {
 // launched_at and finishes at its finished_at, events in time order, finishes before launches at
 // equal times, launches at equal times in file order (docs/formats.md, "Launch times"). Decisions
 // stay in log order (the order of finished_at); `step` is then the position in the log and `launch`
-// the launch number. The offline baselines ignore launch times.
+// the launch number. The offline baselines ignore launch times. Rules that take e-values (e-lond)
+// and e-bh read each record's e_value (0 when absent: check_log_columns first); e-bh's `level` is
+// 1 / its e-value threshold (0 when it rejects nothing), so that e >= 1/level rejects.
 ReplayResult replay(const TestLog& log, const std::vector<Procedure>& procedures);
 
 struct ReplaySummary {

@@ -6,7 +6,9 @@
 // Columns / keys: id (required), p_value (required unless summary columns are given, see
 // docs/formats.md), finished_at (optional: ISO 8601 date or date-time, or a number), launched_at
 // (optional, same forms; when the log has it, every row needs launched_at and finished_at, and
-// finished_at must not be earlier), is_null (optional 0/1). Other columns are ignored.
+// finished_at must not be earlier), is_null (optional 0/1), e_value (optional: a number >= 0 for
+// rules that take e-values; when the log has it every row needs it, and then p_value may be left
+// out of the whole log). Other columns are ignored.
 //
 // Every error is kInvalidArgument and names the file, line, field, value (as excerpt()) and what is
 // accepted, e.g.
@@ -38,6 +40,10 @@ struct TestRecord {
   std::optional<double> finished_at;  // seconds since 1970-01-01T00:00:00Z, or the plain number
   std::optional<double> launched_at;  // the same scale; only in logs with the launched_at column
   std::optional<bool> is_null;
+  // The test's e-value (column e_value), for rules that take e-values (e-lond) and e-bh. A log row
+  // may give an e-value without a p-value; then has_p_value is false and p_value is 0.
+  std::optional<double> e_value;
+  bool has_p_value = true;
   std::size_t line = 0;  // 1-based line in the source (the header is line 1 in CSV)
 };
 
@@ -46,6 +52,8 @@ struct TestLog {
   std::vector<TestRecord> records;  // in decision order (see order_by_finished_at)
   bool has_truth = false;           // every row had is_null
   bool has_launch = false;          // the log has launched_at (then every row has both times)
+  bool has_p_values = true;         // every row has a p-value (given, or from summary columns)
+  bool has_e_values = false;        // every row has an e-value
 };
 
 struct ReadOptions {
@@ -56,17 +64,19 @@ struct ReadOptions {
 };
 
 // ---- A log held compactly -------------------------------------------------------------------
-// What replay and decide --file read: one fixed-size row per test (48 bytes) and every id in one
-// text arena, with no per-row strings or maps, so 10^6 rows cost about 50 MB. read_test_log()
+// What replay and decide --file read: one fixed-size row per test (56 bytes) and every id in one
+// text arena, with no per-row strings or maps, so 10^6 rows cost about 60 MB. read_test_log()
 // reads through the same path and expands the rows into a TestLog.
 struct CompactRecord {
-  static constexpr std::uint8_t kHasTime = 1, kHasTruth = 2, kIsNull = 4, kHasLaunch = 8;
+  static constexpr std::uint8_t kHasTime = 1, kHasTruth = 2, kIsNull = 4, kHasLaunch = 8, kHasE = 16,
+                                kNoP = 32;
   std::uint64_t id_offset = 0;  // into CompactLog::ids
   std::uint16_t id_size = 0;    // an id is at most 256 bytes (validate_test_id)
   std::uint8_t flags = 0;
   double p_value = 0;
   double finished_at = 0;  // meaningful only with kHasTime
   double launched_at = 0;  // meaningful only with kHasLaunch
+  double e_value = 0;      // meaningful only with kHasE
   std::uint64_t line = 0;  // 1-based line in the source
 };
 
@@ -76,6 +86,8 @@ struct CompactLog {
   std::vector<CompactRecord> records;  // in decision order (see ReadOptions::order_by_finished_at)
   bool has_truth = false;              // every row had is_null
   bool has_launch = false;             // the log has launched_at (then every row has both times)
+  bool has_p_values = true;            // every row has a p-value (no row has kNoP)
+  bool has_e_values = false;           // every row has an e-value (kHasE)
 
   std::size_t size() const { return records.size(); }
   std::string_view id(const CompactRecord& r) const {

@@ -3,6 +3,7 @@
 #include <cmath>
 #include <iostream>
 #include <nlohmann/json.hpp>
+#include <unistd.h>
 
 #include "alphaledger/replay.hpp"
 #include "alphaledger/report.hpp"
@@ -19,6 +20,7 @@ struct ReplayOptions {
   std::string rules = "lord++";
   std::optional<std::string> format;
   bool summary = false;
+  bool rejected_only = false;  // --rejected-only: only the rows a rule rejected
   std::optional<std::string> report;  // --report FILE.html (docs/reports.md)
   std::optional<std::string> alternative;
   RuleFlags flags;
@@ -32,6 +34,28 @@ void append_number(std::string& row, std::uint64_t v) {
   char buf[24];
   row.append(buf, std::to_chars(buf, buf + sizeof buf, v).ptr);
 }
+
+// A progress line on stderr for long replays, only when stderr is a terminal: never in stdout,
+// never when stderr is piped or redirected. Rewritten in place with a carriage return.
+class Progress {
+ public:
+  Progress(std::size_t tests, std::size_t rules)
+      : total_(tests * rules), on_(total_ >= kLong && isatty(STDERR_FILENO) == 1) {}
+  void tick(std::string_view rule) {
+    if (!on_ || ++done_ % kEvery != 0) return;
+    std::cerr << "\rreplay: " << rule << ", " << done_ << " of " << total_ << " decisions" << std::flush;
+  }
+  ~Progress() {
+    if (on_ && done_ >= kEvery) std::cerr << "\r\033[K" << std::flush;  // clear the line
+  }
+
+ private:
+  static constexpr std::size_t kLong = 200000;  // decisions; a shorter replay is done before it matters
+  static constexpr std::size_t kEvery = 65536;
+  std::size_t total_;
+  bool on_;
+  std::size_t done_ = 0;
+};
 
 // One output line, by the one JSON writer (harness/json_text.hpp: never throws; ids are valid
 // UTF-8 already, the log reader refuses any other).
@@ -55,21 +79,25 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
   }
   auto log = read_log_argument(o.file, forced, read_options);
   if (!log) return log.error();
+  if (auto s = check_log_columns(*log, *procs); !s) return s;
   if (o.summary) {
     const auto rows = summarize(*log, *procs);
-    if (!g.json) out << "rule,tests,rejections,false_discoveries,fdp,power\n";
-    for (const auto& s : rows) {
+    if (!g.json) out << "rule,tests,rejections,false_discoveries,fdp,power,guarantee\n";
+    for (std::size_t i = 0; i < rows.size(); ++i) {
+      const ReplaySummary& s = rows[i];
+      const std::string guarantee(guarantee_of((*procs)[i]));
       if (g.json) {
         nlohmann::ordered_json j = {{"rule", s.rule}, {"tests", s.tests}, {"rejections", s.rejections}};
         j["false_discoveries"] = s.false_discoveries ? nlohmann::ordered_json(*s.false_discoveries)
                                                      : nlohmann::ordered_json(nullptr);
         j["fdp"] = s.fdp ? nlohmann::ordered_json(*s.fdp) : nlohmann::ordered_json(nullptr);
         j["power"] = s.power ? nlohmann::ordered_json(*s.power) : nlohmann::ordered_json(nullptr);
+        j["guarantee"] = guarantee;
         out << json_line(j);
       } else {
         out << s.rule << ',' << s.tests << ',' << s.rejections << ','
             << (s.false_discoveries ? std::to_string(*s.false_discoveries) : "") << ',' << opt_text(s.fdp)
-            << ',' << opt_text(s.power) << '\n';
+            << ',' << opt_text(s.power) << ',' << guarantee << '\n';
       }
     }
     if (o.report) return write_replay_report(*o.report, *log, *procs, o.flags.alpha, o.file, forced);
@@ -77,19 +105,29 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
   }
   // Each procedure in turn over the read log; decisions are written as they are made.
   // A log with launch times adds the launch number after the step (docs/formats.md).
+  // A log with e-values adds an e_value column after p_value; p_value is empty when the log has none.
   const bool launches = log->has_launch;
-  if (!g.json) out << (launches ? "rule,step,launch,id,p_value,level,rejected,wealth\n" : "rule,step,id,p_value,level,rejected,wealth\n");
+  const bool e_values = log->has_e_values;
+  const bool p_values = log->has_p_values;
+  if (!g.json) {
+    out << (launches ? "rule,step,launch,id,p_value," : "rule,step,id,p_value,")
+        << (e_values ? "e_value,level,rejected,wealth\n" : "level,rejected,wealth\n");
+  }
   std::string row;
+  Progress progress(log->size(), procs->size());
   for (const Procedure& proc : *procs) {
     const std::string& name = proc.name;
     replay_each(*log, proc, [&](std::size_t k, const Decision& d) {
+      progress.tick(name);
+      if (o.rejected_only && !d.rejected) return;
       const CompactRecord& r = log->records[k];
       if (g.json) {
         nlohmann::ordered_json j = {{"rule", name}, {"step", d.step}};
         if (launches)  // null for bh / storey-bh
           j["launch"] = d.launch > 0 ? nlohmann::ordered_json(d.launch) : nlohmann::ordered_json(nullptr);
         j["id"] = std::string(log->id(r));
-        j["p_value"] = r.p_value;
+        j["p_value"] = p_values ? nlohmann::ordered_json(r.p_value) : nlohmann::ordered_json(nullptr);
+        if (e_values) j["e_value"] = r.e_value;
         j["level"] = d.level;
         j["rejected"] = d.rejected ? 1 : 0;
         j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
@@ -109,8 +147,12 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
         else
           row += csv_field(std::string(id));
         row += ',';
-        append_double(row, r.p_value);
+        if (p_values) append_double(row, r.p_value);
         row += ',';
+        if (e_values) {
+          append_double(row, r.e_value);
+          row += ',';
+        }
         append_double(row, d.level);
         row += d.rejected ? ",1," : ",0,";
         if (d.wealth) append_double(row, *d.wealth);
@@ -137,15 +179,16 @@ void add_replay_command(CLI::App& app, CommandContext& ctx) {
                   "log of tests: CSV with a header, or JSON Lines (docs/formats.md); - reads standard input")
       ->required();
   sub->add_option("--rules", opts->rules,
-                  "comma-separated rules: alpha-spending, alpha-investing, lond, lord++, saffron, addis, bh, "
-                  "storey-bh; default lord++");
+                  "comma-separated rules: alpha-spending, alpha-investing, lond, lord++, saffron, addis, e-lond, "
+                  "bh, storey-bh, e-bh; default lord++");
   sub->add_option("--format", opts->format, "csv or jsonl; default from the file extension")
       ->check(CLI::IsMember({"csv", "jsonl"}));
   sub->add_option(
       "--alternative", opts->alternative,
       "direction of tests computed from summary columns: two-sided, greater or less; default two-sided");
   sub->add_flag("--summary", opts->summary,
-                "one row per rule: tests, rejections, false discoveries, fdp, power");
+                "one row per rule: tests, rejections, false discoveries, fdp, power, guarantee (FDR, mFDR, FWER)");
+  sub->add_flag("--rejected-only", opts->rejected_only, "print only the rows a rule rejected");
   sub->add_option("--report", opts->report,
                   "also write one self-contained HTML page of this replay (docs/reports.md)")
       ->type_name("FILE");

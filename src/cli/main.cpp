@@ -20,6 +20,8 @@
 
 namespace alphaledger::cli {
 
+void add_explain_command(CLI::App& app, CommandContext& ctx);  // src/cli/cmd_explain.cpp
+
 std::string ledger_path(const GlobalOptions& global) {
   if (!global.ledger.empty()) return global.ledger;
   if (const char* env = std::getenv("ALPHALEDGER_LEDGER"); env != nullptr && *env != '\0') return env;
@@ -114,6 +116,7 @@ int main(int argc, char** argv) {
   add_service_commands(app, ctx);
   add_recover_command(app, ctx);
   add_report_command(app, ctx);
+  add_explain_command(app, ctx);  // src/cli/cmd_explain.cpp
 
   const std::vector<std::string> args(argv + std::min(argc, 1), argv + argc);
   if (const std::string problem = check_arguments(app, args); !problem.empty()) {

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <array>
+#include <cmath>
 #include <set>
 
 #include "alphaledger/offline.hpp"
@@ -36,13 +37,13 @@ Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>
   }};
   std::array<bool, 6> used{};
   for (const auto& name : names) {
-    if (name == "bh" || name == "storey-bh") {
+    if (name == "bh" || name == "storey-bh" || name == "e-bh") {
       if (!allow_offline) {
         return invalid_input("'" + name +
                              "' needs the whole log at once; it is available in replay and simulate only");
       }
       OfflineConfig oc;
-      oc.method = name == "bh" ? OfflineMethod::kBh : OfflineMethod::kStoreyBh;
+      oc.method = name == "bh" ? OfflineMethod::kBh : (name == "e-bh" ? OfflineMethod::kEBh : OfflineMethod::kStoreyBh);
       oc.alpha = flags.alpha.value_or(0.05);
       if (!(oc.alpha > 0 && oc.alpha < 1)) {
         return invalid_input("alpha must satisfy 0 < alpha < 1, got " + std::to_string(oc.alpha));
@@ -60,8 +61,8 @@ Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>
     auto kind = parse_rule_name(name);
     if (!kind) {
       return invalid_input("unknown rule '" + name +
-                           "'; accepted: alpha-spending, alpha-investing, lond, lord++, saffron, addis" +
-                           std::string(allow_offline ? ", bh, storey-bh" : ""));
+                           "'; accepted: alpha-spending, alpha-investing, lond, lord++, saffron, addis, e-lond" +
+                           std::string(allow_offline ? ", bh, storey-bh, e-bh" : ""));
     }
     RuleSpec spec;
     spec.rule = name;
@@ -104,7 +105,63 @@ Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>
   return out;
 }
 
+bool Procedure::takes_e_values() const {
+  if (const auto* rc = std::get_if<RuleConfig>(&config)) return rule_takes_e_values(rc->kind);
+  return std::get<OfflineConfig>(config).method == OfflineMethod::kEBh;
+}
+
+std::string_view guarantee_of(const Procedure& procedure) {
+  if (const auto* rc = std::get_if<RuleConfig>(&procedure.config)) {
+    switch (rc->kind) {
+      case RuleKind::kAlphaSpending:
+        return "FWER";
+      case RuleKind::kAlphaInvesting:
+        return "mFDR";
+      default:
+        return "FDR";
+    }
+  }
+  return "FDR";  // bh, storey-bh, e-bh
+}
+
+Status check_log_columns(const CompactLog& log, const std::vector<Procedure>& procedures) {
+  for (const auto& proc : procedures) {
+    const bool e = proc.takes_e_values();
+    if (e && !log.has_e_values) {
+      return invalid_input(log.source + ": rule " + proc.name +
+                           " reads e-values, and the log has no e_value column; add one (a number >= 0 "
+                           "per test) or choose a rule that reads p-values");
+    }
+    if (!e && !log.has_p_values) {
+      return invalid_input(log.source + ": rule " + proc.name +
+                           " reads p-values, and the log has no p_value column (only e_value); add "
+                           "p_value or choose a rule that reads e-values (e-lond, e-bh)");
+    }
+  }
+  return {};
+}
+
 namespace {
+
+// The decisions of an offline baseline on the whole log at once.
+OfflineDecisions decide_offline(const OfflineConfig& oc, const std::vector<double>& x) {
+  switch (oc.method) {
+    case OfflineMethod::kBh:
+      return benjamini_hochberg(x, oc.alpha);
+    case OfflineMethod::kStoreyBh:
+      return storey_bh(x, oc.alpha, oc.candidate_threshold);
+    case OfflineMethod::kEBh:
+      return e_benjamini_hochberg(x, oc.alpha);
+  }
+  return {};
+}
+
+// The level column of an offline baseline: its p-value threshold, or for e-bh 1 / its e-value
+// threshold (0 when it rejects nothing).
+double offline_level(const OfflineConfig& oc, const OfflineDecisions& od) {
+  if (oc.method != OfflineMethod::kEBh) return od.threshold;
+  return std::isfinite(od.threshold) && od.threshold > 0 ? 1 / od.threshold : 0.0;
+}
 
 // Decides a log with launch times through the rule's launch/finish events (docs/formats.md,
 // "Launch times"): launches in order of (launched_at, line), finishes in log order (the order of
@@ -133,7 +190,8 @@ void decide_with_launches(std::size_t n, const RuleConfig& config, Launched laun
       launch_of[order[next_launch]] = rule.launch().launch;
       ++next_launch;
     }
-    const auto o = rule.finish(launch_of[k], p_value(k));
+    const auto o = rule_takes_e_values(config.kind) ? rule.finish_e(launch_of[k], p_value(k))
+                                                    : rule.finish(launch_of[k], p_value(k));
     // Cannot fail: the launch is running and the reader checked p in [0, 1].
     const Outcome out = o ? *o : Outcome{launch_of[k], 0, false, 0};
     each(k, Decision{k + 1, out.level, out.rejected, out.wealth, launch_of[k]});
@@ -145,10 +203,12 @@ void decide_with_launches(std::size_t n, const RuleConfig& config, Launched laun
 ReplayResult replay(const TestLog& log, const std::vector<Procedure>& procedures) {
   ReplayResult result;
   result.procedures = procedures;
-  std::vector<double> p;
+  std::vector<double> p, e;
   p.reserve(log.records.size());
   for (const auto& r : log.records) p.push_back(r.p_value);
+  for (const auto& r : log.records) e.push_back(r.e_value.value_or(0));
   for (const auto& proc : procedures) {
+    const std::vector<double>& x = proc.takes_e_values() ? e : p;
     std::vector<Decision> ds;
     ds.reserve(p.size());
     if (const auto* rc = std::get_if<RuleConfig>(&proc.config); rc && log.has_launch) {
@@ -156,21 +216,18 @@ ReplayResult replay(const TestLog& log, const std::vector<Procedure>& procedures
       decide_with_launches(
           rs.size(), *rc, [&](std::size_t i) { return rs[i].launched_at.value_or(0); },
           [&](std::size_t i) { return rs[i].finished_at.value_or(0); }, [&](std::size_t i) { return rs[i].line; },
-          [&](std::size_t i) { return rs[i].p_value; },
-          [&](std::size_t, const Decision& d) { ds.push_back(d); });
+          [&](std::size_t i) { return x[i]; }, [&](std::size_t, const Decision& d) { ds.push_back(d); });
     } else if (rc) {
       Rule rule(*rc);
-      for (double x : p) {
-        const Outcome o = rule.record(x);
+      for (double v : x) {
+        const Outcome o = rule.record(v);  // record() reads an e-value for e-lond
         ds.push_back({o.step, o.level, o.rejected, o.wealth});
       }
     } else {
       const auto& oc = std::get<OfflineConfig>(proc.config);
-      const OfflineDecisions od = oc.method == OfflineMethod::kBh
-                                      ? benjamini_hochberg(p, oc.alpha)
-                                      : storey_bh(p, oc.alpha, oc.candidate_threshold);
-      for (std::size_t i = 0; i < p.size(); ++i)
-        ds.push_back({i + 1, od.threshold, od.rejected[i], std::nullopt});
+      const OfflineDecisions od = decide_offline(oc, x);
+      const double level = offline_level(oc, od);
+      for (std::size_t i = 0; i < x.size(); ++i) ds.push_back({i + 1, level, od.rejected[i], std::nullopt});
     }
     result.decisions.push_back(std::move(ds));
   }
@@ -204,32 +261,32 @@ std::vector<ReplaySummary> summarize(const ReplayResult& result, const TestLog& 
 void replay_each(const CompactLog& log, const Procedure& procedure,
                  const std::function<void(std::size_t, const Decision&)>& each) {
   const auto* rc = std::get_if<RuleConfig>(&procedure.config);
+  const bool e = procedure.takes_e_values();
+  const auto value = [&](std::size_t i) { return e ? log.records[i].e_value : log.records[i].p_value; };
   if (rc && log.has_launch) {
     const auto& rs = log.records;
     decide_with_launches(
         rs.size(), *rc, [&](std::size_t i) { return rs[i].launched_at; },
-        [&](std::size_t i) { return rs[i].finished_at; }, [&](std::size_t i) { return rs[i].line; },
-        [&](std::size_t i) { return rs[i].p_value; }, each);
+        [&](std::size_t i) { return rs[i].finished_at; }, [&](std::size_t i) { return rs[i].line; }, value,
+        each);
     return;
   }
   if (rc) {
     Rule rule(*rc);
     for (std::size_t i = 0; i < log.size(); ++i) {
-      const Outcome o = rule.record(log.records[i].p_value);
+      const Outcome o = rule.record(value(i));  // record() reads an e-value for e-lond
       each(i, Decision{o.step, o.level, o.rejected, o.wealth});
     }
     return;
   }
-  std::vector<double> p;
-  p.reserve(log.size());
-  for (const auto& r : log.records) p.push_back(r.p_value);
+  std::vector<double> x;
+  x.reserve(log.size());
+  for (std::size_t i = 0; i < log.size(); ++i) x.push_back(value(i));
   const auto& oc = std::get<OfflineConfig>(procedure.config);
-  const OfflineDecisions od = oc.method == OfflineMethod::kBh
-                                  ? benjamini_hochberg(p, oc.alpha)
-                                  : storey_bh(p, oc.alpha, oc.candidate_threshold);
-  p = {};
-  for (std::size_t i = 0; i < log.size(); ++i)
-    each(i, Decision{i + 1, od.threshold, od.rejected[i], std::nullopt});
+  const OfflineDecisions od = decide_offline(oc, x);
+  x = {};
+  const double level = offline_level(oc, od);
+  for (std::size_t i = 0; i < log.size(); ++i) each(i, Decision{i + 1, level, od.rejected[i], std::nullopt});
 }
 
 std::vector<ReplaySummary> summarize(const CompactLog& log, const std::vector<Procedure>& procedures) {

@@ -38,13 +38,13 @@ TEST_CASE("Replay: two runs give byte-identical output") {
 TEST_CASE("Replay: the summary counts discoveries and, with is_null, false discoveries and power") {
   const auto r = run_alphaledger({"replay", kSimulated, "--rules", "lord++,bh", "--summary"});
   REQUIRE(r.exit_code == 0);
-  CHECK(r.out.rfind("rule,tests,rejections,false_discoveries,fdp,power\n", 0) == 0);
+  CHECK(r.out.rfind("rule,tests,rejections,false_discoveries,fdp,power,guarantee\n", 0) == 0);
   CHECK(r.out.find("\nlord++,1000,") != std::string::npos);
   CHECK(r.out.find("\nbh,1000,") != std::string::npos);
   const auto no_truth = run_alphaledger({"replay", kDemo, "--summary"});
   REQUIRE(no_truth.exit_code == 0);
   CHECK(no_truth.out.find("\nlord++,420,") != std::string::npos);
-  CHECK(no_truth.out.find(",,,\n") != std::string::npos);  // no is_null: last three empty
+  CHECK(no_truth.out.find(",,,FDR\n") != std::string::npos);  // no is_null: fdp columns empty
 }
 
 TEST_CASE("Replay: rows are decided in ascending finished_at, ties keep file order") {
@@ -208,4 +208,49 @@ TEST_CASE("Replay: launched_at adds the launch column; bad launch times exit 2 w
   CHECK(e.exit_code == 2);
   CHECK(e.err.find("launch_bad.csv:2:") != std::string::npos);
   CHECK(e.out.empty());
+}
+
+TEST_CASE("Replay: e_value column for e-lond and e-bh; a rule without its column exits 2 naming both") {
+  const std::string path = write_temp("evalues.csv", "id,p_value,e_value\na,0.001,1000\nb,0.5,0.2\n");
+  const auto r = run_alphaledger({"replay", path, "--rules", "lord++,e-lond,e-bh"});
+  REQUIRE(r.exit_code == 0);
+  CHECK(r.out.rfind("rule,step,id,p_value,e_value,level,rejected,wealth\n", 0) == 0);
+  CHECK(r.out.find("\ne-lond,1,a,0.001,1000,") != std::string::npos);
+  const std::string only_p = write_temp("only_p.csv", "id,p_value\na,0.001\n");
+  const auto bad = run_alphaledger({"replay", only_p, "--rules", "e-lond"});
+  CHECK(bad.exit_code == 2);
+  CHECK(bad.err.find("rule e-lond reads e-values, and the log has no e_value column") != std::string::npos);
+  const std::string negative = write_temp("negative.csv", "id,e_value\na,2\nb,-3\n");
+  const auto neg = run_alphaledger({"replay", negative, "--rules", "e-lond"});
+  CHECK(neg.exit_code == 2);
+  CHECK(neg.err.find("negative.csv:3: test 'b': e_value") != std::string::npos);
+}
+
+TEST_CASE("Replay: --summary names each rule's guarantee; --rejected-only keeps only rejected rows") {
+  // Guarantees from docs/rules.md: alpha-spending FWER, alpha-investing mFDR, the others FDR.
+  const auto r = run_alphaledger({"replay", kDemo, "--rules", "lord++,alpha-investing,alpha-spending,bh", "--summary"});
+  REQUIRE(r.exit_code == 0);
+  CHECK(r.out.find("\nlord++,420,7,,,,FDR\n") != std::string::npos);
+  CHECK(r.out.find("\nalpha-investing,420,7,,,,mFDR\n") != std::string::npos);
+  CHECK(r.out.find("\nalpha-spending,420,3,,,,FWER\n") != std::string::npos);
+  CHECK(r.out.find("\nbh,420,20,,,,FDR\n") != std::string::npos);
+  const auto only = run_alphaledger({"replay", kDemo, "--rules", "lord++,bh", "--rejected-only"});
+  REQUIRE(only.exit_code == 0);
+  CHECK(std::count(only.out.begin(), only.out.end(), '\n') == 1 + 7 + 20);  // header, then 7 + 20 rejections
+  CHECK(only.out.find(",0,") == std::string::npos);  // no row with rejected = 0
+}
+
+TEST_CASE("Replay: no progress line when stderr is not a terminal") {
+  // 210,000 decisions pass the length at which a terminal would see a progress line.
+  std::string text = "id,p_value\n";
+  for (int i = 0; i < 70000; ++i) {
+    text += 't';
+    text += std::to_string(i);
+    text += i % 50 == 0 ? ",0.00001\n" : ",0.5\n";
+  }
+  const std::string path = write_temp("long.csv", text);
+  const auto rows = run_alphaledger({"replay", path, "--rules", "lord++,lond,alpha-spending", "--rejected-only"});
+  REQUIRE(rows.exit_code == 0);
+  CHECK(rows.err.empty());  // piped: nothing on stderr
+  CHECK(rows.out.find("replay:") == std::string::npos);
 }

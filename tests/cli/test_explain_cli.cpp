@@ -1,0 +1,70 @@
+// alphaledger explain, end to end (docs/cli.md "Explain").
+#include <doctest/doctest.h>
+
+#include <nlohmann/json.hpp>
+#include <string>
+
+#include "support/process.hpp"
+#include "support/temp_dir.hpp"
+
+using alphaledger::test_support::run_alphaledger;
+
+TEST_CASE("explain: the next level and a decided test's level, term by term, in text and JSON") {
+  const alphaledger::test_support::TempDir dir;
+  const std::string db = dir.path() + "/db";
+  REQUIRE(run_alphaledger({"--ledger", db, "new", "s", "--rule", "lord++"}).exit_code == 0);
+  REQUIRE(run_alphaledger({"--ledger", db, "decide", "s", "--id", "a", "--p", "0.0004"}).exit_code == 0);
+  REQUIRE(run_alphaledger({"--ledger", db, "decide", "s", "--id", "b", "--p", "0.0012"}).exit_code == 0);
+  REQUIRE(run_alphaledger({"--ledger", db, "decide", "s", "--id", "c", "--p", "0.36"}).exit_code == 0);
+
+  const auto text = run_alphaledger({"--ledger", db, "explain", "s", "--id", "c"});
+  REQUIRE(text.exit_code == 0);
+  CHECK(text.out.find("rule lord++ (exact), test 3") != std::string::npos);
+  CHECK(text.out.find("deposit alpha of rejection 2 (test 2), lag 1") != std::string::npos);
+  CHECK(text.out.find("cap: none") != std::string::npos);
+  // docs/methods.md section 14.3 (LORD++, Ramdas et al. 2017, defaults): alpha_3 = 0.003292613799.
+  CHECK(text.out.find("level: 0.00329261379") != std::string::npos);
+
+  for (const std::vector<std::string>& args : {std::vector<std::string>{"explain", "s"},
+                                              std::vector<std::string>{"explain", "s", "--id", "b"}}) {
+    std::vector<std::string> full = {"--ledger", db, "--json"};
+    full.insert(full.end(), args.begin(), args.end());
+    const auto r = run_alphaledger(full);
+    REQUIRE(r.exit_code == 0);
+    const auto j = nlohmann::json::parse(r.out);
+    double sum = 0;
+    for (const auto& t : j["terms"]) sum += t["amount"].get<double>();
+    CHECK(j["cap"].is_null());
+    CHECK(sum == doctest::Approx(j["level"].get<double>()).epsilon(1e-12));  // common practice, no source
+  }
+  const auto next = nlohmann::json::parse(run_alphaledger({"--ledger", db, "--json", "explain", "s"}).out);
+  const auto status = nlohmann::json::parse(run_alphaledger({"--ledger", db, "--json", "status", "s"}).out);
+  CHECK(next["level"].get<double>() == status["next_level"].get<double>());
+  CHECK(next["test"] == 4);
+}
+
+TEST_CASE("explain: an unknown stream or id exits 3 with a clear message; bad usage exits 2") {
+  const alphaledger::test_support::TempDir dir;
+  const std::string db = dir.path() + "/db";
+  REQUIRE(run_alphaledger({"--ledger", db, "new", "s", "--rule", "saffron"}).exit_code == 0);
+  const auto no_stream = run_alphaledger({"--ledger", db, "explain", "nope"});
+  CHECK(no_stream.exit_code == 3);
+  CHECK(no_stream.err.find("no stream named 'nope'") != std::string::npos);
+  const auto no_id = run_alphaledger({"--ledger", db, "explain", "s", "--id", "x"});
+  CHECK(no_id.exit_code == 3);
+  CHECK(no_id.err.find("no decided test with id 'x'") != std::string::npos);
+  const auto neither = run_alphaledger({"--ledger", db, "explain"});
+  CHECK(neither.exit_code == 2);
+}
+
+TEST_CASE("explain --log: a log replayed through the rule, e-values for e-lond") {
+  const alphaledger::test_support::TempDir dir;
+  const std::string log = dir.write("e.csv", "id,e_value\na,1000\nb,0.5\nc,2\n");
+  const auto r = run_alphaledger({"--json", "explain", "--log", log, "--rule", "e-lond", "--id", "c"});
+  REQUIRE(r.exit_code == 0);
+  const auto j = nlohmann::json::parse(r.out);
+  CHECK(j["test"] == 3);
+  REQUIRE(j["terms"].size() == 2);  // alpha gamma_3, and one rejection (a: 1000 >= 1/alpha_1 = 365)
+  CHECK(j["terms"][1]["kind"] == "rejections_so_far");
+  CHECK(j["terms"][1]["rejection"] == 1);
+}
