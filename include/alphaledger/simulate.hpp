@@ -200,11 +200,6 @@ struct RunTally {
 // Counts R and V from a list of decisions. REQUIRES: rejected.size() == stream.p_value.size().
 RunTally tally_decisions(const SimulatedStream& stream, const std::vector<bool>& rejected);
 
-// resolve_procedures(names, flags, true) plus "e-bh", e-BH (offline.hpp) on the simulated
-// e-values, at the flags' alpha. Errors as resolve_procedures().
-Result<std::vector<Procedure>> resolve_simulation_procedures(const std::vector<std::string>& names,
-                                                             const RuleSpec& flags);
-
 // Which evidence a row of the plan decides on.
 enum class Evidence : std::uint8_t {
   kFinal,        // the final p-value (e-value rules: the likelihood ratio at the effect)

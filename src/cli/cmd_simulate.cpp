@@ -124,7 +124,7 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
       if (n == "lord++" || n == "saffron" || n == "addis") flags.evaluation = "fast";
     }
   }
-  auto procs = resolve_simulation_procedures(*names, flags);
+  auto procs = resolve_procedures(*names, flags, /*allow_offline=*/true);
   if (!procs) return procs.error();
 
   if (o.report) {

@@ -393,29 +393,6 @@ RunTally tally_decisions(const SimulatedStream& stream, const std::vector<bool>&
   return t;
 }
 
-Result<std::vector<Procedure>> resolve_simulation_procedures(const std::vector<std::string>& names,
-                                                             const RuleSpec& flags) {
-  std::vector<std::string> others;
-  std::optional<std::size_t> e_bh_at;
-  for (const auto& name : names) {
-    if (name == "e-bh") {
-      e_bh_at = others.size();
-    } else {
-      others.push_back(name);
-    }
-  }
-  auto procs = resolve_procedures(others, flags, /*allow_offline=*/true);
-  if (!procs || !e_bh_at) return procs;
-  OfflineConfig oc;
-  oc.method = OfflineMethod::kEBh;
-  oc.alpha = flags.alpha.value_or(0.05);
-  if (!(oc.alpha > 0 && oc.alpha < 1)) {
-    return invalid_input("alpha must satisfy 0 < alpha < 1, got " + num(oc.alpha));
-  }
-  procs->insert(procs->begin() + static_cast<std::ptrdiff_t>(*e_bh_at), Procedure{"e-bh", oc});
-  return procs;
-}
-
 std::string_view evidence_suffix(Evidence evidence) {
   switch (evidence) {
     case Evidence::kFinal:

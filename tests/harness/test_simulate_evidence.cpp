@@ -18,7 +18,7 @@ namespace {
 
 SimulationResult run(const std::vector<std::string>& rules, const SimulationModel& m, std::uint64_t runs,
                      std::uint64_t seed, PeekingSpec peeking = {}, bool keep_runs = false) {
-  auto procs = resolve_simulation_procedures(rules, RuleSpec{.evaluation = "fast"});
+  auto procs = resolve_procedures(rules, RuleSpec{.evaluation = "fast"}, true);
   REQUIRE_MESSAGE(procs.ok(), (procs.ok() ? "" : procs.error().message));
   const SimulationPlan plan(*procs, peeking);
   auto r = run_simulation(plan, m,
@@ -101,13 +101,13 @@ TEST_CASE("Evidence: e-lond and e-bh keep FDR <= alpha + 3 SE under strong posit
 }
 
 TEST_CASE("Evidence: e-bh is refused with a bad alpha and resolves beside the other rules in order") {
-  auto ok = resolve_simulation_procedures({"lord++", "e-bh", "bh"}, RuleSpec{});
+  auto ok = resolve_procedures({"lord++", "e-bh", "bh"}, RuleSpec{}, true);
   REQUIRE(ok.ok());
   REQUIRE(ok->size() == 3);
   CHECK((*ok)[1].name == "e-bh");
   CHECK(std::get<OfflineConfig>((*ok)[1].config).method == OfflineMethod::kEBh);
   CHECK((*ok)[2].name == "bh");
-  auto bad = resolve_simulation_procedures({"e-bh"}, RuleSpec{.alpha = 1.5});
+  auto bad = resolve_procedures({"e-bh"}, RuleSpec{.alpha = 1.5}, true);
   CHECK_FALSE(bad.ok());
 }
 
