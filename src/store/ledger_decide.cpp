@@ -111,13 +111,13 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
   return decide_batch_streamed(stream, std::span<const TestView>(views), group_size, on_durable);
 }
 
-Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view stream,
-                                                               std::span<const TestView> tests,
-                                                               std::size_t group_size,
-                                                               const GroupCallback& on_durable) {
-  if (auto s = store::validate_stream_name(stream); !s) return s.error();
-  // Row numbers are 32-bit below; the largest value marks a row whose id the ledger holds.
-  constexpr std::uint32_t kStoredRow = static_cast<std::uint32_t>(-1);
+namespace {
+
+// Row numbers of a batch are 32-bit; the largest value marks a row whose id the ledger holds.
+constexpr std::uint32_t kStoredRow = static_cast<std::uint32_t>(-1);
+
+// Every row's id and p-value, before anything is looked up.
+Status validate_batch(std::span<const TestView> tests) {
   if (tests.size() >= kStoredRow - 1) {
     return invalid_input("a batch holds at most " + std::to_string(kStoredRow - 2) + " tests, got " +
                          std::to_string(tests.size()) + "; split it");
@@ -132,68 +132,64 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
                            "): " + s.error().message);
     }
   }
-  if (group_size == 0) group_size = 1;
-  SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
-  if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
+  return {};
+}
 
-  BatchResult out;
-  // First pass, before anything is written: every id is looked up, so a conflict (with the
-  // ledger, or between two rows of the batch) refuses the batch with the ledger unchanged.
-  // first_row[i] is i for a row that decides a new id, the first such row for a later row with
-  // the same new id, and kStoredRow for an id the ledger already holds (its record is read again
-  // when its row's turn comes, rather than kept: a resumed 10^6-row batch would hold them all).
-  std::vector<std::uint32_t> first_row(tests.size());
+}  // namespace
+
+Result<bool> StoreLedger::plan_batch(std::string_view stream, std::span<const TestView> tests,
+                                     std::vector<std::uint32_t>& first_row, BatchResult& out) {
+  first_row.assign(tests.size(), 0);
   std::string key;  // the index key, built in one reused buffer
-  {
-    FirstRowTable first_new(tests.size());
-    for (std::size_t i = 0; i < tests.size(); ++i) {
-      const auto& t = tests[i];
-      std::uint32_t& seen = first_new.slot(t.id, tests);
-      if (seen != FirstRowTable::kEmpty) {
-        const double first_p = tests[seen].p_value;
-        if (first_p != t.p_value) {
-          out.error =
-              conflict("test " + in_quotes(t.id) + " appears twice in the batch with different p-values (" +
-                       readable_number(first_p) + " at position " + std::to_string(seen + 1) + ", " +
-                       readable_number(t.p_value) + " at position " + std::to_string(i + 1) +
-                       "); a test id is decided once (the ledger is unchanged)");
-          out.stopped_at = i;
-          return out;
-        }
-        first_row[i] = seen;
-        continue;
-      }
-      auto found = find_decided(stream, t.id, key);
-      if (!found && found.error().kind == ErrorKind::kConflict) {  // a running or abandoned id
-        out.error = Error{ErrorKind::kConflict,
-                          "test " + std::to_string(i + 1) + " of the batch: " + found.error().message,
-                          found.error().code};
+  FirstRowTable first_new(tests.size());
+  for (std::size_t i = 0; i < tests.size(); ++i) {
+    const auto& t = tests[i];
+    std::uint32_t& seen = first_new.slot(t.id, tests);
+    if (seen != FirstRowTable::kEmpty) {
+      const double first_p = tests[seen].p_value;
+      if (first_p != t.p_value) {
+        out.error = conflict("test " + in_quotes(t.id) + " appears twice in the batch with different p-values (" +
+                             readable_number(first_p) + " at position " + std::to_string(seen + 1) + ", " +
+                             readable_number(t.p_value) + " at position " + std::to_string(i + 1) +
+                             "); a test id is decided once (the ledger is unchanged)");
         out.stopped_at = i;
-        return out;
+        return false;
       }
-      if (!found) return found.error();
-      if (*found) {
-        if (auto r = repeat_or_conflict(stream, **found, t.p_value); !r) {
-          out.error = with_message(r.error(), r.error().message + " (the ledger is unchanged)");
-          out.stopped_at = i;
-          return out;
-        }
-        first_row[i] = kStoredRow;
-      } else {
-        seen = static_cast<std::uint32_t>(i);
-        first_row[i] = static_cast<std::uint32_t>(i);
+      first_row[i] = seen;
+      continue;
+    }
+    auto found = find_decided(stream, t.id, key);
+    if (!found && found.error().kind == ErrorKind::kConflict) {  // a running or abandoned id
+      out.error =
+          with_message(found.error(), "test " + std::to_string(i + 1) + " of the batch: " + found.error().message);
+      out.stopped_at = i;
+      return false;
+    }
+    if (!found) return found.error();
+    if (*found) {
+      if (auto r = repeat_or_conflict(stream, **found, t.p_value); !r) {
+        out.error = with_message(r.error(), r.error().message + " (the ledger is unchanged)");
+        out.stopped_at = i;
+        return false;
       }
+      first_row[i] = kStoredRow;
+    } else {
+      seen = static_cast<std::uint32_t>(i);
+      first_row[i] = static_cast<std::uint32_t>(i);
     }
   }
+  return true;
+}
 
+void StoreLedger::write_batch_groups(std::string_view stream, StreamSlot& slot, std::span<const TestView> tests,
+                                     const std::vector<std::uint32_t>& first_row, std::size_t group_size,
+                                     const GroupCallback& on_durable, BatchResult& out) {
   // As in decide(): the cached state advances in place and counts as loaded only after each
   // successful write. Every row gives one result, in input order, so row j's result is
   // group[j - group_start] while its group is being decided, and afterwards out.decided[j] (or
   // kept[j] with on_durable set).
-  Rule& rule = *slot->rule;
-  StoredHead& head = slot->head;
+  Rule& rule = *slot.rule;
+  StoredHead& head = slot.head;
   // With on_durable set, results go to the callback and only rows a later repeat in the batch
   // points to are kept (in `kept`): a 10^6-row batch does not hold 10^6 results at once.
   const bool keep_all = !on_durable;
@@ -212,6 +208,7 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
   group.reserve(group_capacity);
   if (keep_all) out.decided.reserve(tests.size());
   std::size_t group_start = 0;  // the first row of the group being decided
+  std::string key;
 
   // Writes the group (if it decided anything), then publishes it. Returns false on failure,
   // having recorded the error in `out`.
@@ -224,15 +221,15 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
         out.stopped_at = group_start;
         return false;  // the slot stays not loaded: the next call reloads from the store
       }
-      slot->loaded = true;
+      slot.loaded = true;
     }
     if (on_durable && !group.empty()) on_durable(group);
     out.durable += group.size();
-    if (keep_all) {
-      for (auto& d : group) out.decided.push_back(std::move(d));
-    } else {
-      for (std::size_t j = 0; j < group.size(); ++j) {
-        if (repeated_later[group_start + j]) kept.emplace(group_start + j, std::move(group[j].record));
+    for (std::size_t j = 0; j < group.size(); ++j) {
+      if (keep_all) {
+        out.decided.push_back(std::move(group[j]));
+      } else if (repeated_later[group_start + j]) {
+        kept.emplace(group_start + j, std::move(group[j].record));
       }
     }
     group.clear();
@@ -251,7 +248,7 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
                            : corruption("ledger " + location() + ", stream " + in_quotes(stream) + ", test " +
                                         in_quotes(t.id) + ": its record went missing during the batch");
         out.stopped_at = group_start;  // this group is not written; the slot reloads if it advanced
-        return out;
+        return;
       }
       group.push_back(DecideResult{std::string(stream), std::move(**found), true});
     } else if (first != i) {
@@ -260,15 +257,40 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
                                                            : kept.at(first);
       group.push_back(DecideResult{std::string(stream), earlier, true});
     } else {
-      slot->loaded = false;
+      slot.loaded = false;
       group.push_back(decide_into(stream, rule, head, std::string(t.id), t.p_value, batch));
     }
     if (group.size() >= group_size) {
-      if (!flush()) return out;
+      if (!flush()) return;
       group_start = i + 1;
     }
   }
   flush();
+}
+
+Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view stream,
+                                                               std::span<const TestView> tests,
+                                                               std::size_t group_size,
+                                                               const GroupCallback& on_durable) {
+  if (auto s = store::validate_stream_name(stream); !s) return s.error();
+  if (auto s = validate_batch(tests); !s) return s.error();
+  if (group_size == 0) group_size = 1;
+  SlotGuard slot(*this, stream);
+  if (auto s = load(stream, *slot); !s) return s.error();
+  if (!slot->exists) return unknown_stream(stream, location());
+  if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
+
+  BatchResult out;
+  // First pass, before anything is written: every id is looked up, so a conflict (with the
+  // ledger, or between two rows of the batch) refuses the batch with the ledger unchanged.
+  // first_row[i] is i for a row that decides a new id, the first such row for a later row with
+  // the same new id, and kStoredRow for an id the ledger already holds (its record is read again
+  // when its row's turn comes, rather than kept: a resumed 10^6-row batch would hold them all).
+  std::vector<std::uint32_t> first_row;
+  auto planned = plan_batch(stream, tests, first_row, out);
+  if (!planned) return planned.error();
+  if (!*planned) return out;
+  write_batch_groups(stream, *slot, tests, first_row, group_size, on_durable, out);
   return out;
 }
 

@@ -153,6 +153,17 @@ class StoreLedger final : public Ledger {
   // abandon, decide).
   Error not_running(std::string_view stream, const TestLookup& found, std::string_view what);
 
+  // The first pass of a batch, before anything is written (ledger_decide.cpp): first_row[i] is i
+  // for a row that decides a new id, the first row with the same new id for a repeat, and a marker
+  // for an id the ledger holds. False (with out.error and out.stopped_at set) when the batch is
+  // refused; an error when the store fails.
+  Result<bool> plan_batch(std::string_view stream, std::span<const TestView> tests,
+                          std::vector<std::uint32_t>& first_row, BatchResult& out);
+  // The second pass: decides and writes the rows group by group, publishing each durable group.
+  void write_batch_groups(std::string_view stream, StreamSlot& slot, std::span<const TestView> tests,
+                          const std::vector<std::uint32_t>& first_row, std::size_t group_size,
+                          const GroupCallback& on_durable, BatchResult& out);
+
   // The stored decision for `id`, if any.
   Result<std::optional<DecisionRecord>> find_decided(std::string_view stream, std::string_view id);
   // The same, building the index key in `key` (a buffer the caller reuses across calls).
