@@ -403,7 +403,13 @@ Result<StreamLevel> stream_level(const GlobalOptions& g, const std::string& stre
 // on stderr (text) or in "level_source" (JSON), since a stream's tests get much smaller levels.
 constexpr double kDefaultPlanLevel = 0.05;
 
-Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out, std::ostream& note_out) {
+// What a plan is asked: the request and, with --stream, where its level came from.
+struct PlanSetup {
+  PlanRequest request;
+  std::optional<StreamLevel> from_stream;
+};
+
+Result<PlanSetup> plan_setup(const PlanOptions& o, const GlobalOptions& g) {
   auto alt = alternative_from(o.alternative);
   if (!alt) return alt.error();
   if (o.level && o.stream) {
@@ -415,7 +421,8 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
   if (o.test && !o.stream) {
     return invalid_input("--test ID names a running test of a stream: give the stream too (--stream S --test ID)");
   }
-  PlanRequest request;
+  PlanSetup setup;
+  PlanRequest& request = setup.request;
   request.alternative = *alt;
   request.min_effect = o.min_effect;
   request.power = o.power;
@@ -427,28 +434,95 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
     }
     request.n_per_arm = static_cast<std::uint64_t>(n);
   }
-  std::optional<StreamLevel> from_stream;
-  if (o.stream) {
-    auto s = stream_level(g, *o.stream, o.test);
-    if (!s) return s.error();
-    if (!(s->level > 0.0) && s->reserved) {
-      return invalid_input("test '" + excerpt(*o.test) + "' of stream '" + *o.stream +
-                           "' has level 0 reserved: no sample size reaches any power");
-    }
-    if (!(s->level > 0.0)) {
-      return invalid_input("stream '" + *o.stream + "' would give its next test (step " +
-                           std::to_string(s->step) +
-                           ") level 0: its alpha-wealth is spent, and no sample size reaches any power");
-    }
-    from_stream = *s;
-    request.level = s->level;
-  } else {
+  if (!o.stream) {
     request.level = o.level.value_or(kDefaultPlanLevel);
+    return setup;
   }
+  auto s = stream_level(g, *o.stream, o.test);
+  if (!s) return s.error();
+  if (!(s->level > 0.0) && s->reserved) {
+    return invalid_input("test '" + excerpt(*o.test) + "' of stream '" + *o.stream +
+                         "' has level 0 reserved: no sample size reaches any power");
+  }
+  if (!(s->level > 0.0)) {
+    return invalid_input("stream '" + *o.stream + "' would give its next test (step " + std::to_string(s->step) +
+                         ") level 0: its alpha-wealth is spent, and no sample size reaches any power");
+  }
+  setup.from_stream = *s;
+  request.level = s->level;
+  return setup;
+}
+
+void print_plan_json(std::ostream& out, const PlanOptions& o, const Plan& plan,
+                     const std::optional<StreamLevel>& from_stream, const char* level_source,
+                     const std::string& note) {
+  Json j;
+  j["design"] = o.proportions ? "proportions" : "means";
+  j["solved"] = std::string(plan_target_name(plan.solved));
+  j["n_per_arm"] = plan.n_per_arm;
+  if (plan.solved == PlanTarget::kSize) j["n_per_arm_exact"] = plan.n_exact;
+  j["level"] = plan.level;
+  j["level_source"] = level_source;
+  j["power"] = plan.power;
+  j["achieved_power"] = plan.achieved_power;
+  j["min_effect"] = plan.min_effect;
+  j[o.proportions ? "baseline" : "sd"] = o.baseline_or_sd;
+  j["alternative"] = std::string(alternative_name(plan.alternative));
+  if (from_stream && from_stream->reserved) {
+    j["stream"] = *o.stream;
+    j["test"] = *o.test;
+    j["launch"] = from_stream->step;
+  } else if (from_stream) {
+    j["stream"] = *o.stream;
+    j["step"] = from_stream->step;
+    j["note"] = note;
+  }
+  out << json_text(j) << '\n';
+}
+
+void print_plan_text(std::ostream& out, const PlanOptions& o, const Plan& plan,
+                     const std::optional<StreamLevel>& from_stream, const std::string& note) {
+  const bool reserved = from_stream && from_stream->reserved;
+  TextBlock t;
+  t.add("design", o.proportions ? "two proportions (normal approximation)" : "two means (two-sample t-test)");
+  const bool size = plan.solved == PlanTarget::kSize;
+  t.add("n_per_arm", std::to_string(plan.n_per_arm) +
+                         (size ? "  (rounded up from " + text_number(plan.n_exact, 7) + "; " +
+                                     std::to_string(2 * plan.n_per_arm) + " users in both arms)"
+                               : "  (given)"));
+  t.add("level", format_rounded(plan.level, 6) +
+                     (reserved      ? "  (reserved for running test " + *o.test + " of stream " + *o.stream +
+                                     ", launch " + std::to_string(from_stream->step) + ")"
+                      : from_stream ? "  (next level of stream " + *o.stream + ")"
+                      : o.level   ? std::string("  (given)")
+                                  : std::string("  (default: no --level or --stream given)")));
+  if (plan.solved == PlanTarget::kPower) {
+    t.add("power", format_rounded(plan.power, 6) + "  (computed)");
+  } else {
+    t.add("power", format_rounded(plan.power, 6) + "  (requested; " + format_rounded(plan.achieved_power, 6) +
+                       " at " + std::to_string(plan.n_per_arm) + " per arm)");
+  }
+  t.add("min_effect",
+        format_rounded(plan.min_effect, 6) +
+            (plan.solved == PlanTarget::kMinEffect ? "  (computed: the smallest detectable effect)"
+                                                   : "  (given)") +
+            (o.proportions ? ", from " + format_rounded(o.baseline_or_sd, 6) + " to " +
+                                 format_rounded(o.baseline_or_sd + plan.min_effect, 6)
+                           : std::string()));
+  t.add(o.proportions ? "baseline" : "sd", format_rounded(o.baseline_or_sd, 6));
+  t.add("alternative", std::string(alternative_name(plan.alternative)));
+  if (!note.empty()) t.add("note", note);
+  t.print(out);
+}
+
+Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out, std::ostream& note_out) {
+  auto setup = plan_setup(o, g);
+  if (!setup) return setup.error();
+  const std::optional<StreamLevel>& from_stream = setup->from_stream;
   const bool reserved = from_stream && from_stream->reserved;
   const char* level_source = reserved ? "reserved" : from_stream ? "stream" : o.level ? "given" : "default";
-  auto plan =
-      o.proportions ? plan_proportions(o.baseline_or_sd, request) : plan_means(o.baseline_or_sd, request);
+  auto plan = o.proportions ? plan_proportions(o.baseline_or_sd, setup->request)
+                            : plan_means(o.baseline_or_sd, setup->request);
   if (!plan) return plan.error();
 
   std::string note;  // none for a reserved level: the decision uses exactly it
@@ -459,7 +533,6 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
         ") would get now; the level granted when this test finishes can differ if other tests of the stream "
         "finish first";
   }
-  const char* design = o.proportions ? "proportions" : "means";
   if (!o.level && !from_stream && !g.json) {
     note_out
         << "alphaledger: note: no --level or --stream given, so the plan uses level "
@@ -468,61 +541,10 @@ Status run_plan(const PlanOptions& o, const GlobalOptions& g, std::ostream& out,
     note_out.flush();
   }
   if (g.json) {
-    Json j;
-    j["design"] = design;
-    j["solved"] = std::string(plan_target_name(plan->solved));
-    j["n_per_arm"] = plan->n_per_arm;
-    if (plan->solved == PlanTarget::kSize) j["n_per_arm_exact"] = plan->n_exact;
-    j["level"] = plan->level;
-    j["level_source"] = level_source;
-    j["power"] = plan->power;
-    j["achieved_power"] = plan->achieved_power;
-    j["min_effect"] = plan->min_effect;
-    j[o.proportions ? "baseline" : "sd"] = o.baseline_or_sd;
-    j["alternative"] = std::string(alternative_name(plan->alternative));
-    if (reserved) {
-      j["stream"] = *o.stream;
-      j["test"] = *o.test;
-      j["launch"] = from_stream->step;
-    } else if (from_stream) {
-      j["stream"] = *o.stream;
-      j["step"] = from_stream->step;
-      j["note"] = note;
-    }
-    out << json_text(j) << '\n';
-    return {};
-  }
-  TextBlock t;
-  t.add("design", o.proportions ? "two proportions (normal approximation)" : "two means (two-sample t-test)");
-  const bool size = plan->solved == PlanTarget::kSize;
-  t.add("n_per_arm", std::to_string(plan->n_per_arm) +
-                         (size ? "  (rounded up from " + text_number(plan->n_exact, 7) + "; " +
-                                     std::to_string(2 * plan->n_per_arm) + " users in both arms)"
-                               : "  (given)"));
-  t.add("level", format_rounded(plan->level, 6) +
-                     (reserved      ? "  (reserved for running test " + *o.test + " of stream " + *o.stream +
-                                     ", launch " + std::to_string(from_stream->step) + ")"
-                      : from_stream ? "  (next level of stream " + *o.stream + ")"
-                      : o.level   ? std::string("  (given)")
-                                  : std::string("  (default: no --level or --stream given)")));
-  if (plan->solved == PlanTarget::kPower) {
-    t.add("power", format_rounded(plan->power, 6) + "  (computed)");
+    print_plan_json(out, o, *plan, from_stream, level_source, note);
   } else {
-    t.add("power", format_rounded(plan->power, 6) + "  (requested; " +
-                       format_rounded(plan->achieved_power, 6) + " at " + std::to_string(plan->n_per_arm) +
-                       " per arm)");
+    print_plan_text(out, o, *plan, from_stream, note);
   }
-  t.add("min_effect",
-        format_rounded(plan->min_effect, 6) +
-            (plan->solved == PlanTarget::kMinEffect ? "  (computed: the smallest detectable effect)"
-                                                    : "  (given)") +
-            (o.proportions ? ", from " + format_rounded(o.baseline_or_sd, 6) + " to " +
-                                 format_rounded(o.baseline_or_sd + plan->min_effect, 6)
-                           : std::string()));
-  t.add(o.proportions ? "baseline" : "sd", format_rounded(o.baseline_or_sd, 6));
-  t.add("alternative", std::string(alternative_name(plan->alternative)));
-  if (!note.empty()) t.add("note", note);
-  t.print(out);
   return {};
 }
 
