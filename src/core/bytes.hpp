@@ -41,4 +41,42 @@ inline void put_f64(std::string& out, double v) { put_u64(out, std::bit_cast<std
 inline std::uint64_t get_u64(std::string_view in) { return get_le<8>(in); }
 inline double get_f64(std::string_view in) { return std::bit_cast<double>(get_u64(in)); }
 
+// Reads fixed-width little-endian values from the front of `in`; `ok` turns false on the first
+// short read, after which every read gives 0 (or an empty view) and `in` is empty. Construct as
+// Reader{bytes}.
+struct Reader {
+  std::string_view in;
+  bool ok = true;
+
+  std::uint64_t uint(int width) {
+    if (in.size() < static_cast<std::size_t>(width)) return fail();
+    std::uint64_t v = 0;
+    for (int i = 0; i < width; ++i) v |= std::uint64_t{static_cast<unsigned char>(in[static_cast<std::size_t>(i)])} << (8 * i);
+    in.remove_prefix(static_cast<std::size_t>(width));
+    return v;
+  }
+  std::uint8_t u8() { return static_cast<std::uint8_t>(uint(1)); }
+  std::uint16_t u16() { return static_cast<std::uint16_t>(uint(2)); }
+  std::uint32_t u32() { return static_cast<std::uint32_t>(uint(4)); }
+  std::uint64_t u64() { return uint(8); }
+  double f64() { return std::bit_cast<double>(u64()); }
+  // The next n bytes as a view into the input.
+  std::string_view bytes(std::size_t n) {
+    if (in.size() < n) {
+      fail();
+      return {};
+    }
+    auto s = in.substr(0, n);
+    in.remove_prefix(n);
+    return s;
+  }
+  // Whether n items of `each` bytes can still be read (checks a stored count before reserving).
+  bool room_for(std::uint64_t n, std::size_t each) const { return n <= in.size() / each; }
+  std::uint64_t fail() {
+    ok = false;
+    in = {};
+    return 0;
+  }
+};
+
 }  // namespace alphaledger::bytes

@@ -8,6 +8,8 @@
 #include <bit>
 #include <cstring>
 
+#include "core/bytes.hpp"
+
 namespace alphaledger {
 namespace {
 
@@ -29,30 +31,7 @@ struct State {
   double investing_reserved = 0;
 };
 
-struct Bytes {
-  std::string_view in;
-  bool ok = true;
-  std::uint8_t u8() {
-    if (in.empty()) return fail();
-    const auto v = static_cast<std::uint8_t>(in[0]);
-    in.remove_prefix(1);
-    return v;
-  }
-  std::uint64_t u64() {
-    if (in.size() < 8) return fail();
-    std::uint64_t v = 0;
-    for (int i = 0; i < 8; ++i) v |= static_cast<std::uint64_t>(static_cast<std::uint8_t>(in[i])) << (8 * i);
-    in.remove_prefix(8);
-    return v;
-  }
-  double f64() { return std::bit_cast<double>(u64()); }
-  std::uint8_t fail() {
-    ok = false;
-    in = {};
-    return 0;
-  }
-  bool room_for(std::uint64_t n, std::size_t each) const { return n <= in.size() / each; }
-};
+using Bytes = bytes::Reader;
 
 Result<State> decode(const Rule& rule) {
   const std::string bytes = rule.encode_state();

@@ -8,6 +8,8 @@
 #include <cmath>
 #include <cstring>
 
+#include "core/bytes.hpp"
+
 namespace alphaledger {
 namespace {
 
@@ -62,37 +64,10 @@ bool is_deposit_rule(RuleKind k) {
   return k == RuleKind::kLordPlusPlus || k == RuleKind::kSaffron || k == RuleKind::kAddis;
 }
 
-// Little-endian encoding helpers.
-void put_u64(std::string& out, std::uint64_t v) {
-  for (int i = 0; i < 8; ++i) out.push_back(static_cast<char>((v >> (8 * i)) & 0xff));
-}
-void put_f64(std::string& out, double v) { put_u64(out, std::bit_cast<std::uint64_t>(v)); }
-
-struct Reader {
-  std::string_view in;
-  bool ok = true;
-  std::uint8_t u8() {
-    if (in.empty()) {
-      ok = false;
-      return 0;
-    }
-    const auto v = static_cast<std::uint8_t>(in[0]);
-    in.remove_prefix(1);
-    return v;
-  }
-  std::uint64_t u64() {
-    if (in.size() < 8) {
-      ok = false;
-      in = {};
-      return 0;
-    }
-    std::uint64_t v = 0;
-    for (int i = 0; i < 8; ++i) v |= static_cast<std::uint64_t>(static_cast<std::uint8_t>(in[i])) << (8 * i);
-    in.remove_prefix(8);
-    return v;
-  }
-  double f64() { return std::bit_cast<double>(u64()); }
-};
+// Little-endian coding of the state (core/bytes.hpp).
+using bytes::put_f64;
+using bytes::put_u64;
+using bytes::Reader;
 
 // Fast mode's sums: four partial sums (lane i & 3 gets term i, in order), as four lanes of one
 // vector. Lane-wise IEEE operations in the same order as the scalar loop give the same bits on any

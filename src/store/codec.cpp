@@ -4,6 +4,8 @@
 #include <bit>
 #include <cstring>
 
+#include "core/bytes.hpp"
+
 namespace alphaledger::store {
 namespace {
 
@@ -23,53 +25,18 @@ enum class ConfigField : std::uint8_t {
 };
 constexpr int kConfigFieldCount = 11;
 
-void put_u8(std::string& out, std::uint8_t v) { out.push_back(static_cast<char>(v)); }
-void put_u16(std::string& out, std::uint16_t v) {
-  for (int i = 0; i < 2; ++i) out.push_back(static_cast<char>(v >> (8 * i)));
-}
-void put_u32(std::string& out, std::uint32_t v) {
-  for (int i = 0; i < 4; ++i) out.push_back(static_cast<char>(v >> (8 * i)));
-}
-void put_u64(std::string& out, std::uint64_t v) {
-  for (int i = 0; i < 8; ++i) out.push_back(static_cast<char>(v >> (8 * i)));
-}
-void put_f64(std::string& out, double v) { put_u64(out, std::bit_cast<std::uint64_t>(v)); }
+using bytes::put_f64;
+using bytes::put_u16;
+using bytes::put_u32;
+using bytes::put_u64;
+using bytes::put_u8;
 void put_text16(std::string& out, std::string_view s) {
   put_u16(out, static_cast<std::uint16_t>(s.size()));
   out.append(s);
 }
 
-// Reads fixed-width little-endian values; `ok` turns false on the first short read.
-struct Reader {
-  std::string_view in;
-  bool ok = true;
-
-  std::uint64_t uint(int bytes) {
-    if (in.size() < static_cast<std::size_t>(bytes)) {
-      ok = false;
-      in = {};
-      return 0;
-    }
-    std::uint64_t v = 0;
-    for (int i = 0; i < bytes; ++i) v |= std::uint64_t{static_cast<unsigned char>(in[i])} << (8 * i);
-    in.remove_prefix(static_cast<std::size_t>(bytes));
-    return v;
-  }
-  std::uint8_t u8() { return static_cast<std::uint8_t>(uint(1)); }
-  std::uint16_t u16() { return static_cast<std::uint16_t>(uint(2)); }
-  std::uint32_t u32() { return static_cast<std::uint32_t>(uint(4)); }
-  std::uint64_t u64() { return uint(8); }
-  double f64() { return std::bit_cast<double>(u64()); }
-  std::string_view bytes(std::size_t n) {
-    if (in.size() < n) {
-      ok = false;
-      in = {};
-      return {};
-    }
-    auto s = in.substr(0, n);
-    in.remove_prefix(n);
-    return s;
-  }
+// bytes::Reader, and the 32 bytes of a hash.
+struct Reader : bytes::Reader {
   Digest digest() {
     Digest d{};
     auto s = bytes(32);
@@ -132,7 +99,7 @@ std::string encode_format_version(std::uint32_t version) {
 }
 
 Result<std::uint32_t> decode_format_version(std::string_view bytes) {
-  Reader r{bytes};
+  Reader r{{bytes}};
   const auto v = r.u32();
   if (!r.ok || !r.in.empty())
     return corruption("the format version key holds " + std::to_string(bytes.size()) +
@@ -170,7 +137,7 @@ std::string encode_config(const StoredConfig& c) {
 }
 
 Result<StoredConfig> decode_config(std::string_view bytes) {
-  Reader r{bytes};
+  Reader r{{bytes}};
   const auto version = r.u8();
   if (!r.ok) return corruption("stream configuration is empty");
   if (version != kConfigVersion) {
@@ -272,7 +239,7 @@ std::string encode_head(const StoredHead& h) {
 }
 
 Result<StoredHead> decode_head(std::string_view bytes) {
-  Reader r{bytes};
+  Reader r{{bytes}};
   const auto version = r.u8();
   if (!r.ok) return corruption("stream head is empty");
   if (version != kHeadVersion && version != kClosedHeadVersion) {
@@ -318,7 +285,7 @@ std::string encode_record(const DecisionRecord& rec, const Digest& prev_hash, Di
 }
 
 Result<StoredRecord> decode_record(std::string_view bytes) {
-  Reader r{bytes};
+  Reader r{{bytes}};
   const auto version = r.u8();
   if (!r.ok) return corruption("decision record is empty");
   if (version != kRecordVersion) {
@@ -381,7 +348,7 @@ std::string encode_event(const EventRecord& e, const Digest& prev_hash, Digest* 
 }
 
 Result<StoredEvent> decode_event(std::string_view bytes) {
-  Reader r{bytes};
+  Reader r{{bytes}};
   const auto version = r.u8();
   if (!r.ok) return corruption("event record is empty");
   if (version != kEventVersion) {
@@ -479,7 +446,7 @@ std::string encode_step(std::uint64_t step) {
 }
 
 Result<std::uint64_t> decode_step(std::string_view bytes) {
-  Reader r{bytes};
+  Reader r{{bytes}};
   const auto v = r.u64();
   if (!r.ok || !r.in.empty())
     return corruption("test id index entry holds " + std::to_string(bytes.size()) + " bytes, expected 8");

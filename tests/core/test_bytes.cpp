@@ -45,3 +45,28 @@ TEST_CASE("bytes: get_u64 reads only the first eight bytes") {
   out += "tail";
   CHECK(bytes::get_u64(out) == 7);
 }
+
+TEST_CASE("bytes: Reader reads in order and fails safely on a short input") {
+  std::string out;
+  bytes::put_u8(out, 0xab);
+  bytes::put_u16(out, 0x1234);
+  bytes::put_u32(out, 0xdeadbeef);
+  bytes::put_f64(out, 0.05);
+  out += "xyz";
+  // Little-endian by definition: the u16 0x1234 is stored as 34 12.
+  CHECK(out[1] == '\x34');
+  CHECK(out[2] == '\x12');
+  bytes::Reader r{out};
+  CHECK(r.u8() == 0xab);
+  CHECK(r.u16() == 0x1234);
+  CHECK(r.u32() == 0xdeadbeefu);
+  CHECK(r.f64() == 0.05);
+  CHECK(r.room_for(3, 1));
+  CHECK_FALSE(r.room_for(2, 2));
+  CHECK(r.bytes(3) == "xyz");
+  CHECK(r.ok);
+  CHECK(r.u64() == 0);  // nothing left: a short read
+  CHECK_FALSE(r.ok);
+  CHECK(r.bytes(1).empty());
+  CHECK(r.in.empty());
+}
