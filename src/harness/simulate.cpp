@@ -266,6 +266,64 @@ double peeking_mixture_sd(const PeekingSpec& p, const SimulationModel& m) {
 
 double upper_tail_p_value(double z) { return 0.5 * std::erfc(z * kInvSqrt2); }
 
+namespace {
+
+// The chance that test t is non-null under the model's pattern; `share` is test t-1's (bursts
+// keep it within a block and draw it at a block's first test, from `truth`).
+double share_at(const SimulationModel& m, std::uint64_t t, double share, double burst_probability,
+                RandomStream& truth) {
+  const double f = m.nonnull_fraction;
+  const double nd = static_cast<double>(m.tests);
+  switch (m.pattern.kind) {
+    case NonnullPattern::kConstant:
+      return share;
+    case NonnullPattern::kRising:
+      return 2.0 * f * (static_cast<double>(t) + 0.5) / nd;
+    case NonnullPattern::kFalling:
+      return 2.0 * f * (nd - static_cast<double>(t) - 0.5) / nd;
+    case NonnullPattern::kBursts:
+      if (t % m.pattern.burst_length == 0) {
+        return truth.uniform() < burst_probability ? m.pattern.burst_share : 0.0;
+      }
+      return share;
+  }
+  return share;
+}
+
+// What K looks at one test saw: the smallest fixed-horizon and always-valid p-values, and the
+// largest and last mixture e-values.
+struct LookSummary {
+  double p_fixed = 1, p_anytime = 1, e_max = 0, e_last = 1;
+};
+
+// K = path.size() looks at a test of mean `mean` whose final noise is `e` (final z `z`): a
+// Brownian path on the looks tied to end at the test's own noise. W(k/K) from independent
+// N(0, 1/K) steps, then B(s) = W(s) - s W(1) + s e (a Brownian bridge plus s e), so B(1) = e.
+LookSummary look_at_test(double mean, double e, double z, RandomStream& paths, std::vector<double>& path,
+                         const MixtureSettings& mixture) {
+  const std::size_t looks = path.size();
+  const double look_sd = std::sqrt(1.0 / static_cast<double>(looks));
+  double w = 0;
+  for (std::size_t k = 0; k < looks; ++k) path[k] = (w += look_sd * paths.normal());
+  const double w_end = path[looks - 1];
+  LookSummary out;
+  for (std::size_t k = 1; k <= looks; ++k) {
+    const bool last = k == looks;
+    const double s = last ? 1.0 : static_cast<double>(k) / static_cast<double>(looks);
+    const double b = last ? e : path[k - 1] - s * w_end + s * e;
+    const double sum = mean * s + b;  // S(s), the cumulative data
+    const double zk = last ? z : sum / std::sqrt(s);
+    out.p_fixed = std::min(out.p_fixed, upper_tail_p_value(zk));
+    const double log_ratio = *log_mixture_likelihood_ratio({sum / s, 1.0 / s}, mixture);
+    out.p_anytime = std::min(out.p_anytime, std::min(1.0, std::exp(-log_ratio)));
+    out.e_last = capped_exp(log_ratio);
+    out.e_max = std::max(out.e_max, out.e_last);
+  }
+  return out;
+}
+
+}  // namespace
+
 void generate_stream(const SimulationModel& m, std::uint64_t seed, std::uint64_t run, SimulatedStream& out,
                      const StreamNeeds& needs) {
   RandomStream truth(seed, run, 1);
@@ -288,9 +346,7 @@ void generate_stream(const SimulationModel& m, std::uint64_t seed, std::uint64_t
   MixtureSettings mixture;
   mixture.mixture_sd = peeking_mixture_sd(needs.peeking, m);
   mixture.alternative = Alternative::kGreater;  // the simulated tests are one-sided
-  const double look_sd = looks > 0 ? std::sqrt(1.0 / static_cast<double>(looks)) : 0.0;
   const double f = m.nonnull_fraction;
-  const double nd = static_cast<double>(n);
   const double rho = m.correlation.rho;
   const double innovation = std::sqrt(1.0 - rho * rho);  // AR(1)
   const double shared_weight = std::sqrt(rho);           // blocks
@@ -301,21 +357,7 @@ void generate_stream(const SimulationModel& m, std::uint64_t seed, std::uint64_t
   double previous = 0;  // AR(1) state
   double shared = 0;    // block component
   for (std::uint64_t t = 0; t < n; ++t) {
-    switch (m.pattern.kind) {
-      case NonnullPattern::kConstant:
-        break;
-      case NonnullPattern::kRising:
-        share = 2.0 * f * (static_cast<double>(t) + 0.5) / nd;
-        break;
-      case NonnullPattern::kFalling:
-        share = 2.0 * f * (nd - static_cast<double>(t) - 0.5) / nd;
-        break;
-      case NonnullPattern::kBursts:
-        if (t % m.pattern.burst_length == 0) {
-          share = truth.uniform() < burst_probability ? m.pattern.burst_share : 0.0;
-        }
-        break;
-    }
+    share = share_at(m, t, share, burst_probability, truth);
     const bool nonnull = truth.uniform() < share;
     double mean = m.null_mean;
     if (nonnull) {
@@ -347,28 +389,11 @@ void generate_stream(const SimulationModel& m, std::uint64_t seed, std::uint64_t
     }
     if (needs.e_values) out.e_value[t] = capped_exp(m.effect * z - 0.5 * m.effect * m.effect);
     if (looks > 0) {
-      // A Brownian path on the looks tied to end at the test's own noise: W(k/K) from independent
-      // N(0, 1/K) steps, then B(s) = W(s) - s W(1) + s e (a Brownian bridge plus s e), so B(1) = e.
-      double w = 0;
-      for (std::uint64_t k = 0; k < looks; ++k) path[k] = (w += look_sd * paths.normal());
-      const double w_end = path[looks - 1];
-      double p_fixed = 1, p_anytime = 1, e_max = 0, e_last = 1;
-      for (std::uint64_t k = 1; k <= looks; ++k) {
-        const bool last = k == looks;
-        const double s = last ? 1.0 : static_cast<double>(k) / static_cast<double>(looks);
-        const double b = last ? e : path[k - 1] - s * w_end + s * e;
-        const double sum = mean * s + b;  // S(s), the cumulative data
-        const double zk = last ? z : sum / std::sqrt(s);
-        p_fixed = std::min(p_fixed, upper_tail_p_value(zk));
-        const double log_ratio = *log_mixture_likelihood_ratio({sum / s, 1.0 / s}, mixture);
-        p_anytime = std::min(p_anytime, std::min(1.0, std::exp(-log_ratio)));
-        e_last = capped_exp(log_ratio);
-        e_max = std::max(e_max, e_last);
-      }
-      out.p_min_fixed[t] = p_fixed;
-      out.p_min_anytime[t] = p_anytime;
-      out.e_max_mixture[t] = e_max;
-      out.e_last_mixture[t] = e_last;
+      const LookSummary l = look_at_test(mean, e, z, paths, path, mixture);
+      out.p_min_fixed[t] = l.p_fixed;
+      out.p_min_anytime[t] = l.p_anytime;
+      out.e_max_mixture[t] = l.e_max;
+      out.e_last_mixture[t] = l.e_last;
     }
   }
 }
