@@ -142,8 +142,11 @@ std::string exceedance_note(const ProcedureSummary& r) {
          format_rounded(r.target) + " by more than 3 standard errors (SE " + fixed(r.promised_se, 4) + ")";
 }
 
-void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummary>& rows,
-                            const SimulationSettings& st) {
+namespace {
+
+// The lines above the table: the runs, the model, overlap, peeking and evaluation.
+void write_settings_lines(std::ostream& out, const std::vector<ProcedureSummary>& rows,
+                          const SimulationSettings& st) {
   const SimulationModel& m = st.model;
   out << "Simulated " << st.runs << " stream" << (st.runs == 1 ? "" : "s") << " of " << m.tests
       << " one-sided z-tests (seed " << st.seed << ", " << st.threads << " thread"
@@ -171,7 +174,10 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
   const std::string eval = evaluation_note(rows);
   if (!eval.empty()) out << "evaluation: " << eval << "\n";
   out << "\n";
+}
 
+// The table: one row per procedure, then the mFDR_eta lines.
+void write_rows(std::ostream& out, const std::vector<ProcedureSummary>& rows) {
   std::size_t width = 16;
   for (const auto& r : rows) width = std::max(width, r.rule.size() + 2);
   out << pad("rule", width, true) << pad("rejections", 11) << pad("FDR", 8) << pad("+-SE", 8)
@@ -192,6 +198,10 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
                 fixed(r.promised_se, 4) + ").");
   }
   out << "\n";
+}
+
+// Which rows are above their target, and what the columns mean.
+void write_checks(std::ostream& out, const std::vector<ProcedureSummary>& rows) {
   bool any = false;
   for (const auto& r : rows) {
     const std::string note = exceedance_note(r);
@@ -209,8 +219,10 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
   out << "FDR: mean of V/max(R,1) at the end of the stream; mFDR: sum V / sum max(R,1); FWER: share of\n"
          "streams with a false discovery; power: mean share of non-nulls rejected; SE: Monte Carlo\n"
          "standard error over streams.\n";
+}
 
-  // Which promises the chosen scenario does not cover (docs/simulate.md lists the sources).
+// Which promises the chosen scenario does not cover (docs/simulate.md lists the sources).
+void write_scope_notes(std::ostream& out, const std::vector<ProcedureSummary>& rows, const SimulationModel& m) {
   bool peek_fixed = false;
   for (const auto& r : rows)
     peek_fixed = peek_fixed || r.rule.ends_with(evidence_suffix(Evidence::kPeekFixed));
@@ -243,6 +255,16 @@ void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummar
     if (!covered.empty()) note += " Still covered: " + covered + ".";
     out << wrap(note);
   }
+}
+
+}  // namespace
+
+void write_simulation_table(std::ostream& out, const std::vector<ProcedureSummary>& rows,
+                            const SimulationSettings& st) {
+  write_settings_lines(out, rows, st);
+  write_rows(out, rows);
+  write_checks(out, rows);
+  write_scope_notes(out, rows, st.model);
 }
 
 }  // namespace alphaledger
