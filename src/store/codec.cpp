@@ -136,6 +136,28 @@ std::string encode_config(const StoredConfig& c) {
   return out;
 }
 
+namespace {
+
+// The configuration must be exactly one that resolve_config() produces: rebuild it from the
+// parameters the rule takes and compare.
+Status check_canonical(const RuleConfig& config) {
+  RuleSpec spec;
+  spec.rule = std::string(rule_name(config.kind));
+  spec.alpha = config.alpha;
+  if (rule_takes(config.kind, "initial_wealth")) spec.initial_wealth = config.initial_wealth;
+  if (rule_takes(config.kind, "candidate_threshold")) spec.candidate_threshold = config.candidate_threshold;
+  if (rule_takes(config.kind, "discard_threshold")) spec.discard_threshold = config.discard_threshold;
+  if (rule_takes(config.kind, "payout")) spec.payout = config.payout;
+  if (rule_takes(config.kind, "spending")) spec.spending = config.spending;
+  if (rule_takes(config.kind, "evaluation")) spec.evaluation = std::string(evaluation_name(config.evaluation));
+  auto resolved = resolve_config(spec);
+  if (!resolved) return corruption("stream configuration is not valid: " + resolved.error().message);
+  if (!(*resolved == config)) return corruption("stream configuration is not in canonical form");
+  return {};
+}
+
+}  // namespace
+
 Result<StoredConfig> decode_config(std::string_view bytes) {
   Reader r{{bytes}};
   const auto version = r.u8();
@@ -206,22 +228,7 @@ Result<StoredConfig> decode_config(std::string_view bytes) {
   c.alternative = static_cast<Alternative>(alternative);
   c.config.kind = static_cast<RuleKind>(kind);
   c.config.evaluation = static_cast<Evaluation>(evaluation);
-  // The configuration must be exactly one that resolve_config() produces: rebuild it from the
-  // parameters the rule takes and compare.
-  RuleSpec spec;
-  spec.rule = std::string(rule_name(c.config.kind));
-  spec.alpha = c.config.alpha;
-  if (rule_takes(c.config.kind, "initial_wealth")) spec.initial_wealth = c.config.initial_wealth;
-  if (rule_takes(c.config.kind, "candidate_threshold"))
-    spec.candidate_threshold = c.config.candidate_threshold;
-  if (rule_takes(c.config.kind, "discard_threshold")) spec.discard_threshold = c.config.discard_threshold;
-  if (rule_takes(c.config.kind, "payout")) spec.payout = c.config.payout;
-  if (rule_takes(c.config.kind, "spending")) spec.spending = c.config.spending;
-  if (rule_takes(c.config.kind, "evaluation"))
-    spec.evaluation = std::string(evaluation_name(c.config.evaluation));
-  auto resolved = resolve_config(spec);
-  if (!resolved) return corruption("stream configuration is not valid: " + resolved.error().message);
-  if (!(*resolved == c.config)) return corruption("stream configuration is not in canonical form");
+  if (auto canonical = check_canonical(c.config); !canonical) return canonical.error();
   if (validate_stream_name(c.name).ok() == false)
     return corruption("stream configuration holds a bad name");
   return c;
