@@ -20,6 +20,7 @@ std::string command_advice(const Error& e) {
     return " (the running tests: alphaledger running " + e.subject + "; launch one with: alphaledger launch " +
            e.subject + " --id ID)";
   }
+  if (e.reason == "log_format") return " (--format csv|jsonl)";
   if (e.reason == "running_in_batch") return " (alphaledger decide " + e.subject + " --id ID --p P)";
   if (e.reason == "damaged_ledger") {
     return " Copy what can be proven into a new folder with: alphaledger --ledger " + e.subject +

@@ -35,7 +35,7 @@ Failure failure_from(const Error& e);
 // The command to run next, for the errors whose reason has one (Error::reason in result.hpp):
 // unknown_stream -> how to create it, closed_stream -> how to read its history, damaged_record ->
 // verify, damaged_ledger -> recover, not_launched -> running/launch, running_in_batch -> decide
-// alone. Empty otherwise. Starts with a space.
+// alone, log_format -> the --format flag. Empty otherwise. Starts with a space.
 std::string command_advice(const Error& e);
 Failure usage_failure(std::string message);     // 2 usage: the command line itself is wrong
 Failure internal_failure(std::string message);  // 4 internal: an unexpected failure inside the tool

@@ -6,6 +6,7 @@
 #include <set>
 
 #include "alphaledger/offline.hpp"
+#include "alphaledger/text.hpp"
 
 namespace alphaledger {
 
@@ -16,8 +17,8 @@ Result<std::vector<std::string>> split_rule_list(std::string_view list) {
   while (start <= list.size()) {
     const std::size_t comma = std::min(list.find(',', start), list.size());
     std::string name(list.substr(start, comma - start));
-    if (name.empty()) return invalid_input("--rules has an empty name in '" + std::string(list) + "'");
-    if (!seen.insert(name).second) return invalid_input("--rules names '" + name + "' twice");
+    if (name.empty()) return invalid_input("the list of rules has an empty name in '" + excerpt(list) + "'");
+    if (!seen.insert(name).second) return invalid_input("the list of rules names '" + excerpt(name) + "' twice");
     out.push_back(name);
     start = comma + 1;
   }

@@ -138,16 +138,20 @@ Result<LogFormat> log_format_for(std::string_view path, std::optional<std::strin
     if (*forced == "jsonl") return LogFormat::kJsonLines;
     return invalid_input("format must be csv or jsonl, got '" + excerpt(*forced) + "'");
   }
-  if (path == "-")
-    return invalid_input("reading standard input ('-'): give its format with --format csv or --format jsonl");
+  // The command line adds the flag that gives the format (src/cli/cli_errors.cpp).
+  if (path == "-") {
+    return with_reason(invalid_input("reading standard input ('-'): its format (csv or jsonl) must be given"),
+                       "log_format", "-");
+  }
   auto ends = [&](std::string_view ext) {
     return path.size() >= ext.size() && path.substr(path.size() - ext.size()) == ext;
   };
   if (ends(".csv")) return LogFormat::kCsv;
   if (ends(".jsonl") || ends(".ndjson")) return LogFormat::kJsonLines;
-  return invalid_input(std::string(path) +
-                       ": cannot tell the format from the extension; use a "
-                       ".csv or .jsonl file, or --format csv|jsonl");
+  return with_reason(invalid_input(std::string(path) +
+                                   ": cannot tell the format from the extension; use a .csv or .jsonl file, "
+                                   "or give the format (csv or jsonl)"),
+                     "log_format", std::string(path));
 }
 
 namespace detail {

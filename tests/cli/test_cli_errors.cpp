@@ -460,3 +460,10 @@ TEST_CASE("CliErrors: serve names the flag that gave a bad address or token file
       expect_failure({"--ledger", db, "serve", "--token-file", s.sub("absent-token")}, 2, "invalid_input");
   CHECK(message_of(bad_token).find("(given with --token-file FILE)") != std::string::npos);
 }
+
+TEST_CASE("CliErrors: the log reader says what is missing; the command line names the flag") {
+  // A file whose name tells no format (src/harness/test_log_fields.cpp).
+  TempDir s;
+  const auto j = expect_failure({"replay", s.write("log.txt", "id,p_value\na,0.1\n")}, 2, "invalid_input");
+  CHECK(message_of(j).find("or give the format (csv or jsonl) (--format csv|jsonl)") != std::string::npos);
+}

@@ -279,10 +279,13 @@ TEST_CASE("TestLog: dates take digits only, and a long fraction is read without 
   CHECK(has(too_small.error().message, "too small"));
 }
 
-TEST_CASE("TestLog: '-' reads standard input, and needs --format") {
+TEST_CASE("TestLog: '-' reads standard input, and needs its format given") {
   auto no_format = read_test_log_file("-", std::nullopt);
   REQUIRE_FALSE(no_format.ok());
-  CHECK(has(no_format.error().message, "--format"));
+  CHECK(has(no_format.error().message, "its format (csv or jsonl) must be given"));
+  // The harness names no flag; the reason lets the command line add --format.
+  CHECK_FALSE(has(no_format.error().message, "--format"));
+  CHECK(no_format.error().reason == "log_format");
   std::istringstream fake("id,p_value\na,0.1\n");
   std::streambuf* saved = std::cin.rdbuf(fake.rdbuf());
   auto log = read_test_log_file("-", "csv");
