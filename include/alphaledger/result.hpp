@@ -70,6 +70,16 @@ struct Error {
   std::string subject = {};
 };
 
+// Invalid input about one named parameter: the message is "FIELD REST", the reason "field" and
+// the subject FIELD (as the library names it, e.g. nonnull_fraction), so that a front end can show
+// the parameter under its own name (the command line shows --nonnull-fraction).
+inline Error invalid_field(std::string field, std::string rest) {
+  Error e{ErrorKind::kInvalidArgument, field + " " + rest};
+  e.reason = "field";
+  e.subject = std::move(field);
+  return e;
+}
+
 // `e` with another message: kind, code, reason and subject kept.
 inline Error with_message(Error e, std::string message) {
   e.message = std::move(message);

@@ -1,6 +1,7 @@
 // The error table of the command line and the stdin reader (cli_errors.hpp; docs/errors.md).
 #include "cli/cli_errors.hpp"
 
+#include <algorithm>
 #include <iostream>
 #include <iterator>
 #include <nlohmann/json.hpp>
@@ -29,9 +30,19 @@ std::string command_advice(const Error& e) {
   return {};
 }
 
+std::string message_for_command_line(const Error& e) {
+  // A parameter the library names nonnull_fraction is the flag --nonnull-fraction here.
+  if (e.reason == "field" && !e.subject.empty() && e.message.starts_with(e.subject + " ")) {
+    std::string flag = e.subject;
+    std::replace(flag.begin(), flag.end(), '_', '-');
+    return "--" + flag + e.message.substr(e.subject.size());
+  }
+  return e.message + command_advice(e);
+}
+
 Failure failure_from(const Error& e) {
   // The one mapping of error kinds to exit codes (docs/errors.md); the word is code_word().
-  const auto with = [&](int exit_code) { return Failure{exit_code, code_word(e), e.message + command_advice(e)}; };
+  const auto with = [&](int exit_code) { return Failure{exit_code, code_word(e), message_for_command_line(e)}; };
   switch (e.kind) {
     case ErrorKind::kInvalidArgument:
       return with(2);

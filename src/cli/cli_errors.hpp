@@ -30,8 +30,12 @@ struct Failure {
 //   kInvalidArgument -> 2 invalid_input
 //   kNotFound        -> 3 not_found        kConflict -> 3 conflict
 //   kCorruption      -> 4 corruption       kIOError  -> 4 storage     kBusy -> 4 busy
-// The message is the error's, followed by command_advice(e).
+// The message is message_for_command_line(e).
 Failure failure_from(const Error& e);
+// The error's message as the command line shows it: a parameter the library names (reason
+// "field", e.g. nonnull_fraction) under its flag (--nonnull-fraction), else the message followed
+// by command_advice(e).
+std::string message_for_command_line(const Error& e);
 // The command to run next, for the errors whose reason has one (Error::reason in result.hpp):
 // unknown_stream -> how to create it, closed_stream -> how to read its history, damaged_record ->
 // verify, damaged_ledger -> recover, not_launched -> running/launch, running_in_batch -> decide

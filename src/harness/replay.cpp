@@ -98,9 +98,7 @@ Result<std::vector<Procedure>> resolve_procedures(const std::vector<std::string>
   }
   for (std::size_t i = 0; i < given.size(); ++i) {
     if (given[i].second && !used[i]) {
-      std::string flag(given[i].first);
-      std::replace(flag.begin(), flag.end(), '_', '-');
-      return invalid_input("--" + flag + " is not taken by any listed rule");
+      return invalid_field(std::string(given[i].first), "is not taken by any listed rule");
     }
   }
   return out;

@@ -112,7 +112,7 @@ Result<PatternSpec> parse_nonnull_pattern(std::string_view text) {
       "; accepted: constant, bursts, bursts:LENGTH, bursts:LENGTH:SHARE (LENGTH a whole number >= 1, "
       "0 < SHARE <= 1), rising, falling";
   const auto bad = [&](const std::string& why) -> Error {
-    return invalid_input("--nonnull-pattern " + why + ", got '" + std::string(text) + "'" + accepted);
+    return invalid_field("nonnull_pattern", why + ", got '" + std::string(text) + "'" + accepted);
   };
   PatternSpec p;
   if (text == "constant") return p;
@@ -158,7 +158,7 @@ Result<CorrelationSpec> parse_correlation(std::string_view text) {
   const std::string accepted =
       "; accepted: none, ar1:RHO, blocks:SIZE:RHO (0 <= RHO < 1, SIZE a whole number >= 1)";
   const auto bad = [&](const std::string& why) -> Error {
-    return invalid_input("--correlation " + why + ", got '" + std::string(text) + "'" + accepted);
+    return invalid_field("correlation", why + ", got '" + std::string(text) + "'" + accepted);
   };
   CorrelationSpec c;
   if (text == "none") return c;
@@ -197,19 +197,19 @@ std::string correlation_text(const CorrelationSpec& c) {
 
 Status validate_model(const SimulationModel& m) {
   if (m.tests < 1 || m.tests > kMaxTests) {
-    return invalid_input("--tests must be a whole number in [1, 100000000], got " + std::to_string(m.tests));
+    return invalid_field("tests", "must be a whole number in [1, 100000000], got " + std::to_string(m.tests));
   }
   if (!(m.nonnull_fraction >= 0 && m.nonnull_fraction <= 1)) {
-    return invalid_input("--nonnull-fraction must be in [0, 1], got " + num(m.nonnull_fraction));
+    return invalid_field("nonnull_fraction", "must be in [0, 1], got " + num(m.nonnull_fraction));
   }
   if (!(std::abs(m.effect) <= kMaxMean)) {
-    return invalid_input("--effect must be a number in [-40, 40], got " + num(m.effect));
+    return invalid_field("effect", "must be a number in [-40, 40], got " + num(m.effect));
   }
   if (!(m.effect_sd >= 0 && m.effect_sd <= kMaxMean)) {
-    return invalid_input("--effect-sd must be in [0, 40], got " + num(m.effect_sd));
+    return invalid_field("effect_sd", "must be in [0, 40], got " + num(m.effect_sd));
   }
   if (!(std::abs(m.null_mean) <= kMaxMean)) {
-    return invalid_input("--null-mean must be a number in [-40, 40], got " + num(m.null_mean));
+    return invalid_field("null_mean", "must be a number in [-40, 40], got " + num(m.null_mean));
   }
   switch (m.pattern.kind) {
     case NonnullPattern::kConstant:
@@ -217,31 +217,31 @@ Status validate_model(const SimulationModel& m) {
     case NonnullPattern::kRising:
     case NonnullPattern::kFalling:
       if (m.nonnull_fraction > 0.5) {
-        return invalid_input("--nonnull-pattern " + pattern_text(m.pattern) +
+        return invalid_field("nonnull_pattern", pattern_text(m.pattern) +
                              " goes from 0 to twice the non-null fraction, so it needs "
-                             "--nonnull-fraction <= 0.5, got " +
+                             "a non-null fraction <= 0.5, got " +
                              num(m.nonnull_fraction));
       }
       break;
     case NonnullPattern::kBursts:
       if (!(m.pattern.burst_length >= 1 && m.pattern.burst_share > 0 && m.pattern.burst_share <= 1)) {
-        return invalid_input("--nonnull-pattern bursts needs LENGTH >= 1 and SHARE in (0, 1]");
+        return invalid_field("nonnull_pattern", "bursts needs LENGTH >= 1 and SHARE in (0, 1]");
       }
       if (m.nonnull_fraction > m.pattern.burst_share) {
-        return invalid_input("--nonnull-pattern " + pattern_text(m.pattern) +
-                             " needs --nonnull-fraction <= the share inside a burst (" +
+        return invalid_field("nonnull_pattern", pattern_text(m.pattern) +
+                             " needs a non-null fraction <= the share inside a burst (" +
                              num(m.pattern.burst_share) + "), got " + num(m.nonnull_fraction));
       }
       break;
   }
   if (m.correlation.kind != Correlation::kNone && !(m.correlation.rho >= 0 && m.correlation.rho < 1)) {
-    return invalid_input("--correlation needs RHO in [0, 1), got " + num(m.correlation.rho));
+    return invalid_field("correlation", "needs RHO in [0, 1), got " + num(m.correlation.rho));
   }
   if (m.correlation.kind == Correlation::kBlocks && m.correlation.block_size < 1) {
-    return invalid_input("--correlation blocks needs SIZE >= 1");
+    return invalid_field("correlation", "blocks needs SIZE >= 1");
   }
   if (!(m.mean_duration >= 0 && m.mean_duration <= kMaxMeanDuration)) {
-    return invalid_input("--mean-duration must be a number of launches in [0, 1000000], got " +
+    return invalid_field("mean_duration", "must be a number of launches in [0, 1000000], got " +
                          num(m.mean_duration));
   }
   return {};
@@ -249,11 +249,11 @@ Status validate_model(const SimulationModel& m) {
 
 Status validate_peeking(const PeekingSpec& p) {
   if (p.looks > kMaxLooks) {
-    return invalid_input("--peeking must be a whole number of looks in [0, 100000], got " +
+    return invalid_field("peeking", "must be a whole number of looks in [0, 100000], got " +
                          std::to_string(p.looks));
   }
   if (!(std::isfinite(p.mixture_sd) && p.mixture_sd >= 0 && p.mixture_sd <= kMaxMean)) {
-    return invalid_input("--mixture-sd must be a number in (0, 40] (0: the effect), got " +
+    return invalid_field("mixture_sd", "must be a number in (0, 40] (0: the effect), got " +
                          num(p.mixture_sd));
   }
   return {};

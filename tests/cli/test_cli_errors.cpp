@@ -467,3 +467,16 @@ TEST_CASE("CliErrors: the log reader says what is missing; the command line name
   const auto j = expect_failure({"replay", s.write("log.txt", "id,p_value\na,0.1\n")}, 2, "invalid_input");
   CHECK(message_of(j).find("or give the format (csv or jsonl) (--format csv|jsonl)") != std::string::npos);
 }
+
+TEST_CASE("CliErrors: a parameter the library names is shown under its flag") {
+  using alphaledger::cli::failure_from;
+  // The harness names the model's field (src/harness/simulate.cpp); the command line its flag.
+  const auto e = alphaledger::invalid_field("nonnull_fraction", "must be in [0, 1], got 1.5");
+  CHECK(e.message == "nonnull_fraction must be in [0, 1], got 1.5");
+  CHECK(failure_from(e).message == "--nonnull-fraction must be in [0, 1], got 1.5");
+  // A message that no longer starts with the field (a prefix was added) is left as it is.
+  CHECK(failure_from(alphaledger::with_message(e, "run 3: " + e.message)).message == "run 3: " + e.message);
+  const auto j = expect_failure({"simulate", "--tests", "10", "--runs", "2", "--nonnull-fraction", "1.5"}, 2,
+                                "invalid_input");
+  CHECK(message_of(j).find("--nonnull-fraction must be in [0, 1], got 1.5") != std::string::npos);
+}

@@ -250,19 +250,19 @@ TEST_CASE("Simulate: bad model input is refused with the field, the value and th
   auto s = validate_model(m);
   REQUIRE(!s.ok());
   CHECK(s.error().kind == ErrorKind::kInvalidArgument);
-  CHECK(s.error().message == "--nonnull-fraction must be in [0, 1], got 1.5");
+  CHECK(s.error().message == "nonnull_fraction must be in [0, 1], got 1.5");
 
   m = {};
   m.effect_sd = -1;
-  CHECK(validate_model(m).error().message == "--effect-sd must be in [0, 40], got -1");
+  CHECK(validate_model(m).error().message == "effect_sd must be in [0, 40], got -1");
   m = {};
   m.tests = 0;
-  CHECK(validate_model(m).error().message.find("--tests must be a whole number in [1, 100000000], got 0") ==
+  CHECK(validate_model(m).error().message.find("tests must be a whole number in [1, 100000000], got 0") ==
         0);
   m = {};
   m.nonnull_fraction = 0.6;
   m.pattern = *parse_nonnull_pattern("rising");
-  CHECK(validate_model(m).error().message.find("needs --nonnull-fraction <= 0.5, got 0.6") !=
+  CHECK(validate_model(m).error().message.find("needs a non-null fraction <= 0.5, got 0.6") !=
         std::string::npos);
   m = {};
   m.nonnull_fraction = 0.6;
@@ -273,10 +273,10 @@ TEST_CASE("Simulate: bad model input is refused with the field, the value and th
   auto bad_pattern = parse_nonnull_pattern("waves");
   REQUIRE(!bad_pattern.ok());
   CHECK(bad_pattern.error().message.find(
-            "--nonnull-pattern is not a known pattern, got 'waves'; accepted:") == 0);
+            "nonnull_pattern is not a known pattern, got 'waves'; accepted:") == 0);
   CHECK(parse_nonnull_pattern("bursts:0").error().message.find("LENGTH a whole number") != std::string::npos);
   CHECK(parse_nonnull_pattern("bursts:10:1.5").error().message.find("SHARE in (0, 1]") != std::string::npos);
-  CHECK(parse_correlation("ar1:1").error().message.find("--correlation needs RHO in [0, 1), got 'ar1:1'") ==
+  CHECK(parse_correlation("ar1:1").error().message.find("correlation needs RHO in [0, 1), got 'ar1:1'") ==
         0);
   CHECK(parse_correlation("ar1:-0.2").error().message.find("RHO in [0, 1)") != std::string::npos);
   CHECK(parse_correlation("blocks:0:0.3").error().message.find("SIZE a whole number") != std::string::npos);
@@ -287,9 +287,9 @@ TEST_CASE("Simulate: bad model input is refused with the field, the value and th
   const SimulationPlan plan(*procs);
   auto r = run_simulation(plan, SimulationModel{}, {.runs = 0});
   REQUIRE(!r.ok());
-  CHECK(r.error().message == "--runs must be a whole number in [1, 100000000], got 0");
+  CHECK(r.error().message == "runs must be a whole number in [1, 100000000], got 0");
   r = run_simulation(plan, SimulationModel{}, {.runs = 5, .threads = 0});
-  CHECK(r.error().message == "--threads must be a whole number in [1, 1024], got 0");
+  CHECK(r.error().message == "threads must be a whole number in [1, 1024], got 0");
 }
 
 TEST_CASE("Simulate: pattern and correlation texts read back to the same specification") {

@@ -195,10 +195,10 @@ TEST_CASE("Evidence: peeking rows - fixed-horizon peeking breaks FDR, the always
 TEST_CASE("Evidence: bad peeking settings are refused naming the flag") {
   auto s = validate_peeking({.looks = 100001, .mixture_sd = 0});
   REQUIRE_FALSE(s.ok());
-  CHECK(s.error().message.find("--peeking") != std::string::npos);
+  CHECK(s.error().message.find("peeking") != std::string::npos);
   auto t = validate_peeking({.looks = 5, .mixture_sd = -1});
   REQUIRE_FALSE(t.ok());
-  CHECK(t.error().message.find("--mixture-sd") != std::string::npos);
+  CHECK(t.error().message.find("mixture_sd") != std::string::npos);
   CHECK(peeking_mixture_sd({.looks = 5, .mixture_sd = 0}, model(0.1, -2)) == 2);
   CHECK(peeking_mixture_sd({.looks = 5, .mixture_sd = 0}, model(0.1, 0)) == 1);
 }

@@ -206,7 +206,7 @@ TEST_CASE("Overlap: bad durations are refused naming the flag and the range") {
   SimulationModel m = small_model(-1);
   auto s = validate_model(m);
   REQUIRE_FALSE(s.ok());
-  CHECK(s.error().message == "--mean-duration must be a number of launches in [0, 1000000], got -1");
+  CHECK(s.error().message == "mean_duration must be a number of launches in [0, 1000000], got -1");
   m.mean_duration = std::nan("");
   CHECK_FALSE(validate_model(m).ok());
   m.mean_duration = 2e6;
