@@ -49,7 +49,7 @@ Status copy_files(const std::string& from, const std::string& to) {
     fs::copy_file(entry.path(), fs::path(to) / name, fs::copy_options::overwrite_existing, ec);
     if (ec) {
       return io_error("cannot copy " + entry.path().string() + " to the scratch folder " + to + ": " +
-                           ec.message());
+                      ec.message());
     }
   }
   if (ec) return io_error("cannot list ledger folder " + from + ": " + ec.message());
@@ -118,8 +118,9 @@ Result<Replayed> replay(Rule& rule, const store::ChainEntry& e, std::set<std::st
     touched = true;
     const Reservation r = rule.launch();
     if (r.launch != ev.launch || !same_bits(r.level, ev.level) || !same_bits(r.wealth, ev.wealth)) {
-      return refuse("a replay of the rule does not give the launch number, reserved level and wealth stored "
-                    "in the launch event");
+      return refuse(
+          "a replay of the rule does not give the launch number, reserved level and wealth stored "
+          "in the launch event");
     }
     ids.insert(ev.id);
     running.emplace(ev.launch, std::make_pair(ev.id, ev.at_ms));
@@ -127,7 +128,8 @@ Result<Replayed> replay(Rule& rule, const store::ChainEntry& e, std::set<std::st
   }
   auto it = running.find(ev.launch);
   if (it == running.end())
-    return refuse("the " + what + " event names launch " + std::to_string(ev.launch) + ", which is not running");
+    return refuse("the " + what + " event names launch " + std::to_string(ev.launch) +
+                  ", which is not running");
   if (it->second.first != ev.id || it->second.second != ev.launched_at_ms)
     return refuse("the " + what + " event does not name the test and launch time of launch " +
                   std::to_string(ev.launch));
@@ -138,7 +140,8 @@ Result<Replayed> replay(Rule& rule, const store::ChainEntry& e, std::set<std::st
     if (!o) return refuse("the rule refuses the finish: " + o.error().message);
     touched = true;
     if (!same_bits(o->level, ev.level) || o->rejected != ev.rejected || !same_bits(o->wealth, ev.wealth))
-      return refuse("a replay of the rule does not give the level, decision and wealth stored in the finish event");
+      return refuse(
+          "a replay of the rule does not give the level, decision and wealth stored in the finish event");
     out.p_value = ev.p_value;
   } else {
     double reserved = 0;
@@ -146,7 +149,8 @@ Result<Replayed> replay(Rule& rule, const store::ChainEntry& e, std::set<std::st
       if (t.launch == ev.launch) reserved = t.level;
     if (!same_bits(reserved, ev.level))
       return refuse("the abandon event's level is not the level reserved at the launch");
-    if (auto st = rule.abandon(ev.launch); !st) return refuse("the rule refuses the abandon: " + st.error().message);
+    if (auto st = rule.abandon(ev.launch); !st)
+      return refuse("the rule refuses the abandon: " + st.error().message);
     touched = true;
     if (!same_bits(rule.wealth(), ev.wealth))
       return refuse("a replay of the rule does not give the wealth stored in the abandon event");
@@ -317,7 +321,7 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
   std::string tmpl = (parent / ".alphaledger-recover-XXXXXX").string();
   if (::mkdtemp(tmpl.data()) == nullptr) {
     return io_error("cannot make a scratch folder in " + parent.string() +
-                         " for the copy of the damaged ledger (is the folder writable?)");
+                    " for the copy of the damaged ledger (is the folder writable?)");
   }
   Scratch scratch(tmpl);
   if (auto s = copy_files(source, scratch.path()); !s) return s.error();
@@ -398,7 +402,7 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
     if (!v) return v.error();
     if (!v->ok || v->steps != sr.kept_steps) {
       return corruption("the recovered ledger " + target + " fails verify for stream " + sr.stream + ": " +
-                           v->problem + " (this is a bug; the source is unchanged)");
+                        v->problem + " (this is a bug; the source is unchanged)");
     }
   }
   return report;

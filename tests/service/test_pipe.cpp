@@ -577,7 +577,8 @@ TEST_CASE("Pipe: integer ids on launch and abandon lines, and the summary counts
   for (std::size_t k : {8u, 9u, 10u}) {
     const auto e = nlohmann::json::parse(answers[k]);
     CHECK(e["line"] == k + 1);
-    CHECK(e["error"].get<std::string>().find("id must be a JSON string (or an integer)") != std::string::npos);
+    CHECK(e["error"].get<std::string>().find("id must be a JSON string (or an integer)") !=
+          std::string::npos);
   }
   CHECK(summary->lines == 11);
   CHECK(summary->decided == 2);    // lines 3 and 8

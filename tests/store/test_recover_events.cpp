@@ -22,8 +22,12 @@ using store_test::numbered;
 using store_test::TempDir;
 
 const std::vector<RuleSpec> kSpecs = {
-    {.rule = "alpha-spending"}, {.rule = "alpha-investing"}, {.rule = "lond"},
-    {.rule = "lord++"},         {.rule = "saffron"},         {.rule = "addis"},
+    {.rule = "alpha-spending"},
+    {.rule = "alpha-investing"},
+    {.rule = "lond"},
+    {.rule = "lord++"},
+    {.rule = "saffron"},
+    {.rule = "addis"},
     {.rule = "lord++", .evaluation = "fast"},
 };
 
