@@ -12,9 +12,14 @@
 //      read-only open, then the read-write open) and for reading only (as `next`, `status`).
 //   5. decide on the in-memory store: the CPU cost of a decision without any disk, one at a time
 //      and in groups of 4096 (memory_throughput below), for LORD++ fast and exact.
+//   6. launch-time events (launch_events below): Ledger::launch and the finish of a running test
+//      (Ledger::decide of a launched id), each one synced write, with 0, 1,000 and 10,000 tests
+//      already running (LORD++ fast), on RocksDB and on the in-memory store; and the core Rule's
+//      launch + finish alone, fast and exact, with the size of the encoded state it stores.
 // Prints the set-up, then per measurement: operations, seconds, microseconds per op, ops/s.
 //
 // Usage: ledger_bench [FOLDER] [SECONDS-PER-MEASUREMENT] [memory]   (defaults: ./ledger-bench.tmp, 3)
+// With the word launch last, only the launch-time measurements (6.) run.
 // With the word memory last, only the in-memory group measurements run (for profiling). With the
 // word group last, the second argument is a number of decisions, and only group commit on RocksDB
 // (4096 per synced write) runs: `ledger_bench FOLDER 1000000 group`.
@@ -33,6 +38,7 @@
 #include <vector>
 
 #include "alphaledger/ledger.hpp"
+#include "alphaledger/rules.hpp"
 #include "alphaledger/store.hpp"
 
 using namespace alphaledger;
@@ -213,6 +219,99 @@ void memory_throughput(const std::vector<double>& p, double seconds) {
                "decide_batch 4096, in-memory, exact");
 }
 
+// Launch-time events with `running` tests already running: the tests launched before the clock
+// starts, then, for `seconds`, one new launch and the finish of the oldest running test in turn
+// (first in, first out), so the number running stays `running` (or one more). The launch and the
+// finish are timed apart; on RocksDB each is one synced write.
+void launch_events_on(std::unique_ptr<Ledger> ledger, const RuleConfig& config, std::size_t running,
+                      const std::vector<double>& p, double seconds, const char* where) {
+  if (!ledger->create_stream("bench", config)) std::exit(1);
+  auto must_ok = [](bool ok, const char* what) {
+    if (!ok) {
+      std::fprintf(stderr, "ledger_bench: %s failed\n", what);
+      std::exit(1);
+    }
+  };
+  std::size_t launched = 0, finished = 0;
+  const auto t_fill = SteadyClock::now();
+  for (; launched < running; ++launched) must_ok(ledger->launch("bench", bench_id(launched)).ok(), "launch");
+  const double fill_secs = seconds_since(t_fill);
+  double launch_secs = 0, finish_secs = 0, cpu = 0;
+  std::size_t ops = 0;
+  const auto t0 = SteadyClock::now();
+  while (ops < 20 || seconds_since(t0) < seconds) {
+    const double cpu0 = cpu_seconds();
+    auto t = SteadyClock::now();
+    must_ok(ledger->launch("bench", bench_id(launched)).ok(), "launch");
+    launch_secs += seconds_since(t);
+    ++launched;
+    t = SteadyClock::now();
+    must_ok(ledger->decide("bench", bench_id(finished), p[finished % p.size()]).ok(), "finish");
+    finish_secs += seconds_since(t);
+    ++finished;
+    cpu += cpu_seconds() - cpu0;
+    ++ops;
+  }
+  auto status = ledger->status("bench");
+  must_ok(status.ok() && status->running == running, "status");
+  const auto tv = SteadyClock::now();
+  auto v = ledger->verify("bench");
+  must_ok(v.ok() && v->ok, "verify");
+  const double verify_secs = seconds_since(tv);
+  char label[96];
+  std::printf("%s, %zu running:\n", where, running);
+  if (running > 0) {
+    std::snprintf(label, sizeof label, "  %zu launches to fill", running);
+    report(label, running, fill_secs);
+  }
+  report("  launch", ops, launch_secs);
+  report("  finish (decide of a running id)", ops, finish_secs);
+  std::printf("  CPU time: %.1f us per launch + finish pair\n", 1e6 * cpu / static_cast<double>(ops));
+  report("  verify (per chain entry)", v->steps, verify_secs);
+  std::fflush(stdout);
+}
+
+// The core Rule alone: launch + finish of the oldest running test, with `running` running, and
+// the size of the encoded state the ledger stores in the head after every event.
+void launch_events_rule(const RuleConfig& config, std::size_t running, const std::vector<double>& p,
+                        double seconds, const char* name) {
+  Rule rule(config);
+  std::vector<std::uint64_t> fifo;
+  for (std::size_t k = 0; k < running; ++k) fifo.push_back(rule.launch().launch);
+  std::size_t ops = 0, front = 0;
+  double spent = 0;
+  const auto t0 = SteadyClock::now();
+  while (ops < 1000 || seconds_since(t0) < seconds) {
+    const auto t = SteadyClock::now();
+    for (int k = 0; k < 100; ++k, ++ops) {
+      fifo.push_back(rule.launch().launch);
+      if (!rule.finish(fifo[front++], p[ops % p.size()])) std::exit(1);
+    }
+    spent += seconds_since(t);
+  }
+  char label[96];
+  std::snprintf(label, sizeof label, "Rule %s, %zu running, launch+finish", name, running);
+  report(label, ops, spent);
+  std::printf("  encoded state: %zu bytes\n", rule.encode_state().size());
+  std::fflush(stdout);
+}
+
+void launch_events(const std::string& folder, const std::vector<double>& p, double seconds) {
+  const RuleConfig exact = resolve_config({.rule = "lord++", .evaluation = "exact"}).value();
+  for (std::size_t running : {0u, 1000u, 10000u}) {
+    launch_events_rule(lord(), running, p, seconds, "lord++ fast");
+    launch_events_rule(exact, running, p, seconds, "lord++ exact");
+  }
+  for (std::size_t running : {0u, 1000u, 10000u})
+    launch_events_on(must(Ledger::open(std::make_unique<MemoryStore>())), lord(), running, p, seconds,
+                     "in-memory store, lord++ fast");
+  for (std::size_t running : {0u, 1000u, 10000u}) {
+    const std::string path = folder + "/launch-" + std::to_string(running);
+    launch_events_on(must(Ledger::open(path)), lord(), running, p, seconds, "RocksDB, lord++ fast");
+    std::filesystem::remove_all(path);
+  }
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -225,6 +324,11 @@ int main(int argc, char** argv) {
   if (argc > 3 && std::string(argv[3]) == "group") {
     // Here the second argument is the number of decisions, not seconds.
     group_commit(ledger_path, p, static_cast<std::size_t>(seconds));
+    std::filesystem::remove_all(folder);
+    return 0;
+  }
+  if (argc > 3 && std::string(argv[3]) == "launch") {
+    launch_events(folder, p, seconds);
     std::filesystem::remove_all(folder);
     return 0;
   }
@@ -338,6 +442,7 @@ int main(int argc, char** argv) {
   }
   id_lookups(ledger_path, next, seconds);
   memory_throughput(p, seconds);
+  launch_events(folder, p, seconds);
   std::filesystem::remove_all(folder);
   return 0;
 }

@@ -8,9 +8,13 @@
 //   report->streams[0].known_steps;  // e.g. 2000: the source's head counted 2000
 //
 // The source folder is never changed: its files are copied to a scratch folder beside the target
-// and RocksDB's own salvage opens that copy. A decision is copied only if the stream's hash chain
-// is intact from the configuration up to it and a replay of the rule gives its level, decision and
-// wealth bit for bit; each stream stops at its first unproven step.
+// and RocksDB's own salvage opens that copy. An entry of a stream's chain (a decision record, or a
+// launch, finish or abandon event) is copied only if the hash chain is intact from the
+// configuration up to it and a replay of the rule gives its level, decision and wealth bit for
+// bit (a finish or abandon must name a test still running); each stream stops at its first
+// unproven step. The new ledger's rule state, tests still running included, and its id index are
+// rebuilt from the kept entries: a test launched in the kept steps whose finish was lost is
+// running in the new ledger, with the level reserved at its launch.
 //
 // Thread-safety: a free function; no shared state.
 #pragma once
@@ -26,7 +30,7 @@ namespace alphaledger {
 
 struct StreamRecovery {
   std::string stream;
-  std::uint64_t kept_steps = 0;              // steps 1..kept_steps were copied and proven
+  std::uint64_t kept_steps = 0;              // steps (chain entries) 1..kept_steps were copied and proven
   std::optional<std::uint64_t> known_steps;  // what the source's head counted, when readable
   std::string problem;                       // why copying stopped early; empty when it did not
   // Set when the stream is closed in the new ledger: the closing time (the source's).
@@ -73,7 +77,7 @@ struct RecoveryReport {
   }
 };
 
-// Copies every stream's configuration and every provable decision of ledger folder `source` into
+// Copies every stream's configuration and every provable chain entry of ledger folder `source` into
 // a new ledger in `target`, keeps each stream's closing (see StreamRecovery), then verifies each
 // stream of the new ledger (against the source's closing hash, when the closing was proven).
 // Errors: kInvalidArgument: `target` exists and is not an empty folder, or is the source;

@@ -111,11 +111,13 @@ class DecisionQueue {
 // ---- pipe --------------------------------------------------------------------------------------
 
 struct PipeSummary {
-  std::uint64_t lines = 0;    // lines answered
-  std::uint64_t decided = 0;  // new decisions
-  std::uint64_t repeats = 0;  // retries answered with the stored decision
-  std::uint64_t bad = 0;      // lines answered with {"line": N, "error": "..."}
-  bool stopped = false;       // stopped by stop_fd before the end of input
+  std::uint64_t lines = 0;      // lines answered
+  std::uint64_t decided = 0;    // new decisions (a finish of a launched test included)
+  std::uint64_t launched = 0;   // new launches ("event": "launch")
+  std::uint64_t abandoned = 0;  // new abandons ("event": "abandon")
+  std::uint64_t repeats = 0;    // retries answered with the stored decision, launch or abandon
+  std::uint64_t bad = 0;        // lines answered with {"line": N, "error": "..."}
+  bool stopped = false;         // stopped by stop_fd before the end of input
 };
 
 // Reads JSON Lines from `in_fd` (lines end with LF, CRLF or a lone CR; each line is read as a

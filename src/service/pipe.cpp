@@ -40,12 +40,19 @@ Result<LineEvent> line_event(const nlohmann::json& j) {
   return invalid_input("unknown event " + excerpt(e) + std::string(accepted));
 }
 
-// The id of a launch or abandon line: a JSON string passing validate_test_id.
+// The id of a launch or abandon line, read as on a decide line (docs/formats.md): a JSON string,
+// or an integer taken as its decimal text (42 is the id "42"), passing validate_test_id.
 Result<std::string> event_id(const nlohmann::json& j) {
   auto it = j.find("id");
   if (it == j.end()) return invalid_input("missing field 'id' (a launch or abandon names the test's id)");
-  if (!it->is_string()) return invalid_input("id must be a JSON string, got " + excerpt(json_text(*it)));
-  const auto& id = it->get_ref<const std::string&>();
+  std::string id;
+  if (it->is_string()) {
+    id = it->get<std::string>();
+  } else if (it->is_number_integer() || it->is_number_unsigned()) {
+    id = json_text(*it);
+  } else {
+    return invalid_input("id must be a JSON string (or an integer), got " + excerpt(json_text(*it)));
+  }
   if (auto s = validate_test_id(id); !s) return invalid_input("id: " + s.error().message);
   return id;
 }
@@ -149,8 +156,10 @@ class PipeRun {
       ++summary_.bad;
     } else if (repeat) {
       ++summary_.repeats;
+    } else if (w.event == LineEvent::kLaunch) {
+      ++summary_.launched;
     } else {
-      ++summary_.decided;
+      ++summary_.abandoned;
     }
     out_ << text << '\n';
     out_.flush();

@@ -5,6 +5,7 @@
 
 #include <bit>
 #include <filesystem>
+#include <map>
 #include <set>
 
 #include "alphaledger/ledger.hpp"
@@ -48,7 +49,7 @@ Status copy_files(const std::string& from, const std::string& to) {
     fs::copy_file(entry.path(), fs::path(to) / name, fs::copy_options::overwrite_existing, ec);
     if (ec) {
       return io_error("cannot copy " + entry.path().string() + " to the scratch folder " + to + ": " +
-                           ec.message());
+                      ec.message());
     }
   }
   if (ec) return io_error("cannot list ledger folder " + from + ": " + ec.message());
@@ -61,6 +62,101 @@ Status flush(Store& store, WriteBatch& batch, bool force) {
   auto s = store.write(batch, false);
   batch.ops.clear();
   return s;
+}
+
+// What one proven chain entry did to the rule.
+struct Replayed {
+  store::EventKind kind = store::EventKind::kLaunch;
+  bool record = false;       // a decision record: launch and finish at once
+  std::uint64_t launch = 0;  // finish and abandon: which launch
+  double p_value = 0;        // a decision record or a finish
+};
+
+void apply(Rule& rule, const Replayed& r) {
+  if (r.record) {
+    rule.record(r.p_value);
+  } else if (r.kind == store::EventKind::kLaunch) {
+    rule.launch();
+  } else if (r.kind == store::EventKind::kFinish) {
+    (void)(rule_takes_e_values(rule.config().kind) ? rule.finish_e(r.launch, r.p_value)
+                                                   : rule.finish(r.launch, r.p_value));
+  } else {
+    (void)rule.abandon(r.launch);
+  }
+}
+
+// Replays one chain entry through the rule, checking what verify checks of it (the rule gives
+// its level, decision and wealth bit for bit; a finish or abandon names a running launch of the
+// same test and launch time; a new test's id is new). The problem as an error's message when it
+// cannot be proven; `touched` is set when the rule was changed before a mismatch was found.
+Result<Replayed> replay(Rule& rule, const store::ChainEntry& e, std::set<std::string>& ids,
+                        std::map<std::uint64_t, std::pair<std::string, std::int64_t>>& running,
+                        bool& touched) {
+  auto refuse = [](std::string why) { return corruption(std::move(why)); };
+  Replayed out;
+  if (!e.is_event) {
+    const DecisionRecord& r = e.record.record;
+    if (ids.count(r.id)) return refuse("the test id was decided before");
+    if (!validate_p_value(r.p_value)) return refuse("the stored p-value is invalid");
+    touched = true;
+    const Outcome o = rule.record(r.p_value);
+    if (o.step != r.step || !same_bits(o.level, r.level) || o.rejected != r.rejected ||
+        !same_bits(o.wealth, r.wealth)) {
+      return refuse("a replay of the rule does not give the stored level, decision and wealth");
+    }
+    ids.insert(r.id);
+    out.record = true;
+    out.p_value = r.p_value;
+    return out;
+  }
+  const store::EventRecord& ev = e.event.event;
+  out.kind = ev.kind;
+  out.launch = ev.launch;
+  const std::string what(store::event_kind_name(ev.kind));
+  if (ev.kind == store::EventKind::kLaunch) {
+    if (ids.count(ev.id)) return refuse("the test id of the launch was used before");
+    touched = true;
+    const Reservation r = rule.launch();
+    if (r.launch != ev.launch || !same_bits(r.level, ev.level) || !same_bits(r.wealth, ev.wealth)) {
+      return refuse(
+          "a replay of the rule does not give the launch number, reserved level and wealth stored "
+          "in the launch event");
+    }
+    ids.insert(ev.id);
+    running.emplace(ev.launch, std::make_pair(ev.id, ev.at_ms));
+    return out;
+  }
+  auto it = running.find(ev.launch);
+  if (it == running.end())
+    return refuse("the " + what + " event names launch " + std::to_string(ev.launch) +
+                  ", which is not running");
+  if (it->second.first != ev.id || it->second.second != ev.launched_at_ms)
+    return refuse("the " + what + " event does not name the test and launch time of launch " +
+                  std::to_string(ev.launch));
+  if (ev.kind == store::EventKind::kFinish) {
+    if (!validate_p_value(ev.p_value)) return refuse("the stored p-value is invalid");
+    auto o = rule_takes_e_values(rule.config().kind) ? rule.finish_e(ev.launch, ev.p_value)
+                                                     : rule.finish(ev.launch, ev.p_value);
+    if (!o) return refuse("the rule refuses the finish: " + o.error().message);
+    touched = true;
+    if (!same_bits(o->level, ev.level) || o->rejected != ev.rejected || !same_bits(o->wealth, ev.wealth))
+      return refuse(
+          "a replay of the rule does not give the level, decision and wealth stored in the finish event");
+    out.p_value = ev.p_value;
+  } else {
+    double reserved = 0;
+    for (const auto& t : rule.running())
+      if (t.launch == ev.launch) reserved = t.level;
+    if (!same_bits(reserved, ev.level))
+      return refuse("the abandon event's level is not the level reserved at the launch");
+    if (auto st = rule.abandon(ev.launch); !st)
+      return refuse("the rule refuses the abandon: " + st.error().message);
+    touched = true;
+    if (!same_bits(rule.wealth(), ev.wealth))
+      return refuse("a replay of the rule does not give the wealth stored in the abandon event");
+  }
+  running.erase(it);
+  return out;
 }
 
 // Copies one stream, stopping at its first unproven step.
@@ -90,10 +186,16 @@ Status copy_stream(Store& from, Store& to, const std::string& name, const std::s
         "new ledger)";
   WriteBatch batch;
   batch.put(store::config_key(name), config_bytes);
-  Rule rule(config->config);  // replays the steps as they are read
+  Rule rule(config->config);  // replays the entries as they are read
   store::Digest prev = store::genesis_hash(config_bytes);
+  // Every test id seen in the kept entries (a decision, a launch) and the tests still running:
+  // launch number -> (id, launch time).
   std::set<std::string> ids;
-  std::vector<double> kept_p;
+  std::map<std::uint64_t, std::pair<std::string, std::int64_t>> running;
+  // What the kept entries did to the rule, to rebuild its state when the replay of the unproven
+  // entry that stopped the copy had already changed it.
+  std::vector<Replayed> kept;
+  bool rule_touched = false;
   for (std::uint64_t step = 1;; ++step) {
     const std::string at = "step " + std::to_string(step) + ": ";
     auto bytes = from.get(store::record_key(name, step));
@@ -105,45 +207,46 @@ Status copy_stream(Store& from, Store& to, const std::string& name, const std::s
       if (out.known_steps && *out.known_steps >= step) out.problem = at + "the record is missing";
       break;
     }
-    auto rec = store::decode_record(**bytes);
+    auto rec = store::decode_entry(**bytes);
     if (!rec) {
       out.problem = at + "the record cannot be read: " + rec.error().message;
       break;
     }
-    const DecisionRecord& r = rec->record;
-    if (r.step != step) {
-      out.problem = at + "the record stored there says step " + std::to_string(r.step);
+    if (rec->entry() != step) {
+      out.problem = at + "the record stored there says step " + std::to_string(rec->entry());
       break;
     }
-    if (store::recompute_record_hash(**bytes) != rec->hash) {
+    if (store::recompute_record_hash(**bytes) != rec->hash()) {
       out.problem = at + "the record's contents do not match its hash";
       break;
     }
-    if (rec->prev_hash != prev) {
+    if (rec->prev_hash() != prev) {
       out.problem = at + "the record does not link to the one before it";
       break;
     }
-    if (!validate_p_value(r.p_value) || ids.count(r.id)) {
-      out.problem =
-          at + (ids.count(r.id) ? "the test id was decided before" : "the stored p-value is invalid");
+    bool touched = false;
+    auto done = replay(rule, *rec, ids, running, touched);
+    if (!done) {
+      rule_touched = touched;
+      out.problem = at + done.error().message;
       break;
     }
-    const Outcome o = rule.record(r.p_value);
-    if (!same_bits(o.level, r.level) || o.rejected != r.rejected || !same_bits(o.wealth, r.wealth)) {
-      out.problem = at + "a replay of the rule does not give the stored level, decision and wealth";
-      break;
-    }
-    kept_p.push_back(r.p_value);
-    ids.insert(r.id);
-    prev = rec->hash;
+    kept.push_back(*done);
+    prev = rec->hash();
     out.kept_steps = step;
+    // A test's id points to its last entry: a running test's to its launch, a finished or
+    // abandoned one's to its finish or abandon (a later put of the same key wins in the batch).
+    batch.put(store::index_key(name, rec->id()), store::encode_step(step));
     batch.put(store::record_key(name, step), std::move(**bytes));
-    batch.put(store::index_key(name, r.id), store::encode_step(step));
     if (auto s = flush(to, batch, false); !s) return s;
   }
-  // The rule's state after the kept steps only (the loop may have fed it one unproven step).
+  // The rule's state after the kept entries only (the loop may have fed it one unproven entry).
   Rule kept_rule(config->config);
-  for (double p : kept_p) kept_rule.record(p);
+  if (rule_touched) {
+    for (const Replayed& r : kept) apply(kept_rule, r);
+  } else {
+    kept_rule = std::move(rule);
+  }
   store::StoredHead head;
   head.steps = out.kept_steps;
   head.last_hash = prev;
@@ -218,7 +321,7 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
   std::string tmpl = (parent / ".alphaledger-recover-XXXXXX").string();
   if (::mkdtemp(tmpl.data()) == nullptr) {
     return io_error("cannot make a scratch folder in " + parent.string() +
-                         " for the copy of the damaged ledger (is the folder writable?)");
+                    " for the copy of the damaged ledger (is the folder writable?)");
   }
   Scratch scratch(tmpl);
   if (auto s = copy_files(source, scratch.path()); !s) return s.error();
@@ -299,7 +402,7 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
     if (!v) return v.error();
     if (!v->ok || v->steps != sr.kept_steps) {
       return corruption("the recovered ledger " + target + " fails verify for stream " + sr.stream + ": " +
-                           v->problem + " (this is a bug; the source is unchanged)");
+                        v->problem + " (this is a bug; the source is unchanged)");
     }
   }
   return report;

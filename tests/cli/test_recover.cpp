@@ -300,3 +300,49 @@ TEST_CASE("Recover: a byte changed inside a large group keeps every earlier grou
   CHECK(kept % 256 == 0);
   CHECK(run_alphaledger(with_ledger(dir.sub("to"), {"verify", "s"})).exit_code == 0);
 }
+
+// Launch-time events through the command line (docs/ledger.md "Launch-time levels"): a stream
+// with launches, finishes and abandons is copied whole, and the copy lists the same running tests
+// with the same reserved levels (the source is the reference; common practice, no source).
+TEST_CASE("Recover: a stream with launches, finishes and abandons is copied whole with its running tests") {
+  TempDir dir;
+  const std::string db = build(dir, "ledger", 20);
+  auto ok = [&](std::vector<std::string> args) {
+    auto r = run_alphaledger(with_ledger(db, std::move(args)));
+    INFO(r.err);
+    REQUIRE(r.exit_code == 0);
+  };
+  for (const char* id : {"x1", "x2", "x3", "x4"}) ok({"launch", "s", "--id", id});
+  ok({"decide", "s", "--id", "x2", "--p", "0.0001"});
+  ok({"abandon", "s", "--id", "x1"});
+  ok({"decide", "s", "--id", "y1", "--p", "0.4"});
+  ok({"launch", "s", "--id", "x5"});
+  ok({"decide", "s", "--id", "x4", "--p", "0.2"});
+  const auto before = snapshot(db);
+  const std::string to = dir.sub("copy");
+  auto r = run_alphaledger(with_ledger(db, {"--json", "recover", "--to", to}));
+  INFO(r.err);
+  REQUIRE(r.exit_code == 0);
+  CHECK(snapshot(db) == before);
+  const auto s = nlohmann::json::parse(complete_lines(r.out).at(0));
+  CHECK(s["complete"] == true);
+  auto a = run_alphaledger(with_ledger(db, {"--json", "verify", "s"}));
+  auto b = run_alphaledger(with_ledger(to, {"--json", "verify", "s"}));
+  REQUIRE(a.exit_code == 0);
+  REQUIRE(b.exit_code == 0);
+  CHECK(s["kept_steps"] == nlohmann::json::parse(a.out)["steps"]);
+  CHECK(nlohmann::json::parse(b.out)["chain_hash"] == nlohmann::json::parse(a.out)["chain_hash"]);
+  auto ra = run_alphaledger(with_ledger(db, {"running", "s"}));
+  auto rb = run_alphaledger(with_ledger(to, {"running", "s"}));
+  REQUIRE(rb.exit_code == 0);
+  CHECK(rb.out == ra.out);
+  const auto rows = complete_lines(rb.out);
+  REQUIRE(rows.size() == 3);  // the header, x3 and x5
+  CHECK(rows[1].rfind("x3,", 0) == 0);
+  CHECK(rows[2].rfind("x5,", 0) == 0);
+  // The running test is decided in the copy at its reserved level; the abandoned one is refused.
+  auto d = run_alphaledger(with_ledger(to, {"--json", "decide", "s", "--id", "x3", "--p", "0.3"}));
+  REQUIRE(d.exit_code == 0);
+  CHECK(nlohmann::json::parse(d.out)["launch"] == 23);
+  CHECK(run_alphaledger(with_ledger(to, {"decide", "s", "--id", "x1", "--p", "0.3"})).exit_code == 3);
+}

@@ -540,5 +540,59 @@ TEST_CASE("Pipe: launch and abandon events, finishing at the reserved level, in 
   CHECK(status->running == 0);
 }
 
+
+// Ids on launch and abandon lines are read as on decide lines (docs/formats.md "id"): a JSON
+// integer is its decimal text, so {"event":"launch","id":42} and {"id":"42",...} name one test; a
+// float, boolean or null id is refused with the line number. The summary counts launches and
+// abandons apart from decisions (include/alphaledger/service.hpp PipeSummary).
+TEST_CASE("Pipe: integer ids on launch and abandon lines, and the summary counts each event") {
+  PipeFixture f;
+  const std::string input = std::string(R"({"event":"launch","id":42})") + "\n" +  // 1 launch "42"
+                            R"({"event":"launch","id":"43"})" + "\n" +             // 2 launch "43"
+                            R"({"id":42,"p_value":0.0001})" + "\n" +               // 3 finish "42"
+                            R"({"event":"abandon","id":43})" + "\n" +              // 4 abandon "43"
+                            R"({"event":"launch","id":-7})" + "\n" +               // 5 launch "-7"
+                            R"({"event":"launch","id":"-7"})" + "\n" +             // 6 repeat
+                            R"({"event":"abandon","id":"43"})" + "\n" +            // 7 repeat
+                            test_line("d1", 0.3) + "\n" +                          // 8 decide
+                            R"({"event":"launch","id":4.5})" + "\n" +              // 9 refused
+                            R"({"event":"abandon","id":true})" + "\n" +            // 10 refused
+                            R"({"event":"launch","id":null})" + "\n";              // 11 refused
+  auto [summary, answers] = f.run(input);
+  REQUIRE(summary.ok());
+  REQUIRE(answers.size() == 11);
+  const auto l42 = nlohmann::json::parse(answers[0]);
+  CHECK(l42["id"] == "42");
+  CHECK(l42["repeat"] == false);
+  const auto d42 = nlohmann::json::parse(answers[2]);
+  CHECK(d42["id"] == "42");
+  CHECK(d42["launch"] == l42["launch"]);  // the finish of the test launched as 42
+  CHECK(d42["level"].get<double>() == l42["level"].get<double>());
+  const auto a43 = nlohmann::json::parse(answers[3]);
+  CHECK(a43["id"] == "43");
+  CHECK(a43["abandoned_at"].is_string());
+  CHECK(nlohmann::json::parse(answers[4])["id"] == "-7");
+  CHECK(nlohmann::json::parse(answers[5])["repeat"] == true);
+  CHECK(nlohmann::json::parse(answers[6])["repeat"] == true);
+  for (std::size_t k : {8u, 9u, 10u}) {
+    const auto e = nlohmann::json::parse(answers[k]);
+    CHECK(e["line"] == k + 1);
+    CHECK(e["error"].get<std::string>().find("id must be a JSON string (or an integer)") !=
+          std::string::npos);
+  }
+  CHECK(summary->lines == 11);
+  CHECK(summary->decided == 2);    // lines 3 and 8
+  CHECK(summary->launched == 3);   // lines 1, 2 and 5 (the one abandoned later still launched)
+  CHECK(summary->abandoned == 1);  // line 4
+  CHECK(summary->repeats == 2);
+  CHECK(summary->bad == 3);
+  CHECK(summary->decided + summary->launched + summary->abandoned + summary->repeats + summary->bad ==
+        summary->lines);
+  auto running = f.ledger->running("s");
+  REQUIRE(running.ok());
+  REQUIRE(running->size() == 1);
+  CHECK((*running)[0].id == "-7");
+}
+
 }  // namespace
 }  // namespace alphaledger
