@@ -28,6 +28,8 @@ struct Walk {
   std::vector<std::uint64_t> rejected_tests;  // launch number of each rejection, in order
   bool found = false;
   std::optional<double> recorded_level;  // the level the asked-for test got, as stored or decided
+  std::uint64_t launch = 0;              // streams: the asked-for test's launch number
+  bool running = false;                  // streams: the asked-for test is still running
 
   explicit Walk(const RuleConfig& c) : rule(c) {}
   // Returns false once the asked-for test is reached (the walk stops there).
@@ -134,6 +136,7 @@ Result<Walk> walk_stream(const ExplainOptions& o, const GlobalOptions& g) {
   // The asked-for test: its launch number and the level stored for it.
   std::uint64_t wanted = 0;
   std::optional<double> stored;
+  bool running_now = false;
   if (o.id) {
     for (const auto& r : *history) {
       if (r.id != *o.id) continue;
@@ -150,12 +153,15 @@ Result<Walk> walk_stream(const ExplainOptions& o, const GlobalOptions& g) {
       if (running) {
         wanted = running->launch;
         stored = running->level;
+        running_now = true;
       } else if (running.error().kind != ErrorKind::kNotFound) {
         return running.error();
       }
     }
   }
   Walk walk(info->config);
+  walk.launch = wanted;
+  walk.running = running_now;
   const auto mismatch = [&](const std::string& what) {
     return conflict("stream " + excerpt(*o.stream) + ": " + what + "; run 'alphaledger verify " +
                     excerpt(*o.stream) + "'");
@@ -238,7 +244,9 @@ Status run_explain(const ExplainOptions& o, const GlobalOptions& g, std::ostream
     print_json(*e, o.stream, o.id, out);
   } else {
     const std::string where = (o.stream ? "stream " + *o.stream : "log " + *o.log) +
-                              (o.id ? ", test '" + *o.id + "'" : std::string(", next test"));
+                              (o.id ? ", test '" + *o.id + "'" : std::string(", next test")) +
+                              (walk->running ? " (running, reserved at launch " + std::to_string(walk->launch) + ")"
+                                             : std::string());
     print_text(*e, where, out);
   }
   return {};
