@@ -65,14 +65,15 @@ Status run_report(const ReportOptions& o, const GlobalOptions& g, std::ostream& 
   data.info = *info;
   data.configuration = describe_config(info->config);
   data.generated_at_ms = system_clock_ms();
-  data.records.reserve(info->tests);
-  if (auto s = (*ledger)->for_each_decision(o.stream, 1,
-                                            [&](const DecisionRecord& r) {
-                                              data.records.push_back(r);
-                                              return true;
-                                            });
-      !s) {
-    return s;
+  auto history = (*ledger)->history(o.stream);  // decided and abandoned tests, in step order
+  if (!history) return history.error();
+  auto running = (*ledger)->running(o.stream);
+  if (!running) return running.error();
+  data.reserved_wealth = reserved_after_each(*history, *running);
+  data.running = std::move(*running);
+  data.records.reserve(history->size());
+  for (auto& r : *history) {
+    if (!r.abandoned) data.records.push_back(std::move(r));
   }
   if (auto s = write_file_atomically(o.output, render_stream_report(data), "-o"); !s) return s;
   if (g.json) {

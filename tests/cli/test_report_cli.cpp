@@ -182,9 +182,50 @@ TEST_CASE("ReportCli: a stream report holds the ledger's history and draws in a 
     CHECK(d["rejected"][i] == std::stoi(rows[i].at("rejected")));
     check_same(d["wealth"][i], rows[i].at("wealth"));
   }
-  CHECK(data["reserved_wealth"].is_null());
+  // Every test decided at once: nothing was ever running.
+  REQUIRE(data["reserved_wealth"].size() == rows.size());
+  for (const auto& v : data["reserved_wealth"]) CHECK(v.get<double>() == 0.0);
+  CHECK(data["running"]["id"].empty());
   CHECK(slurp(html).find("pre-registered analysis plan") != std::string::npos);
   check_in_browser(html, 3, s);
+}
+
+TEST_CASE("ReportCli: a stream with overlapping launches shows reserved wealth and its running tests") {
+  // The reference numbers are the ledger's own reservations (launch --json) and status; the sums
+  // follow from docs/ledger.md "Launch-time levels" (a running test holds its level), no outside source.
+  Scratch s("launches");
+  const std::string ledger = s / "ledger";
+  const auto json = [&](std::vector<std::string> args) {
+    args.insert(args.begin(), {"--ledger", ledger, "--json"});
+    const auto r = run_alphaledger(args);
+    REQUIRE_MESSAGE(r.exit_code == 0, r.err);
+    return nlohmann::json::parse(r.out);
+  };
+  REQUIRE(run_alphaledger({"--ledger", ledger, "new", "t", "--rule", "lord++"}).exit_code == 0);
+  json({"launch", "t", "--id", "a"});
+  const double lb = json({"launch", "t", "--id", "b"})["level"].get<double>();
+  json({"decide", "t", "--id", "a", "--p", "0.00001"});  // reserved after: b
+  const double lc = json({"launch", "t", "--id", "c"})["level"].get<double>();
+  json({"decide", "t", "--id", "d", "--p", "0.5"});      // launched and decided at once: b + c
+  json({"decide", "t", "--id", "b", "--p", "0.7"});      // c
+  const std::string html = s / "launches.html";
+  const auto r = run_alphaledger({"--ledger", ledger, "report", "t", "-o", html});
+  REQUIRE_MESSAGE(r.exit_code == 0, r.err);
+  const auto data = embedded_data(html);
+  REQUIRE(data["decisions"]["id"] == nlohmann::json::array({"a", "d", "b"}));
+  const auto& reserved = data["reserved_wealth"];
+  REQUIRE(reserved.size() == 3);
+  CHECK(reserved[0].get<double>() == lb);
+  CHECK(reserved[1].get<double>() == lb + lc);
+  CHECK(reserved[2].get<double>() == lc);
+  CHECK(data["running"]["id"] == nlohmann::json::array({"c"}));
+  CHECK(data["running"]["level"][0].get<double>() == lc);
+  CHECK(data["reserved"].get<double>() == json({"status", "t"})["reserved"].get<double>());
+  const std::string page = slurp(html);
+  CHECK(page.find("id=\"running-table\"") != std::string::npos);
+  check_in_browser(html, 3, s);
+  const std::string dom = run_chromium(html, "--dump-dom", s);
+  CHECK(dom.find("Running tests of stream t") != std::string::npos);  // the running table was drawn
 }
 
 TEST_CASE("ReportCli: a replay report equals replay's CSV, with FDP and power, and draws in a browser") {
@@ -302,6 +343,22 @@ TEST_CASE("ReportCli: a simulation sweep's CSV gains the swept column; its repor
     CHECK(single_rows[k].at("power") == rows[3 + k].at("power"));
   }
   check_in_browser(html, 2, s);
+}
+
+TEST_CASE("ReportCli: a mean-duration sweep is labelled and the settings list duration and looks") {
+  Scratch s("duration");
+  const std::string html = s / "duration.html";
+  const auto r = run_alphaledger({"simulate", "--rules", "lord++", "--tests", "50", "--runs", "20",
+                                  "--mean-duration", "0,3", "--peeking", "4", "--report", html});
+  REQUIRE_MESSAGE(r.exit_code == 0, r.err);
+  CHECK(r.out.rfind("mean_duration,rule,", 0) == 0);
+  const auto data = embedded_data(html);
+  CHECK(data["swept"] == "mean_duration");
+  CHECK(data["swept_label"] == "mean duration (launches between launch and finish)");
+  CHECK(data["model"]["peeking_looks"] == 4);
+  const std::string page = slurp(html);
+  CHECK(page.find("<th scope=\"row\">mean duration</th>") != std::string::npos);
+  CHECK(page.find("4 looks per test") != std::string::npos);
 }
 
 TEST_CASE("ReportCli: a single-setting simulation keeps today's CSV and still reports") {
