@@ -287,14 +287,13 @@ std::string render_replay_report(const ReplayReportData& d) {
   for (std::size_t k = 0; k < r.procedures.size(); ++k) {
     const Procedure& proc = r.procedures[k];
     const auto& decisions = r.decisions[k];
-    Json level = Json::array(), rejected = Json::array(), wealth = Json::array();
-    bool has_wealth = false;
+    // Not the wealth: the page shows none (replay's CSV has it), and at 10^5 tests it would be
+    // 2 MB a rule of the file (docs/benchmarks.md "HTML reports").
+    Json level = Json::array(), rejected = Json::array();
     for (std::size_t i = 0; i < decisions.size(); ++i) {
       level.push_back(decisions[i].level);
       rejected.push_back(decisions[i].rejected ? 1 : 0);
       if (decisions[i].rejected) keep[i] = true;
-      if (decisions[i].wealth) has_wealth = true;
-      wealth.push_back(decisions[i].wealth ? Json(*decisions[i].wealth) : Json(nullptr));
     }
     Json rule = {{"rule", proc.name}, {"online", proc.online()}, {"guarantee", guarantee_text(proc.name)}};
     bool extra = false;
@@ -302,7 +301,6 @@ std::string render_replay_report(const ReplayReportData& d) {
     rule["added_for_report"] = extra;
     rule["level"] = std::move(level);
     rule["rejected"] = std::move(rejected);
-    if (has_wealth) rule["wealth"] = std::move(wealth);
     if (d.summaries != nullptr && k < d.summaries->size()) {
       const ReplaySummary& s = (*d.summaries)[k];
       rule["summary"] = {{"tests", s.tests},
