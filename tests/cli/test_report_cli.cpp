@@ -496,7 +496,8 @@ TEST_CASE("ReportCli: each report type renders in headless Firefox") {
     const std::string image = slurp(png);
     REQUIRE(image.size() > 8);
     CHECK(image.compare(0, 8, "\x89PNG\r\n\x1a\n") == 0);
-    // A blank page of this size compresses to a few KB; a drawn report (charts, tables) to far more.
-    CHECK(image.size() > 40000);
+    // Measured with firefox-esr 153 at 1200x2400: an empty page gives a 56 KB PNG, the smallest
+    // report here (the simulation) about 330 KB; a page that drew nothing would be near the former.
+    CHECK(image.size() > 150000);
   }
 }
