@@ -7,7 +7,8 @@ packages=(g++ cmake ninja-build libboost-math-dev libspdlog-dev libcli11-dev lib
           clang-14 libclang-rt-14-dev   # libFuzzer and sanitizers for scripts/fuzz.sh
           pybind11-dev python3-pybind11 python3-pandas  # the Python module and its tests (docs/python.md)
           libjs-chart.js                # Chart.js, embedded into the HTML reports (docs/reports.md)
-          chromium)                     # a real browser for the report tests (tests/cli/test_report_cli.cpp)
+          chromium                      # a real browser for the report tests (tests/cli/test_report_cli.cpp)
+          firefox-esr)                  # the second browser the reports are rendered in (same tests)
 if [ "${1:-}" = "--with-references" ]; then
   # Only to regenerate reference values in tests/data (R's stats, SciPy).
   packages+=(r-base-core python3-scipy)

@@ -72,16 +72,27 @@ Status check_output_path(const std::string& path, std::string_view option);
 
 // ---- The three reports -----------------------------------------------------------------------
 
-// A stream of the ledger: its status and its whole history in step order.
+// A stream of the ledger: its status, its decisions in step order and its running tests.
 struct StreamReportData {
   StreamInfo info;
   std::string configuration;  // describe_config(info.config), one line
-  std::vector<DecisionRecord> records;
+  std::vector<DecisionRecord> records;  // decided tests only, in step order
   std::int64_t generated_at_ms = 0;  // when the report was made
-  // Reserved wealth of running tests (launch-time levels) is not recorded by the ledger yet; the
-  // embedded data has "reserved_wealth": null and the page says so. Kept here to be filled later.
+  // Wealth reserved by running tests right after each record's decision (reserved_after_each), or
+  // empty: the embedded data then has "reserved_wealth": null.
   std::optional<std::vector<double>> reserved_wealth;
+  std::vector<RunningEntry> running;  // tests running now, in launch order (Ledger::running)
 };
+
+// The wealth reserved by running tests right after each decided test of `history` (the whole
+// Ledger::history, abandoned tests included, in step order), one number per decided test, in
+// step order. `running` (Ledger::running) gives the levels of the tests still running. The chain
+// entries between the history's steps are launches of their own, in launch order; a test decided
+// at the step of its own launch was never running. Each value is the sum, in launch order, of the
+// levels of the tests launched and not yet decided or abandoned (as Rule::reserved sums them), so
+// the last equals StreamInfo::reserved when the stream has no events after its last decision.
+std::vector<double> reserved_after_each(const std::vector<DecisionRecord>& history,
+                                        const std::vector<RunningEntry>& running);
 std::string render_stream_report(const StreamReportData& data);
 
 // A replay: the log, each procedure's decisions (ReplayResult::decisions[procedure][record], log
@@ -101,8 +112,8 @@ struct ReplayReportData {
 std::string render_replay_report(const ReplayReportData& data);
 
 // A simulation, possibly swept over one parameter: summaries[v] are the rows for values[v].
-// `parameter` is the swept column's name ("nonnull_fraction" or "effect"), or empty when nothing
-// was swept (one value).
+// `parameter` is the swept column's name ("nonnull_fraction", "effect" or "mean_duration"), or
+// empty when nothing was swept (one value).
 struct SimulationReportData {
   std::string parameter;
   std::vector<double> values;
@@ -111,6 +122,7 @@ struct SimulationReportData {
   std::uint64_t runs = 0;
   std::uint64_t seed = 1;
   std::int64_t generated_at_ms = 0;
+  std::uint64_t peeking_looks = 0;  // simulate --peeking K: looks per test (0: no peeking)
 };
 std::string render_simulation_report(const SimulationReportData& data);
 

@@ -28,6 +28,8 @@ struct Walk {
   std::vector<std::uint64_t> rejected_tests;  // launch number of each rejection, in order
   bool found = false;
   std::optional<double> recorded_level;  // the level the asked-for test got, as stored or decided
+  std::uint64_t launch = 0;              // streams: the asked-for test's launch number
+  bool running = false;                  // streams: the asked-for test is still running
 
   explicit Walk(const RuleConfig& c) : rule(c) {}
   // Returns false once the asked-for test is reached (the walk stops there).
@@ -117,20 +119,85 @@ void print_json(const LevelExplanation& e, const std::optional<std::string>& str
   out << json_text(j) << '\n';
 }
 
+// The stream's events replayed through its Rule in chain order, up to the launch of the asked-for
+// test (or all of them, for the next level). The history lists each decided or abandoned test at
+// the step of its last entry, with its launch number; the chain entries between those steps are
+// launches of their own, in launch order (a test decided without a launch first is launched and
+// decided at its one step). So the launches, finishes and abandons interleave as they happened,
+// and a test's level is explained as it was reserved at its launch, whether it is decided or still
+// running (docs/cli.md "Explain").
 Result<Walk> walk_stream(const ExplainOptions& o, const GlobalOptions& g) {
   auto ledger = open_for_reading(g);
   if (!ledger) return ledger.error();
   auto info = (*ledger)->status(*o.stream);
   if (!info) return info.error();
+  auto history = (*ledger)->history(*o.stream);
+  if (!history) return history.error();
+  // The asked-for test: its launch number and the level stored for it.
+  std::uint64_t wanted = 0;
+  std::optional<double> stored;
+  bool running_now = false;
+  if (o.id) {
+    for (const auto& r : *history) {
+      if (r.id != *o.id) continue;
+      if (r.abandoned) {
+        return conflict("test '" + excerpt(*o.id) + "' of stream " + excerpt(*o.stream) +
+                            " was abandoned: it was never decided and its level is no longer reserved",
+                        "abandoned_test");
+      }
+      wanted = r.launch;
+      stored = r.level;
+    }
+    if (wanted == 0) {
+      auto running = (*ledger)->running_test(*o.stream, *o.id);
+      if (running) {
+        wanted = running->launch;
+        stored = running->level;
+        running_now = true;
+      } else if (running.error().kind != ErrorKind::kNotFound) {
+        return running.error();
+      }
+    }
+  }
   Walk walk(info->config);
-  auto s = (*ledger)->for_each_decision(*o.stream, 1, [&](const DecisionRecord& r) {
-    return walk.step(r.id, r.p_value, o.id, r.level);
-  });
-  if (!s) return s.error();
-  if (!o.id && walk.rule.tests() == info->tests && walk.rule.next_level() != info->next_level) {
-    return conflict("stream " + excerpt(*o.stream) + ": its history replayed gives the next level " +
-                    format_number(walk.rule.next_level()) + ", the ledger says " +
-                    format_number(info->next_level) + "; run 'alphaledger verify " + excerpt(*o.stream) + "'");
+  walk.launch = wanted;
+  walk.running = running_now;
+  const auto mismatch = [&](const std::string& what) {
+    return conflict("stream " + excerpt(*o.stream) + ": " + what + "; run 'alphaledger verify " +
+                    excerpt(*o.stream) + "'");
+  };
+  const bool e_values = rule_takes_e_values(info->config.kind);
+  // Launches the next test; false once the asked-for launch is reached (the walk stops before it).
+  const auto launch_next = [&]() {
+    if (wanted != 0 && walk.rule.tests() + 1 == wanted) {
+      walk.found = true;
+      walk.recorded_level = stored;
+      return false;
+    }
+    walk.rule.launch();
+    return true;
+  };
+  std::uint64_t step = 1;
+  for (const auto& r : *history) {
+    for (; step < r.step; ++step) {
+      if (!launch_next()) return walk;
+    }
+    if (r.launch == walk.rule.tests() + 1 && !launch_next()) return walk;  // launched and decided at once
+    if (r.abandoned) {
+      if (auto s = walk.rule.abandon(r.launch); !s) return mismatch("the abandon at step " + std::to_string(r.step) + " does not replay: " + s.error().message);
+    } else {
+      auto out = e_values ? walk.rule.finish_e(r.launch, r.p_value) : walk.rule.finish(r.launch, r.p_value);
+      if (!out) return mismatch("the decision at step " + std::to_string(r.step) + " does not replay: " + out.error().message);
+      if (out->rejected) walk.rejected_tests.push_back(out->step);
+    }
+    step = r.step + 1;
+  }
+  while (walk.rule.tests() < info->tests) {  // tests still running
+    if (!launch_next()) return walk;
+  }
+  if (!o.id && walk.rule.next_level() != info->next_level) {
+    return mismatch("its history replayed gives the next level " + format_number(walk.rule.next_level()) +
+                    ", the ledger says " + format_number(info->next_level));
   }
   return walk;
 }
@@ -162,7 +229,7 @@ Status run_explain(const ExplainOptions& o, const GlobalOptions& g, std::ostream
   if (!walk) return walk.error();
   if (o.id && !walk->found) {
     const std::string where = o.stream ? "stream " + excerpt(*o.stream) : "log " + excerpt(*o.log);
-    return not_found("no decided test with id '" + excerpt(*o.id) + "' in " + where +
+    return not_found("no decided or running test with id '" + excerpt(*o.id) + "' in " + where +
                          " (without --id, explain gives the next level)",
                      "unknown_test");
   }
@@ -177,7 +244,9 @@ Status run_explain(const ExplainOptions& o, const GlobalOptions& g, std::ostream
     print_json(*e, o.stream, o.id, out);
   } else {
     const std::string where = (o.stream ? "stream " + *o.stream : "log " + *o.log) +
-                              (o.id ? ", test '" + *o.id + "'" : std::string(", next test"));
+                              (o.id ? ", test '" + *o.id + "'" : std::string(", next test")) +
+                              (walk->running ? " (running, reserved at launch " + std::to_string(walk->launch) + ")"
+                                             : std::string());
     print_text(*e, where, out);
   }
   return {};

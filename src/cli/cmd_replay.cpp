@@ -1,4 +1,5 @@
 // alphaledger replay FILE [--rules R1,R2,...] [rule flags] [--summary]
+#include <algorithm>
 #include <charconv>
 #include <cmath>
 #include <iostream>
@@ -11,6 +12,7 @@
 #include "cli/command.hpp"
 #include "alphaledger/text.hpp"
 #include "harness/json_text.hpp"
+#include "harness/report_columns.hpp"
 
 namespace alphaledger::cli {
 namespace {
@@ -21,6 +23,7 @@ struct ReplayOptions {
   std::optional<std::string> format;
   bool summary = false;
   bool rejected_only = false;  // --rejected-only: only the rows a rule rejected
+  bool wide = false;           // --wide: one row per test, a level and a decision column per rule
   std::optional<std::string> report;  // --report FILE.html (docs/reports.md)
   std::optional<std::string> alternative;
   RuleFlags flags;
@@ -61,7 +64,103 @@ class Progress {
 // UTF-8 already, the log reader refuses any other).
 std::string json_line(const nlohmann::ordered_json& j) { return json_text(j) + '\n'; }
 
+// The log's columns that --wide prints from the reader itself; every other column of the file
+// (team, metric, finished_at as written...) is read again and printed as written.
+constexpr std::string_view kWideKeepsNames[] = {"id", "p_value", "e_value"};
+
+// replay --wide: one row per test in log order: `line,id,p_value[,e_value]`, the log's other
+// columns as written, then `level_RULE,rejected_RULE` for each rule. The decisions are replay_each's,
+// the function the long form prints from, so the numbers are the long form's bit for bit.
+Status print_wide(const ReplayOptions& o, const GlobalOptions& g, const CompactLog& log,
+                  const std::vector<Procedure>& procs, std::optional<std::string_view> forced,
+                  std::ostream& out) {
+  const std::size_t n = log.size();
+  std::vector<std::vector<double>> levels(procs.size());
+  std::vector<std::vector<std::uint8_t>> rejected(procs.size());
+  std::vector<std::uint8_t> any_rejected(n, 0);
+  Progress progress(n, procs.size());
+  for (std::size_t k = 0; k < procs.size(); ++k) {
+    levels[k].resize(n);
+    rejected[k].resize(n);
+    replay_each(log, procs[k], [&](std::size_t i, const Decision& d) {
+      progress.tick(procs[k].name);
+      levels[k][i] = d.level;
+      rejected[k][i] = d.rejected ? 1 : 0;
+      any_rejected[i] |= rejected[k][i];
+    });
+  }
+  InputColumns others = read_input_columns(o.file, forced, log, kWideKeepsNames);
+  const bool e_values = log.has_e_values;
+  const bool p_values = log.has_p_values;
+  // Column names: a column of the file that has the name of a column we print is left out.
+  std::vector<std::string> taken = {"line", "id", "p_value"};
+  if (e_values) taken.emplace_back("e_value");
+  for (const auto& proc : procs) {
+    taken.push_back("level_" + proc.name);
+    taken.push_back("rejected_" + proc.name);
+  }
+  std::vector<std::size_t> shown;
+  for (std::size_t c = 0; c < others.names.size(); ++c) {
+    if (std::find(taken.begin(), taken.end(), others.names[c]) == taken.end()) shown.push_back(c);
+  }
+  std::string row;
+  if (!g.json) {
+    row += e_values ? "line,id,p_value,e_value" : "line,id,p_value";
+    for (std::size_t c : shown) {
+      row += ',';
+      row += csv_field(others.names[c]);
+    }
+    for (const auto& proc : procs) row += ",level_" + proc.name + ",rejected_" + proc.name;
+    row += '\n';
+  }
+  for (std::size_t i = 0; i < n; ++i) {
+    if (o.rejected_only && any_rejected[i] == 0) continue;
+    const CompactRecord& r = log.records[i];
+    if (g.json) {
+      nlohmann::ordered_json j = {{"line", r.line}, {"id", std::string(log.id(r))}};
+      j["p_value"] = p_values ? nlohmann::ordered_json(r.p_value) : nlohmann::ordered_json(nullptr);
+      if (e_values) j["e_value"] = r.e_value;
+      for (std::size_t c : shown) j[others.names[c]] = others.columns[c][i];
+      for (std::size_t k = 0; k < procs.size(); ++k) {
+        j["level_" + procs[k].name] = levels[k][i];
+        j["rejected_" + procs[k].name] = rejected[k][i];
+      }
+      row += json_line(j);
+    } else {
+      append_number(row, r.line);
+      row += ',';
+      row += csv_field(log.id(r));
+      row += ',';
+      if (p_values) append_double(row, r.p_value);
+      if (e_values) {
+        row += ',';
+        append_double(row, r.e_value);
+      }
+      for (std::size_t c : shown) {
+        row += ',';
+        row += csv_field(others.columns[c][i]);
+      }
+      for (std::size_t k = 0; k < procs.size(); ++k) {
+        row += ',';
+        append_double(row, levels[k][i]);
+        row += rejected[k][i] != 0 ? ",1" : ",0";
+      }
+      row += '\n';
+    }
+    if (row.size() >= (1 << 16)) {
+      out << row;
+      row.clear();
+    }
+  }
+  out << row;
+  return {};
+}
+
 Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& out) {
+  if (o.wide && o.summary) {
+    return invalid_input("--wide and --summary do not go together: --summary prints one row per rule, "
+                         "--wide one row per test");
+  }
   auto names = split_rule_list(o.rules);
   if (!names) return names.error();
   auto procs = resolve_procedures(*names, o.flags.to_spec(), /*allow_offline=*/true);
@@ -80,6 +179,11 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
   auto log = read_log_argument(o.file, forced, read_options);
   if (!log) return log.error();
   if (auto s = check_log_columns(*log, *procs); !s) return s;
+  if (o.wide) {
+    if (auto s = print_wide(o, g, *log, *procs, forced, out); !s) return s;
+    if (o.report) return write_replay_report(*o.report, *log, *procs, o.flags.alpha, o.file, forced);
+    return {};
+  }
   if (o.summary) {
     const auto rows = summarize(*log, *procs);
     if (!g.json) out << "rule,tests,rejections,false_discoveries,fdp,power,guarantee\n";
@@ -188,7 +292,10 @@ void add_replay_command(CLI::App& app, CommandContext& ctx) {
       "direction of tests computed from summary columns: two-sided, greater or less; default two-sided");
   sub->add_flag("--summary", opts->summary,
                 "one row per rule: tests, rejections, false discoveries, fdp, power, guarantee (FDR, mFDR, FWER)");
-  sub->add_flag("--rejected-only", opts->rejected_only, "print only the rows a rule rejected");
+  sub->add_flag("--rejected-only", opts->rejected_only,
+                "print only the rows a rule rejected (with --wide: the tests any rule rejected)");
+  sub->add_flag("--wide", opts->wide,
+                "one row per test: the log's own columns, then a level and a decision column per rule");
   sub->add_option("--report", opts->report,
                   "also write one self-contained HTML page of this replay (docs/reports.md)")
       ->type_name("FILE");

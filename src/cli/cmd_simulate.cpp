@@ -247,6 +247,7 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
     data.model = models.front();
     data.runs = run.runs;
     data.seed = run.seed;
+    data.peeking_looks = peeking.looks;
     data.generated_at_ms = system_clock_ms();
     out.flush();
     return write_file_atomically(*o.report, render_simulation_report(data), "--report");

@@ -2,6 +2,7 @@
 // JSON, thinning points for drawing, and writing the file in one step.
 #include "alphaledger/report.hpp"
 
+#include <map>
 #include <fcntl.h>
 #include <sys/stat.h>
 #include <unistd.h>
@@ -9,6 +10,7 @@
 #include <algorithm>
 #include <cerrno>
 #include <cstring>
+#include <map>
 #include <string>
 
 namespace alphaledger {
@@ -198,6 +200,35 @@ Status write_file_atomically(const std::string& path, std::string_view content, 
     ::close(dir);
   }
   return {};
+}
+
+std::vector<double> reserved_after_each(const std::vector<DecisionRecord>& history,
+                                        const std::vector<RunningEntry>& running) {
+  std::map<std::uint64_t, double> level_of;  // launch number -> reserved level
+  for (const auto& r : history) level_of[r.launch] = r.level;
+  for (const auto& e : running) level_of[e.launch] = e.level;
+  std::map<std::uint64_t, double> now;  // running after the events so far, in launch order
+  std::vector<double> out;
+  std::uint64_t step = 1, next_launch = 1;
+  const auto launch_next = [&]() {
+    const auto it = level_of.find(next_launch);
+    now[next_launch] = it == level_of.end() ? 0.0 : it->second;
+    ++next_launch;
+  };
+  for (const auto& r : history) {
+    for (; step < r.step; ++step) launch_next();
+    if (r.launch >= next_launch) {
+      next_launch = r.launch + 1;  // launched and decided at one step: never running
+    } else {
+      now.erase(r.launch);
+    }
+    step = r.step + 1;
+    if (r.abandoned) continue;
+    double sum = 0;
+    for (const auto& [launch, level] : now) sum += level;
+    out.push_back(sum);
+  }
+  return out;
 }
 
 }  // namespace alphaledger

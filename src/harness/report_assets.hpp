@@ -252,12 +252,14 @@ inline constexpr const char* kStreamScript = R"JS(
     return ['id: ' + D.id[k], 'step: ' + D.step[k], 'p-value: ' + full(D.p_value[k]), 'level: ' + full(D.level[k]),
             D.rejected[k] ? 'discovery' : 'not rejected'];
   }
-  var plain = [], found_points = [], levels = [], wealth = [], count = [];
+  var plain = [], found_points = [], levels = [], wealth = [], count = [], reserved = [];
+  var R = DATA.reserved_wealth;
   drawn.forEach(function (k) {
     var point = { x: D.step[k], y: Math.max(D.p_value[k], floor), i: k };
     (D.rejected[k] ? found_points : plain).push(point);
     levels.push({ x: D.step[k], y: Math.max(D.level[k], floor), i: k });
     wealth.push({ x: D.step[k], y: D.wealth[k], i: k });
+    if (R) reserved.push({ x: D.step[k], y: R[k], i: k });
     count.push({ x: D.step[k], y: found[k], i: k });
   });
   var stepAxis = { type: 'linear', title: { display: true, text: 'step (test number in the stream)' },
@@ -281,10 +283,14 @@ inline constexpr const char* kStreamScript = R"JS(
   makeChart('chart-wealth', {
     type: 'scatter',
     data: { datasets: [ { label: 'alpha-wealth after the test', data: wealth, showLine: true, borderColor: COLORS[0],
-      backgroundColor: COLORS[0], pointRadius: 0, pointStyle: 'line', borderWidth: 2 } ] },
+      backgroundColor: COLORS[0], pointRadius: 0, pointStyle: 'line', borderWidth: 2 },
+      { label: 'reserved by running tests', data: reserved, showLine: true, borderColor: COLORS[5],
+        backgroundColor: COLORS[5], borderDash: [8, 4], pointRadius: 0, pointStyle: 'line', borderWidth: 2 } ] },
     options: { parsing: false, scales: { x: stepAxis, y: { title: { display: true, text: 'alpha-wealth' } } },
       plugins: { tooltip: { callbacks: { label: function (ctx) {
-        return ['id: ' + D.id[ctx.raw.i], 'wealth: ' + full(D.wealth[ctx.raw.i])]; } } } } }
+        var k = ctx.raw.i;
+        return ctx.datasetIndex === 0 ? ['id: ' + D.id[k], 'wealth: ' + full(D.wealth[k])]
+                                      : ['after ' + D.id[k], 'reserved: ' + full(R[k])]; } } } } }
   });
   makeChart('chart-discoveries', {
     type: 'scatter',
@@ -307,6 +313,7 @@ inline constexpr const char* kStreamScript = R"JS(
     { title: 'decision', value: function (k) { return D.rejected[k] ? 'DISCOVERY' : 'not rejected'; },
       mark: function (k) { return D.rejected[k] ? 'mark-r' : ''; } },
     { title: 'wealth', num: true, value: function (k) { return full(D.wealth[k]); } },
+    { title: 'reserved', num: true, value: function (k) { return R ? full(R[k]) : ''; } },
     { title: 'discoveries', num: true, value: function (k) { return String(found[k]); } },
     { title: 'decided_at', value: function (k) { return isoTime(D.decided_at_ms[k]); } } ];
   var box = document.getElementById('decisions-table');
@@ -315,6 +322,17 @@ inline constexpr const char* kStreamScript = R"JS(
                 'Decisions of stream ' + DATA.stream);
   }
   table(false);
+  var U = DATA.running;
+  if (U && U.id.length) {
+    var urows = [];
+    for (i = 0; i < U.id.length; i++) urows.push(i);
+    renderTable(document.getElementById('running-table'), [
+      { title: 'launch', num: true, value: function (k) { return String(U.launch[k]); } },
+      { title: 'id', cls: 'id', value: function (k) { return U.id[k]; } },
+      { title: 'reserved level', num: true, value: function (k) { return full(U.level[k]); } },
+      { title: 'launched_at', value: function (k) { return isoTime(U.launched_at_ms[k]); } } ],
+      urows, 'Running tests of stream ' + DATA.stream);
+  }
   document.getElementById('only-discoveries').addEventListener('change', function (e) { table(e.target.checked); });
   finish();
 })();
@@ -409,6 +427,17 @@ inline constexpr const char* kReplayScript = R"JS(
       return rules.some(function (r) { return r.rejected[i]; }); }) : all, 'Per test, in the order decided');
   }
   table(false);
+  var U = DATA.running;
+  if (U && U.id.length) {
+    var urows = [];
+    for (i = 0; i < U.id.length; i++) urows.push(i);
+    renderTable(document.getElementById('running-table'), [
+      { title: 'launch', num: true, value: function (k) { return String(U.launch[k]); } },
+      { title: 'id', cls: 'id', value: function (k) { return U.id[k]; } },
+      { title: 'reserved level', num: true, value: function (k) { return full(U.level[k]); } },
+      { title: 'launched_at', value: function (k) { return isoTime(U.launched_at_ms[k]); } } ],
+      urows, 'Running tests of stream ' + DATA.stream);
+  }
   document.getElementById('only-discoveries').addEventListener('change', function (e) { table(e.target.checked); });
   finish();
 })();

@@ -173,8 +173,20 @@ std::string render_stream_report(const StreamReportData& d) {
                        {"rejected", std::move(rejected)},
                        {"wealth", std::move(wealth)},
                        {"decided_at_ms", std::move(decided)}};
-  // Launch-time levels come later: reserved wealth of running tests, one value per step.
+  // Wealth reserved by running tests right after each decision (launch-time levels).
   data["reserved_wealth"] = d.reserved_wealth ? Json(*d.reserved_wealth) : Json(nullptr);
+  data["reserved"] = info.reserved;
+  Json run_id = Json::array(), run_launch = Json::array(), run_level = Json::array(), run_at = Json::array();
+  for (const RunningEntry& e : d.running) {
+    run_id.push_back(e.id);
+    run_launch.push_back(e.launch);
+    run_level.push_back(e.level);
+    run_at.push_back(e.launched_at_ms);
+  }
+  data["running"] = {{"id", std::move(run_id)},
+                     {"launch", std::move(run_launch)},
+                     {"level", std::move(run_level)},
+                     {"launched_at_ms", std::move(run_at)}};
   data["drawn"] = drawing_indices(n, keep, kMaxDrawnPoints);
 
   const std::string title = "Stream " + info.name;
@@ -190,7 +202,9 @@ std::string render_stream_report(const StreamReportData& d) {
       {"conditions", conditions_text(info.config)},
       {"created", timestamp_text(info.created_at_ms)},
       {"state", info.closed_at_ms ? "closed " + format_timestamp(*info.closed_at_ms) : std::string("open")},
-      {"tests decided", std::to_string(info.tests)},
+      {"tests launched", std::to_string(info.tests)},
+      {"running now", std::to_string(info.running) + " test" + (info.running == 1 ? "" : "s") + ", reserving " +
+                          format_rounded(info.reserved, 6)},
       {"discoveries", std::to_string(info.rejections)},
       {"alpha-wealth now", format_rounded(info.wealth, 6)},
       {"next level", info.closed_at_ms ? std::string("none (closed)") : format_rounded(info.next_level, 6)},
@@ -208,17 +222,29 @@ std::string render_stream_report(const StreamReportData& d) {
              "Each mark is a test, in step order; the line is its level. A test is a discovery when its "
              "p-value is on or below the line (filled triangles). Hover or tap a mark for its id, p-value "
              "and level. A p-value of 0 is drawn at the bottom of the chart. Table: Decisions, below.");
-  body += figure("chart-wealth", "Alpha-wealth after each test",
+  body += figure("chart-wealth", "Alpha-wealth and reserved wealth after each test",
                  "Line chart: alpha-wealth after each of " + std::to_string(n) + " tests, from " +
                      format_rounded(info.config.initial_wealth) + " at the start to " +
-                     format_rounded(info.wealth) + " now. The numbers are in the table of decisions.",
+                     format_rounded(info.wealth) + " now, and beside it (dashed) the wealth reserved by " +
+                     "tests still running after each decision, " + format_rounded(info.reserved, 6) +
+                     " now. The numbers are in the table of decisions.",
                  "Wealth is spent on each test and earned back on each discovery (how much depends on the "
-                 "rule). Reserved wealth for running tests is not recorded yet (launch-time levels come "
-                 "later); this chart shows wealth after each decision only. Table: Decisions, below.");
+                 "rule). A test launched before it is decided reserves its level at its launch; the dashed "
+                 "line is the sum of the levels of the tests launched and not yet decided or abandoned, "
+                 "right after each decision (zero when every test is decided at once). Table: Decisions, "
+                 "below.");
   body += figure("chart-discoveries", "Discoveries so far",
                  "Step chart: the number of discoveries after each test, reaching " +
                      std::to_string(discoveries) + " after " + std::to_string(n) + " tests.",
                  "Each step up is one discovery (marked with a triangle). Table: Decisions, below.");
+  body += "</section>\n<section id=\"running\">\n<h2>Running tests</h2>\n";
+  body += d.running.empty()
+              ? std::string("<p>No test is running: every launched test has been decided or abandoned.</p>\n")
+              : "<p>" + std::to_string(d.running.size()) +
+                    " tests launched and not yet decided, in launch order, with the level each reserved at "
+                    "its launch (its decision will be made against it; <code>alphaledger explain " +
+                    html_escape(info.name) + " --id ID</code> shows how it was made).</p>\n";
+  body += "<div class=\"table-box\" id=\"running-table\"></div>\n";
   body += "</section>\n<section id=\"decisions\">\n<h2>Decisions</h2>\n";
   body +=
       "<p>Every test in step order, with its full-precision numbers (as <code>alphaledger history</code> "
@@ -261,14 +287,13 @@ std::string render_replay_report(const ReplayReportData& d) {
   for (std::size_t k = 0; k < r.procedures.size(); ++k) {
     const Procedure& proc = r.procedures[k];
     const auto& decisions = r.decisions[k];
-    Json level = Json::array(), rejected = Json::array(), wealth = Json::array();
-    bool has_wealth = false;
+    // Not the wealth: the page shows none (replay's CSV has it), and at 10^5 tests it would be
+    // 2 MB a rule of the file (docs/benchmarks.md "HTML reports").
+    Json level = Json::array(), rejected = Json::array();
     for (std::size_t i = 0; i < decisions.size(); ++i) {
       level.push_back(decisions[i].level);
       rejected.push_back(decisions[i].rejected ? 1 : 0);
       if (decisions[i].rejected) keep[i] = true;
-      if (decisions[i].wealth) has_wealth = true;
-      wealth.push_back(decisions[i].wealth ? Json(*decisions[i].wealth) : Json(nullptr));
     }
     Json rule = {{"rule", proc.name}, {"online", proc.online()}, {"guarantee", guarantee_text(proc.name)}};
     bool extra = false;
@@ -276,7 +301,6 @@ std::string render_replay_report(const ReplayReportData& d) {
     rule["added_for_report"] = extra;
     rule["level"] = std::move(level);
     rule["rejected"] = std::move(rejected);
-    if (has_wealth) rule["wealth"] = std::move(wealth);
     if (d.summaries != nullptr && k < d.summaries->size()) {
       const ReplaySummary& s = (*d.summaries)[k];
       rule["summary"] = {{"tests", s.tests},
@@ -381,10 +405,14 @@ std::string render_simulation_report(const SimulationReportData& d) {
                 {"effect_sd", m.effect_sd},
                 {"null_mean", m.null_mean},
                 {"nonnull_pattern", pattern_text(m.pattern)},
-                {"correlation", correlation_text(m.correlation)}};
-  const std::string swept_label = d.parameter == "nonnull_fraction" ? "non-null fraction"
-                                  : d.parameter == "effect"         ? "effect (mean z of a non-null test)"
-                                                                    : std::string();
+                {"correlation", correlation_text(m.correlation)},
+                {"mean_duration", m.mean_duration},
+                {"peeking_looks", d.peeking_looks}};
+  const std::string swept_label =
+      d.parameter == "nonnull_fraction" ? "non-null fraction"
+      : d.parameter == "effect"         ? "effect (mean z of a non-null test)"
+      : d.parameter == "mean_duration"  ? "mean duration (launches between launch and finish)"
+                                        : std::string();
   Json data;
   data["report"] = "simulation";
   data["format"] = 1;
@@ -417,6 +445,13 @@ std::string render_simulation_report(const SimulationReportData& d) {
       {"effect sd", format_rounded(m.effect_sd)},
       {"null mean", format_rounded(m.null_mean)},
       {"correlation", correlation_text(m.correlation)},
+      {"mean duration",
+       d.parameter == "mean_duration"
+           ? std::string("swept")
+           : m.mean_duration == 0 ? std::string("0 (each test decided before the next is launched)")
+                                  : format_rounded(m.mean_duration) + " launches between a test's launch and its finish"},
+      {"peeking looks", d.peeking_looks == 0 ? std::string("none (only the final p-value is read)")
+                                             : std::to_string(d.peeking_looks) + " looks per test"},
       {"seed", std::to_string(d.seed)},
       {"target (alpha)", format_rounded(target)},
   });

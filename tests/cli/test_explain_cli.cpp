@@ -2,6 +2,7 @@
 #include <doctest/doctest.h>
 
 #include <nlohmann/json.hpp>
+#include <map>
 #include <string>
 
 #include "support/process.hpp"
@@ -52,7 +53,7 @@ TEST_CASE("explain: an unknown stream or id exits 3 with a clear message; bad us
   CHECK(no_stream.err.find("no stream named 'nope'") != std::string::npos);
   const auto no_id = run_alphaledger({"--ledger", db, "explain", "s", "--id", "x"});
   CHECK(no_id.exit_code == 3);
-  CHECK(no_id.err.find("no decided test with id 'x'") != std::string::npos);
+  CHECK(no_id.err.find("no decided or running test with id 'x'") != std::string::npos);
   const auto neither = run_alphaledger({"--ledger", db, "explain"});
   CHECK(neither.exit_code == 2);
 }
@@ -67,4 +68,53 @@ TEST_CASE("explain --log: a log replayed through the rule, e-values for e-lond")
   REQUIRE(j["terms"].size() == 2);  // alpha gamma_3, and one rejection (a: 1000 >= 1/alpha_1 = 365)
   CHECK(j["terms"][1]["kind"] == "rejections_so_far");
   CHECK(j["terms"][1]["rejection"] == 1);
+}
+
+TEST_CASE("explain: tests launched before others finished get the level reserved at their launch") {
+  // Overlapping launches (docs/ledger.md "Launch-time levels"): each test's explained level must be
+  // the level the ledger reserved at its launch, bit for bit (explain itself refuses a mismatch
+  // with exit 3), whether it is decided or still running. The reference numbers are the ledger's
+  // own reservations; the sums are common practice, no source.
+  for (const std::string rule : {"lord++", "saffron", "addis", "alpha-investing", "lond"}) {
+    CAPTURE(rule);
+    const alphaledger::test_support::TempDir dir;
+    const std::string db = dir.path() + "/db";
+    const auto json = [&](std::vector<std::string> args) {
+      args.insert(args.begin(), {"--ledger", db, "--json"});
+      const auto r = run_alphaledger(args);
+      INFO(r.err);
+      REQUIRE(r.exit_code == 0);
+      return nlohmann::json::parse(r.out);
+    };
+    REQUIRE(run_alphaledger({"--ledger", db, "new", "s", "--rule", rule}).exit_code == 0);
+    std::map<std::string, double> reserved;
+    reserved["a"] = json({"launch", "s", "--id", "a"})["level"].get<double>();
+    reserved["b"] = json({"launch", "s", "--id", "b"})["level"].get<double>();
+    json({"decide", "s", "--id", "a", "--p", "0.00001"});
+    reserved["c"] = json({"launch", "s", "--id", "c"})["level"].get<double>();
+    reserved["d"] = json({"decide", "s", "--id", "d", "--p", "0.3"})["level"].get<double>();  // launched and decided at once
+    reserved["e"] = json({"launch", "s", "--id", "e"})["level"].get<double>();
+    json({"decide", "s", "--id", "b", "--p", "0.8"});
+    reserved["f"] = json({"launch", "s", "--id", "f"})["level"].get<double>();
+    json({"abandon", "s", "--id", "e"});
+    reserved["g"] = json({"launch", "s", "--id", "g"})["level"].get<double>();
+    // Running now: c, f, g. Decided: a, b, d. Abandoned: e.
+    for (const auto& [id, level] : reserved) {
+      CAPTURE(id);
+      if (id == "e") continue;
+      const auto j = json({"explain", "s", "--id", id});
+      CHECK(j["level"].get<double>() == level);
+      double sum = 0;
+      for (const auto& t : j["terms"]) sum += t["amount"].get<double>();
+      CHECK(sum == doctest::Approx(j["uncapped"].get<double>()).epsilon(1e-12));
+    }
+    const auto text = run_alphaledger({"--ledger", db, "explain", "s", "--id", "g"});
+    CHECK(text.out.find("test 'g' (running, reserved at launch 7)") != std::string::npos);
+    const auto next = json({"explain", "s"});
+    CHECK(next["level"].get<double>() == json({"status", "s"})["next_level"].get<double>());
+    CHECK(next["test"] == 8);
+    const auto abandoned = run_alphaledger({"--ledger", db, "explain", "s", "--id", "e"});
+    CHECK(abandoned.exit_code == 3);
+    CHECK(abandoned.err.find("was abandoned") != std::string::npos);
+  }
 }

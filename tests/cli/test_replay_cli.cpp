@@ -3,6 +3,8 @@
 
 #include <algorithm>
 #include <fstream>
+#include <map>
+#include <set>
 #include <string>
 
 #include "support/process.hpp"
@@ -253,4 +255,91 @@ TEST_CASE("Replay: no progress line when stderr is not a terminal") {
   REQUIRE(rows.exit_code == 0);
   CHECK(rows.err.empty());  // piped: nothing on stderr
   CHECK(rows.out.find("replay:") == std::string::npos);
+}
+
+namespace {
+std::vector<std::string> split_commas(const std::string& line) {
+  std::vector<std::string> out;
+  std::size_t start = 0;
+  while (true) {
+    const std::size_t c = line.find(',', start);
+    out.push_back(line.substr(start, c == std::string::npos ? std::string::npos : c - start));
+    if (c == std::string::npos) return out;
+    start = c + 1;
+  }
+}
+std::vector<std::string> lines_of(const std::string& text) {
+  std::vector<std::string> out;
+  std::size_t start = 0;
+  while (start < text.size()) {
+    const std::size_t nl = text.find('\n', start);
+    out.push_back(text.substr(start, nl - start));
+    start = nl + 1;
+  }
+  return out;
+}
+}  // namespace
+
+TEST_CASE("Replay --wide: one row per test, the log's columns kept, the long form's levels and decisions") {
+  // Compares the two forms of one run: no outside numbers, the long form is the reference.
+  const auto lng = run_alphaledger({"replay", kDemo, "--rules", "lord++,saffron,bh"});
+  const auto wide = run_alphaledger({"replay", kDemo, "--rules", "lord++,saffron,bh", "--wide"});
+  REQUIRE(lng.exit_code == 0);
+  REQUIRE(wide.exit_code == 0);
+  const auto rows = lines_of(wide.out);
+  REQUIRE(rows.size() == 1 + 420);
+  CHECK(rows[0] ==
+        "line,id,p_value,team,metric,finished_at,level_lord++,rejected_lord++,level_saffron,rejected_saffron,"
+        "level_bh,rejected_bh");
+  // The long form, keyed by rule and id: "level,rejected".
+  std::map<std::string, std::string> expected;
+  for (const auto& line : lines_of(lng.out)) {
+    const auto f = split_commas(line);
+    if (f.size() == 7 && f[0] != "rule") expected[f[0] + "/" + f[2]] = f[4] + "," + f[5];
+  }
+  REQUIRE(expected.size() == 3 * 420);
+  const char* rules[] = {"lord++", "saffron", "bh"};
+  std::size_t compared = 0;
+  std::set<std::string> lines_seen;  // the file's lines 2..421, in the order of finished_at
+  for (std::size_t i = 1; i < rows.size(); ++i) {
+    const auto f = split_commas(rows[i]);
+    REQUIRE(f.size() == 12);
+    lines_seen.insert(f[0]);
+    for (int k = 0; k < 3; ++k) {
+      CHECK(expected[std::string(rules[k]) + "/" + f[1]] == f[6 + 2 * k] + "," + f[7 + 2 * k]);
+      ++compared;
+    }
+  }
+  CHECK(compared == 3 * 420);
+  CHECK(lines_seen.size() == 420);
+  // The input's own columns as written; rows in decision order (finished_at), with the file's line.
+  CHECK(rows[1].rfind("415,LO-0414,0.6473863540862861,mobile-app,day7_retention,2024-01-01T00:43:45Z,", 0) == 0);
+  CHECK(wide.out.find("\n2,LO-0001,0.28527458147820645,email,unsubscribe_rate,2025-12-12T23:19:44Z,") !=
+        std::string::npos);
+
+  // --rejected-only keeps the tests any rule rejected,
+  // Counted from the long form instead of assumed.
+  std::set<std::string> any;
+  for (const auto& [key, value] : expected) {
+    if (value.back() == '1') any.insert(key.substr(key.find('/') + 1));
+  }
+  const auto only = run_alphaledger({"replay", kDemo, "--rules", "lord++,saffron,bh", "--wide", "--rejected-only"});
+  REQUIRE(only.exit_code == 0);
+  const auto only_rows = lines_of(only.out);
+  CHECK(only_rows.size() == 1 + any.size());
+  for (std::size_t i = 1; i < only_rows.size(); ++i) CHECK(any.count(split_commas(only_rows[i])[1]) == 1);
+
+  // --json: one object per test with the same keys and the long form's numbers.
+  const auto json = run_alphaledger({"replay", kDemo, "--rules", "lord++,saffron,bh", "--wide", "--json"});
+  REQUIRE(json.exit_code == 0);
+  const auto objects = lines_of(json.out);
+  REQUIRE(objects.size() == 420);
+  CHECK(objects[0].rfind(R"({"line":415,"id":"LO-0414","p_value":0.6473863540862861,"team":"mobile-app",)", 0) == 0);
+  const std::string& first = expected["lord++/LO-0414"];
+  CHECK(objects[0].find(R"("level_lord++":)" + first.substr(0, first.find(',')) + R"(,"rejected_lord++":0)") !=
+        std::string::npos);
+
+  const auto both = run_alphaledger({"replay", kDemo, "--wide", "--summary"});
+  CHECK(both.exit_code == 2);
+  CHECK(both.err.find("--wide and --summary") != std::string::npos);
 }

@@ -229,3 +229,27 @@ TEST_CASE("Report: replay and simulation pages carry their data") {
   CHECK(sim["rows"][1]["value"] == 2.0);
   CHECK(sim["rows"][0]["power_se"].is_null());  // NaN is not JSON: null
 }
+
+TEST_CASE("Report: reserved wealth after each decision follows launches, finishes and abandons in chain order") {
+  // Hand-worked (docs/reports.md "Stream report"): a running test holds its level until it is
+  // decided or abandoned; a test decided at the step of its own launch never holds one.
+  using alphaledger::DecisionRecord;
+  const auto rec = [](std::uint64_t step, std::uint64_t launch, double level, bool abandoned) {
+    DecisionRecord r;
+    r.step = step;
+    r.launch = launch;
+    r.level = level;
+    r.abandoned = abandoned;
+    return r;
+  };
+  // Steps: 1 launch 1 (0.01), 2 launch 2 (0.02), 3 abandon 1, 4 launch 3 (0.03), 5 finish 3,
+  // 6 finish 2, 7 launch 4 (0.04, still running), 8 launch-and-decide 5 (0.05).
+  const std::vector<DecisionRecord> history = {rec(3, 1, 0.01, true), rec(5, 3, 0.03, false),
+                                               rec(6, 2, 0.02, false), rec(8, 5, 0.05, false)};
+  const std::vector<alphaledger::RunningEntry> running = {{"t4", 4, 0.04, 0}};
+  const auto reserved = alphaledger::reserved_after_each(history, running);
+  REQUIRE(reserved.size() == 3);  // decisions only
+  CHECK(reserved[0] == 0.02);     // after finish 3: test 2 runs
+  CHECK(reserved[1] == 0.0);      // after finish 2: nothing runs
+  CHECK(reserved[2] == 0.04);     // after test 5 (launched and decided at once): test 4 runs
+}
