@@ -113,23 +113,18 @@ class Progress {
   std::uint64_t last_percent_ = 101;
 };
 
-Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostream& out) {
-  if (o.table && g.json) return invalid_input("--table and --json cannot be used together; choose one");
-  auto names = split_rule_list(o.rules);
-  if (!names) return names.error();
-  RuleSpec flags = o.flags.to_spec();
-  // Fast evaluation by default for the rules that have it (docs/simulate.md), unless asked otherwise.
-  if (!flags.evaluation) {
-    for (const auto& n : *names) {
-      if (n == "lord++" || n == "saffron" || n == "addis") flags.evaluation = "fast";
-    }
-  }
-  auto procs = resolve_procedures(*names, flags, /*allow_offline=*/true);
-  if (!procs) return procs.error();
+// Everything a run needs, read and checked from the flags before anything runs.
+struct SimulateSetup {
+  std::vector<Procedure> procedures;
+  PeekingSpec peeking;
+  std::string parameter;                // the swept parameter's CSV column name, or empty for one setting
+  std::vector<double> values;           // its values (one value when nothing is swept)
+  std::vector<SimulationModel> models;  // one per value, each validated
+  SimulationOptions run;
+};
 
-  if (o.report) {
-    if (auto s = check_output_path(*o.report, "--report"); !s) return s;
-  }
+// The swept parameter (at most one flag may list several values) and its values.
+Status read_sweep(const SimulateOptions& o, SimulateSetup& s, SimulationModel& model) {
   auto fractions = parse_sweep(o.nonnull_fraction, "--nonnull-fraction");
   if (!fractions) return fractions.error();
   auto effects = parse_sweep(o.effect, "--effect");
@@ -141,31 +136,24 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
         "more than one of --nonnull-fraction, --effect and --mean-duration list several values; a sweep "
         "varies one parameter at a time (give the others a single value)");
   }
-  // The swept parameter's name as a CSV column, or empty for a single setting.
-  const std::string parameter = fractions->size() > 1   ? "nonnull_fraction"
-                                : effects->size() > 1   ? "effect"
-                                : durations->size() > 1 ? "mean_duration"
-                                                        : "";
-  const std::vector<double>& values = effects->size() > 1     ? *effects
-                                      : durations->size() > 1 ? *durations
-                                                              : *fractions;
-  PeekingSpec peeking;
-  auto looks = parse_whole(o.peeking, "--peeking", 0, 100'000);
-  if (!looks) return looks.error();
-  peeking.looks = *looks;
-  peeking.mixture_sd = o.mixture_sd;
-  if (o.mixture_sd != 0 && peeking.looks == 0) {
-    return invalid_input("--mixture-sd is used only with --peeking K (K >= 1 looks per test)");
-  }
-  if (auto s = validate_peeking(peeking); !s) return s.error();
-
-  SimulationModel model;
-  auto tests = parse_whole(o.tests, "--tests", 1, 100'000'000);
-  if (!tests) return tests.error();
-  model.tests = *tests;
+  s.parameter = fractions->size() > 1   ? "nonnull_fraction"
+                : effects->size() > 1   ? "effect"
+                : durations->size() > 1 ? "mean_duration"
+                                        : "";
+  s.values = effects->size() > 1 ? *effects : durations->size() > 1 ? *durations : *fractions;
   model.nonnull_fraction = fractions->front();
   model.effect = effects->front();
   model.mean_duration = durations->front();
+  return {};
+}
+
+// The stream model at each value of the sweep; every value is checked before anything runs.
+Status read_models(const SimulateOptions& o, SimulateSetup& s) {
+  SimulationModel model;
+  if (auto st = read_sweep(o, s, model); !st) return st;
+  auto tests = parse_whole(o.tests, "--tests", 1, 100'000'000);
+  if (!tests) return tests.error();
+  model.tests = *tests;
   model.effect_sd = o.effect_sd;
   model.null_mean = o.null_mean;
   auto pattern = parse_nonnull_pattern(o.pattern);
@@ -174,18 +162,19 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
   auto correlation = parse_correlation(o.correlation);
   if (!correlation) return correlation.error();
   model.correlation = *correlation;
-  // Every value of a sweep is checked before anything runs.
-  std::vector<SimulationModel> models;
-  for (double v : values) {
+  for (double v : s.values) {
     SimulationModel m = model;
-    if (parameter == "effect") m.effect = v;
-    if (parameter == "nonnull_fraction") m.nonnull_fraction = v;
-    if (parameter == "mean_duration") m.mean_duration = v;
-    if (auto s = validate_model(m); !s) return s.error();
-    models.push_back(m);
+    if (s.parameter == "effect") m.effect = v;
+    if (s.parameter == "nonnull_fraction") m.nonnull_fraction = v;
+    if (s.parameter == "mean_duration") m.mean_duration = v;
+    if (auto st = validate_model(m); !st) return st.error();
+    s.models.push_back(m);
   }
+  return {};
+}
 
-  SimulationOptions run;
+// Runs, seed and threads.
+Status read_run_options(const SimulateOptions& o, SimulationOptions& run) {
   auto runs = parse_whole(o.runs, "--runs", 1, 100'000'000);
   if (!runs) return runs.error();
   run.runs = *runs;
@@ -199,21 +188,56 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
     if (!threads) return threads.error();
     run.threads = static_cast<unsigned>(*threads);
   }
+  return {};
+}
 
-  const SimulationPlan plan(std::move(*procs), peeking);
+Result<SimulateSetup> read_setup(const SimulateOptions& o) {
+  SimulateSetup s;
+  auto names = split_rule_list(o.rules);
+  if (!names) return names.error();
+  RuleSpec flags = o.flags.to_spec();
+  // Fast evaluation by default for the rules that have it (docs/simulate.md), unless asked otherwise.
+  if (!flags.evaluation) {
+    for (const auto& n : *names) {
+      if (n == "lord++" || n == "saffron" || n == "addis") flags.evaluation = "fast";
+    }
+  }
+  auto procs = resolve_procedures(*names, flags, /*allow_offline=*/true);
+  if (!procs) return procs.error();
+  s.procedures = std::move(*procs);
+  if (o.report) {
+    if (auto st = check_output_path(*o.report, "--report"); !st) return st.error();
+  }
+  if (auto st = read_models(o, s); !st) return st.error();
+  auto looks = parse_whole(o.peeking, "--peeking", 0, 100'000);
+  if (!looks) return looks.error();
+  s.peeking.looks = *looks;
+  s.peeking.mixture_sd = o.mixture_sd;
+  if (o.mixture_sd != 0 && s.peeking.looks == 0) {
+    return invalid_input("--mixture-sd is used only with --peeking K (K >= 1 looks per test)");
+  }
+  if (auto st = validate_peeking(s.peeking); !st) return st.error();
+  if (auto st = read_run_options(o, s.run); !st) return st.error();
+  return s;
+}
+
+// Runs every value of the sweep with the same seed, so the settings differ only in the swept
+// parameter; one list of summaries per value.
+Result<std::vector<std::vector<ProcedureSummary>>> run_sweep(SimulateSetup& s, bool say_evaluation) {
+  const SimulationModel& model = s.models.front();
   spdlog::info(
       "simulate: {} runs x {} tests, seed {}, {} threads, non-null share {} ({}), effect {} (sd {}), "
       "null mean {}, correlation {}, mean duration {}, looks {}",
-      run.runs, model.tests, run.seed, run.threads, model.nonnull_fraction, pattern_text(model.pattern),
+      s.run.runs, model.tests, s.run.seed, s.run.threads, model.nonnull_fraction, pattern_text(model.pattern),
       model.effect, model.effect_sd, model.null_mean, correlation_text(model.correlation),
-      model.mean_duration, peeking.looks);
-  // A sweep runs the same seed at every value, so the settings differ only in the swept parameter.
-  Progress progress(run.runs * models.size());
+      model.mean_duration, s.peeking.looks);
+  const SimulationPlan plan(std::move(s.procedures), s.peeking);
+  Progress progress(s.run.runs * s.models.size());
   std::vector<std::vector<ProcedureSummary>> summaries;
-  for (std::size_t v = 0; v < models.size(); ++v) {
-    const std::uint64_t before = run.runs * v;
-    run.progress = [&progress, before](std::uint64_t done) { progress.update(before + done); };
-    auto result = run_simulation(plan, models[v], run);
+  for (std::size_t v = 0; v < s.models.size(); ++v) {
+    const std::uint64_t before = s.run.runs * v;
+    s.run.progress = [&progress, before](std::uint64_t done) { progress.update(before + done); };
+    auto result = run_simulation(plan, s.models[v], s.run);
     if (!result) {
       progress.finish("");
       return result.error();
@@ -221,38 +245,50 @@ Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostre
     summaries.push_back(std::move(result->summaries));
   }
   const std::string eval = evaluation_note(summaries.front());
-  progress.finish(g.json || o.table ? "" : eval);  // the table and the JSON say it themselves
+  progress.finish(say_evaluation ? eval : "");
   if (!eval.empty()) spdlog::info("simulate: evaluation {}", eval);
-  for (std::size_t v = 0; v < models.size(); ++v) {
-    if (g.json) {
-      write_simulation_json(out, summaries[v], parameter, values[v]);
-    } else if (o.table) {
-      if (!parameter.empty())
-        out << (v == 0 ? "" : "\n") << "== " << parameter << " = " << format_number(values[v]) << "\n";
-      write_simulation_table(out, summaries[v], {models[v], run.runs, run.seed, run.threads, peeking.looks});
+  return summaries;
+}
+
+void write_simulation_output(const SimulateOptions& o, const GlobalOptions& g, const SimulateSetup& s,
+                             const std::vector<std::vector<ProcedureSummary>>& summaries, std::ostream& out) {
+  if (g.json) {
+    for (std::size_t v = 0; v < s.models.size(); ++v)
+      write_simulation_json(out, summaries[v], s.parameter, s.values[v]);
+  } else if (o.table) {
+    for (std::size_t v = 0; v < s.models.size(); ++v) {
+      if (!s.parameter.empty())
+        out << (v == 0 ? "" : "\n") << "== " << s.parameter << " = " << format_number(s.values[v]) << "\n";
+      write_simulation_table(out, summaries[v],
+                             {s.models[v], s.run.runs, s.run.seed, s.run.threads, s.peeking.looks});
     }
+  } else if (s.parameter.empty()) {
+    write_simulation_csv(out, summaries.front());
+  } else {
+    write_simulation_sweep_csv(out, s.parameter, s.values, summaries);
   }
-  if (!g.json && !o.table) {
-    if (parameter.empty()) {
-      write_simulation_csv(out, summaries.front());
-    } else {
-      write_simulation_sweep_csv(out, parameter, values, summaries);
-    }
-  }
-  if (o.report) {
-    SimulationReportData data;
-    data.parameter = parameter;
-    data.values = values;  // a single setting: its non-null fraction (or effect), one point per rule
-    data.summaries = std::move(summaries);
-    data.model = models.front();
-    data.runs = run.runs;
-    data.seed = run.seed;
-    data.peeking_looks = peeking.looks;
-    data.generated_at_ms = system_clock_ms();
-    out.flush();
-    return write_file_atomically(*o.report, render_simulation_report(data), "--report");
-  }
-  return {};
+}
+
+Status run_simulate(const SimulateOptions& o, const GlobalOptions& g, std::ostream& out) {
+  if (o.table && g.json) return invalid_input("--table and --json cannot be used together; choose one");
+  auto setup = read_setup(o);
+  if (!setup) return setup.error();
+  // The table and the JSON say which evaluation ran themselves; the CSV has no column for it.
+  auto summaries = run_sweep(*setup, /*say_evaluation=*/!g.json && !o.table);
+  if (!summaries) return summaries.error();
+  write_simulation_output(o, g, *setup, *summaries, out);
+  if (!o.report) return {};
+  SimulationReportData data;
+  data.parameter = setup->parameter;
+  data.values = setup->values;  // a single setting: its non-null fraction (or effect), one point per rule
+  data.summaries = std::move(*summaries);
+  data.model = setup->models.front();
+  data.runs = setup->run.runs;
+  data.seed = setup->run.seed;
+  data.peeking_looks = setup->peeking.looks;
+  data.generated_at_ms = system_clock_ms();
+  out.flush();
+  return write_file_atomically(*o.report, render_simulation_report(data), "--report");
 }
 
 }  // namespace

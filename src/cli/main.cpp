@@ -86,13 +86,11 @@ alphaledger::Error with_flag_hint(alphaledger::Error error, const CLI::App& app)
 
 }  // namespace
 
-int main(int argc, char** argv) {
-  using namespace alphaledger;
-  using namespace alphaledger::cli;
-  CLI::App app{"alphaledger " ALPHALEDGER_VERSION
-               ": decide each hypothesis test the moment it finishes, keeping the false discovery\n"
-               "rate of the whole stream below a target (LORD++, SAFFRON, ADDIS, LOND, alpha-investing,\n"
-               "alpha-spending), with a durable, verifiable ledger."};
+namespace alphaledger::cli {
+namespace {
+
+// The global flags and every subcommand.
+void build_app(CLI::App& app, CommandContext& ctx) {
   app.footer(
       "A FILE argument of '-' reads standard input. Exit codes: 0 success, 2 bad usage or input,\n"
       "3 refused by the ledger, 4 storage failure; with --json a failure is one JSON object on\n"
@@ -101,7 +99,6 @@ int main(int argc, char** argv) {
   app.require_subcommand(1);
   app.fallthrough();
   app.set_version_flag("--version", ALPHALEDGER_VERSION);
-  CommandContext ctx;
   app.add_option("--ledger", ctx.global.ledger,
                  "ledger folder; default $ALPHALEDGER_LEDGER, else ./alphaledger.db");
   app.add_flag("--json", ctx.global.json,
@@ -117,58 +114,73 @@ int main(int argc, char** argv) {
   add_recover_command(app, ctx);
   add_report_command(app, ctx);
   add_explain_command(app, ctx);  // src/cli/cmd_explain.cpp
+}
 
-  const std::vector<std::string> args(argv + std::min(argc, 1), argv + argc);
-  if (const std::string problem = check_arguments(app, args); !problem.empty()) {
-    const Failure f = usage_failure(problem);
-    print_failure(std::cerr, f, wants_json(args));
-    return f.exit_code;
-  }
-  try {
-    app.parse(argc, argv);
-  } catch (const CLI::Success& e) {  // --help, --version
-    return app.exit(e);
-  } catch (const CLI::ParseError& e) {
-    const Failure f = usage_failure(explain_usage_error(app, args, e));
-    print_failure(std::cerr, f, wants_json(args));
-    return f.exit_code;
-  }
+void set_up_logging(const GlobalOptions& global) {
   std::shared_ptr<spdlog::logger> logger;
-  if (ctx.global.json) {
+  if (global.json) {
     logger = std::make_shared<spdlog::logger>("alphaledger", std::make_shared<JsonLogSink>());
   } else {
     logger = spdlog::stderr_color_mt("alphaledger");
   }
   spdlog::set_default_logger(logger);
-  spdlog::set_level(spdlog::level::from_str(ctx.global.log_level));
+  spdlog::set_level(spdlog::level::from_str(global.log_level));
+}
+
+int fail(const Failure& f, bool json) {
+  print_failure(std::cerr, f, json);
+  return f.exit_code;
+}
+
+// Runs the parsed command; an exception that escapes it is an internal failure, said plainly.
+int run_command(const CommandContext& ctx, const CLI::App& app) {
   if (!ctx.run) {  // cannot happen: every leaf command sets it; say so rather than exit silently
-    const Failure f = usage_failure("no command given; see 'alphaledger --help'");
-    print_failure(std::cerr, f, ctx.global.json);
-    return f.exit_code;
+    return fail(usage_failure("no command given; see 'alphaledger --help'"), ctx.global.json);
   }
   Status status;
   try {
     status = ctx.run();
   } catch (const std::bad_alloc&) {
     std::cout.flush();
-    const Failure f = internal_failure("out of memory; the ledger is as it was before the failed step");
-    print_failure(std::cerr, f, ctx.global.json);
-    return f.exit_code;
+    return fail(internal_failure("out of memory; the ledger is as it was before the failed step"),
+                ctx.global.json);
   } catch (const std::exception& e) {
     // A library's exception text is not a message for people: keep it for --log-level debug.
     spdlog::debug("unexpected exception: {}", excerpt(e.what(), 200));
     std::cout.flush();
-    const Failure f = internal_failure(
-        "an unexpected internal failure stopped the command; the ledger keeps every decision printed "
-        "before it (run with --log-level debug for details)");
-    print_failure(std::cerr, f, ctx.global.json);
-    return f.exit_code;
+    return fail(internal_failure(
+                    "an unexpected internal failure stopped the command; the ledger keeps every decision "
+                    "printed before it (run with --log-level debug for details)"),
+                ctx.global.json);
   }
   std::cout.flush();
-  if (!status) {
-    const Failure f = failure_from(with_flag_hint(status.error(), app));
-    print_failure(std::cerr, f, ctx.global.json);
-    return f.exit_code;
-  }
+  if (!status) return fail(failure_from(with_flag_hint(status.error(), app)), ctx.global.json);
   return 0;
+}
+
+}  // namespace
+}  // namespace alphaledger::cli
+
+int main(int argc, char** argv) {
+  using namespace alphaledger;
+  using namespace alphaledger::cli;
+  CLI::App app{"alphaledger " ALPHALEDGER_VERSION
+               ": decide each hypothesis test the moment it finishes, keeping the false discovery\n"
+               "rate of the whole stream below a target (LORD++, SAFFRON, ADDIS, LOND, alpha-investing,\n"
+               "alpha-spending), with a durable, verifiable ledger."};
+  CommandContext ctx;
+  build_app(app, ctx);
+  const std::vector<std::string> args(argv + std::min(argc, 1), argv + argc);
+  if (const std::string problem = check_arguments(app, args); !problem.empty()) {
+    return fail(usage_failure(problem), wants_json(args));
+  }
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::Success& e) {  // --help, --version
+    return app.exit(e);
+  } catch (const CLI::ParseError& e) {
+    return fail(usage_failure(explain_usage_error(app, args, e)), wants_json(args));
+  }
+  set_up_logging(ctx.global);
+  return run_command(ctx, app);
 }

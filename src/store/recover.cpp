@@ -159,16 +159,9 @@ Result<Replayed> replay(Rule& rule, const store::ChainEntry& e, std::set<std::st
   return out;
 }
 
-// Copies one stream, stopping at its first unproven step.
-Status copy_stream(Store& from, Store& to, const std::string& name, const std::string& config_bytes,
-                   StreamRecovery& out) {
-  auto config = store::decode_config(config_bytes);
-  if (!config || config->name != name) {
-    out.problem = "the configuration cannot be read" +
-                  (config ? std::string(" (it names another stream)") : ": " + config.error().message);
-    return {};
-  }
-  // The source's head: how many steps it counted, and whether (and when) the stream was closed.
+// The source's head: how many steps it counted, and whether (and when) the stream was closed;
+// nothing (and out.head_problem says why) when it cannot be read.
+std::optional<store::StoredHead> read_source_head(Store& from, const std::string& name, StreamRecovery& out) {
   std::optional<store::StoredHead> source_head;
   if (auto head_bytes = from.get(store::head_key(name)); !head_bytes) {
     out.head_problem = "the head cannot be read: " + head_bytes.error().message;
@@ -184,6 +177,77 @@ Status copy_stream(Store& from, Store& to, const std::string& name, const std::s
     out.head_problem +=
         " (how many steps it held and whether it was closed are unknown; it is open in the "
         "new ledger)";
+  return source_head;
+}
+
+// Reads and checks the entry at `step` of the source: present, readable, at its own step, its
+// hash right and linked to `prev`. Nothing when the chain ends there (out.problem empty) or the
+// entry cannot be proven (out.problem says why, prefixed with the step).
+std::optional<store::ChainEntry> read_proven_entry(Store& from, const std::string& name, std::uint64_t step,
+                                                   const store::Digest& prev, std::string& bytes_out,
+                                                   StreamRecovery& out) {
+  const std::string at = "step " + std::to_string(step) + ": ";
+  auto bytes = from.get(store::record_key(name, step));
+  if (!bytes) {
+    out.problem = at + bytes.error().message;
+    return std::nullopt;
+  }
+  if (!*bytes) {
+    if (out.known_steps && *out.known_steps >= step) out.problem = at + "the record is missing";
+    return std::nullopt;
+  }
+  auto rec = store::decode_entry(**bytes);
+  if (!rec) {
+    out.problem = at + "the record cannot be read: " + rec.error().message;
+  } else if (rec->entry() != step) {
+    out.problem = at + "the record stored there says step " + std::to_string(rec->entry());
+  } else if (store::recompute_record_hash(**bytes) != rec->hash()) {
+    out.problem = at + "the record's contents do not match its hash";
+  } else if (rec->prev_hash() != prev) {
+    out.problem = at + "the record does not link to the one before it";
+  } else {
+    bytes_out = std::move(**bytes);
+    return std::move(*rec);
+  }
+  return std::nullopt;
+}
+
+// A closed stream stays closed. Its closing entry is proven when it covers exactly the kept steps
+// and hashes to what the source's head holds; otherwise it is closed again over the kept steps, at
+// the same time, and the report says the old closing hash no longer applies.
+void close_like_source(const store::StoredHead& source_head, store::StoredHead& head, StreamRecovery& out) {
+  const std::int64_t closed_at = *source_head.closed_at_ms;
+  const store::Digest closing = store::closing_hash(out.kept_steps, closed_at, head.last_hash);
+  if (source_head.steps != out.kept_steps) {
+    out.closing_problem = "the closing covered " + std::to_string(source_head.steps) + " step(s) but only " +
+                          std::to_string(out.kept_steps) + " were kept";
+  } else if (closing != source_head.last_hash) {
+    out.closing_problem =
+        "the closing entry rebuilt from the kept steps and the closing time does not hash to the "
+        "closing hash in the head (the head or its closing time was changed)";
+  } else {
+    out.closing_proven = true;
+  }
+  if (!out.closing_proven)
+    out.closing_problem +=
+        "; closed again at the same time with a new closing hash (an anchor "
+        "closed:HASH noted before no longer matches)";
+  out.closed_at_ms = closed_at;
+  out.closing_hash = store::to_hex(closing);
+  head.last_hash = closing;
+  head.closed_at_ms = closed_at;
+}
+
+// Copies one stream, stopping at its first unproven step.
+Status copy_stream(Store& from, Store& to, const std::string& name, const std::string& config_bytes,
+                   StreamRecovery& out) {
+  auto config = store::decode_config(config_bytes);
+  if (!config || config->name != name) {
+    out.problem = "the configuration cannot be read" +
+                  (config ? std::string(" (it names another stream)") : ": " + config.error().message);
+    return {};
+  }
+  const std::optional<store::StoredHead> source_head = read_source_head(from, name, out);
   WriteBatch batch;
   batch.put(store::config_key(name), config_bytes);
   Rule rule(config->config);  // replays the entries as they are read
@@ -197,33 +261,10 @@ Status copy_stream(Store& from, Store& to, const std::string& name, const std::s
   std::vector<Replayed> kept;
   bool rule_touched = false;
   for (std::uint64_t step = 1;; ++step) {
+    std::string bytes;
+    auto rec = read_proven_entry(from, name, step, prev, bytes, out);
+    if (!rec) break;
     const std::string at = "step " + std::to_string(step) + ": ";
-    auto bytes = from.get(store::record_key(name, step));
-    if (!bytes) {
-      out.problem = at + bytes.error().message;
-      break;
-    }
-    if (!*bytes) {
-      if (out.known_steps && *out.known_steps >= step) out.problem = at + "the record is missing";
-      break;
-    }
-    auto rec = store::decode_entry(**bytes);
-    if (!rec) {
-      out.problem = at + "the record cannot be read: " + rec.error().message;
-      break;
-    }
-    if (rec->entry() != step) {
-      out.problem = at + "the record stored there says step " + std::to_string(rec->entry());
-      break;
-    }
-    if (store::recompute_record_hash(**bytes) != rec->hash()) {
-      out.problem = at + "the record's contents do not match its hash";
-      break;
-    }
-    if (rec->prev_hash() != prev) {
-      out.problem = at + "the record does not link to the one before it";
-      break;
-    }
     bool touched = false;
     auto done = replay(rule, *rec, ids, running, touched);
     if (!done) {
@@ -237,7 +278,7 @@ Status copy_stream(Store& from, Store& to, const std::string& name, const std::s
     // A test's id points to its last entry: a running test's to its launch, a finished or
     // abandoned one's to its finish or abandon (a later put of the same key wins in the batch).
     batch.put(store::index_key(name, rec->id()), store::encode_step(step));
-    batch.put(store::record_key(name, step), std::move(**bytes));
+    batch.put(store::record_key(name, step), std::move(bytes));
     if (auto s = flush(to, batch, false); !s) return s;
   }
   // The rule's state after the kept entries only (the loop may have fed it one unproven entry).
@@ -251,36 +292,89 @@ Status copy_stream(Store& from, Store& to, const std::string& name, const std::s
   head.steps = out.kept_steps;
   head.last_hash = prev;
   head.rule_state = kept_rule.encode_state();
-  if (source_head && source_head->closed_at_ms) {
-    // A closed stream stays closed. Its closing entry is proven when it covers exactly the kept
-    // steps and hashes to what the source's head holds; otherwise it is closed again over the
-    // kept steps, at the same time, and the report says the old closing hash no longer applies.
-    const std::int64_t closed_at = *source_head->closed_at_ms;
-    const store::Digest closing = store::closing_hash(out.kept_steps, closed_at, prev);
-    if (source_head->steps != out.kept_steps) {
-      out.closing_problem = "the closing covered " + std::to_string(source_head->steps) +
-                            " step(s) but only " + std::to_string(out.kept_steps) + " were kept";
-    } else if (closing != source_head->last_hash) {
-      out.closing_problem =
-          "the closing entry rebuilt from the kept steps and the closing time does not hash to the "
-          "closing hash in the head (the head or its closing time was changed)";
-    } else {
-      out.closing_proven = true;
-    }
-    if (!out.closing_proven)
-      out.closing_problem +=
-          "; closed again at the same time with a new closing hash (an anchor "
-          "closed:HASH noted before no longer matches)";
-    out.closed_at_ms = closed_at;
-    out.closing_hash = store::to_hex(closing);
-    head.last_hash = closing;
-    head.closed_at_ms = closed_at;
-  }
+  if (source_head && source_head->closed_at_ms) close_like_source(*source_head, head, out);
   batch.put(store::head_key(name), store::encode_head(head));
   return flush(to, batch, true);
 }
 
 }  // namespace
+
+// Step 3 of recover_ledger: the new ledger at `target`, every stream copied from `from` up to its
+// first unproven step, other keys copied as they were; what happened is added to `report`.
+Status write_recovered(Store& from, const std::string& target, RecoveryReport& report) {
+  auto to = open_rocksdb_store(target, RocksStoreOptions{.create_if_missing = true});
+  if (!to) return to.error();
+  WriteBatch batch;
+  batch.put(std::string(store::kFormatKey), store::encode_format_version(store::kFormatVersion));
+  if (auto s = (*to)->write(batch, true); !s) return s.error();
+
+  std::vector<std::pair<std::string, std::string>> configs;
+  auto s = from.scan(store::kConfigPrefix, [&](std::string_view key, std::string_view value) {
+    configs.emplace_back(std::string(key.substr(store::kConfigPrefix.size())), std::string(value));
+    return true;
+  });
+  if (!s) {
+    report.source_problem += std::string(report.source_problem.empty() ? "" : "; ") +
+                             "the list of streams could not be read to the end: " + s.error().message;
+  }
+  for (const auto& [name, bytes] : configs) {
+    StreamRecovery sr;
+    sr.stream = name;
+    if (auto st = copy_stream(from, **to, name, bytes, sr); !st) return st.error();
+    report.streams.push_back(std::move(sr));
+  }
+  // Keys outside the four stream prefixes and the format key: no part of the format, so they are
+  // copied as they were and named in the report as not verified. Keys under a stream prefix whose
+  // stream has no configuration cannot be proven and are not copied; their streams are named.
+  std::set<std::string> with_config;
+  for (const auto& c : configs) with_config.insert(c.first);
+  std::set<std::string> orphans;
+  WriteBatch other;
+  s = from.scan("", [&](std::string_view key, std::string_view value) {
+    if (key == store::kFormatKey) return true;
+    if (key.starts_with("c/") || key.starts_with("h/") || key.starts_with("r/") || key.starts_with("i/")) {
+      std::string_view rest = key.substr(2);
+      const std::string stream(rest.substr(0, rest.find('/')));
+      if (!with_config.count(stream) && orphans.size() < 1000) orphans.insert(stream);
+      return true;
+    }
+    other.put(std::string(key), std::string(value));
+    if (report.other_key_names.size() < RecoveryReport::kShownKeys)
+      report.other_key_names.push_back(excerpt(key, 40));
+    ++report.other_keys_copied;
+    return true;
+  });
+  for (const auto& o : orphans) report.streams_without_configuration.push_back(excerpt(o, 128));
+  if (!s) {
+    report.source_problem += std::string(report.source_problem.empty() ? "" : "; ") +
+                             "some ledger-level keys could not be read: " + s.error().message;
+  }
+  if (auto st = flush(**to, other, true); !st) return st.error();
+  WriteBatch none;
+  none.put(std::string(store::kFormatKey), store::encode_format_version(store::kFormatVersion));
+  if (auto st = (*to)->write(none, true); !st) return st.error();  // a synced write covers all before it
+  return {};
+}
+
+// Step 4 of recover_ledger: the new ledger must pass verify, stream by stream.
+Status verify_recovered(const std::string& target, const RecoveryReport& report) {
+  auto check = Ledger::open(
+      target, RocksStoreOptions{.create_if_missing = false, .read_only = true, .check_all_files = true});
+  if (!check) return check.error();
+  for (const auto& sr : report.streams) {
+    if (!sr.problem.empty() && sr.problem.starts_with("the configuration")) continue;
+    // A proven closing must still be the source's: the closing hash is checked as an anchor.
+    std::vector<Anchor> anchors;
+    if (sr.closing_proven) anchors.push_back(Anchor{0, true, sr.closing_hash});
+    auto v = (*check)->verify(sr.stream, anchors);
+    if (!v) return v.error();
+    if (!v->ok || v->steps != sr.kept_steps) {
+      return corruption("the recovered ledger " + target + " fails verify for stream " + sr.stream + ": " +
+                        v->problem + " (this is a bug; the source is unchanged)");
+    }
+  }
+  return {};
+}
 
 Result<RecoveryReport> recover_ledger(const std::string& source, const std::string& target) {
   std::error_code ec;
@@ -335,76 +429,9 @@ Result<RecoveryReport> recover_ledger(const std::string& source, const std::stri
   }
 
   // 3. The new ledger.
-  {
-    auto to = open_rocksdb_store(target, RocksStoreOptions{.create_if_missing = true});
-    if (!to) return to.error();
-    WriteBatch batch;
-    batch.put(std::string(store::kFormatKey), store::encode_format_version(store::kFormatVersion));
-    if (auto s = (*to)->write(batch, true); !s) return s.error();
-
-    std::vector<std::pair<std::string, std::string>> configs;
-    auto s = (*from)->scan(store::kConfigPrefix, [&](std::string_view key, std::string_view value) {
-      configs.emplace_back(std::string(key.substr(store::kConfigPrefix.size())), std::string(value));
-      return true;
-    });
-    if (!s) {
-      report.source_problem += std::string(report.source_problem.empty() ? "" : "; ") +
-                               "the list of streams could not be read to the end: " + s.error().message;
-    }
-    for (const auto& [name, bytes] : configs) {
-      StreamRecovery sr;
-      sr.stream = name;
-      if (auto st = copy_stream(**from, **to, name, bytes, sr); !st) return st.error();
-      report.streams.push_back(std::move(sr));
-    }
-    // Keys outside the four stream prefixes and the format key: no part of the format, so they are
-    // copied as they were and named in the report as not verified. Keys under a stream prefix whose
-    // stream has no configuration cannot be proven and are not copied; their streams are named.
-    std::set<std::string> with_config;
-    for (const auto& c : configs) with_config.insert(c.first);
-    std::set<std::string> orphans;
-    WriteBatch other;
-    s = (*from)->scan("", [&](std::string_view key, std::string_view value) {
-      if (key == store::kFormatKey) return true;
-      if (key.starts_with("c/") || key.starts_with("h/") || key.starts_with("r/") || key.starts_with("i/")) {
-        std::string_view rest = key.substr(2);
-        const std::string stream(rest.substr(0, rest.find('/')));
-        if (!with_config.count(stream) && orphans.size() < 1000) orphans.insert(stream);
-        return true;
-      }
-      other.put(std::string(key), std::string(value));
-      if (report.other_key_names.size() < RecoveryReport::kShownKeys)
-        report.other_key_names.push_back(excerpt(key, 40));
-      ++report.other_keys_copied;
-      return true;
-    });
-    for (const auto& o : orphans) report.streams_without_configuration.push_back(excerpt(o, 128));
-    if (!s) {
-      report.source_problem += std::string(report.source_problem.empty() ? "" : "; ") +
-                               "some ledger-level keys could not be read: " + s.error().message;
-    }
-    if (auto st = flush(**to, other, true); !st) return st.error();
-    WriteBatch none;
-    none.put(std::string(store::kFormatKey), store::encode_format_version(store::kFormatVersion));
-    if (auto st = (*to)->write(none, true); !st) return st.error();  // a synced write covers all before it
-  }
-
+  if (auto st = write_recovered(**from, target, report); !st) return st.error();
   // 4. The new ledger must pass verify, stream by stream.
-  auto check = Ledger::open(
-      target, RocksStoreOptions{.create_if_missing = false, .read_only = true, .check_all_files = true});
-  if (!check) return check.error();
-  for (const auto& sr : report.streams) {
-    if (!sr.problem.empty() && sr.problem.starts_with("the configuration")) continue;
-    // A proven closing must still be the source's: the closing hash is checked as an anchor.
-    std::vector<Anchor> anchors;
-    if (sr.closing_proven) anchors.push_back(Anchor{0, true, sr.closing_hash});
-    auto v = (*check)->verify(sr.stream, anchors);
-    if (!v) return v.error();
-    if (!v->ok || v->steps != sr.kept_steps) {
-      return corruption("the recovered ledger " + target + " fails verify for stream " + sr.stream + ": " +
-                        v->problem + " (this is a bug; the source is unchanged)");
-    }
-  }
+  if (auto st = verify_recovered(target, report); !st) return st.error();
   return report;
 }
 
