@@ -222,7 +222,8 @@ void write_checks(std::ostream& out, const std::vector<ProcedureSummary>& rows) 
 }
 
 // Which promises the chosen scenario does not cover (docs/simulate.md lists the sources).
-void write_scope_notes(std::ostream& out, const std::vector<ProcedureSummary>& rows, const SimulationModel& m) {
+void write_scope_notes(std::ostream& out, const std::vector<ProcedureSummary>& rows,
+                       const SimulationModel& m) {
   bool peek_fixed = false;
   for (const auto& r : rows)
     peek_fixed = peek_fixed || r.rule.ends_with(evidence_suffix(Evidence::kPeekFixed));

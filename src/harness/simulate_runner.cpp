@@ -20,12 +20,12 @@ Result<SimulationResult> run_simulation(const SimulationPlan& plan, const Simula
   if (auto s = validate_model(model); !s) return s.error();
   if (auto s = validate_peeking(plan.peeking()); !s) return s.error();
   if (options.runs < 1 || options.runs > 100'000'000) {
-    return invalid_field("runs", "must be a whole number in [1, 100000000], got " +
-                         std::to_string(options.runs));
+    return invalid_field("runs",
+                         "must be a whole number in [1, 100000000], got " + std::to_string(options.runs));
   }
   if (options.threads < 1 || options.threads > 1024) {
-    return invalid_field("threads", "must be a whole number in [1, 1024], got " +
-                         std::to_string(options.threads));
+    return invalid_field("threads",
+                         "must be a whole number in [1, 1024], got " + std::to_string(options.threads));
   }
   const std::size_t procs = plan.procedures().size();
   const std::uint64_t per_chunk = runs_per_chunk(options.runs);
