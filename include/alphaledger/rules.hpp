@@ -16,7 +16,7 @@
 //   rule.next_level();          // 0.001370386057...
 //   Outcome o = rule.record(0.0004);   // o.rejected == true
 //
-// Tests that overlap in time (methods.md section 9.1, docs/rules.md "Launch-time levels"):
+// Tests that overlap in time (docs/methods.md section 9.1, docs/rules.md "Launch-time levels"):
 //   Reservation a = rule.launch();              // a.level is fixed now, a.launch == 1
 //   Reservation b = rule.launch();              // a batch: no finish between the launches
 //   auto o = rule.finish(a.launch, 0.0004);     // decided against a.level
@@ -138,7 +138,7 @@ class Rule {
   // REQUIRES: rule_takes_e_values(kind); e finite and >= 0 (see validate_e_value()).
   Outcome record_e(double e);
 
-  // Launch-time events (methods.md section 9.1). launch() reserves the next test's level from the
+  // Launch-time events (docs/methods.md section 9.1). launch() reserves the next test's level from the
   // outcomes finished so far and changes the state (the level is spent, the clock advances).
   Reservation launch();
   // Decides running test `launch` against its reserved level and applies the outcome. A p-value

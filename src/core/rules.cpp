@@ -1,4 +1,4 @@
-// The online rules (methods.md sections 1, 2, 4, 5.2, 6, 7 and 15; docs/rules.md).
+// The online rules (docs/methods.md sections 1, 2, 4, 5.2, 6, 7 and 15; docs/rules.md).
 #include "alphaledger/rules.hpp"
 
 #include <algorithm>

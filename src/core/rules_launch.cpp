@@ -1,4 +1,4 @@
-// Launch-time events of the online rules: launch, finish, abandon (methods.md section 9.1;
+// Launch-time events of the online rules: launch, finish, abandon (docs/methods.md section 9.1;
 // docs/rules.md, "Launch-time levels"). record() in rules.cpp is launch-then-finish fused.
 #include <algorithm>
 #include <string>

@@ -1,4 +1,4 @@
-// Spending sequences and their geometric-mixture versions (methods.md sections 13 and 15).
+// Spending sequences and their geometric-mixture versions (docs/methods.md sections 13 and 15).
 #include "alphaledger/spending.hpp"
 
 #include <algorithm>
@@ -26,8 +26,8 @@ namespace {
 constexpr std::size_t kTableSize = 65536;
 constexpr std::size_t kEagerTableSize = 4096;
 constexpr std::uint32_t kLazyMisses = 1024;  // formula calls past the eager part before filling
-constexpr std::size_t kJmHeadLags = 16;      // methods.md 15.4(b) hybrid: exact head L = 16
-constexpr double kMixtureMass = 1.0 - 1e-9;  // methods.md 15.6: strict validity margin
+constexpr std::size_t kJmHeadLags = 16;      // docs/methods.md 15.4(b) hybrid: exact head L = 16
+constexpr double kMixtureMass = 1.0 - 1e-9;  // docs/methods.md 15.6: strict validity margin
 
 // The hybrid mixture of the default sequence "jm" as fit_hybrid_mixture() returns it (the derived
 // vectors come from GeometricMixture::finish()). Fitting it (NNLS over 35 timescales) was about a
@@ -237,7 +237,7 @@ GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo
   return m;
 }
 
-// methods.md 15.4(b): exact head of L lags, tail fitted by NNLS on log-spaced timescales.
+// docs/methods.md 15.4(b): exact head of L lags, tail fitted by NNLS on log-spaced timescales.
 GeometricMixture fit_hybrid_mixture(const SpendingSequence& seq) {
   GeometricMixture m;
   for (std::size_t j = 1; j <= kJmHeadLags; ++j) m.head.push_back(seq.gamma(j));

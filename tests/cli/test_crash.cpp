@@ -27,7 +27,7 @@ std::uint64_t crash_seed() {
   return 8675309;
 }
 
-// methods.md section 14 p-values, then seeded ones: the first ten levels can be checked against
+// docs/methods.md section 14 p-values, then seeded ones: the first ten levels can be checked against
 // the LORD++ table 14.3.
 std::string make_log(std::uint64_t seed, std::size_t n) {
   const std::vector<double> table_stream = {0.0004, 0.0012, 0.36,   0.0009, 0.78,
@@ -155,7 +155,7 @@ TEST_CASE("Crash: decide --file killed 50 times at random moments loses and doub
     if (head != expect[i]) ++differences;
   }
   CHECK(differences == 0);
-  // Outside anchor: the first ten levels are methods.md 14.3 (LORD++, Ramdas et al. 2017 display,
+  // Outside anchor: the first ten levels are docs/methods.md 14.3 (LORD++, Ramdas et al. 2017 display,
   // W0 = alpha/2, JM gamma), 1e-9 relative.
   const std::vector<double> table = {0.001370386057,  0.0016684017,   0.003292613799, 0.001060948593,
                                      0.00363847711,   0.001351990812, 0.00115660396,  0.000989535854,

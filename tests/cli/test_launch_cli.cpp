@@ -16,7 +16,7 @@ using Json = nlohmann::json;
 
 namespace {
 
-// methods.md section 14.3 (Ramdas, Yang, Wainwright & Jordan 2017, the LORD++ display, W0 = alpha/2,
+// docs/methods.md section 14.3 (Ramdas, Yang, Wainwright & Jordan 2017, the LORD++ display, W0 = alpha/2,
 // JM gamma), 10 significant digits, on the section 14 stream.
 const std::vector<double> kStream = {0.0004, 0.0012, 0.36, 0.0009, 0.78, 0.0032, 0.17, 0.0011, 0.44, 0.0100};
 const std::vector<double> kLordLevels = {0.001370386057,  0.0016684017,   0.003292613799, 0.001060948593,
@@ -66,9 +66,9 @@ std::string observed(const std::string& db, const std::string& stream) {
 }  // namespace
 
 // Synchronous equivalence (docs/methods.md 9.1: launches that each finish before the next give
-// the synchronous levels): launch then decide, one process each, gives methods.md 14.3's LORD++
+// the synchronous levels): launch then decide, one process each, gives docs/methods.md 14.3's LORD++
 // levels (1e-9 relative), and the decision is made at the level printed by launch.
-TEST_CASE("LaunchCli: launch then decide gives methods.md 14.3 levels (synchronous equivalence)") {
+TEST_CASE("LaunchCli: launch then decide gives docs/methods.md 14.3 levels (synchronous equivalence)") {
   TempDir dir;
   const std::string db = dir.sub("ledger");
   REQUIRE(run_alphaledger(with_ledger(db, {"new", "s", "--rule", "lord++"})).exit_code == 0);

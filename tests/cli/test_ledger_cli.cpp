@@ -17,7 +17,7 @@ using alphaledger::test_support::TempDir;
 
 namespace {
 
-// The p-value stream of methods.md section 14 and its LORD++ levels (14.3: Ramdas, Yang,
+// The p-value stream of docs/methods.md section 14 and its LORD++ levels (14.3: Ramdas, Yang,
 // Wainwright & Jordan 2017, the LORD++ display, W0 = alpha/2, JM gamma), 10 significant digits.
 const std::vector<double> kStream = {0.0004, 0.0012, 0.36, 0.0009, 0.78, 0.0032, 0.17, 0.0011, 0.44, 0.0100};
 const std::vector<double> kLordLevels = {0.001370386057,  0.0016684017,   0.003292613799, 0.001060948593,
@@ -46,10 +46,10 @@ std::vector<std::string> with_ledger(const std::string& ledger, std::vector<std:
 
 }  // namespace
 
-// A session across separate processes; each level is checked against methods.md 14.3 (1e-9
+// A session across separate processes; each level is checked against docs/methods.md 14.3 (1e-9
 // relative) and each decision exactly; the history replayed by `replay` gives the same rows bit
 // for bit (issue 3 item 2).
-TEST_CASE("LedgerCli: a stream decided one test per process matches methods.md 14.3 and replay") {
+TEST_CASE("LedgerCli: a stream decided one test per process matches docs/methods.md 14.3 and replay") {
   TempDir dir;
   const std::string db = dir.sub("ledger");
   auto created = run_alphaledger(with_ledger(db, {"new", "checkout", "--rule", "lord++"}));

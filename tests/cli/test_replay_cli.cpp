@@ -66,7 +66,7 @@ TEST_CASE("Replay: rows are decided in ascending finished_at, ties keep file ord
   CHECK(second != std::string::npos);
   CHECK(third != std::string::npos);
   CHECK(fourth != std::string::npos);
-  // The first level is alpha * gamma_1 = 0.05 / zeta(1.6) (methods.md 14.1: 0.02187450829).
+  // The first level is alpha * gamma_1 = 0.05 / zeta(1.6) (docs/methods.md 14.1: 0.02187450829).
   CHECK(r.out.find("alpha-spending,1,early,1e-04,0.0218745082887") != std::string::npos);
 }
 
@@ -79,7 +79,7 @@ TEST_CASE("Replay: JSON Lines input gives the same decisions as CSV") {
   const auto b = run_alphaledger({"replay", jsonl, "--rules", "lord++,saffron"});
   REQUIRE(a.exit_code == 0);
   CHECK(a.out == b.out);
-  // LORD++ first level with the defaults: methods.md 14.3, 0.001370386057.
+  // LORD++ first level with the defaults: docs/methods.md 14.3, 0.001370386057.
   CHECK(a.out.find("lord++,1,a,4e-04,0.00137038605") != std::string::npos);
 }
 
@@ -126,7 +126,7 @@ TEST_CASE("Replay: a flag applies to every listed rule that takes it") {
   // --initial-wealth applies to lord++ and is ignored by lond, which does not take it.
   const auto r = run_alphaledger({"replay", path, "--rules", "lord++,lond", "--initial-wealth", "0.01"});
   REQUIRE(r.exit_code == 0);
-  // LORD++ alpha_1 = W0 gamma_1 (methods.md 5.2) = 0.01 * 0.05481544227 (gamma_1 of JM, section 13).
+  // LORD++ alpha_1 = W0 gamma_1 (docs/methods.md 5.2) = 0.01 * 0.05481544227 (gamma_1 of JM, section 13).
   CHECK(r.out.find("lord++,1,a,4e-04,0.000548154422") != std::string::npos);
 }
 

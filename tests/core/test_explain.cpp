@@ -78,7 +78,7 @@ TEST_CASE("explain: running tests (saffron's pending clock, alpha-investing's re
   }
 }
 
-TEST_CASE("explain: the LORD++ level of methods.md 14.3 at t = 3, term by term") {
+TEST_CASE("explain: the LORD++ level of docs/methods.md 14.3 at t = 3, term by term") {
   // Ramdas, Yang, Wainwright & Jordan (2017), LORD++ (docs/methods.md section 5.2):
   //   alpha_t = W0 gamma_t + (alpha - W0) gamma_(t - tau_1) + alpha sum_(j>=2) gamma_(t - tau_j).
   // Defaults: alpha = 0.05, W0 = alpha/2 = 0.025, the jm sequence
@@ -114,7 +114,7 @@ TEST_CASE("explain: the LORD++ level of methods.md 14.3 at t = 3, term by term")
   CHECK(e->terms[2].base == 0.05);
   CHECK(e->terms[2].amount == doctest::Approx(0.05 * g1).epsilon(1e-12));
   CHECK(!e->cap.has_value());
-  CHECK(e->level == doctest::Approx(0.003292613799).epsilon(1e-10));  // methods.md 14.3, t = 3
+  CHECK(e->level == doctest::Approx(0.003292613799).epsilon(1e-10));  // docs/methods.md 14.3, t = 3
 }
 
 TEST_CASE("explain: saffron's lambda cap is reported when it binds") {

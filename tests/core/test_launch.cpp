@@ -392,7 +392,7 @@ namespace {
 // A level against its formula in g(m): the same arithmetic up to rounding.
 void check_close(double got, double want) { CHECK(std::abs(got - want) <= 1e-15 + 1e-13 * std::abs(want)); }
 // A level against the decimal worked out by hand (in double precision, with the JM constant
-// C = 0.0790819667 of methods.md section 13, 10 digits): 1e-9 relative.
+// C = 0.0790819667 of docs/methods.md section 13, 10 digits): 1e-9 relative.
 void check_decimal(double got, double want) { CHECK(std::abs(got - want) <= 1e-9 * std::abs(want)); }
 }  // namespace
 

@@ -1,14 +1,14 @@
 // Properties of the rules on thousands of seeded random streams. Each property is the validity
-// argument of the rule's paper as restated in methods.md:
-//   LORD++ (Ramdas et al. 2017; methods.md 5.2): alpha_t <= alpha, and sum_j alpha_j <= alpha max(R,1).
-//   SAFFRON (Ramdas et al. 2018; methods.md 6): alpha_t <= lambda, and
+// argument of the rule's paper as restated in docs/methods.md:
+//   LORD++ (Ramdas et al. 2017; docs/methods.md 5.2): alpha_t <= alpha, and sum_j alpha_j <= alpha max(R,1).
+//   SAFFRON (Ramdas et al. 2018; docs/methods.md 6): alpha_t <= lambda, and
 //     sum_j alpha_j 1{p_j > lambda} / (1 - lambda) <= alpha max(R,1).
-//   ADDIS (Tian & Ramdas 2019; methods.md 7): alpha_t <= lambda, a discarded p (> tau) is never
+//   ADDIS (Tian & Ramdas 2019; docs/methods.md 7): alpha_t <= lambda, a discarded p (> tau) is never
 //     rejected, and sum_j alpha_j 1{lambda < p_j <= tau} / (tau - lambda) <= alpha max(R,1).
-//   Alpha-investing (Foster & Stine 2008; methods.md 2): alpha_j <= W/(1+W) and W >= 0.
-//   Alpha-spending (union bound; methods.md 1): sum_j alpha_j <= alpha.
-// Fast evaluation (methods.md 15.2, 15.5): equals the direct sum over deposits of the same
-// mixture sequence (the literal transcription of methods.md Appendix A with that gamma) to 1e-12
+//   Alpha-investing (Foster & Stine 2008; docs/methods.md 2): alpha_j <= W/(1+W) and W >= 0.
+//   Alpha-spending (union bound; docs/methods.md 1): sum_j alpha_j <= alpha.
+// Fast evaluation (docs/methods.md 15.2, 15.5): equals the direct sum over deposits of the same
+// mixture sequence (the literal transcription of docs/methods.md Appendix A with that gamma) to 1e-12
 // relative, with identical decisions.
 #include <doctest/doctest.h>
 
@@ -24,7 +24,7 @@ using namespace alphaledger;
 
 namespace {
 
-// A mixed stream as in methods.md 15.5: signals p = U^12, uniform nulls, conservative nulls U^0.3.
+// A mixed stream as in docs/methods.md 15.5: signals p = U^12, uniform nulls, conservative nulls U^0.3.
 std::vector<double> random_stream(std::uint64_t seed, std::size_t n, double signal_share) {
   std::mt19937_64 gen(seed);  // mt19937_64's output sequence is fixed by the C++ standard
   std::vector<double> p(n);
@@ -46,7 +46,7 @@ Rule make(RuleSpec spec) {
 
 using Gamma = std::function<double(std::uint64_t)>;
 
-// methods.md Appendix A, translated literally: lord_pp, saffron and addis with a given gamma.
+// docs/methods.md Appendix A, translated literally: lord_pp, saffron and addis with a given gamma.
 std::vector<std::pair<double, bool>> direct_lord(const std::vector<double>& p, double a, double w0, const Gamma& g) {
   std::vector<std::pair<double, bool>> out;
   std::vector<std::uint64_t> rej;
@@ -62,8 +62,8 @@ std::vector<std::pair<double, bool>> direct_lord(const std::vector<double>& p, d
 
 std::vector<std::pair<double, bool>> direct_addis(const std::vector<double>& p, double a, double w0, double lam,
                                                   double tau, const Gamma& g) {
-  // Index of deposit j at time t: 1 + #{i in (tau_j, t): lam < p_i <= tau} (methods.md 7 invariant);
-  // with tau = 1 this is SAFFRON (methods.md 6).
+  // Index of deposit j at time t: 1 + #{i in (tau_j, t): lam < p_i <= tau} (docs/methods.md 7 invariant);
+  // with tau = 1 this is SAFFRON (docs/methods.md 6).
   std::vector<std::pair<double, bool>> out;
   std::vector<std::uint64_t> rej;
   std::vector<std::uint64_t> ticks_before(p.size() + 2, 0);  // ticks among steps 1..t-1
@@ -141,7 +141,7 @@ TEST_CASE("Rules: levels respect their caps and the estimated-FDP invariants on 
 }
 
 TEST_CASE("Rules: fast evaluation equals the direct sum over deposits of the same mixture") {
-  // methods.md 15.5 setup: T = 3000, 30% signals p = U^12, 35% uniform, 35% conservative U^0.3.
+  // docs/methods.md 15.5 setup: T = 3000, 30% signals p = U^12, 35% uniform, 35% conservative U^0.3.
   for (const char* spending : {"power:1.6", "jm", "power-shift:1.6"}) {
     for (std::uint64_t seed : {11u, 12u, 13u}) {
       CAPTURE(spending);
@@ -171,13 +171,13 @@ TEST_CASE("Rules: fast evaluation equals the direct sum over deposits of the sam
         REQUIRE(oa.rejected == da[i].second);
         rejections += ol.rejected;
       }
-      CHECK(rejections > 100);  // the check exercised many deposits (methods.md 15.5: ~550)
+      CHECK(rejections > 100);  // the check exercised many deposits (docs/methods.md 15.5: ~550)
     }
   }
 }
 
 TEST_CASE("Rules: exact mode equals the Appendix A transcription on long random streams") {
-  // methods.md Appendix A (literal transcriptions) with the published sequences.
+  // docs/methods.md Appendix A (literal transcriptions) with the published sequences.
   const auto p = random_stream(99, 1500, 0.2);
   auto jm = SpendingSequence::parse("jm");
   auto p16 = SpendingSequence::parse("power:1.6");
@@ -242,7 +242,7 @@ TEST_CASE("Rules: corrupt state is refused and leaves the rule unchanged") {
 }
 
 TEST_CASE("RuleConfig: parameters that break a rule's conditions are refused, naming the condition") {
-  // Conditions from methods.md: W0 <= alpha (5.2, 6, 7), lambda < tau (7), payout <= alpha (2).
+  // Conditions from docs/methods.md: W0 <= alpha (5.2, 6, 7), lambda < tau (7), payout <= alpha (2).
   auto check_refused = [](RuleSpec spec, const std::string& needle) {
     auto c = resolve_config(spec);
     REQUIRE_FALSE(c.ok());

@@ -1,5 +1,5 @@
-// Check tables of methods.md section 14 (alpha = 0.05, p-value stream P below). The values there
-// were computed by the literal transcriptions in methods.md Appendix A of each paper's display;
+// Check tables of docs/methods.md section 14 (alpha = 0.05, p-value stream P below). The values there
+// were computed by the literal transcriptions in docs/methods.md Appendix A of each paper's display;
 // each TEST_CASE names the paper and display it follows. Levels to 1e-9 relative, decisions exact.
 #include <doctest/doctest.h>
 
@@ -36,8 +36,8 @@ void check_table(const RuleSpec& spec, const std::vector<Row>& rows) {
 }  // namespace
 
 // Online alpha-spending, level alpha*gamma_t (Foster & Stine 2008 contrast; Tian & Ramdas 2021),
-// gamma_j = j^-1.6 / zeta(1.6): methods.md 14.1.
-TEST_CASE("AlphaSpending: methods.md 14.1 check table") {
+// gamma_j = j^-1.6 / zeta(1.6): docs/methods.md 14.1.
+TEST_CASE("AlphaSpending: docs/methods.md 14.1 check table") {
   check_table({.rule = "alpha-spending"},
               {{0.02187450829, true}, {0.007215896683, true}, {0.003771762097, false},
                {0.002380358189, true}, {0.001665659754, false}, {0.001244217481, false},
@@ -46,8 +46,8 @@ TEST_CASE("AlphaSpending: methods.md 14.1 check table") {
 }
 
 // LOND, Javanmard & Montanari (2018) Annals of Statistics 46(2), alpha_t = beta_t (D(t-1)+1),
-// beta_t = alpha * gamma^JM_t with C = 0.079081966722: methods.md 14.2.
-TEST_CASE("Lond: methods.md 14.2 check table") {
+// beta_t = alpha * gamma^JM_t with C = 0.079081966722: docs/methods.md 14.2.
+TEST_CASE("Lond: docs/methods.md 14.2 check table") {
   check_table({.rule = "lond"},
               {{0.002740772113, true}, {0.001192062575, false}, {0.001015304167, false},
                {0.0008443650547, false}, {0.0007158465982, false}, {0.0006192613932, false},
@@ -55,9 +55,9 @@ TEST_CASE("Lond: methods.md 14.2 check table") {
                {0.0003992849318, false}});
 }
 
-// LORD++, Ramdas, Yang, Wainwright & Jordan (2017) NeurIPS, the LORD++ display (methods.md 5.2),
-// W0 = alpha/2, JM gamma: methods.md 14.3.
-TEST_CASE("LordPlusPlus: methods.md 14.3 check table") {
+// LORD++, Ramdas, Yang, Wainwright & Jordan (2017) NeurIPS, the LORD++ display (docs/methods.md 5.2),
+// W0 = alpha/2, JM gamma: docs/methods.md 14.3.
+TEST_CASE("LordPlusPlus: docs/methods.md 14.3 check table") {
   check_table({.rule = "lord++"},
               {{0.001370386057, true}, {0.0016684017, true}, {0.003292613799, false},
                {0.001060948593, true}, {0.00363847711, false}, {0.001351990812, false},
@@ -65,9 +65,9 @@ TEST_CASE("LordPlusPlus: methods.md 14.3 check table") {
                {0.0007620915508, false}});
 }
 
-// SAFFRON, Ramdas, Zrnic, Wainwright & Jordan (2018) ICML, constant-lambda display (methods.md 6),
-// W0 = alpha/2, lambda = 1/2, gamma_j = j^-1.6/zeta(1.6): methods.md 14.4.
-TEST_CASE("Saffron: methods.md 14.4 check table") {
+// SAFFRON, Ramdas, Zrnic, Wainwright & Jordan (2018) ICML, constant-lambda display (docs/methods.md 6),
+// W0 = alpha/2, lambda = 1/2, gamma_j = j^-1.6/zeta(1.6): docs/methods.md 14.4.
+TEST_CASE("Saffron: docs/methods.md 14.4 check table") {
   check_table({.rule = "saffron"},
               {{0.005468627072, true}, {0.01093725414, true}, {0.02187450829, false},
                {0.02187450829, true}, {0.03281176243, false}, {0.01082384502, true},
@@ -75,9 +75,9 @@ TEST_CASE("Saffron: methods.md 14.4 check table") {
                {0.03269835331, true}});
 }
 
-// ADDIS, Tian & Ramdas (2019) NeurIPS, the ADDIS display (methods.md 7), W0 = alpha/2,
-// lambda = 1/4, tau = 1/2, gamma_j = (j+1)^-1.6/(zeta(1.6)-1): methods.md 14.5.
-TEST_CASE("Addis: methods.md 14.5 check table") {
+// ADDIS, Tian & Ramdas (2019) NeurIPS, the ADDIS display (docs/methods.md 7), W0 = alpha/2,
+// lambda = 1/4, tau = 1/2, gamma_j = (j+1)^-1.6/(zeta(1.6)-1): docs/methods.md 14.5.
+TEST_CASE("Addis: docs/methods.md 14.5 check table") {
   check_table({.rule = "addis"},
               {{0.001603504562, true}, {0.003207009124, true}, {0.006414018248, false},
                {0.003352618805, true}, {0.006559627929, false}, {0.006559627929, true},
@@ -85,7 +85,7 @@ TEST_CASE("Addis: methods.md 14.5 check table") {
                {0.007144765162, false}});
 }
 
-// ADDIS with tau = 1 reduces to SAFFRON (Tian & Ramdas 2019, section on special cases; methods.md
+// ADDIS with tau = 1 reduces to SAFFRON (Tian & Ramdas 2019, section on special cases; docs/methods.md
 // 7 "Consistency check"): identical levels, bit for bit, with the same gamma.
 TEST_CASE("Addis: tau = 1 reproduces SAFFRON exactly") {
   auto a = resolve_config({.rule = "addis", .candidate_threshold = 0.5, .discard_threshold = 1.0,
@@ -101,9 +101,9 @@ TEST_CASE("Addis: tau = 1 reproduces SAFFRON exactly") {
   }
 }
 
-// Alpha-investing, Foster & Stine (2008) JRSS-B 70(2) wealth dynamics (methods.md 2), W(0) =
-// alpha(1-alpha), payout alpha, policy W/(1+j-k*): methods.md 14.6 (levels and wealth).
-TEST_CASE("AlphaInvesting: methods.md 14.6 check table with wealth") {
+// Alpha-investing, Foster & Stine (2008) JRSS-B 70(2) wealth dynamics (docs/methods.md 2), W(0) =
+// alpha(1-alpha), payout alpha, policy W/(1+j-k*): docs/methods.md 14.6 (levels and wealth).
+TEST_CASE("AlphaInvesting: docs/methods.md 14.6 check table with wealth") {
   auto config = resolve_config({.rule = "alpha-investing"});
   REQUIRE(config.ok());
   Rule rule(*config);
@@ -122,9 +122,9 @@ TEST_CASE("AlphaInvesting: methods.md 14.6 check table with wealth") {
   }
 }
 
-// methods.md 14.7: a more aggressive gamma_j = j^-1.6/zeta(1.6) for LORD++ (Ramdas et al. 2017)
+// docs/methods.md 14.7: a more aggressive gamma_j = j^-1.6/zeta(1.6) for LORD++ (Ramdas et al. 2017)
 // and LOND (Javanmard & Montanari 2018), exercising many rejection terms.
-TEST_CASE("LordPlusPlus and Lond: methods.md 14.7 regression vectors") {
+TEST_CASE("LordPlusPlus and Lond: docs/methods.md 14.7 regression vectors") {
   check_table({.rule = "lord++", .spending = "power:1.6"},
               {{0.01093725414, true}, {0.01454520249, true}, {0.02736833768, false},
                {0.01029195683, true}, {0.02766927936, false}, {0.01105119349, true},

@@ -30,7 +30,7 @@ double zeta_by_summation(double s) {
 
 // Independent summation of the JM shape with a different cut-off (N = 10^7) than the library's
 // (N = 10^5), plus the closed-form tail integral 2 e^-a (a^3 + 3a^2 + 6a + 6), a = sqrt(ln N)
-// (methods.md section 13).
+// (docs/methods.md section 13).
 double jm_sum_independent() {
   const long n = 10000000;
   long double sum = 0;
@@ -50,16 +50,16 @@ TEST_CASE("SpendingSequence: zeta(1.6) normaliser agrees with Boost.Math and a d
   // Boost.Math boost::math::zeta (1.74) and an independent Euler–Maclaurin summation.
   const double boost_zeta = boost::math::zeta(1.6);
   CHECK(std::abs(boost_zeta - zeta_by_summation(1.6)) < 1e-9);
-  // methods.md section 13 table: zeta(1.6) = 2.285765665680130, 1/zeta(1.6) = 0.437490165774.
+  // docs/methods.md section 13 table: zeta(1.6) = 2.285765665680130, 1/zeta(1.6) = 0.437490165774.
   CHECK(std::abs(boost_zeta - 2.285765665680130) < 1e-12);
   auto power = SpendingSequence::parse("power:1.6");
   REQUIRE(power.ok());
   CHECK(std::abs(power->gamma(1) - 0.437490165774) < 1e-12);
-  CHECK(std::abs(power->gamma(2) - 0.1443179337) < 1e-10);    // methods.md 13, gamma_2
-  CHECK(std::abs(power->gamma(3) - 0.07543524193) < 1e-11);   // methods.md 13, gamma_3
+  CHECK(std::abs(power->gamma(2) - 0.1443179337) < 1e-10);    // docs/methods.md 13, gamma_2
+  CHECK(std::abs(power->gamma(3) - 0.07543524193) < 1e-11);   // docs/methods.md 13, gamma_3
   auto shift = SpendingSequence::parse("power-shift:1.6");
   REQUIRE(shift.ok());
-  // methods.md 13: (j+1)^-1.6/(zeta(1.6)-1), constant 0.777746697312.
+  // docs/methods.md 13: (j+1)^-1.6/(zeta(1.6)-1), constant 0.777746697312.
   CHECK(std::abs(shift->normaliser() - 0.777746697312) < 1e-12);
   CHECK(std::abs(shift->gamma(1) - 0.2565607299) < 1e-10);
   CHECK(std::abs(shift->gamma(2) - 0.1341047522) < 1e-10);
@@ -73,7 +73,7 @@ TEST_CASE("SpendingSequence: zeta(1.6) normaliser agrees with Boost.Math and a d
 }
 
 TEST_CASE("SpendingSequence: the JM constant makes the sequence sum to 1") {
-  // methods.md section 13: shape sum 12.645107872872, C = 0.079081966722, gamma_1..3 listed.
+  // docs/methods.md section 13: shape sum 12.645107872872, C = 0.079081966722, gamma_1..3 listed.
   const double lib = jm_shape_sum();
   CHECK(std::abs(lib - 12.645107872872) < 1e-9);
   CHECK(std::abs(lib - jm_sum_independent()) < 1e-9);
@@ -84,7 +84,7 @@ TEST_CASE("SpendingSequence: the JM constant makes the sequence sum to 1") {
   CHECK(std::abs(jm->gamma(1) - 0.05481544227) < 1e-11);
   CHECK(std::abs(jm->gamma(2) - 0.01192062575) < 1e-11);
   CHECK(std::abs(jm->gamma(3) - 0.01015304167) < 1e-11);
-  // The constant 0.0722 often printed in published examples is valid (sum 0.913, methods.md 13).
+  // The constant 0.0722 often printed in published examples is valid (sum 0.913, docs/methods.md 13).
   auto common = SpendingSequence::parse("jm:0.0722");
   REQUIRE(common.ok());
   CHECK(std::abs(0.0722 * lib - 0.913) < 1e-3);
@@ -114,8 +114,8 @@ TEST_CASE("SpendingSequence: every sequence is nonincreasing") {
   }
 }
 
-TEST_CASE("GeometricMixture: power-law fit matches methods.md 15.4 and is a valid sequence") {
-  // methods.md 15.4(a) table: h = 0.5 on [-28, 4] gives K = 65 and max relative error 3.8e-6 on
+TEST_CASE("GeometricMixture: power-law fit matches docs/methods.md 15.4 and is a valid sequence") {
+  // docs/methods.md 15.4(a) table: h = 0.5 on [-28, 4] gives K = 65 and max relative error 3.8e-6 on
   // [1, 1e9]. Validity (15.3): nonnegative, nonincreasing, mass <= 1 (we use 1 - 1e-9, 15.6).
   for (const char* spec : {"power:1.6", "power-shift:1.6"}) {
     CAPTURE(spec);
@@ -143,7 +143,7 @@ TEST_CASE("GeometricMixture: power-law fit matches methods.md 15.4 and is a vali
 }
 
 TEST_CASE("GeometricMixture: JM hybrid keeps the published head and a valid tail") {
-  // methods.md 15.4(b): exact JM values for lags 1..16, NNLS tail; reported there: tail relative
+  // docs/methods.md 15.4(b): exact JM values for lags 1..16, NNLS tail; reported there: tail relative
   // error 7.7e-5 on (16, 1e9], nonincreasing across the seam, total mass 0.7136 <= 1. Our fit uses
   // the same timescales and grid; we require the same order of accuracy (< 2e-4) and validity.
   auto seq = SpendingSequence::parse("jm");
@@ -153,7 +153,7 @@ TEST_CASE("GeometricMixture: JM hybrid keeps the published head and a valid tail
   for (std::uint64_t j = 1; j <= 16; ++j) CHECK(m.gamma(j) == seq->gamma(j));
   CHECK(m.gamma(17) <= m.gamma(16));
   CHECK(m.total_mass() <= 1.0);
-  CHECK(m.total_mass() > 0.68);  // at least the JM mass on [1, 1e9] (0.683, methods.md 13)
+  CHECK(m.total_mass() > 0.68);  // at least the JM mass on [1, 1e9] (0.683, docs/methods.md 13)
   double max_rel = 0;
   for (double e = std::log10(17.0); e <= 9.0; e += 0.02) {
     const auto j = static_cast<std::uint64_t>(std::llround(std::pow(10.0, e)));

@@ -29,7 +29,7 @@ from scipy import special, stats
 OUT = "tests/data/simulate_scipy.csv"
 ALPHA = 0.05
 T = 1000
-JM_C = 0.079081966722  # methods.md section 13
+JM_C = 0.079081966722  # docs/methods.md section 13
 
 
 def num(x):

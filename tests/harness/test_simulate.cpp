@@ -346,7 +346,7 @@ TEST_CASE("Simulate: alpha-spending power matches the normal tail average") {
 
 TEST_CASE("Simulate: BH's realized FDR equals pi0 times alpha under independence") {
   // Benjamini & Hochberg (1995), JRSS-B 57(1); equality FDR = (m0/m) alpha for independent
-  // continuous nulls (Benjamini & Yekutieli 2001, Ann. Statist. 29(4); methods.md section 11).
+  // continuous nulls (Benjamini & Yekutieli 2001, Ann. Statist. 29(4); docs/methods.md section 11).
   // With each test non-null with probability f, E[m0/m] = 1 - f. 4 SE band, both sides.
   const std::uint64_t seed = 303;
   INFO("seed " << seed);

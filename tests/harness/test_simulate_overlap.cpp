@@ -86,7 +86,7 @@ TEST_CASE("Overlap: durations are geometric with the asked mean and change neith
 
 TEST_CASE("Overlap: a tiny duration finishes every test before the next launch and equals record()") {
   // With mean 1e-12 every draw is 0 (q ~ 1e-12), so the event path (launch(), finish()) runs the
-  // synchronous order; methods.md 9.1 says that is the synchronous rule exactly, in exact and fast
+  // synchronous order; docs/methods.md 9.1 says that is the synchronous rule exactly, in exact and fast
   // evaluation. This also checks the schedule: finish_before[t] == t + 1.
   for (const char* evaluation : {"exact", "fast"}) {
     CAPTURE(evaluation);

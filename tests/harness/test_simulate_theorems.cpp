@@ -87,7 +87,7 @@ const std::vector<Scenario>& independent_scenarios() {
 // Validity under independence.
 
 TEST_CASE("Theorems: every rule keeps its promised error rate on independent streams") {
-  // Sources, one per rule (methods.md gives the statements and conditions):
+  // Sources, one per rule (docs/methods.md gives the statements and conditions):
   //   alpha-spending  FWER <= alpha by the union bound (sum of levels <= alpha), any dependence
   //   alpha-investing mFDR_eta = E[V]/(E[R] + eta) <= alpha: Foster & Stine (2008) JRSS-B 70(2),
   //                   W(0) = alpha eta with eta = 1 - alpha, payout alpha
@@ -152,7 +152,7 @@ TEST_CASE("Theorems: the same check fails rules that do not control their error 
 
 TEST_CASE("Theorems: under positive correlation alpha-spending, LOND and BH keep their promises") {
   // alpha-spending: FWER <= alpha under any dependence (union bound).
-  // LOND: FDR <= alpha under PRDS (Javanmard & Montanari 2018, methods.md section 4, from memory).
+  // LOND: FDR <= alpha under PRDS (Javanmard & Montanari 2018, docs/methods.md section 4, from memory).
   // BH: FDR <= alpha under PRDS (Benjamini & Yekutieli 2001, Ann. Statist. 29(4)). One-sided
   // z-tests with nonnegatively correlated Gaussian noise are PRDS (Benjamini & Yekutieli 2001,
   // section 3.1, multivariate normal case).

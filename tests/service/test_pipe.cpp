@@ -188,7 +188,7 @@ TEST_CASE(
   test_support::check_history_equals_replay(history, config);
 }
 
-TEST_CASE("Pipe: LORD++ levels and decisions equal the check values of methods.md 14.3") {
+TEST_CASE("Pipe: LORD++ levels and decisions equal the check values of docs/methods.md 14.3") {
   // Source: docs/methods.md section 14.3 (LORD++ as displayed in Ramdas et al. 2017,
   // "Online control of the false discovery rate with decaying memory", section 5.2; W0 = alpha/2,
   // Javanmard-Montanari gamma, alpha = 0.05), 10 significant digits.

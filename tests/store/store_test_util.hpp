@@ -1,4 +1,4 @@
-// Helpers shared by the store tests: seeded p-value streams, the methods.md section 14 stream,
+// Helpers shared by the store tests: seeded p-value streams, the docs/methods.md section 14 stream,
 // the temporary folder, and bitwise comparisons.
 #pragma once
 
@@ -19,7 +19,7 @@
 
 namespace store_test {
 
-// The p-value stream of methods.md section 14, used by every check table there.
+// The p-value stream of docs/methods.md section 14, used by every check table there.
 inline const std::vector<double> kTableStream = {0.0004, 0.0012, 0.36,   0.0009, 0.78,
                                                  0.0032, 0.17,   0.0011, 0.44,   0.0100};
 

@@ -39,12 +39,12 @@ struct TableRow {
 
 }  // namespace
 
-// methods.md section 14 check tables (each a transcription of the paper's display, cited there:
+// docs/methods.md section 14 check tables (each a transcription of the paper's display, cited there:
 // 14.1 alpha-spending, 14.2 LOND (Javanmard & Montanari 2018), 14.3 LORD++ (Ramdas et al. 2017),
 // 14.4 SAFFRON (Ramdas et al. 2018), 14.5 ADDIS (Tian & Ramdas 2019), 14.6 alpha-investing (Foster
 // & Stine 2008)); levels to 1e-9 relative, decisions exact. The ledger is closed and reopened over
 // the same store after every decision, so each level comes from a state restored from the store.
-TEST_CASE("Ledger: levels across reopenings match the methods.md section 14 check tables") {
+TEST_CASE("Ledger: levels across reopenings match the docs/methods.md section 14 check tables") {
   const std::vector<std::pair<std::string, std::vector<TableRow>>> tables = {
       {"alpha-spending",
        {{0.02187450829, true},
@@ -139,7 +139,7 @@ TEST_CASE("Ledger: levels across reopenings match the methods.md section 14 chec
 
 // Issue 3 "Round trips": state restored from the store continues bit-identically to an
 // uninterrupted run. Reference: `replay` on the same p-values (whose rules tests/core checks
-// against the methods.md tables). Every rule, both evaluation modes, reopened at seeded random
+// against the docs/methods.md tables). Every rule, both evaluation modes, reopened at seeded random
 // points; level, decision and wealth compared bit for bit.
 TEST_CASE("Ledger: restored state continues bit-identically to an uninterrupted replay") {
   const std::uint64_t seed = store_test::test_seed(20250314);

@@ -51,8 +51,8 @@ std::string spec_name(const RuleSpec& s) { return s.rule + (s.evaluation ? " " +
 // Synchronous equivalence (docs/methods.md 9.1: "each test finishes before the next launches"
 // gives back the synchronous rules; Rule::record is launch then finish): launching each test and
 // deciding it before the next launch gives the levels, decisions and wealth of deciding it at
-// once, bit for bit, on the methods.md section 14 stream, for every rule.
-TEST_CASE("Ledger launch: launch-then-decide equals decide-only bit for bit (methods.md 9.1)") {
+// once, bit for bit, on the docs/methods.md section 14 stream, for every rule.
+TEST_CASE("Ledger launch: launch-then-decide equals decide-only bit for bit (docs/methods.md 9.1)") {
   for (const auto& spec : kSpecs) {
     INFO(spec_name(spec));
     MemoryStore plain_store, launched_store;
@@ -96,7 +96,7 @@ TEST_CASE("Ledger launch: launch-then-decide equals decide-only bit for bit (met
 }
 
 // An overlapping sequence: every reserved level and decision equals the core Rule driven through
-// the same events (methods.md 9.1 defines the events; the Rule implements them and has its own
+// the same events (docs/methods.md 9.1 defines the events; the Rule implements them and has its own
 // hand-worked checks in tests/core/test_launch.cpp), and verify replays it.
 TEST_CASE("Ledger launch: overlapping events match Rule::launch/finish/abandon and verify") {
   for (const auto& spec : kSpecs) {
@@ -360,7 +360,7 @@ TEST_CASE("Ledger launch: verify detects an edited reserved level") {
 }
 
 // Random mixes of launches, finishes, abandons and plain decisions, with reopenings: every
-// answer equals the core Rule through the same events (methods.md 9.1), and verify passes.
+// answer equals the core Rule through the same events (docs/methods.md 9.1), and verify passes.
 TEST_CASE("Ledger launch: random event mixes match the Rule and verify") {
   const std::uint64_t seed = store_test::test_seed(20261202);
   INFO("seed " << seed);

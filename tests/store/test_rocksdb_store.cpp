@@ -24,7 +24,7 @@ RuleConfig lord() { return resolve_config({.rule = "lord++"}).value(); }
 
 }  // namespace
 
-// Persistence across closing and reopening the folder; levels are methods.md 14.3 (LORD++,
+// Persistence across closing and reopening the folder; levels are docs/methods.md 14.3 (LORD++,
 // Ramdas et al. 2017 display, W0 = alpha/2, JM gamma), 1e-9 relative.
 TEST_CASE("RocksStore: decisions persist across reopening the folder") {
   const std::vector<double> table = {0.001370386057,  0.0016684017,   0.003292613799, 0.001060948593,
