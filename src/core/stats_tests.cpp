@@ -158,8 +158,11 @@ double normal_quantile(double p) {
   return p < 0.5 ? -detail::normal_upper_quantile(p) : detail::normal_quantile(p);
 }
 
-Result<Comparison> compare_proportions(const ProportionArm& control, const ProportionArm& treatment,
-                                       ProportionMethod method, Alternative alternative, double confidence) {
+namespace {
+
+// The arms' sizes and counts, the confidence, and Fisher's size limit.
+Status check_proportion_arms(const ProportionArm& control, const ProportionArm& treatment,
+                             ProportionMethod method, double confidence) {
   if (auto s = check_arm_size(control.n, "control_n"); !s) return s.error();
   if (auto s = check_arm_size(treatment.n, "treatment_n"); !s) return s.error();
   if (control.conversions > control.n) {
@@ -171,12 +174,35 @@ Result<Comparison> compare_proportions(const ProportionArm& control, const Propo
                          std::to_string(treatment.n) + "], got " + std::to_string(treatment.conversions));
   }
   if (auto s = check_confidence(confidence); !s) return s.error();
-  const double n0 = static_cast<double>(control.n), x0 = static_cast<double>(control.conversions);
-  const double n1 = static_cast<double>(treatment.n), x1 = static_cast<double>(treatment.conversions);
-  if (method == ProportionMethod::kFisher && n0 + n1 > kMaxFisherTotal) {
-    return invalid_input("Fisher's exact test takes at most 1e9 users in total, got " + number_text(n0 + n1) +
+  const double total = static_cast<double>(control.n) + static_cast<double>(treatment.n);
+  if (method == ProportionMethod::kFisher && total > kMaxFisherTotal) {
+    return invalid_input("Fisher's exact test takes at most 1e9 users in total, got " + number_text(total) +
                          "; with this many users use --method pooled");
   }
+  return {};
+}
+
+// The two-sided interval for p1 - p0 at critical value z, before clipping to [-1, 1]: Newcombe's
+// hybrid score interval with Fisher's test, the Wald interval otherwise.
+Interval difference_interval(double x0, double n0, double x1, double n1, ProportionMethod method, double z) {
+  const double p0 = x0 / n0, p1 = x1 / n1, diff = p1 - p0;
+  if (method == ProportionMethod::kFisher) {
+    // Newcombe (1998) hybrid score interval, method 10: combines the arms' Wilson intervals.
+    const Interval w0 = wilson(x0, n0, z), w1 = wilson(x1, n1, z);
+    return {diff - std::sqrt((p1 - w1.low) * (p1 - w1.low) + (w0.high - p0) * (w0.high - p0)),
+            diff + std::sqrt((w1.high - p1) * (w1.high - p1) + (p0 - w0.low) * (p0 - w0.low))};
+  }
+  const double width = z * std::sqrt(p0 * (1.0 - p0) / n0 + p1 * (1.0 - p1) / n1);
+  return {diff - width, diff + width};
+}
+
+}  // namespace
+
+Result<Comparison> compare_proportions(const ProportionArm& control, const ProportionArm& treatment,
+                                       ProportionMethod method, Alternative alternative, double confidence) {
+  if (auto s = check_proportion_arms(control, treatment, method, confidence); !s) return s.error();
+  const double n0 = static_cast<double>(control.n), x0 = static_cast<double>(control.conversions);
+  const double n1 = static_cast<double>(treatment.n), x1 = static_cast<double>(treatment.conversions);
   const double p0 = x0 / n0, p1 = x1 / n1;
   Comparison c;
   c.confidence = confidence;
@@ -228,18 +254,7 @@ Result<Comparison> compare_proportions(const ProportionArm& control, const Propo
     }
   }
 
-  const double z = interval_z(confidence, alternative);
-  double low = -1.0, high = 1.0;
-  if (method == ProportionMethod::kFisher) {
-    // Newcombe (1998) hybrid score interval, method 10: combines the arms' Wilson intervals.
-    const Interval w0 = wilson(x0, n0, z), w1 = wilson(x1, n1, z);
-    low = diff - std::sqrt((p1 - w1.low) * (p1 - w1.low) + (w0.high - p0) * (w0.high - p0));
-    high = diff + std::sqrt((w1.high - p1) * (w1.high - p1) + (p0 - w0.low) * (p0 - w0.low));
-  } else {
-    const double width = z * se_unpooled;
-    low = diff - width;
-    high = diff + width;
-  }
+  const auto [low, high] = difference_interval(x0, n0, x1, n1, method, interval_z(confidence, alternative));
   c.ci_low = alternative == Alternative::kLess ? -1.0 : std::max(low, -1.0);
   c.ci_high = alternative == Alternative::kGreater ? 1.0 : std::min(high, 1.0);
   return c;

@@ -114,7 +114,6 @@ bool split_csv_views(std::string_view line, std::vector<std::string>& owned,
   }
 }
 
-
 // Appends one record to the compact log.
 void append_record(CompactLog& log, const TestRecord& r) {
   CompactRecord c;
@@ -176,7 +175,8 @@ Status csv_row(CompactLog& log, const CsvColumns& cols, const std::vector<std::s
   if (cols.e_value >= 0) {
     auto e = detail::parse_e_value_text(cell(cols.e_value));
     if (!e) {
-      return invalid_input(where(log.source, line_no) + "test '" + std::string(id) + "': " + e.error().message);
+      return invalid_input(where(log.source, line_no) + "test '" + std::string(id) +
+                           "': " + e.error().message);
     }
     c.flags |= CompactRecord::kHasE;
     c.e_value = *e;
@@ -195,8 +195,8 @@ Status csv_row(CompactLog& log, const CsvColumns& cols, const std::vector<std::s
     }
     c.flags |= CompactRecord::kHasLaunch;
     c.launched_at = *v;
-    if (auto s = check_launch_order(id, c.launched_at, (c.flags & CompactRecord::kHasTime) != 0, c.finished_at,
-                                    t, cell(cols.finished_at));
+    if (auto s = check_launch_order(id, c.launched_at, (c.flags & CompactRecord::kHasTime) != 0,
+                                    c.finished_at, t, cell(cols.finished_at));
         !s)
       return invalid_input(where(log.source, line_no) + s.error().message);
   }
@@ -233,6 +233,40 @@ TestRecord CompactLog::record(std::size_t i) const {
   return r;
 }
 
+namespace {
+
+// The CSV header row: which column holds what; a repeated name or a missing id is an error.
+Status read_csv_header(const std::vector<std::string_view>& cells, std::string_view source,
+                       std::size_t line_no, CsvColumns& cols) {
+  cols.header.assign(cells.begin(), cells.end());
+  std::map<std::string_view, std::size_t> seen;
+  for (std::size_t i = 0; i < cols.header.size(); ++i) {
+    const std::string& name = cols.header[i];
+    if (name.empty()) continue;  // an unnamed column is ignored
+    auto [at, inserted] = seen.emplace(name, i + 1);
+    if (!inserted) {
+      return invalid_input(where(source, line_no) + "the header names column '" + excerpt(name) +
+                           "' twice (columns " + std::to_string(at->second) + " and " +
+                           std::to_string(i + 1) + "); each column may appear once");
+    }
+    const auto index = static_cast<std::ptrdiff_t>(i);
+    if (name == "id") cols.id = index;
+    if (name == "p_value") cols.p_value = index;
+    if (name == "finished_at") cols.finished_at = index;
+    if (name == "launched_at") cols.launched_at = index;
+    if (name == "is_null") cols.is_null = index;
+    if (name == "e_value") cols.e_value = index;
+  }
+  if (cols.id < 0) {
+    return invalid_input(where(source, line_no) +
+                         "the header has no 'id' column; required columns: id, p_value (or summary "
+                         "columns, see docs/formats.md)");
+  }
+  return {};
+}
+
+}  // namespace
+
 Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, LogFormat format,
                                     const ReadOptions& options) {
   CompactLog log;
@@ -255,31 +289,8 @@ Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, L
       if (!split_csv_views(line, owned, cells))
         return invalid_input(where(source, line_no) + "unbalanced quote in CSV row");
       if (!have_header) {
-        cols.header.assign(cells.begin(), cells.end());
+        if (auto st = read_csv_header(cells, source, line_no, cols); !st) return st.error();
         have_header = true;
-        std::map<std::string_view, std::size_t> seen;
-        for (std::size_t i = 0; i < cols.header.size(); ++i) {
-          const std::string& name = cols.header[i];
-          if (name.empty()) continue;  // an unnamed column is ignored
-          auto [at, inserted] = seen.emplace(name, i + 1);
-          if (!inserted) {
-            return invalid_input(where(source, line_no) + "the header names column '" + excerpt(name) +
-                                 "' twice (columns " + std::to_string(at->second) + " and " +
-                                 std::to_string(i + 1) + "); each column may appear once");
-          }
-          const auto index = static_cast<std::ptrdiff_t>(i);
-          if (name == "id") cols.id = index;
-          if (name == "p_value") cols.p_value = index;
-          if (name == "finished_at") cols.finished_at = index;
-          if (name == "launched_at") cols.launched_at = index;
-          if (name == "is_null") cols.is_null = index;
-          if (name == "e_value") cols.e_value = index;
-        }
-        if (cols.id < 0) {
-          return invalid_input(where(source, line_no) +
-                               "the header has no 'id' column; required columns: id, p_value (or summary "
-                               "columns, see docs/formats.md)");
-        }
         continue;
       }
       if (cells.size() != cols.header.size()) {
