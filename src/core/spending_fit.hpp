@@ -9,6 +9,10 @@
 
 namespace alphaledger {
 
+// The largest mass a fitted mixture may have: strictly below 1, so the mixture stays a valid
+// spending sequence after rounding (docs/methods.md 15.6).
+inline constexpr double kMixtureMass = 1.0 - 1e-9;
+
 // Fits a power-law mixture: trapezoid rule in u = ln x, step h, range
 // [u_lo, u_hi]; weights renormalised so the mass is exactly `mass`.
 GeometricMixture fit_power_mixture(double s, bool shifted, double h, double u_lo, double u_hi, double mass);
