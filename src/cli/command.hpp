@@ -50,7 +50,7 @@ void add_replay_command(CLI::App& app, CommandContext& ctx);
 void add_ledger_commands(CLI::App& app,
                          CommandContext& ctx);  // new decide next status streams history verify
 void add_simulate_command(CLI::App& app, CommandContext& ctx);
-void add_stats_commands(CLI::App& app, CommandContext& ctx);    // pvalue plan
+void add_stats_commands(CLI::App& app, CommandContext& ctx);    // pvalue plan (cmd_pvalue.cpp, cmd_plan.cpp)
 void add_service_commands(CLI::App& app, CommandContext& ctx);  // pipe serve
 void add_recover_command(CLI::App& app, CommandContext& ctx);   // recover
 void add_report_command(CLI::App& app, CommandContext& ctx);    // report
