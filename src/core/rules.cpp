@@ -21,8 +21,12 @@ constexpr std::uint8_t kStateVersion = 2;
 constexpr std::uint8_t kStateVersionSynchronous = 1;
 
 // Hot loops get an AVX2 clone, chosen at run time, on x86-64. The clones do the same IEEE
-// operations in the same order, so they give the same bits as the baseline code.
-#if defined(__x86_64__) && defined(__GNUC__) && defined(__linux__)
+// operations in the same order, so they give the same bits as the baseline code. Not in sanitizer
+// builds: the clone is picked by an ifunc resolver that the dynamic loader runs while relocating,
+// before the sanitizer's runtime has started, and ThreadSanitizer's instrumented resolver crashes
+// there (every test binary died at load, docs/testing.md "Sanitizers").
+#if defined(__x86_64__) && defined(__GNUC__) && defined(__linux__) && !defined(__SANITIZE_THREAD__) && \
+    !defined(__SANITIZE_ADDRESS__)
 #define ALPHALEDGER_VECTOR_CLONES [[gnu::target_clones("avx2", "default")]]
 #else
 #define ALPHALEDGER_VECTOR_CLONES
@@ -532,12 +536,12 @@ Status Rule::restore_running(std::string_view bytes) {
     if (!r.ok) return corruption("rule state is truncated (running tests)");
     if (launch <= previous || launch > step_) {
       return corruption("rule state is inconsistent: running test " + std::to_string(launch) +
-                           " is out of order or beyond the " + std::to_string(step_) + " tests launched");
+                        " is out of order or beyond the " + std::to_string(step_) + " tests launched");
     }
     if (!(level >= 0.0 && level <= 1.0) || flags > 1 || (flags == 1 && !clocked) ||
         (clocked && flags == 0 && launch != step_)) {
       return corruption("rule state is inconsistent: running test " + std::to_string(launch) +
-                           " has an impossible level or clock flag");
+                        " has an impossible level or clock flag");
     }
     running_.emplace_hint(running_.end(), launch, Running{level, flags == 1});
     previous = launch;
