@@ -13,7 +13,9 @@ namespace {
 
 constexpr char kBase64[] = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
 
-bool same_bits(double a, double b) { return std::bit_cast<std::uint64_t>(a) == std::bit_cast<std::uint64_t>(b); }
+bool same_bits(double a, double b) {
+  return std::bit_cast<std::uint64_t>(a) == std::bit_cast<std::uint64_t>(b);
+}
 
 // The smallest of the candidates, by the length of their JSON text.
 Json smallest(std::vector<Json> candidates) {
@@ -62,7 +64,8 @@ class Runs {
   std::size_t count_ = 0;
 };
 
-Json coded_column(std::span<const double> values, std::span<const double> ref, double before, double divisor) {
+Json coded_column(std::span<const double> values, std::span<const double> ref, double before,
+                  double divisor) {
   std::vector<double> written;
   Runs runs;
   double prev = before;
@@ -78,7 +81,9 @@ Json coded_column(std::span<const double> values, std::span<const double> ref, d
     }
     prev = v;
   }
-  Json j = {{"count", values.size()}, {"f64", base64(f64_bytes(written))}, {"codes", runs.finish()},
+  Json j = {{"count", values.size()},
+            {"f64", base64(f64_bytes(written))},
+            {"codes", runs.finish()},
             {"before", before}};
   if (!ref.empty()) j["divisor"] = divisor;
   return j;
@@ -136,7 +141,8 @@ std::string base64(std::string_view bytes) {
 
 Json number_column(std::span<const double> values) { return number_column(values, {}, 0.0, 1.0); }
 
-Json number_column(std::span<const double> values, std::span<const double> ref, double before, double divisor) {
+Json number_column(std::span<const double> values, std::span<const double> ref, double before,
+                   double divisor) {
   for (double v : values) {
     if (!std::isfinite(v)) return plain_numbers(values);
   }
@@ -148,8 +154,8 @@ Json number_column(std::span<const double> values, std::span<const double> ref, 
   if (same) forms.push_back({{"count", values.size()}, {"same", values[0]}});
   std::vector<double> all(values.begin(), values.end());
   forms.push_back({{"count", values.size()}, {"f64", base64(f64_bytes(all))}});
-  forms.push_back(coded_column(values, ref.size() == values.size() ? ref : std::span<const double>{}, before,
-                               divisor));
+  forms.push_back(
+      coded_column(values, ref.size() == values.size() ? ref : std::span<const double>{}, before, divisor));
   return smallest(std::move(forms));
 }
 
