@@ -67,6 +67,10 @@ struct LevelExplanation {
   double uncapped = 0;     // the sum of the amounts, in term order
   std::vector<LevelTerm> terms;
   std::optional<LevelCap> cap;  // the cap that bound (level = cap < uncapped), if any
+  // The tests launched and not yet finished or abandoned when this level is set (Rule::running(),
+  // launch order, each with the level it reserved). Their levels are reserved, not spent: they do
+  // not enter the terms, except through alpha-investing's W (the wealth not reserved).
+  std::vector<RunningTest> running;
 };
 
 // The rule's display in words, e.g. "alpha_t = W0 gamma_t + (alpha - W0) gamma_(t - tau_1) + ...".

@@ -2,7 +2,8 @@
 //
 // A report is rendered from the very results the CSV output is written from (no second
 // computation): the numbers go into the page as JSON in a <script type="application/json"
-// id="report-data"> block, unrounded and complete; the charts are drawn in the browser by Chart.js,
+// id="report-data"> block, exact and complete (long columns in compact exact forms: binary64 in
+// base64, runs, differences; docs/reports.md "The data block"); the charts are drawn in the browser by Chart.js,
 // which is embedded in the page, so the file opens offline and fetches nothing. Long streams are
 // thinned for drawing only (drawing_indices), never in the tables or the embedded data.
 //

@@ -1,10 +1,13 @@
 // alphaledger explain STREAM [--id ID]  |  alphaledger explain --log FILE --rule R [rule flags] [--id ID]
 // The level of a test as its rule's display with the numbers filled in (alphaledger/explain.hpp).
+#include <algorithm>
 #include <iostream>
+#include <map>
 #include <nlohmann/json.hpp>
 #include <sstream>
 
 #include "alphaledger/explain.hpp"
+#include "alphaledger/replay.hpp"
 #include "alphaledger/text.hpp"
 #include "cli/cli_errors.hpp"
 #include "cli/ledger_common.hpp"
@@ -28,8 +31,9 @@ struct Walk {
   std::vector<std::uint64_t> rejected_tests;  // launch number of each rejection, in order
   bool found = false;
   std::optional<double> recorded_level;  // the level the asked-for test got, as stored or decided
-  std::uint64_t launch = 0;              // streams: the asked-for test's launch number
+  std::uint64_t launch = 0;              // the asked-for test's launch number (streams, logs with launches)
   bool running = false;                  // streams: the asked-for test is still running
+  std::map<std::uint64_t, std::string> ids;  // launch number -> test id, for the running tests shown
 
   explicit Walk(const RuleConfig& c) : rule(c) {}
   // Returns false once the asked-for test is reached (the walk stops there).
@@ -86,7 +90,38 @@ void print_text(const LevelExplanation& e, std::string_view where, std::ostream&
   out << "level: " << format_number(e.level) << '\n';
 }
 
-void print_json(const LevelExplanation& e, const std::optional<std::string>& stream,
+std::string running_text(const LevelExplanation& e, const Walk& w) {
+  if (e.running.empty()) return "running when it was set: none\n";
+  double reserved = 0;
+  std::string list;
+  for (std::size_t i = 0; i < e.running.size(); ++i) {
+    reserved += e.running[i].level;
+    if (i == 10) list += ", ...";
+    if (i >= 10) continue;
+    const auto id = w.ids.find(e.running[i].launch);
+    list += (i == 0 ? "" : ", ") + (id != w.ids.end() ? excerpt(id->second) : "launch " + std::to_string(e.running[i].launch)) +
+            " (" + format_number(e.running[i].level) + ")";
+  }
+  return "running when it was set: " + std::to_string(e.running.size()) + " test" + (e.running.size() == 1 ? "" : "s") +
+         " reserving " + format_number(reserved) + ": " + list + "\n";
+}
+
+// "running": whether the explained test is still running, and the tests running when its level
+// was set (docs/cli.md "Explain").
+nlohmann::ordered_json running_json(const LevelExplanation& e, const Walk& w) {
+  auto tests = nlohmann::ordered_json::array();
+  double reserved = 0;
+  for (const RunningTest& t : e.running) {
+    reserved += t.level;
+    const auto id = w.ids.find(t.launch);
+    tests.push_back({{"id", id != w.ids.end() ? nlohmann::ordered_json(id->second) : nlohmann::ordered_json(nullptr)},
+                     {"launch", t.launch},
+                     {"level", t.level}});
+  }
+  return {{"explained_test_running", w.running}, {"reserved", reserved}, {"tests", std::move(tests)}};
+}
+
+void print_json(const LevelExplanation& e, const Walk& w, const std::optional<std::string>& stream,
                 const std::optional<std::string>& id, std::ostream& out) {
   nlohmann::ordered_json j;
   j["stream"] = stream ? nlohmann::ordered_json(*stream) : nlohmann::ordered_json(nullptr);
@@ -116,6 +151,7 @@ void print_json(const LevelExplanation& e, const std::optional<std::string>& str
   } else {
     j["cap"] = nullptr;
   }
+  j["running"] = running_json(e, w);
   out << json_text(j) << '\n';
 }
 
@@ -126,6 +162,39 @@ void print_json(const LevelExplanation& e, const std::optional<std::string>& str
 // decided at its one step). So the launches, finishes and abandons interleave as they happened,
 // and a test's level is explained as it was reserved at its launch, whether it is decided or still
 // running (docs/cli.md "Explain").
+// The asked-for test of a stream: its launch number, the level stored for it, and whether it is
+// still running. Launch 0 when the stream has no such test.
+struct Wanted {
+  std::uint64_t launch = 0;
+  std::optional<double> level;
+  bool running = false;
+};
+
+Result<Wanted> find_wanted(Ledger& ledger, const ExplainOptions& o, const std::vector<DecisionRecord>& history) {
+  Wanted w;
+  if (!o.id) return w;
+  for (const auto& r : history) {
+    if (r.id != *o.id) continue;
+    if (r.abandoned) {
+      return conflict("test '" + excerpt(*o.id) + "' of stream " + excerpt(*o.stream) +
+                          " was abandoned: it was never decided and its level is no longer reserved",
+                      "abandoned_test");
+    }
+    w.launch = r.launch;
+    w.level = r.level;
+  }
+  if (w.launch != 0) return w;
+  auto running = ledger.running_test(*o.stream, *o.id);
+  if (running) {
+    w.launch = running->launch;
+    w.level = running->level;
+    w.running = true;
+  } else if (running.error().kind != ErrorKind::kNotFound) {
+    return running.error();
+  }
+  return w;
+}
+
 Result<Walk> walk_stream(const ExplainOptions& o, const GlobalOptions& g) {
   auto ledger = open_for_reading(g);
   if (!ledger) return ledger.error();
@@ -133,35 +202,17 @@ Result<Walk> walk_stream(const ExplainOptions& o, const GlobalOptions& g) {
   if (!info) return info.error();
   auto history = (*ledger)->history(*o.stream);
   if (!history) return history.error();
-  // The asked-for test: its launch number and the level stored for it.
-  std::uint64_t wanted = 0;
-  std::optional<double> stored;
-  bool running_now = false;
-  if (o.id) {
-    for (const auto& r : *history) {
-      if (r.id != *o.id) continue;
-      if (r.abandoned) {
-        return conflict("test '" + excerpt(*o.id) + "' of stream " + excerpt(*o.stream) +
-                            " was abandoned: it was never decided and its level is no longer reserved",
-                        "abandoned_test");
-      }
-      wanted = r.launch;
-      stored = r.level;
-    }
-    if (wanted == 0) {
-      auto running = (*ledger)->running_test(*o.stream, *o.id);
-      if (running) {
-        wanted = running->launch;
-        stored = running->level;
-        running_now = true;
-      } else if (running.error().kind != ErrorKind::kNotFound) {
-        return running.error();
-      }
-    }
-  }
+  auto found = find_wanted(**ledger, o, *history);
+  if (!found) return found.error();
+  const std::uint64_t wanted = found->launch;
+  const std::optional<double> stored = found->level;
   Walk walk(info->config);
   walk.launch = wanted;
-  walk.running = running_now;
+  walk.running = found->running;
+  for (const auto& r : *history) walk.ids[r.launch] = r.id;
+  if (auto running = (*ledger)->running(*o.stream); running) {
+    for (const auto& e : *running) walk.ids[e.launch] = e.id;
+  }
   const auto mismatch = [&](const std::string& what) {
     return conflict("stream " + excerpt(*o.stream) + ": " + what + "; run 'alphaledger verify " +
                     excerpt(*o.stream) + "'");
@@ -202,6 +253,46 @@ Result<Walk> walk_stream(const ExplainOptions& o, const GlobalOptions& g) {
   return walk;
 }
 
+// A log with launched_at: the rule's launch and finish events in the order replay makes them
+// (alphaledger/replay.hpp: launches in order of (launched_at, line), finishes in log order, each
+// after every launch strictly earlier and after its own), up to the launch of the asked-for test
+// (the first launched with that id), whose level is reserved there. The level replay gave that
+// test is kept in `recorded_level`, so that run_explain refuses a walk that went another way.
+void walk_launches(const CompactLog& log, const Procedure& procedure, const std::optional<std::string>& wanted,
+                   Walk& walk) {
+  const auto& rs = log.records;
+  const std::size_t n = rs.size();
+  std::vector<std::size_t> order(n);
+  for (std::size_t i = 0; i < n; ++i) order[i] = i;
+  std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) {
+    return rs[a].launched_at != rs[b].launched_at ? rs[a].launched_at < rs[b].launched_at : rs[a].line < rs[b].line;
+  });
+  const bool e_values = rule_takes_e_values(walk.rule.config().kind);
+  std::vector<std::uint64_t> launch_of(n, 0);
+  std::size_t next = 0;
+  for (std::size_t k = 0; k < n && !walk.found; ++k) {
+    while (next < n && (rs[order[next]].launched_at < rs[k].finished_at || launch_of[k] == 0)) {
+      const std::size_t i = order[next];
+      if (wanted && log.id(rs[i]) == *wanted) {
+        walk.found = true;
+        walk.launch = walk.rule.tests() + 1;
+        break;
+      }
+      launch_of[i] = walk.rule.launch().launch;
+      walk.ids[launch_of[i]] = std::string(log.id(rs[i]));
+      ++next;
+    }
+    if (walk.found) break;
+    const auto out = e_values ? walk.rule.finish_e(launch_of[k], rs[k].e_value)
+                              : walk.rule.finish(launch_of[k], rs[k].p_value);
+    if (out && out->rejected) walk.rejected_tests.push_back(out->step);
+  }
+  if (!walk.found) return;
+  replay_each(log, procedure, [&](std::size_t, const Decision& d) {
+    if (d.launch == walk.launch) walk.recorded_level = d.level;
+  });
+}
+
 Result<Walk> walk_log(const ExplainOptions& o) {
   auto procs = resolve_procedures({*o.rule}, o.flags.to_spec(), /*allow_offline=*/false);
   if (!procs) return procs.error();
@@ -210,10 +301,15 @@ Result<Walk> walk_log(const ExplainOptions& o) {
   auto log = read_log_argument(*o.log, forced);
   if (!log) return log.error();
   Walk walk(std::get<RuleConfig>(procs->front().config));
+  if (log->has_launch) {
+    walk_launches(*log, procs->front(), o.id, walk);
+    return walk;
+  }
   const bool e_values = rule_takes_e_values(walk.rule.config().kind);
   for (std::size_t i = 0; i < log->size(); ++i) {
     const CompactRecord& r = log->records[i];
     const double x = e_values ? r.e_value : r.p_value;
+    walk.ids[i + 1] = std::string(log->id(r));
     if (!walk.step(log->id(r), x, o.id, std::nullopt)) break;
   }
   return walk;
@@ -241,13 +337,14 @@ Status run_explain(const ExplainOptions& o, const GlobalOptions& g, std::ostream
                     format_number(*walk->recorded_level) + "; run 'alphaledger verify'");
   }
   if (g.json) {
-    print_json(*e, o.stream, o.id, out);
+    print_json(*e, *walk, o.stream, o.id, out);
   } else {
     const std::string where = (o.stream ? "stream " + *o.stream : "log " + *o.log) +
                               (o.id ? ", test '" + *o.id + "'" : std::string(", next test")) +
                               (walk->running ? " (running, reserved at launch " + std::to_string(walk->launch) + ")"
                                              : std::string());
     print_text(*e, where, out);
+    out << running_text(*e, *walk);
   }
   return {};
 }

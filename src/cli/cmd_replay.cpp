@@ -68,6 +68,23 @@ std::string json_line(const nlohmann::ordered_json& j) { return json_text(j) + '
 // (team, metric, finished_at as written...) is read again and printed as written.
 constexpr std::string_view kWideKeepsNames[] = {"id", "p_value", "e_value"};
 
+// The file's other columns that --wide prints: a column that has the name of a column we print
+// is left out.
+std::vector<std::size_t> wide_shown_columns(const InputColumns& others, const std::vector<Procedure>& procs,
+                                            bool e_values) {
+  std::vector<std::string> taken = {"line", "id", "p_value"};
+  if (e_values) taken.emplace_back("e_value");
+  for (const auto& proc : procs) {
+    taken.push_back("level_" + proc.name);
+    taken.push_back("rejected_" + proc.name);
+  }
+  std::vector<std::size_t> shown;
+  for (std::size_t c = 0; c < others.names.size(); ++c) {
+    if (std::find(taken.begin(), taken.end(), others.names[c]) == taken.end()) shown.push_back(c);
+  }
+  return shown;
+}
+
 // replay --wide: one row per test in log order: `line,id,p_value[,e_value]`, the log's other
 // columns as written, then `level_RULE,rejected_RULE` for each rule. The decisions are replay_each's,
 // the function the long form prints from, so the numbers are the long form's bit for bit.
@@ -92,17 +109,7 @@ Status print_wide(const ReplayOptions& o, const GlobalOptions& g, const CompactL
   InputColumns others = read_input_columns(o.file, forced, log, kWideKeepsNames);
   const bool e_values = log.has_e_values;
   const bool p_values = log.has_p_values;
-  // Column names: a column of the file that has the name of a column we print is left out.
-  std::vector<std::string> taken = {"line", "id", "p_value"};
-  if (e_values) taken.emplace_back("e_value");
-  for (const auto& proc : procs) {
-    taken.push_back("level_" + proc.name);
-    taken.push_back("rejected_" + proc.name);
-  }
-  std::vector<std::size_t> shown;
-  for (std::size_t c = 0; c < others.names.size(); ++c) {
-    if (std::find(taken.begin(), taken.end(), others.names[c]) == taken.end()) shown.push_back(c);
-  }
+  const std::vector<std::size_t> shown = wide_shown_columns(others, procs, e_values);
   std::string row;
   if (!g.json) {
     row += e_values ? "line,id,p_value,e_value" : "line,id,p_value";
@@ -156,6 +163,96 @@ Status print_wide(const ReplayOptions& o, const GlobalOptions& g, const CompactL
   return {};
 }
 
+// replay --summary: one row per procedure, with the promise of each.
+void print_summary(const CompactLog& log, const std::vector<Procedure>& procs, const GlobalOptions& g,
+                   std::ostream& out) {
+  const auto rows = summarize(log, procs);
+  if (!g.json) out << "rule,tests,rejections,false_discoveries,fdp,power,guarantee\n";
+  for (std::size_t i = 0; i < rows.size(); ++i) {
+    const ReplaySummary& s = rows[i];
+    const std::string guarantee(guarantee_of(procs[i]));
+    if (g.json) {
+      nlohmann::ordered_json j = {{"rule", s.rule}, {"tests", s.tests}, {"rejections", s.rejections}};
+      j["false_discoveries"] = s.false_discoveries ? nlohmann::ordered_json(*s.false_discoveries)
+                                                   : nlohmann::ordered_json(nullptr);
+      j["fdp"] = s.fdp ? nlohmann::ordered_json(*s.fdp) : nlohmann::ordered_json(nullptr);
+      j["power"] = s.power ? nlohmann::ordered_json(*s.power) : nlohmann::ordered_json(nullptr);
+      j["guarantee"] = guarantee;
+      out << json_line(j);
+    } else {
+      out << s.rule << ',' << s.tests << ',' << s.rejections << ','
+          << (s.false_discoveries ? std::to_string(*s.false_discoveries) : "") << ',' << opt_text(s.fdp)
+          << ',' << opt_text(s.power) << ',' << guarantee << '\n';
+    }
+  }
+}
+
+// Each procedure in turn over the read log, one row per decision, written as they are made.
+void print_decisions(const ReplayOptions& o, const GlobalOptions& g, const CompactLog& log,
+                     const std::vector<Procedure>& procs, std::ostream& out) {
+  // A log with launch times adds the launch number after the step (docs/formats.md).
+  // A log with e-values adds an e_value column after p_value; p_value is empty when the log has none.
+  const bool launches = log.has_launch;
+  const bool e_values = log.has_e_values;
+  const bool p_values = log.has_p_values;
+  if (!g.json) {
+    out << (launches ? "rule,step,launch,id,p_value," : "rule,step,id,p_value,")
+        << (e_values ? "e_value,level,rejected,wealth\n" : "level,rejected,wealth\n");
+  }
+  std::string row;
+  Progress progress(log.size(), procs.size());
+  for (const Procedure& proc : procs) {
+    const std::string& name = proc.name;
+    replay_each(log, proc, [&](std::size_t k, const Decision& d) {
+      progress.tick(name);
+      if (o.rejected_only && !d.rejected) return;
+      const CompactRecord& r = log.records[k];
+      if (g.json) {
+        nlohmann::ordered_json j = {{"rule", name}, {"step", d.step}};
+        if (launches)  // null for bh / storey-bh
+          j["launch"] = d.launch > 0 ? nlohmann::ordered_json(d.launch) : nlohmann::ordered_json(nullptr);
+        j["id"] = std::string(log.id(r));
+        j["p_value"] = p_values ? nlohmann::ordered_json(r.p_value) : nlohmann::ordered_json(nullptr);
+        if (e_values) j["e_value"] = r.e_value;
+        j["level"] = d.level;
+        j["rejected"] = d.rejected ? 1 : 0;
+        j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
+        row += json_line(j);
+      } else {
+        row += name;
+        row += ',';
+        append_number(row, d.step);
+        row += ',';
+        if (launches) {
+          if (d.launch > 0) append_number(row, d.launch);  // empty for bh / storey-bh
+          row += ',';
+        }
+        const std::string_view id = log.id(r);
+        if (id.find_first_of(",\"\n\r") == std::string_view::npos)
+          row += id;
+        else
+          row += csv_field(std::string(id));
+        row += ',';
+        if (p_values) append_double(row, r.p_value);
+        row += ',';
+        if (e_values) {
+          append_double(row, r.e_value);
+          row += ',';
+        }
+        append_double(row, d.level);
+        row += d.rejected ? ",1," : ",0,";
+        if (d.wealth) append_double(row, *d.wealth);
+        row += '\n';
+      }
+      if (row.size() >= (1 << 16)) {  // written in blocks: one call per row would dominate
+        out << row;
+        row.clear();
+      }
+    });
+  }
+  out << row;
+}
+
 Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& out) {
   if (o.wide && o.summary) {
     return invalid_input("--wide and --summary do not go together: --summary prints one row per rule, "
@@ -185,94 +282,14 @@ Status run_replay(const ReplayOptions& o, const GlobalOptions& g, std::ostream& 
     return {};
   }
   if (o.summary) {
-    const auto rows = summarize(*log, *procs);
-    if (!g.json) out << "rule,tests,rejections,false_discoveries,fdp,power,guarantee\n";
-    for (std::size_t i = 0; i < rows.size(); ++i) {
-      const ReplaySummary& s = rows[i];
-      const std::string guarantee(guarantee_of((*procs)[i]));
-      if (g.json) {
-        nlohmann::ordered_json j = {{"rule", s.rule}, {"tests", s.tests}, {"rejections", s.rejections}};
-        j["false_discoveries"] = s.false_discoveries ? nlohmann::ordered_json(*s.false_discoveries)
-                                                     : nlohmann::ordered_json(nullptr);
-        j["fdp"] = s.fdp ? nlohmann::ordered_json(*s.fdp) : nlohmann::ordered_json(nullptr);
-        j["power"] = s.power ? nlohmann::ordered_json(*s.power) : nlohmann::ordered_json(nullptr);
-        j["guarantee"] = guarantee;
-        out << json_line(j);
-      } else {
-        out << s.rule << ',' << s.tests << ',' << s.rejections << ','
-            << (s.false_discoveries ? std::to_string(*s.false_discoveries) : "") << ',' << opt_text(s.fdp)
-            << ',' << opt_text(s.power) << ',' << guarantee << '\n';
-      }
-    }
+    print_summary(*log, *procs, g, out);
     if (o.report) return write_replay_report(*o.report, *log, *procs, o.flags.alpha, o.file, forced);
     return {};
   }
-  // Each procedure in turn over the read log; decisions are written as they are made.
-  // A log with launch times adds the launch number after the step (docs/formats.md).
-  // A log with e-values adds an e_value column after p_value; p_value is empty when the log has none.
-  const bool launches = log->has_launch;
-  const bool e_values = log->has_e_values;
-  const bool p_values = log->has_p_values;
-  if (!g.json) {
-    out << (launches ? "rule,step,launch,id,p_value," : "rule,step,id,p_value,")
-        << (e_values ? "e_value,level,rejected,wealth\n" : "level,rejected,wealth\n");
-  }
-  std::string row;
-  Progress progress(log->size(), procs->size());
-  for (const Procedure& proc : *procs) {
-    const std::string& name = proc.name;
-    replay_each(*log, proc, [&](std::size_t k, const Decision& d) {
-      progress.tick(name);
-      if (o.rejected_only && !d.rejected) return;
-      const CompactRecord& r = log->records[k];
-      if (g.json) {
-        nlohmann::ordered_json j = {{"rule", name}, {"step", d.step}};
-        if (launches)  // null for bh / storey-bh
-          j["launch"] = d.launch > 0 ? nlohmann::ordered_json(d.launch) : nlohmann::ordered_json(nullptr);
-        j["id"] = std::string(log->id(r));
-        j["p_value"] = p_values ? nlohmann::ordered_json(r.p_value) : nlohmann::ordered_json(nullptr);
-        if (e_values) j["e_value"] = r.e_value;
-        j["level"] = d.level;
-        j["rejected"] = d.rejected ? 1 : 0;
-        j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
-        row += json_line(j);
-      } else {
-        row += name;
-        row += ',';
-        append_number(row, d.step);
-        row += ',';
-        if (launches) {
-          if (d.launch > 0) append_number(row, d.launch);  // empty for bh / storey-bh
-          row += ',';
-        }
-        const std::string_view id = log->id(r);
-        if (id.find_first_of(",\"\n\r") == std::string_view::npos)
-          row += id;
-        else
-          row += csv_field(std::string(id));
-        row += ',';
-        if (p_values) append_double(row, r.p_value);
-        row += ',';
-        if (e_values) {
-          append_double(row, r.e_value);
-          row += ',';
-        }
-        append_double(row, d.level);
-        row += d.rejected ? ",1," : ",0,";
-        if (d.wealth) append_double(row, *d.wealth);
-        row += '\n';
-      }
-      if (row.size() >= (1 << 16)) {  // written in blocks: one call per row would dominate
-        out << row;
-        row.clear();
-      }
-    });
-  }
-  out << row;
+  print_decisions(o, g, *log, *procs, out);
   if (o.report) return write_replay_report(*o.report, *log, *procs, o.flags.alpha, o.file, forced);
   return {};
 }
-
 }  // namespace
 
 void add_replay_command(CLI::App& app, CommandContext& ctx) {

@@ -184,6 +184,7 @@ Result<LevelExplanation> explain_next_level(const Rule& rule, std::span<const st
   e.evaluation = c.evaluation;
   e.test = s.step + 1;
   e.level = rule.next_level();
+  e.running = rule.running();
   const double a = c.alpha;
   switch (c.kind) {
     case RuleKind::kAlphaSpending:

@@ -35,7 +35,10 @@ table.facts td { white-space: normal; }
 .mark-r { font-weight: bold; }
 .above { color: var(--warn); font-weight: bold; }
 button { margin: .4rem .4rem .4rem 0; font: inherit; }
-#report-errors { border: 2px solid var(--warn); background: #fff4ec; padding: .4rem .8rem; margin: .5rem 0; }
+/* A script error paints a banner of one fixed colour at the top, so that even a screenshot shows it
+   (tests/cli/test_report_cli.cpp looks for this colour in Firefox's screenshots). */
+#report-errors { background: #c00000; color: #fff; font-weight: bold; min-height: 5rem;
+                 padding: .6rem .9rem; margin: .5rem 0; }
 #cautions { border-left: 5px solid var(--note); padding: .1rem 1rem; margin-top: 2rem; background: #fffaf0; }
 code { font-size: .9em; }
 @media print {
@@ -71,6 +74,11 @@ inline constexpr const char* kErrorTrap = R"HTML(<div id="report-errors" role="a
     record(String(e.message) + (e.lineno ? ' (line ' + e.lineno + ')' : ''));
   });
   window.addEventListener('unhandledrejection', function (e) { record(String(e.reason)); });
+  // The error handlers above do not see an exception thrown while Chart.js draws inside a callback
+  // that catches it; a page that never finished drawing is reported as well.
+  window.addEventListener('load', function () {
+    if (document.body.getAttribute('data-state') !== 'drawn') record('the charts did not finish drawing');
+  });
 })();
 </script>
 )HTML";
@@ -102,6 +110,71 @@ var charts = [];
 
 function style(k) {
   return { color: COLORS[k % COLORS.length], shape: SHAPES[k % SHAPES.length], dash: DASHES[k % DASHES.length] };
+}
+// ---- The data block's column forms (src/harness/report_encode.hpp; docs/reports.md) ----------
+// Exact: doubles come back bit for bit from their binary64 bytes.
+var BASE64 = 'ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/';
+function decodeF64(text) {
+  var bin = atob(text), n = bin.length >> 3, out = new Array(n);
+  var view = new DataView(new ArrayBuffer(8));
+  for (var i = 0; i < n; i++) {
+    for (var b = 0; b < 8; b++) view.setUint8(b, bin.charCodeAt(8 * i + b));
+    out[i] = view.getFloat64(0, true);
+  }
+  return out;
+}
+function numbers(c, ref) {
+  if (c === null || c === undefined || Array.isArray(c)) return c;
+  var out = new Array(c.count), i;
+  if ('same' in c) { for (i = 0; i < c.count; i++) out[i] = c.same; return out; }
+  var written = decodeF64(c.f64);
+  if (!('codes' in c)) return written;
+  var next = 0, row = 0, prev = c.before, re = /([a-z])(\d*)/g, m;
+  while ((m = re.exec(c.codes)) !== null) {
+    var times = m[2] ? parseInt(m[2], 10) : 1;
+    for (var k = 0; k < times; k++, row++) {
+      if (m[1] === 'x') prev = written[next++];
+      else if (m[1] === 'l') prev = prev - ref[row] / c.divisor;
+      out[row] = prev;
+    }
+  }
+  return out;
+}
+function integers(c) {
+  if (c === null || c === undefined || Array.isArray(c)) return c;
+  var out = new Array(c.count), v = c.first, large = 0;
+  for (var i = 0; i < c.count; i++) {
+    if (i > 0 && 'every' in c) v += c.every;
+    if (i > 0 && 'diffs' in c) v += c.diffs[i - 1];
+    if (i > 0 && 'small_diffs' in c) {
+      var digit = BASE64.indexOf(c.small_diffs.charAt(i - 1));
+      v += digit === 63 ? c.large[large++] : digit;
+    }
+    out[i] = v;
+  }
+  return out;
+}
+function flags(c) {
+  if (c === null || c === undefined || Array.isArray(c)) return c;
+  var out = new Array(c.count).fill(0);
+  c.set.forEach(function (i) { out[i] = 1; });
+  return out;
+}
+function texts(c) {
+  if (c === null || c === undefined || Array.isArray(c)) return c;
+  var out = new Array(c.count), i;
+  if ('values' in c) {
+    for (i = 0; i < c.count; i++) out[i] = c.values[BASE64.indexOf(c.index.charAt(i))];
+    return out;
+  }
+  var pos = 0, prev = '';
+  for (i = 0; i < c.count; i++) {
+    var rest = c.front.charCodeAt(pos + 1) - 48;
+    prev = prev.slice(0, c.front.charCodeAt(pos) - 48) + c.front.substr(pos + 2, rest);
+    out[i] = prev;
+    pos += 2 + rest;
+  }
+  return out;
 }
 // Full precision: JavaScript's shortest text that reads back to the same number.
 function full(v) { return v === null || v === undefined ? '' : String(v); }
@@ -199,6 +272,21 @@ function thinningNote(drawn, total) {
       'and evenly spaced others. The tables below and the embedded data hold every test.';
 }
 
+// The button at the end of the page: the data with every column decoded into a plain array.
+function offerSave(plain) {
+  var button = document.getElementById('save-data');
+  button.hidden = false;
+  button.addEventListener('click', function () {
+    var blob = new Blob([JSON.stringify(plain)], { type: 'application/json' });
+    var a = document.createElement('a');
+    a.href = URL.createObjectURL(blob);
+    a.download = DATA.report + '-data.json';
+    document.body.appendChild(a);
+    a.click();
+    a.remove();
+  });
+}
+
 function finish() {
   document.body.setAttribute('data-charts', String(charts.length));
   document.body.setAttribute('data-state', 'drawn');
@@ -234,36 +322,37 @@ Chart.register({
 )JS";
 
 inline constexpr const char* kStreamScript = R"JS(
-(function () {
-  var D = DATA.decisions;
+// The decisions decoded into plain arrays, and the discoveries so far after each.
+function streamColumns() {
+  var E = DATA.decisions;
+  var D = { step: integers(E.step), id: texts(E.id), p_value: numbers(E.p_value), level: numbers(E.level),
+            rejected: flags(E.rejected), decided_at_ms: integers(E.decided_at_ms) };
+  D.wealth = numbers(E.wealth, D.level);
+  D.found = new Array(D.step.length);
+  for (var i = 0, so_far = 0; i < D.step.length; i++) { so_far += D.rejected[i]; D.found[i] = so_far; }
+  return D;
+}
+
+// p-values against their levels, on a log scale (0 drawn at the bottom).
+function levelsChart(D, stepAxis) {
   var n = D.step.length;
-  var drawn = DATA.drawn;
   var floor = 1;
   for (var i = 0; i < n; i++) {
     if (D.p_value[i] > 0 && D.p_value[i] < floor) floor = D.p_value[i];
     if (D.level[i] > 0 && D.level[i] < floor) floor = D.level[i];
   }
   floor = floor / 10;
-  var found = new Array(n);
-  var so_far = 0;
-  for (i = 0; i < n; i++) { so_far += D.rejected[i]; found[i] = so_far; }
   function tip(ctx) {
     var k = ctx.raw.i;
     return ['id: ' + D.id[k], 'step: ' + D.step[k], 'p-value: ' + full(D.p_value[k]), 'level: ' + full(D.level[k]),
             D.rejected[k] ? 'discovery' : 'not rejected'];
   }
-  var plain = [], found_points = [], levels = [], wealth = [], count = [], reserved = [];
-  var R = DATA.reserved_wealth;
-  drawn.forEach(function (k) {
+  var plain = [], found_points = [], levels = [];
+  DATA.drawn.forEach(function (k) {
     var point = { x: D.step[k], y: Math.max(D.p_value[k], floor), i: k };
     (D.rejected[k] ? found_points : plain).push(point);
     levels.push({ x: D.step[k], y: Math.max(D.level[k], floor), i: k });
-    wealth.push({ x: D.step[k], y: D.wealth[k], i: k });
-    if (R) reserved.push({ x: D.step[k], y: R[k], i: k });
-    count.push({ x: D.step[k], y: found[k], i: k });
   });
-  var stepAxis = { type: 'linear', title: { display: true, text: 'step (test number in the stream)' },
-                   min: n ? D.step[0] : 0, max: n ? D.step[n - 1] : 1 };
   makeChart('chart-levels', {
     type: 'scatter',
     data: { datasets: [
@@ -279,6 +368,16 @@ inline constexpr const char* kStreamScript = R"JS(
              var e = Math.log10(v);
              return Math.abs(e - Math.round(e)) < 1e-9 ? (e >= -3 ? String(v) : '1e' + Math.round(e)) : ''; } } } },
       plugins: { tooltip: { callbacks: { label: tip } } } }
+  });
+}
+
+// Alpha-wealth and reserved wealth after each test, and the discoveries so far.
+function wealthCharts(D, R, stepAxis) {
+  var wealth = [], count = [], reserved = [], found = D.found;
+  DATA.drawn.forEach(function (k) {
+    wealth.push({ x: D.step[k], y: D.wealth[k], i: k });
+    if (R) reserved.push({ x: D.step[k], y: R[k], i: k });
+    count.push({ x: D.step[k], y: found[k], i: k });
   });
   makeChart('chart-wealth', {
     type: 'scatter',
@@ -302,7 +401,11 @@ inline constexpr const char* kStreamScript = R"JS(
       plugins: { tooltip: { callbacks: { label: function (ctx) {
         return ['after ' + D.id[ctx.raw.i], 'discoveries: ' + found[ctx.raw.i]]; } } } } }
   });
-  thinningNote(drawn.length, n);
+}
+
+// The tables of decisions and of running tests; returns the running tests decoded.
+function streamTables(D, R) {
+  var n = D.step.length, found = D.found, i;
   var all = [];
   for (i = 0; i < n; i++) all.push(i);
   var columns = [
@@ -322,8 +425,10 @@ inline constexpr const char* kStreamScript = R"JS(
                 'Decisions of stream ' + DATA.stream);
   }
   table(false);
-  var U = DATA.running;
-  if (U && U.id.length) {
+  var V = DATA.running;
+  var U = { id: texts(V.id), launch: integers(V.launch), level: numbers(V.level),
+            launched_at_ms: integers(V.launched_at_ms) };
+  if (U.id.length) {
     var urows = [];
     for (i = 0; i < U.id.length; i++) urows.push(i);
     renderTable(document.getElementById('running-table'), [
@@ -334,16 +439,38 @@ inline constexpr const char* kStreamScript = R"JS(
       urows, 'Running tests of stream ' + DATA.stream);
   }
   document.getElementById('only-discoveries').addEventListener('change', function (e) { table(e.target.checked); });
+  return U;
+}
+
+(function () {
+  var D = streamColumns();
+  var R = numbers(DATA.reserved_wealth);
+  var n = D.step.length;
+  var stepAxis = { type: 'linear', title: { display: true, text: 'step (test number in the stream)' },
+                   min: n ? D.step[0] : 0, max: n ? D.step[n - 1] : 1 };
+  levelsChart(D, stepAxis);
+  wealthCharts(D, R, stepAxis);
+  thinningNote(DATA.drawn.length, n);
+  var U = streamTables(D, R);
+  var decisions = Object.assign({}, D);
+  delete decisions.found;
+  offerSave(Object.assign({}, DATA, { decisions: decisions, reserved_wealth: R, running: U }));
   finish();
 })();
 )JS";
 
 inline constexpr const char* kReplayScript = R"JS(
-(function () {
-  var I = DATA.input;
-  var n = I.id.length;
-  var rules = DATA.rules;
-  var drawn = DATA.drawn;
+// The log's columns decoded into plain arrays.
+function replayInput() {
+  var J = DATA.input;
+  var I = { id: texts(J.id), p_value: numbers(J.p_value), line: integers(J.line),
+            finished_at: numbers(J.finished_at), is_null: flags(J.is_null), columns: {} };
+  Object.keys(J.columns || {}).forEach(function (name) { I.columns[name] = texts(J.columns[name]); });
+  return I;
+}
+
+// The table and the bar chart of what each rule finds.
+function summarySection(rules) {
   var summaryColumns = [
     { title: 'rule', value: function (r) { return r.rule + (r.added_for_report ? ' (added for this report)' : ''); } },
     { title: 'kind', value: function (r) { return r.online ? 'online' : 'hindsight'; } },
@@ -380,6 +507,11 @@ inline constexpr const char* kReplayScript = R"JS(
     options: { scales: { y: { beginAtZero: true, title: { display: true,
       text: DATA.has_truth ? 'proportion' : 'discoveries' } } } } });
 
+}
+
+// Discoveries so far per rule, at the drawn tests.
+function discoveriesChart(I, rules) {
+  var n = I.id.length, drawn = DATA.drawn;
   var counts = rules.map(function (r) {
     var c = new Array(n), s = 0;
     for (var i = 0; i < n; i++) { s += r.rejected[i]; c[i] = s; }
@@ -401,7 +533,11 @@ inline constexpr const char* kReplayScript = R"JS(
         return ctx.dataset.label + ': ' + ctx.raw.y + ' after ' + I.id[ctx.raw.i]; } } } } }
   });
   thinningNote(drawn.length, n);
+}
 
+// The per-test table: the log's columns, then each rule's level and decision.
+function perTestTable(I, rules) {
+  var n = I.id.length;
   var columns = [
     { title: 'id', cls: 'id', value: function (i) { return I.id[i]; } },
     { title: 'line', num: true, value: function (i) { return String(I.line[i]); } },
@@ -427,18 +563,21 @@ inline constexpr const char* kReplayScript = R"JS(
       return rules.some(function (r) { return r.rejected[i]; }); }) : all, 'Per test, in the order decided');
   }
   table(false);
-  var U = DATA.running;
-  if (U && U.id.length) {
-    var urows = [];
-    for (i = 0; i < U.id.length; i++) urows.push(i);
-    renderTable(document.getElementById('running-table'), [
-      { title: 'launch', num: true, value: function (k) { return String(U.launch[k]); } },
-      { title: 'id', cls: 'id', value: function (k) { return U.id[k]; } },
-      { title: 'reserved level', num: true, value: function (k) { return full(U.level[k]); } },
-      { title: 'launched_at', value: function (k) { return isoTime(U.launched_at_ms[k]); } } ],
-      urows, 'Running tests of stream ' + DATA.stream);
-  }
   document.getElementById('only-discoveries').addEventListener('change', function (e) { table(e.target.checked); });
+}
+
+(function () {
+  var I = replayInput();
+  var rules = DATA.rules.map(function (r) {
+    var copy = Object.assign({}, r);
+    copy.level = numbers(r.level);
+    copy.rejected = flags(r.rejected);
+    return copy;
+  });
+  summarySection(rules);
+  discoveriesChart(I, rules);
+  perTestTable(I, rules);
+  offerSave(Object.assign({}, DATA, { input: I, rules: rules }));
   finish();
 })();
 )JS";
@@ -493,6 +632,7 @@ inline constexpr const char* kSimulationScript = R"JS(
     return r.exceeds_target ? 'ABOVE TARGET' : (r.promised_se === null ? '-' : 'ok'); },
     mark: function (r) { return r.exceeds_target ? 'above' : ''; } });
   renderTable(document.getElementById('results-table'), columns, DATA.rows, 'Per setting and rule');
+  offerSave(DATA);
   finish();
 })();
 )JS";

@@ -11,6 +11,7 @@
 #include "alphaledger/text.hpp"
 #include "harness/json_text.hpp"
 #include "harness/report_assets.hpp"
+#include "harness/report_encode.hpp"
 
 namespace alphaledger {
 namespace report_detail {
@@ -21,6 +22,9 @@ extern const std::size_t kChartJsSize;
 namespace {
 
 using Json = nlohmann::ordered_json;
+
+// The layout of the data block: 2 writes columns in the compact forms of report_encode.hpp.
+constexpr int kDataFormat = 2;
 
 Json number_or_null(double v) { return std::isfinite(v) ? Json(v) : Json(nullptr); }
 template <typename T>
@@ -55,7 +59,8 @@ std::string page(std::string_view kind, const std::string& title, const std::str
   out += body;
   out += report_assets::kCautions;
   out += "</main>\n<footer><p>Made by alphaledger. Charts: Chart.js 3.9.1 (MIT license), embedded. ";
-  out += "The numbers of this page are in the block <code>report-data</code> of its source, as JSON.</p>";
+  out += "The numbers of this page are in the block <code>report-data</code> of its source, as JSON. ";
+  out += "<button type=\"button\" id=\"save-data\" hidden>Save the numbers (JSON)</button></p>";
   out += "</footer>\n";
   out += "<script type=\"application/json\" id=\"report-data\">";
   out += script_json(dump(data));
@@ -129,29 +134,61 @@ std::string guarantee_text(std::string_view rule) {
 
 // ---- Stream ------------------------------------------------------------------------------------
 
-std::string render_stream_report(const StreamReportData& d) {
-  const StreamInfo& info = d.info;
+namespace {
+
+// The stream's decisions as columns (report_encode.hpp forms); the wealth column refers to the
+// levels (a rule that spends its level, as lord++ does, needs no wealth written out).
+Json stream_decisions(const StreamReportData& d) {
   const std::size_t n = d.records.size();
-  Json steps = Json::array(), ids = Json::array(), p = Json::array(), level = Json::array(),
-       rejected = Json::array(), wealth = Json::array(), decided = Json::array();
-  std::vector<bool> keep(n);
-  std::uint64_t discoveries = 0;
+  std::vector<std::int64_t> steps(n), decided(n);
+  std::vector<std::string> ids(n);
+  std::vector<double> p(n), level(n), wealth(n);
+  std::vector<bool> rejected(n);
   for (std::size_t i = 0; i < n; ++i) {
     const DecisionRecord& r = d.records[i];
-    steps.push_back(r.step);
-    ids.push_back(r.id);
-    p.push_back(r.p_value);
-    level.push_back(r.level);
-    rejected.push_back(r.rejected ? 1 : 0);
-    wealth.push_back(r.wealth);
-    decided.push_back(r.decided_at_ms);
-    keep[i] = r.rejected;
-    discoveries += r.rejected ? 1 : 0;
+    steps[i] = static_cast<std::int64_t>(r.step);
+    ids[i] = r.id;
+    p[i] = r.p_value;
+    level[i] = r.level;
+    rejected[i] = r.rejected;
+    wealth[i] = r.wealth;
+    decided[i] = r.decided_at_ms;
   }
+  const RuleConfig& c = d.info.config;
+  const double divisor = c.kind == RuleKind::kSaffron ? 1 - c.candidate_threshold
+                         : c.kind == RuleKind::kAddis  ? c.discard_threshold - c.candidate_threshold
+                                                       : 1.0;
+  return {{"step", report_detail::integer_column(steps)},
+          {"id", report_detail::text_column(ids)},
+          {"p_value", report_detail::number_column(p)},
+          {"level", report_detail::number_column(level)},
+          {"rejected", report_detail::flag_column(rejected)},
+          {"wealth", report_detail::number_column(wealth, level, c.initial_wealth, divisor)},
+          {"decided_at_ms", report_detail::integer_column(decided)}};
+}
+
+Json stream_running(const std::vector<RunningEntry>& running) {
+  std::vector<std::string> ids;
+  std::vector<std::int64_t> launch, at;
+  std::vector<double> level;
+  for (const RunningEntry& e : running) {
+    ids.push_back(e.id);
+    launch.push_back(static_cast<std::int64_t>(e.launch));
+    level.push_back(e.level);
+    at.push_back(e.launched_at_ms);
+  }
+  return {{"id", report_detail::text_column(ids)},
+          {"launch", report_detail::integer_column(launch)},
+          {"level", report_detail::number_column(level)},
+          {"launched_at_ms", report_detail::integer_column(at)}};
+}
+
+Json stream_data(const StreamReportData& d) {
+  const StreamInfo& info = d.info;
   const std::string rule(rule_name(info.config.kind));
   Json data;
   data["report"] = "stream";
-  data["format"] = 1;
+  data["format"] = kDataFormat;
   data["stream"] = info.name;
   data["rule"] = rule;
   data["configuration"] = d.configuration;
@@ -166,35 +203,21 @@ std::string render_stream_report(const StreamReportData& d) {
   data["rejections"] = info.rejections;
   data["wealth"] = info.wealth;
   data["next_level"] = info.closed_at_ms ? Json(nullptr) : number_or_null(info.next_level);
-  data["decisions"] = {{"step", std::move(steps)},
-                       {"id", std::move(ids)},
-                       {"p_value", std::move(p)},
-                       {"level", std::move(level)},
-                       {"rejected", std::move(rejected)},
-                       {"wealth", std::move(wealth)},
-                       {"decided_at_ms", std::move(decided)}};
+  data["decisions"] = stream_decisions(d);
   // Wealth reserved by running tests right after each decision (launch-time levels).
-  data["reserved_wealth"] = d.reserved_wealth ? Json(*d.reserved_wealth) : Json(nullptr);
+  data["reserved_wealth"] = d.reserved_wealth ? report_detail::number_column(*d.reserved_wealth) : Json(nullptr);
   data["reserved"] = info.reserved;
-  Json run_id = Json::array(), run_launch = Json::array(), run_level = Json::array(), run_at = Json::array();
-  for (const RunningEntry& e : d.running) {
-    run_id.push_back(e.id);
-    run_launch.push_back(e.launch);
-    run_level.push_back(e.level);
-    run_at.push_back(e.launched_at_ms);
-  }
-  data["running"] = {{"id", std::move(run_id)},
-                     {"launch", std::move(run_launch)},
-                     {"level", std::move(run_level)},
-                     {"launched_at_ms", std::move(run_at)}};
-  data["drawn"] = drawing_indices(n, keep, kMaxDrawnPoints);
+  data["running"] = stream_running(d.running);
+  std::vector<bool> keep(d.records.size());
+  for (std::size_t i = 0; i < d.records.size(); ++i) keep[i] = d.records[i].rejected;
+  data["drawn"] = drawing_indices(d.records.size(), keep, kMaxDrawnPoints);
+  return data;
+}
 
-  const std::string title = "Stream " + info.name;
-  const std::string subtitle = std::to_string(n) + " decided test" + (n == 1 ? "" : "s") + ", " +
-                               std::to_string(discoveries) + " discover" + (discoveries == 1 ? "y" : "ies") +
-                               "; report made " + timestamp_text(d.generated_at_ms);
-  std::string body;
-  body += "<section id=\"configuration\">\n<h2>Configuration and what it promises</h2>\n";
+std::string stream_configuration(const StreamReportData& d) {
+  const StreamInfo& info = d.info;
+  const std::string rule(rule_name(info.config.kind));
+  std::string body = "<section id=\"configuration\">\n<h2>Configuration and what it promises</h2>\n";
   body += definition_rows({
       {"stream", info.name},
       {"rule", d.configuration},
@@ -212,7 +235,13 @@ std::string render_stream_report(const StreamReportData& d) {
   body +=
       "<p>The guarantee is the published rule's, and it holds only under its conditions. Levels are "
       "fixed before each p-value is read; a test is a discovery when its p-value is at most its level.</p>\n";
-  body += "</section>\n<section id=\"charts\">\n<h2>Over the stream</h2>\n";
+  return body + "</section>\n";
+}
+
+std::string stream_charts(const StreamReportData& d, std::uint64_t discoveries) {
+  const StreamInfo& info = d.info;
+  const std::size_t n = d.records.size();
+  std::string body = "<section id=\"charts\">\n<h2>Over the stream</h2>\n";
   body += "<p class=\"note\" id=\"thinning-note\" hidden></p>\n";
   body +=
       figure("chart-levels", "p-values against their levels",
@@ -237,70 +266,98 @@ std::string render_stream_report(const StreamReportData& d) {
                  "Step chart: the number of discoveries after each test, reaching " +
                      std::to_string(discoveries) + " after " + std::to_string(n) + " tests.",
                  "Each step up is one discovery (marked with a triangle). Table: Decisions, below.");
-  body += "</section>\n<section id=\"running\">\n<h2>Running tests</h2>\n";
+  return body + "</section>\n";
+}
+
+std::string stream_tables(const StreamReportData& d) {
+  std::string body = "<section id=\"running\">\n<h2>Running tests</h2>\n";
   body += d.running.empty()
               ? std::string("<p>No test is running: every launched test has been decided or abandoned.</p>\n")
               : "<p>" + std::to_string(d.running.size()) +
                     " tests launched and not yet decided, in launch order, with the level each reserved at "
                     "its launch (its decision will be made against it; <code>alphaledger explain " +
-                    html_escape(info.name) + " --id ID</code> shows how it was made).</p>\n";
+                    html_escape(d.info.name) + " --id ID</code> shows how it was made).</p>\n";
   body += "<div class=\"table-box\" id=\"running-table\"></div>\n";
   body += "</section>\n<section id=\"decisions\">\n<h2>Decisions</h2>\n";
   body +=
       "<p>Every test in step order, with its full-precision numbers (as <code>alphaledger history</code> "
       "prints them). <label><input type=\"checkbox\" id=\"only-discoveries\"> only discoveries</label></p>\n";
-  body += "<div class=\"table-box\" id=\"decisions-table\"></div>\n</section>\n";
-  return page("stream", title, subtitle, body, data);
+  return body + "<div class=\"table-box\" id=\"decisions-table\"></div>\n</section>\n";
+}
+
+}  // namespace
+
+std::string render_stream_report(const StreamReportData& d) {
+  const StreamInfo& info = d.info;
+  const std::size_t n = d.records.size();
+  std::uint64_t discoveries = 0;
+  for (const DecisionRecord& r : d.records) discoveries += r.rejected ? 1 : 0;
+  const std::string title = "Stream " + info.name;
+  const std::string subtitle = std::to_string(n) + " decided test" + (n == 1 ? "" : "s") + ", " +
+                               std::to_string(discoveries) + " discover" + (discoveries == 1 ? "y" : "ies") +
+                               "; report made " + timestamp_text(d.generated_at_ms);
+  const std::string body = stream_configuration(d) + stream_charts(d, discoveries) + stream_tables(d);
+  return page("stream", title, subtitle, body, stream_data(d));
 }
 
 // ---- Replay ------------------------------------------------------------------------------------
 
-std::string render_replay_report(const ReplayReportData& d) {
+namespace {
+
+// The log's own columns, in log order (report_encode.hpp forms).
+Json replay_input(const ReplayReportData& d) {
   const CompactLog& log = *d.log;
-  const ReplayResult& r = *d.result;
   const std::size_t n = log.size();
-  Json ids = Json::array(), p = Json::array(), finished = Json::array(), truth = Json::array(),
-       line = Json::array();
-  bool any_time = false;
+  std::vector<std::string> ids(n);
+  std::vector<double> p(n), finished(n);
+  std::vector<std::int64_t> line(n);
+  std::vector<bool> truth(n);
+  bool any_time = false, every_time = true;
   for (std::size_t i = 0; i < n; ++i) {
     const CompactRecord& c = log.records[i];
-    ids.push_back(std::string(log.id(c)));
-    p.push_back(c.p_value);
-    line.push_back(c.line);
+    ids[i] = std::string(log.id(c));
+    p[i] = c.p_value;
+    line[i] = static_cast<std::int64_t>(c.line);
     const bool has_time = (c.flags & CompactRecord::kHasTime) != 0;
     any_time = any_time || has_time;
-    finished.push_back(has_time ? Json(c.finished_at) : Json(nullptr));
-    if (log.has_truth) truth.push_back((c.flags & CompactRecord::kIsNull) != 0 ? 1 : 0);
+    every_time = every_time && has_time;
+    finished[i] = has_time ? c.finished_at : std::nan("");  // NaN: null in the data
+    truth[i] = (c.flags & CompactRecord::kIsNull) != 0;
   }
-  Json input = {{"id", std::move(ids)}, {"p_value", std::move(p)}, {"line", std::move(line)}};
-  if (any_time) input["finished_at"] = std::move(finished);
-  if (log.has_truth) input["is_null"] = std::move(truth);
+  Json input = {{"id", report_detail::text_column(ids)},
+                {"p_value", report_detail::number_column(p)},
+                {"line", report_detail::integer_column(line)}};
+  if (any_time) input["finished_at"] = report_detail::number_column(finished);
+  if (log.has_truth) input["is_null"] = report_detail::flag_column(truth);
   Json others = Json::object();
   for (std::size_t c = 0; c < d.input_column_names.size() && c < d.input_columns.size(); ++c) {
-    if (d.input_columns[c].size() == n) others[d.input_column_names[c]] = d.input_columns[c];
+    if (d.input_columns[c].size() == n) others[d.input_column_names[c]] = report_detail::text_column(d.input_columns[c]);
   }
   input["columns"] = std::move(others);
+  return input;
+}
 
-  std::vector<bool> keep(n);
+// Each procedure's levels and decisions (not the wealth: the page shows none, replay's CSV has
+// it); `keep` gains every test some procedure rejects.
+Json replay_rules(const ReplayReportData& d, std::vector<bool>& keep) {
+  const ReplayResult& r = *d.result;
   Json rules = Json::array();
-  std::string bh_name;
   for (std::size_t k = 0; k < r.procedures.size(); ++k) {
     const Procedure& proc = r.procedures[k];
     const auto& decisions = r.decisions[k];
-    // Not the wealth: the page shows none (replay's CSV has it), and at 10^5 tests it would be
-    // 2 MB a rule of the file (docs/benchmarks.md "HTML reports").
-    Json level = Json::array(), rejected = Json::array();
+    std::vector<double> level(decisions.size());
+    std::vector<bool> rejected(decisions.size());
     for (std::size_t i = 0; i < decisions.size(); ++i) {
-      level.push_back(decisions[i].level);
-      rejected.push_back(decisions[i].rejected ? 1 : 0);
-      if (decisions[i].rejected) keep[i] = true;
+      level[i] = decisions[i].level;
+      rejected[i] = decisions[i].rejected;
+      if (decisions[i].rejected && i < keep.size()) keep[i] = true;
     }
     Json rule = {{"rule", proc.name}, {"online", proc.online()}, {"guarantee", guarantee_text(proc.name)}};
     bool extra = false;
     for (const auto& e : d.extra) extra = extra || e == proc.name;
     rule["added_for_report"] = extra;
-    rule["level"] = std::move(level);
-    rule["rejected"] = std::move(rejected);
+    rule["level"] = report_detail::number_column(level);
+    rule["rejected"] = report_detail::flag_column(rejected);
     if (d.summaries != nullptr && k < d.summaries->size()) {
       const ReplaySummary& s = (*d.summaries)[k];
       rule["summary"] = {{"tests", s.tests},
@@ -309,21 +366,37 @@ std::string render_replay_report(const ReplayReportData& d) {
                          {"fdp", optional_json(s.fdp)},
                          {"power", optional_json(s.power)}};
     }
-    if (proc.name == "bh" && bh_name.empty()) bh_name = proc.name;
     rules.push_back(std::move(rule));
   }
+  return rules;
+}
+
+Json replay_data(const ReplayReportData& d) {
+  const CompactLog& log = *d.log;
+  const std::size_t n = log.size();
+  std::vector<bool> keep(n);
   Json data;
   data["report"] = "replay";
-  data["format"] = 1;
+  data["format"] = kDataFormat;
   data["source"] = log.source;
   data["tests"] = n;
   data["has_truth"] = log.has_truth;
   data["generated_at"] = timestamp_text(d.generated_at_ms);
-  data["input"] = std::move(input);
-  data["rules"] = std::move(rules);
-  data["hindsight"] = bh_name.empty() ? Json(nullptr) : Json(bh_name);
+  data["input"] = replay_input(d);
+  data["rules"] = replay_rules(d, keep);
+  bool bh = false;
+  for (const auto& proc : d.result->procedures) bh = bh || proc.name == "bh";
+  data["hindsight"] = bh ? Json("bh") : Json(nullptr);
   data["drawn"] = drawing_indices(n, keep, kMaxDrawnPoints);
+  return data;
+}
 
+}  // namespace
+
+std::string render_replay_report(const ReplayReportData& d) {
+  const CompactLog& log = *d.log;
+  const ReplayResult& r = *d.result;
+  const std::size_t n = log.size();
   const std::string title = "Replay of " + log.source;
   const std::string subtitle =
       std::to_string(n) + " tests decided in order by " + std::to_string(r.procedures.size()) + " procedure" +
@@ -366,14 +439,15 @@ std::string render_replay_report(const ReplayReportData& d) {
       "rejected, a discovery). <label><input type=\"checkbox\" id=\"only-discoveries\"> only tests some "
       "rule rejects</label></p>\n";
   body += "<div class=\"table-box\" id=\"tests-table\"></div>\n</section>\n";
-  return page("replay", title, subtitle, body, data);
+  return page("replay", title, subtitle, body, replay_data(d));
 }
 
 // ---- Simulation ----------------------------------------------------------------------------------
 
-std::string render_simulation_report(const SimulationReportData& d) {
+namespace {
+
+Json simulation_rows(const SimulationReportData& d, double& target) {
   Json rows = Json::array();
-  double target = 0.05;
   for (std::size_t v = 0; v < d.values.size(); ++v) {
     for (const ProcedureSummary& s : d.summaries[v]) {
       target = s.target;
@@ -398,6 +472,18 @@ std::string render_simulation_report(const SimulationReportData& d) {
       rows.push_back(std::move(row));
     }
   }
+  return rows;
+}
+
+std::string swept_label(const std::string& parameter) {
+  return parameter == "nonnull_fraction" ? "non-null fraction"
+         : parameter == "effect"         ? "effect (mean z of a non-null test)"
+         : parameter == "mean_duration"  ? "mean duration (launches between launch and finish)"
+                                         : std::string();
+}
+
+Json simulation_data(const SimulationReportData& d, double& target) {
+  Json rows = simulation_rows(d, target);
   const SimulationModel& m = d.model;
   Json model = {{"tests", m.tests},
                 {"nonnull_fraction", m.nonnull_fraction},
@@ -408,16 +494,11 @@ std::string render_simulation_report(const SimulationReportData& d) {
                 {"correlation", correlation_text(m.correlation)},
                 {"mean_duration", m.mean_duration},
                 {"peeking_looks", d.peeking_looks}};
-  const std::string swept_label =
-      d.parameter == "nonnull_fraction" ? "non-null fraction"
-      : d.parameter == "effect"         ? "effect (mean z of a non-null test)"
-      : d.parameter == "mean_duration"  ? "mean duration (launches between launch and finish)"
-                                        : std::string();
   Json data;
   data["report"] = "simulation";
-  data["format"] = 1;
+  data["format"] = kDataFormat;
   data["swept"] = d.parameter.empty() ? Json(nullptr) : Json(d.parameter);
-  data["swept_label"] = swept_label;
+  data["swept_label"] = swept_label(d.parameter);
   data["values"] = d.values;
   data["model"] = std::move(model);
   data["runs"] = d.runs;
@@ -425,18 +506,19 @@ std::string render_simulation_report(const SimulationReportData& d) {
   data["target"] = target;
   data["generated_at"] = timestamp_text(d.generated_at_ms);
   data["rows"] = std::move(rows);
+  return data;
+}
 
+std::string simulation_settings(const SimulationReportData& d, double target) {
+  const SimulationModel& m = d.model;
+  const std::string swept = swept_label(d.parameter);
   std::string values_text;
   for (double v : d.values) values_text += (values_text.empty() ? "" : ", ") + format_rounded(v);
-  const std::string title = "Simulation" + (d.parameter.empty() ? std::string() : " across " + swept_label);
-  const std::string subtitle = std::to_string(d.runs) + " simulated streams of " + std::to_string(m.tests) +
-                               " one-sided z-tests per setting, seed " + std::to_string(d.seed) +
-                               "; report made " + timestamp_text(d.generated_at_ms);
   std::string body;
   body += "<section id=\"settings\">\n<h2>Settings</h2>\n";
   body += definition_rows({
       {"swept",
-       d.parameter.empty() ? std::string("nothing (one setting)") : swept_label + ": " + values_text},
+       d.parameter.empty() ? std::string("nothing (one setting)") : swept + ": " + values_text},
       {"tests per stream", std::to_string(m.tests)},
       {"streams per setting", std::to_string(d.runs)},
       {"non-null fraction", d.parameter == "nonnull_fraction" ? "swept" : format_rounded(m.nonnull_fraction)},
@@ -459,8 +541,13 @@ std::string render_simulation_report(const SimulationReportData& d) {
       "<p>Every rule decides the very same simulated p-values in each stream, and every setting uses the "
       "same seed, so differences between rules and between settings are not noise from different "
       "draws. Error bars are plus or minus 2 Monte Carlo standard errors over the streams.</p>\n";
+  return body;
+}
+
+std::string simulation_charts(const SimulationReportData& d, double target) {
+  const std::string x = d.parameter.empty() ? std::string("the one setting") : swept_label(d.parameter);
+  std::string body;
   body += "</section>\n<section id=\"charts\">\n<h2>Error rate and power</h2>\n";
-  const std::string x = d.parameter.empty() ? std::string("the one setting") : swept_label;
   body += figure("chart-fdr", "Realized FDR per rule",
                  "Line chart with error bars: realized FDR of each rule across " + x + ", with the target " +
                      format_rounded(target) + " as a dashed black line. The numbers are in the table below.",
@@ -477,7 +564,22 @@ std::string render_simulation_report(const SimulationReportData& d) {
       "<p>One row per setting and rule, as the CSV output of the same run, plus the promise and the check "
       "(ABOVE TARGET: the realized promised rate is above the target by more than 3 standard errors).</p>\n";
   body += "<div class=\"table-box\" id=\"results-table\"></div>\n</section>\n";
-  return page("simulation", title, subtitle, body, data);
+  return body;
+}
+
+}  // namespace
+
+
+std::string render_simulation_report(const SimulationReportData& d) {
+  double target = 0.05;
+  Json data = simulation_data(d, target);
+  const std::string swept = swept_label(d.parameter);
+  const std::string title = "Simulation" + (d.parameter.empty() ? std::string() : " across " + swept);
+  const std::string subtitle = std::to_string(d.runs) + " simulated streams of " + std::to_string(d.model.tests) +
+                               " one-sided z-tests per setting, seed " + std::to_string(d.seed) +
+                               "; report made " + timestamp_text(d.generated_at_ms);
+  return page("simulation", title, subtitle, simulation_settings(d, target) + simulation_charts(d, target),
+              std::move(data));
 }
 
 }  // namespace alphaledger

@@ -2,7 +2,10 @@
 #include <doctest/doctest.h>
 
 #include <nlohmann/json.hpp>
+#include <algorithm>
 #include <map>
+#include <sstream>
+#include <vector>
 #include <string>
 
 #include "support/process.hpp"
@@ -117,4 +120,85 @@ TEST_CASE("explain: tests launched before others finished get the level reserved
     CHECK(abandoned.exit_code == 3);
     CHECK(abandoned.err.find("was abandoned") != std::string::npos);
   }
+}
+
+TEST_CASE("explain --log: a log with launched_at is explained at launch time, as replay decides it") {
+  // Each test's explained level must be the level replay gives it (the level reserved at its
+  // launch: docs/formats.md "Launch times"), its terms must add up to it to 1e-12 relative (common
+  // practice, no source), and `running` lists the tests launched and not finished at that launch.
+  const alphaledger::test_support::TempDir dir;
+  const std::string log = dir.write("l.csv",
+                                    "id,launched_at,finished_at,p_value\n"
+                                    "a,1,5,0.00001\n"
+                                    "b,2,3,0.4\n"
+                                    "c,4,8,0.002\n"
+                                    "d,6,7,0.9\n"
+                                    "e,6,9,0.03\n");
+  const std::map<std::string, std::vector<std::string>> running_at_launch = {
+      {"a", {}}, {"b", {"a"}}, {"c", {"a"}}, {"d", {"c"}}, {"e", {"c", "d"}}};
+  for (const std::string rule : {"lord++", "saffron", "addis", "alpha-investing", "lond"}) {
+    CAPTURE(rule);
+    const auto replay = run_alphaledger({"replay", log, "--rules", rule});
+    REQUIRE(replay.exit_code == 0);
+    std::map<std::string, double> level;  // id -> level, from replay's CSV
+    std::istringstream lines(replay.out);
+    const auto split = [](const std::string& line) {
+      std::vector<std::string> cells;
+      std::istringstream in(line);
+      for (std::string c; std::getline(in, c, ',');) cells.push_back(c);
+      return cells;
+    };
+    std::string line;
+    std::getline(lines, line);
+    const auto header = split(line);
+    const auto column = [&](const std::string& name) {
+      return static_cast<std::size_t>(std::find(header.begin(), header.end(), name) - header.begin());
+    };
+    while (std::getline(lines, line)) {
+      const auto cells = split(line);
+      REQUIRE(cells.size() == header.size());
+      level[cells.at(column("id"))] = std::strtod(cells.at(column("level")).c_str(), nullptr);
+    }
+    REQUIRE(level.size() == 5);
+    for (const auto& [id, expected_running] : running_at_launch) {
+      CAPTURE(id);
+      const auto r = run_alphaledger({"--json", "explain", "--log", log, "--rule", rule, "--id", id});
+      INFO(r.err);
+      REQUIRE(r.exit_code == 0);
+      const auto j = nlohmann::json::parse(r.out);
+      CHECK(j["level"].get<double>() == level.at(id));
+      double sum = 0;
+      for (const auto& t : j["terms"]) sum += t["amount"].get<double>();
+      const double bound = j["cap"].is_null() ? sum : j["cap"]["value"].get<double>();
+      CHECK(bound == doctest::Approx(j["level"].get<double>()).epsilon(1e-12));
+      std::vector<std::string> running;
+      double reserved = 0;
+      for (const auto& t : j["running"]["tests"]) {
+        running.push_back(t["id"].get<std::string>());
+        reserved += t["level"].get<double>();
+        CHECK(t["level"].get<double>() == level.at(t["id"].get<std::string>()));
+      }
+      CHECK(running == expected_running);
+      CHECK(j["running"]["reserved"].get<double>() == reserved);
+      CHECK(j["running"]["explained_test_running"] == false);
+    }
+  }
+}
+
+TEST_CASE("explain --json: `running` says whether the explained test is still running") {
+  const alphaledger::test_support::TempDir dir;
+  const std::string db = dir.path() + "/db";
+  REQUIRE(run_alphaledger({"--ledger", db, "new", "s", "--rule", "lord++"}).exit_code == 0);
+  REQUIRE(run_alphaledger({"--ledger", db, "launch", "s", "--id", "a"}).exit_code == 0);
+  REQUIRE(run_alphaledger({"--ledger", db, "launch", "s", "--id", "b"}).exit_code == 0);
+  const auto b = nlohmann::json::parse(run_alphaledger({"--ledger", db, "--json", "explain", "s", "--id", "b"}).out);
+  CHECK(b["running"]["explained_test_running"] == true);
+  REQUIRE(b["running"]["tests"].size() == 1);
+  CHECK(b["running"]["tests"][0]["id"] == "a");
+  CHECK(b["running"]["tests"][0]["launch"] == 1);
+  const auto next = nlohmann::json::parse(run_alphaledger({"--ledger", db, "--json", "explain", "s"}).out);
+  CHECK(next["running"]["explained_test_running"] == false);
+  CHECK(next["running"]["tests"].size() == 2);
+  const auto text = run_alphaledger({"--ledger", db, "explain", "s"});
+  CHECK(text.out.find("running when it was set: 2 tests reserving ") != std::string::npos);
 }

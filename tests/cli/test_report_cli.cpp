@@ -5,9 +5,12 @@
 #include <doctest/doctest.h>
 #include <unistd.h>
 
+#include <cmath>
 #include <cstdlib>
+#include <cstring>
 #include <filesystem>
 #include <fstream>
+#include <algorithm>
 #include <map>
 #include <nlohmann/json.hpp>
 #include <regex>
@@ -116,6 +119,153 @@ nlohmann::json embedded_data(const std::string& html_path) {
   return nlohmann::json::parse(html.substr(start + open.size(), end - start - open.size()));
 }
 
+// ---- The data block's column forms (src/harness/report_encode.hpp), decoded independently of the
+// page's script, so that the numbers can be compared with the CSV bit for bit. -------------------
+
+std::string base64_decode(const std::string& text) {
+  static const std::string kDigits = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+  std::string out;
+  std::uint32_t bits = 0;
+  int have = 0;
+  for (char c : text) {
+    if (c == '=') break;
+    const auto v = kDigits.find(c);
+    REQUIRE(v != std::string::npos);
+    bits = (bits << 6) | static_cast<std::uint32_t>(v);
+    have += 6;
+    if (have >= 8) {
+      have -= 8;
+      out += static_cast<char>((bits >> have) & 0xFF);
+    }
+  }
+  return out;
+}
+
+// Doubles; null entries of a plain array become NaN.
+std::vector<double> decode_numbers(const nlohmann::json& c, const std::vector<double>& ref = {}) {
+  std::vector<double> out;
+  if (c.is_array()) {
+    for (const auto& v : c) out.push_back(v.is_null() ? std::nan("") : v.get<double>());
+    return out;
+  }
+  const std::size_t n = c.at("count").get<std::size_t>();
+  if (c.contains("same")) return std::vector<double>(n, c["same"].get<double>());
+  const std::string bytes = base64_decode(c.at("f64").get<std::string>());
+  REQUIRE(bytes.size() % 8 == 0);
+  std::vector<double> written(bytes.size() / 8);
+  for (std::size_t i = 0; i < written.size(); ++i) {
+    std::uint64_t u = 0;
+    for (int b = 7; b >= 0; --b) u = (u << 8) | static_cast<unsigned char>(bytes[8 * i + static_cast<std::size_t>(b)]);
+    std::memcpy(&written[i], &u, 8);
+  }
+  if (!c.contains("codes")) return written;
+  const std::string codes = c["codes"].get<std::string>();
+  double prev = c.at("before").get<double>();
+  std::size_t next = 0;
+  for (std::size_t i = 0; i < codes.size();) {
+    const char code = codes[i++];
+    std::size_t times = 0;
+    while (i < codes.size() && std::isdigit(static_cast<unsigned char>(codes[i]))) times = 10 * times + (codes[i++] - '0');
+    for (std::size_t k = 0; k < std::max<std::size_t>(times, 1); ++k) {
+      if (code == 'x') {
+        REQUIRE(next < written.size());
+        prev = written[next++];
+      } else if (code == 'l') {
+        REQUIRE(out.size() < ref.size());
+        prev = prev - ref[out.size()] / c.at("divisor").get<double>();
+      } else {
+        REQUIRE(code == 'r');
+      }
+      out.push_back(prev);
+    }
+  }
+  REQUIRE(out.size() == n);
+  REQUIRE(next == written.size());
+  return out;
+}
+
+std::vector<std::int64_t> decode_integers(const nlohmann::json& c) {
+  if (c.is_array()) return c.get<std::vector<std::int64_t>>();
+  std::vector<std::int64_t> out;
+  std::int64_t v = c.at("first").get<std::int64_t>();
+  std::size_t large = 0;
+  for (std::size_t i = 0; i < c.at("count").get<std::size_t>(); ++i) {
+    if (i > 0 && c.contains("every")) v += c["every"].get<std::int64_t>();
+    if (i > 0 && c.contains("diffs")) v += c["diffs"].at(i - 1).get<std::int64_t>();
+    if (i > 0 && c.contains("small_diffs")) {
+      static const std::string kDigits = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+      const auto digit = kDigits.find(c["small_diffs"].get<std::string>().at(i - 1));
+      v += digit == 63 ? c.at("large").at(large++).get<std::int64_t>() : static_cast<std::int64_t>(digit);
+    }
+    out.push_back(v);
+  }
+  return out;
+}
+
+std::vector<int> decode_flags(const nlohmann::json& c) {
+  if (c.is_array()) return c.get<std::vector<int>>();
+  std::vector<int> out(c.at("count").get<std::size_t>(), 0);
+  for (const auto& i : c.at("set")) out.at(i.get<std::size_t>()) = 1;
+  return out;
+}
+
+// Bytes of the first `units` UTF-16 units of UTF-8 text.
+std::size_t utf16_prefix_bytes(const std::string& s, std::size_t units) {
+  std::size_t i = 0;
+  while (units > 0 && i < s.size()) {
+    const auto b = static_cast<unsigned char>(s[i]);
+    const std::size_t len = b < 0x80 ? 1 : b >= 0xF0 ? 4 : b >= 0xE0 ? 3 : 2;
+    units -= len == 4 ? std::min<std::size_t>(units, 2) : 1;
+    i += len;
+  }
+  return i;
+}
+
+std::vector<std::string> decode_texts(const nlohmann::json& c) {
+  if (c.is_array()) return c.get<std::vector<std::string>>();
+  std::vector<std::string> out;
+  const std::size_t n = c.at("count").get<std::size_t>();
+  if (c.contains("values")) {
+    static const std::string kDigits = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+    const std::string index = c.at("index").get<std::string>();
+    for (std::size_t i = 0; i < n; ++i) out.push_back(c["values"].at(kDigits.find(index.at(i))).get<std::string>());
+    return out;
+  }
+  const std::string front = c.at("front").get<std::string>();
+  std::string prev;
+  for (std::size_t pos = 0; out.size() < n;) {
+    REQUIRE(pos + 2 <= front.size());
+    const auto shared = static_cast<std::size_t>(front[pos] - '0');
+    const auto rest = static_cast<std::size_t>(front[pos + 1] - '0');
+    const std::string tail = front.substr(pos + 2);
+    const std::size_t rest_bytes = utf16_prefix_bytes(tail, rest);
+    prev = prev.substr(0, utf16_prefix_bytes(prev, shared)) + tail.substr(0, rest_bytes);
+    out.push_back(prev);
+    pos += 2 + rest_bytes;
+  }
+  REQUIRE(out.size() == n);
+  return out;
+}
+
+// The rows of the table with this caption in a dumped DOM: the text of each cell.
+std::vector<std::vector<std::string>> dom_table(const std::string& dom, const std::string& caption) {
+  std::vector<std::vector<std::string>> rows;
+  const auto at = dom.find("<caption>" + caption + "</caption>");
+  REQUIRE_MESSAGE(at != std::string::npos, "no table '" << caption << "' in the page");
+  const auto body = dom.find("<tbody>", at);
+  const auto end = dom.find("</tbody>", body);
+  const std::string text = dom.substr(body, end - body);
+  const std::regex row_re("<tr>(.*?)</tr>"), cell_re("<td[^>]*>([^<]*)</td>");
+  for (auto r = std::sregex_iterator(text.begin(), text.end(), row_re); r != std::sregex_iterator(); ++r) {
+    const std::string row = (*r)[1].str();
+    rows.emplace_back();
+    for (auto c = std::sregex_iterator(row.begin(), row.end(), cell_re); c != std::sregex_iterator(); ++c) {
+      rows.back().push_back((*c)[1].str());
+    }
+  }
+  return rows;
+}
+
 // A CSV without quoted fields (the ids of these logs have none): header name -> column per row.
 std::vector<std::map<std::string, std::string>> parse_csv(const std::string& text) {
   std::vector<std::map<std::string, std::string>> rows;
@@ -155,6 +305,16 @@ void check_same(const nlohmann::json& j, const std::string& csv) {
   }
 }
 
+// A decoded double (NaN for null) against a CSV field (empty for null): the same double.
+void check_same(double v, const std::string& csv) {
+  CAPTURE(csv);
+  if (csv.empty()) {
+    CHECK(std::isnan(v));
+  } else {
+    CHECK(v == num(csv));
+  }
+}
+
 }  // namespace
 
 TEST_CASE("ReportCli: a stream report holds the ledger's history and draws in a browser") {
@@ -170,24 +330,47 @@ TEST_CASE("ReportCli: a stream report holds the ledger's history and draws in a 
 
   const auto rows = parse_csv(history.out);
   const auto data = embedded_data(html);
+  CHECK(data["format"] == 2);
   const auto& d = data["decisions"];
+  const auto step = decode_integers(d["step"]);
+  const auto id = decode_texts(d["id"]);
+  const auto p = decode_numbers(d["p_value"]);
+  const auto level = decode_numbers(d["level"]);
+  const auto rejected = decode_flags(d["rejected"]);
+  const auto wealth = decode_numbers(d["wealth"], level);
+  CHECK(d["wealth"].contains("codes"));  // saffron's wealth follows its levels: the compact form is used
   REQUIRE(rows.size() == 420);
-  REQUIRE(d["step"].size() == rows.size());
+  REQUIRE(step.size() == rows.size());
+  REQUIRE(id.size() == rows.size());
+  REQUIRE(wealth.size() == rows.size());
   for (std::size_t i = 0; i < rows.size(); ++i) {
     CAPTURE(i);
-    CHECK(d["step"][i].get<std::uint64_t>() == std::stoull(rows[i].at("step")));
-    CHECK(d["id"][i] == rows[i].at("id"));
-    check_same(d["p_value"][i], rows[i].at("p_value"));
-    check_same(d["level"][i], rows[i].at("level"));
-    CHECK(d["rejected"][i] == std::stoi(rows[i].at("rejected")));
-    check_same(d["wealth"][i], rows[i].at("wealth"));
+    CHECK(step[i] == std::stoll(rows[i].at("step")));
+    CHECK(id[i] == rows[i].at("id"));
+    check_same(p[i], rows[i].at("p_value"));
+    check_same(level[i], rows[i].at("level"));
+    CHECK(rejected[i] == std::stoi(rows[i].at("rejected")));
+    check_same(wealth[i], rows[i].at("wealth"));
   }
   // Every test decided at once: nothing was ever running.
-  REQUIRE(data["reserved_wealth"].size() == rows.size());
-  for (const auto& v : data["reserved_wealth"]) CHECK(v.get<double>() == 0.0);
-  CHECK(data["running"]["id"].empty());
+  const auto reserved = decode_numbers(data["reserved_wealth"]);
+  REQUIRE(reserved.size() == rows.size());
+  for (const double v : reserved) CHECK(v == 0.0);
+  CHECK(decode_texts(data["running"]["id"]).empty());
   CHECK(slurp(html).find("pre-registered analysis plan") != std::string::npos);
   check_in_browser(html, 3, s);
+  // The page's own decoding gives the same numbers: its table of decisions against the CSV.
+  const auto table = dom_table(run_chromium(html, "--dump-dom", s), "Decisions of stream larkspur");
+  REQUIRE(table.size() == rows.size());
+  for (std::size_t i = 0; i < rows.size(); ++i) {
+    CAPTURE(i);
+    REQUIRE(table[i].size() == 9);  // step, id, p_value, level, decision, wealth, reserved, discoveries, decided_at
+    CHECK(table[i][0] == rows[i].at("step"));
+    CHECK(table[i][1] == rows[i].at("id"));
+    CHECK(num(table[i][2]) == num(rows[i].at("p_value")));
+    CHECK(num(table[i][3]) == num(rows[i].at("level")));
+    CHECK(num(table[i][5]) == num(rows[i].at("wealth")));
+  }
 }
 
 TEST_CASE("ReportCli: a stream with overlapping launches shows reserved wealth and its running tests") {
@@ -212,14 +395,14 @@ TEST_CASE("ReportCli: a stream with overlapping launches shows reserved wealth a
   const auto r = run_alphaledger({"--ledger", ledger, "report", "t", "-o", html});
   REQUIRE_MESSAGE(r.exit_code == 0, r.err);
   const auto data = embedded_data(html);
-  REQUIRE(data["decisions"]["id"] == nlohmann::json::array({"a", "d", "b"}));
-  const auto& reserved = data["reserved_wealth"];
+  REQUIRE(decode_texts(data["decisions"]["id"]) == std::vector<std::string>{"a", "d", "b"});
+  const auto reserved = decode_numbers(data["reserved_wealth"]);
   REQUIRE(reserved.size() == 3);
-  CHECK(reserved[0].get<double>() == lb);
-  CHECK(reserved[1].get<double>() == lb + lc);
-  CHECK(reserved[2].get<double>() == lc);
-  CHECK(data["running"]["id"] == nlohmann::json::array({"c"}));
-  CHECK(data["running"]["level"][0].get<double>() == lc);
+  CHECK(reserved[0] == lb);
+  CHECK(reserved[1] == lb + lc);
+  CHECK(reserved[2] == lc);
+  CHECK(decode_texts(data["running"]["id"]) == std::vector<std::string>{"c"});
+  CHECK(decode_numbers(data["running"]["level"]).at(0) == lc);
   CHECK(data["reserved"].get<double>() == json({"status", "t"})["reserved"].get<double>());
   const std::string page = slurp(html);
   CHECK(page.find("id=\"running-table\"") != std::string::npos);
@@ -242,16 +425,28 @@ TEST_CASE("ReportCli: a replay report equals replay's CSV, with FDP and power, a
   REQUIRE(data["rules"].size() == 4);
   const std::size_t n = data["tests"].get<std::size_t>();
   REQUIRE(rows.size() == 4 * n);
+  const auto ids = decode_texts(data["input"]["id"]);
+  const auto p = decode_numbers(data["input"]["p_value"]);
+  REQUIRE(ids.size() == n);
+  REQUIRE(p.size() == n);
+  std::vector<std::vector<double>> levels;
+  std::vector<std::vector<int>> rejected;
+  for (const auto& rule : data["rules"]) {
+    levels.push_back(decode_numbers(rule["level"]));
+    rejected.push_back(decode_flags(rule["rejected"]));
+    REQUIRE(levels.back().size() == n);
+    REQUIRE(rejected.back().size() == n);
+  }
+  CHECK(data["rules"][3]["level"].contains("same"));  // bh: one level for every test, written once
   for (std::size_t k = 0; k < rows.size(); ++k) {
     const auto& rule = data["rules"][k / n];
     const std::size_t i = k % n;
     CAPTURE(k);
     CHECK(rule["rule"] == rows[k].at("rule"));
-    CHECK(data["input"]["id"][i] == rows[k].at("id"));
-    check_same(data["input"]["p_value"][i], rows[k].at("p_value"));
-    check_same(rule["level"][i], rows[k].at("level"));
-    CHECK(rule["rejected"][i] == std::stoi(rows[k].at("rejected")));
-    if (rule.contains("wealth")) check_same(rule["wealth"][i], rows[k].at("wealth"));
+    CHECK(ids[i] == rows[k].at("id"));
+    check_same(p[i], rows[k].at("p_value"));
+    check_same(levels[k / n][i], rows[k].at("level"));
+    CHECK(rejected[k / n][i] == std::stoi(rows[k].at("rejected")));
   }
   const auto sums = parse_csv(summary.out);
   REQUIRE(sums.size() == 4);
@@ -265,6 +460,20 @@ TEST_CASE("ReportCli: a replay report equals replay's CSV, with FDP and power, a
   CHECK(data["has_truth"] == true);
   CHECK(data["hindsight"] == "bh");
   check_in_browser(html, 2, s);
+  // The page's own decoding: its per-test table (id, line, p_value, finished_at, is_null, then a
+  // level and a decision per rule) against the CSV.
+  const auto table = dom_table(run_chromium(html, "--dump-dom", s), "Per test, in the order decided");
+  REQUIRE(table.size() == std::min<std::size_t>(n, 1000));
+  for (std::size_t i = 0; i < table.size(); ++i) {
+    CAPTURE(i);
+    REQUIRE(table[i].size() == 5 + 2 * 4);
+    CHECK(table[i][0] == ids[i]);
+    CHECK(num(table[i][2]) == p[i]);
+    for (std::size_t k = 0; k < 4; ++k) {
+      CHECK(num(table[i][5 + 2 * k]) == num(rows[k * n + i].at("level")));
+      CHECK((table[i][6 + 2 * k] == "R") == (rows[k * n + i].at("rejected") == "1"));
+    }
+  }
 }
 
 TEST_CASE("ReportCli: replay without bh adds the hindsight answer to the report only") {
@@ -288,13 +497,18 @@ TEST_CASE("ReportCli: replay without bh adds the hindsight answer to the report 
   REQUIRE(input["columns"].contains("team"));
   REQUIRE(input["columns"].contains("metric"));
   CHECK_FALSE(input["columns"].contains("p_value"));
+  const auto ids = decode_texts(input["id"]);
+  const auto line_of = decode_integers(input["line"]);
+  const auto team = decode_texts(input["columns"]["team"]);
+  const auto metric = decode_texts(input["columns"]["metric"]);
+  REQUIRE(line_of.size() == ids.size());
+  REQUIRE(team.size() == ids.size());
+  REQUIRE(metric.size() == ids.size());
   std::size_t reordered = 0;
-  for (std::size_t i = 0; i < input["id"].size(); ++i) {
-    const std::size_t line = input["line"][i].get<std::size_t>();
+  for (std::size_t i = 0; i < ids.size(); ++i) {
+    const auto line = static_cast<std::size_t>(line_of[i]);
     reordered += line != i + 2 ? 1 : 0;
-    const std::string expect = input["id"][i].get<std::string>() + "," +
-                               input["columns"]["team"][i].get<std::string>() + "," +
-                               input["columns"]["metric"][i].get<std::string>() + ",";
+    const std::string expect = ids[i] + "," + team[i] + "," + metric[i] + ",";
     CHECK(lines[line - 1].rfind(expect, 0) == 0);
   }
   CHECK(reordered > 0);  // the file is not in time order, so the matching by line was exercised
@@ -462,12 +676,103 @@ std::string firefox_path() {
   }
   return "";
 }
+
+std::string base64_encode(const std::string& bytes) {
+  static const char kDigits[] = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+  std::string out;
+  for (std::size_t i = 0; i < bytes.size(); i += 3) {
+    std::uint32_t v = static_cast<std::uint32_t>(static_cast<unsigned char>(bytes[i])) << 16;
+    if (i + 1 < bytes.size()) v |= static_cast<std::uint32_t>(static_cast<unsigned char>(bytes[i + 1])) << 8;
+    if (i + 2 < bytes.size()) v |= static_cast<unsigned char>(bytes[i + 2]);
+    out += kDigits[(v >> 18) & 63];
+    out += kDigits[(v >> 12) & 63];
+    out += i + 1 < bytes.size() ? kDigits[(v >> 6) & 63] : '=';
+    out += i + 2 < bytes.size() ? kDigits[v & 63] : '=';
+  }
+  return out;
+}
+
+// What a screenshot shows, counted in pixels: the error banner's red (#c00000, report_assets.hpp)
+// and the blue every report's charts draw with (#0072B2, the first colour of the palette, used
+// nowhere else on the page). The PNG is decoded by headless Chromium: a small page holds it as a
+// data: URL, draws it on a canvas and writes the counts into <body>.
+struct ScreenshotColours {
+  long width = -1;
+  long banner = -1;
+  long chart = -1;
+};
+
+ScreenshotColours screenshot_colours(const std::string& png, const Scratch& s) {
+  const std::string probe = s / "probe.html";
+  std::ofstream(probe) << "<!DOCTYPE html><html><body><img id=\"shot\" src=\"data:image/png;base64,"
+                       << base64_encode(slurp(png)) << R"(">
+<script>
+var img = document.getElementById('shot');
+function count() {
+  var c = document.createElement('canvas');
+  c.width = img.naturalWidth; c.height = img.naturalHeight;
+  var g = c.getContext('2d');
+  g.drawImage(img, 0, 0);
+  var d = g.getImageData(0, 0, c.width, c.height).data, banner = 0, chart = 0;
+  function near(i, r, gr, b) { return Math.abs(d[i] - r) <= 12 && Math.abs(d[i + 1] - gr) <= 12 && Math.abs(d[i + 2] - b) <= 12; }
+  for (var i = 0; i < d.length; i += 4) {
+    if (near(i, 0xc0, 0x00, 0x00)) banner++;
+    if (near(i, 0x00, 0x72, 0xb2)) chart++;
+  }
+  document.body.setAttribute('data-width', String(c.width));
+  document.body.setAttribute('data-banner', String(banner));
+  document.body.setAttribute('data-chart', String(chart));
+}
+if (img.complete) count(); else img.onload = count;
+</script></body></html>
+)";
+  const std::string dom = run_chromium(probe, "--dump-dom", s);
+  const auto at = dom.find("<body");
+  REQUIRE(at != std::string::npos);
+  const std::string body = dom.substr(at, dom.find('>', at) - at);
+  ScreenshotColours c;
+  const auto read = [&](const char* name) {
+    const std::string v = attribute(body, name);
+    return v.empty() ? -1L : std::atol(v.c_str());
+  };
+  c.width = read("data-width");
+  c.banner = read("data-banner");
+  c.chart = read("data-chart");
+  return c;
+}
+
+// A screenshot of `html` by headless Firefox, at 1200 x 2400.
+std::string firefox_screenshot(const std::string& firefox, const std::string& html, const std::string& name,
+                               const Scratch& s) {
+  const std::string png = s / (name + ".png");
+  const std::string home = s / ("home-" + name);  // a profile of its own, removed with the folder
+  fs::create_directories(home);
+  const std::string command = "HOME='" + home + "' timeout 180 '" + firefox +
+                              "' --headless --window-size=1200,2400 --screenshot '" + png + "' 'file://" + html +
+                              "' > /dev/null 2>&1";
+  const int rc = std::system(command.c_str());
+  CHECK_MESSAGE(rc == 0, "firefox failed: " << command);
+  const std::string image = slurp(png);
+  REQUIRE(image.size() > 8);
+  CHECK(image.compare(0, 8, "\x89PNG\r\n\x1a\n") == 0);
+  return png;
+}
+
+// A copy of a report with a script that throws after the page's own scripts.
+std::string with_script_error(const std::string& html, const std::string& copy) {
+  const std::string page = slurp(html);
+  const auto end = page.rfind("</body>");
+  REQUIRE(end != std::string::npos);
+  std::ofstream(copy) << page.substr(0, end) << "<script>throw new Error('boom');</script>\n" << page.substr(end);
+  return copy;
+}
+
 }  // namespace
 
-TEST_CASE("ReportCli: each report type renders in headless Firefox") {
-  // Firefox headless has no DOM dump: this checks that each page loads and renders to a full-page
-  // screenshot of a drawn page's size. The script-error and chart-drawn marks are checked in
-  // Chromium above. Skipped, with a message, when Firefox is not installed.
+TEST_CASE("ReportCli: each report type renders in headless Firefox, charts drawn and no error banner") {
+  // Firefox headless has no DOM dump: its screenshot of each page must show the charts' colour and
+  // not the error banner's, and a copy of a page with a script error must show the banner (so the
+  // check can fail). Skipped, with a message, when Firefox is not installed.
   const std::string firefox = firefox_path();
   if (firefox.empty()) {
     MESSAGE("firefox is not installed: skipped (scripts/install-deps.sh installs Debian's firefox-esr; "
@@ -485,19 +790,28 @@ TEST_CASE("ReportCli: each report type renders in headless Firefox") {
               .exit_code == 0);
   for (const std::string name : {"stream", "replay", "sim"}) {
     CAPTURE(name);
-    const std::string png = s / (name + ".png");
-    const std::string home = s / ("home-" + name);  // a profile of its own, removed with the folder
-    fs::create_directories(home);
-    const std::string command = "HOME='" + home + "' timeout 180 '" + firefox +
-                                "' --headless --window-size=1200,2400 --screenshot '" + png + "' 'file://" +
-                                s / (name + ".html") + "' > /dev/null 2>&1";
-    const int rc = std::system(command.c_str());
-    CHECK_MESSAGE(rc == 0, "firefox failed: " << command);
-    const std::string image = slurp(png);
-    REQUIRE(image.size() > 8);
-    CHECK(image.compare(0, 8, "\x89PNG\r\n\x1a\n") == 0);
-    // Measured with firefox-esr 153 at 1200x2400: an empty page gives a 56 KB PNG, the smallest
-    // report here (the simulation) about 330 KB; a page that drew nothing would be near the former.
-    CHECK(image.size() > 150000);
+    const auto c = screenshot_colours(firefox_screenshot(firefox, s / (name + ".html"), name, s), s);
+    CHECK(c.width == 1200);
+    CHECK(c.banner == 0);    // no script error
+    CHECK(c.chart > 1000);   // the charts drew (a page without them has none of this blue)
   }
+  // The same check sees a script error: the banner fills a strip across the top of the page.
+  const std::string thrown = with_script_error(s / "replay.html", s / "thrown.html");
+  const auto bad = screenshot_colours(firefox_screenshot(firefox, thrown, "thrown", s), s);
+  CHECK(bad.banner > 20000);
+}
+
+TEST_CASE("ReportCli: a Chromium screenshot shows the error banner for a page with a script error") {
+  Scratch s("banner");
+  const std::string good = s / "good.html";
+  REQUIRE(run_alphaledger({"replay", kTruthLog, "--rules", "lord++", "--report", good}).exit_code == 0);
+  const std::string png = s / "good.png";
+  run_chromium(good, "--screenshot='" + png + "'", s);
+  const auto ok = screenshot_colours(png, s);
+  CHECK(ok.banner == 0);
+  CHECK(ok.chart > 1000);
+  const std::string thrown = with_script_error(good, s / "thrown.html");
+  const std::string bad_png = s / "thrown.png";
+  run_chromium(thrown, "--screenshot='" + bad_png + "'", s);
+  CHECK(screenshot_colours(bad_png, s).banner > 20000);
 }

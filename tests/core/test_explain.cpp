@@ -131,3 +131,45 @@ TEST_CASE("explain: saffron's lambda cap is reported when it binds") {
   CHECK(e->level == 0.1);
   CHECK(e->uncapped > 0.1);
 }
+
+TEST_CASE("explain: with overlapping launches the terms add up to the level, and the running tests are listed") {
+  // Random launch/finish/abandon sequences (launch-time levels, docs/ledger.md): before each launch
+  // the explained level must be the level the launch reserves, its terms must add up to it to 1e-12
+  // relative (common practice, no source), and `running` must be the rule's running tests.
+  const std::vector<std::string> rules = {"alpha-spending", "alpha-investing", "lond", "lord++",
+                                          "saffron",        "addis",           "e-lond"};
+  for (const auto& name : rules) {
+    for (const std::string evaluation : {"exact", "fast"}) {
+      std::mt19937_64 gen(4211);
+      std::uniform_real_distribution<double> u(0.0, 1.0);
+      Rule rule = make_rule(name, evaluation);
+      std::vector<std::uint64_t> running;
+      const std::string what = name + " " + evaluation;
+      for (int event = 0; event < 600; ++event) {
+        const double pick = u(gen);
+        if (running.empty() || pick < 0.45) {
+          check_sums(rule, what + " before launch " + std::to_string(rule.tests() + 1));
+          auto e = explain_next_level(rule);
+          REQUIRE(e.ok());
+          CHECK(e->running == rule.running());
+          const double level = e->level;
+          CHECK(rule.launch().level == level);
+          running.push_back(rule.tests());
+          continue;
+        }
+        const std::size_t k = static_cast<std::size_t>(u(gen) * static_cast<double>(running.size())) % running.size();
+        const std::uint64_t launch = running[k];
+        running.erase(running.begin() + static_cast<std::ptrdiff_t>(k));
+        if (pick > 0.95) {
+          REQUIRE(rule.abandon(launch).ok());
+          continue;
+        }
+        const bool signal = u(gen) < 0.2;
+        const auto out = name == "e-lond" ? rule.finish_e(launch, signal ? 1e3 * u(gen) : 2 * u(gen))
+                                          : rule.finish(launch, signal ? 1e-4 * u(gen) : u(gen));
+        REQUIRE(out.ok());
+      }
+      check_sums(rule, what + " at the end");
+    }
+  }
+}

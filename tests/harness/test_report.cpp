@@ -4,12 +4,15 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include <cmath>
+#include <cstring>
 #include <filesystem>
 #include <fstream>
 #include <nlohmann/json.hpp>
 #include <sstream>
 
 #include "alphaledger/report.hpp"
+#include "harness/report_encode.hpp"
 
 namespace al = alphaledger;
 namespace fs = std::filesystem;
@@ -208,7 +211,28 @@ TEST_CASE("Report: replay and simulation pages carry their data") {
   const auto data = nlohmann::json::parse(data_block(al::render_replay_report(rd)));
   CHECK(data["rules"].size() == 2);
   CHECK(data["rules"][0]["rule"] == "lord++");
-  CHECK(data["rules"][0]["level"][0].get<double>() == result.decisions[0][0].level);
+  // Four doubles in binary64 are shorter than in decimal: the level column is in the f64 form
+  // (docs/reports.md "The data block"), the first 8 bytes of its base64 the first level.
+  const auto& level = data["rules"][0]["level"];
+  REQUIRE(level.contains("f64"));
+  CHECK(level["count"] == 4);
+  {
+    static const std::string kDigits = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+    const std::string b64 = level["f64"].get<std::string>().substr(0, 12);  // 9 bytes, the first 8 used
+    std::uint64_t bits = 0, acc = 0;
+    int have = 0, got = 0;
+    for (char c : b64) {
+      acc = (acc << 6) | kDigits.find(c);
+      have += 6;
+      while (have >= 8 && got < 8) {
+        have -= 8;
+        bits |= ((acc >> have) & 0xFF) << (8 * got++);  // little-endian
+      }
+    }
+    double first = 0;
+    std::memcpy(&first, &bits, 8);
+    CHECK(first == result.decisions[0][0].level);
+  }
   CHECK(data["rules"][1]["rejected"][0] == 1);  // bh rejects 1e-6 of 4 tests at 0.05 / 4
   CHECK(data["hindsight"] == "bh");
   CHECK(data["input"]["line"][3] == 5);
@@ -252,4 +276,68 @@ TEST_CASE("Report: reserved wealth after each decision follows launches, finishe
   CHECK(reserved[0] == 0.02);     // after finish 3: test 2 runs
   CHECK(reserved[1] == 0.0);      // after finish 2: nothing runs
   CHECK(reserved[2] == 0.04);     // after test 5 (launched and decided at once): test 4 runs
+}
+
+TEST_CASE("Report: the data block's compact forms are chosen only where they give back the same numbers") {
+  // docs/reports.md "The data block"; no outside source (an encoding of our own).
+  namespace rd = alphaledger::report_detail;
+  SUBCASE("a column of one value is written once; a non-finite value keeps the plain array") {
+    const std::vector<double> same(500, 0.05 / 3);
+    const auto j = rd::number_column(same);
+    CHECK(j["same"].get<double>() == 0.05 / 3);
+    CHECK(j["count"] == 500);
+    std::vector<double> with_nan(500, 0.25);
+    with_nan[7] = std::nan("");
+    const auto plain = rd::number_column(with_nan);
+    REQUIRE(plain.is_array());
+    CHECK(plain[7].is_null());
+    CHECK(plain[8].get<double>() == 0.25);
+  }
+  SUBCASE("wealth as 'before minus the level' only where that arithmetic gives the identical double") {
+    std::vector<double> level, wealth;
+    double w = 0.025;
+    for (int i = 0; i < 200; ++i) {
+      level.push_back(0.001 / (i + 1) + 1e-7 * i);
+      w = w - level.back() / 0.5;
+      wealth.push_back(w);
+    }
+    const auto exact = rd::number_column(wealth, level, 0.025, 0.5);
+    CHECK(exact["codes"] == "l200");
+    CHECK(exact["f64"] == "");
+    // One value one ulp away from the arithmetic: that row, and only that row, is written out;
+    // the rows after it follow from it.
+    wealth[50] = std::nextafter(wealth[50], 1.0);
+    for (std::size_t i = 51; i < wealth.size(); ++i) wealth[i] = wealth[i - 1] - level[i] / 0.5;
+    const auto one_off = rd::number_column(wealth, level, 0.025, 0.5);
+    CHECK(one_off["codes"] == "l50xl149");
+    CHECK(one_off["f64"].get<std::string>().size() == 12);  // one double: 8 bytes in base64
+  }
+  SUBCASE("integers as differences, a large one kept apart") {
+    std::vector<std::int64_t> steps, times;
+    for (std::int64_t i = 0; i < 300; ++i) {
+      steps.push_back(i + 1);
+      times.push_back(1764000000000 + 3 * i + (i >= 100 ? 86400000 : 0));
+    }
+    const auto s = rd::integer_column(steps);
+    CHECK(s["first"] == 1);
+    CHECK(s["every"] == 1);
+    const auto t = rd::integer_column(times);
+    REQUIRE(t.contains("small_diffs"));
+    CHECK(t["large"] == nlohmann::ordered_json::array({86400003}));
+    CHECK(t["small_diffs"].get<std::string>()[99] == '/');  // the difference into row 100
+  }
+  SUBCASE("ids front-coded, a column of few values as indices") {
+    std::vector<std::string> ids, teams;
+    for (int i = 1; i <= 300; ++i) {
+      ids.push_back("exp-" + std::to_string(100000 + i));
+      teams.push_back(i % 3 == 0 ? "search" : "checkout");
+    }
+    const auto f = rd::text_column(ids);
+    REQUIRE(f.contains("front"));
+    CHECK(f["front"].get<std::string>().substr(0, 12) == "0:exp-100001");  // 0 shared, 10 new (':' = '0' + 10)
+    CHECK(f["front"].get<std::string>().substr(12, 3) == "912");             // 9 shared, 1 new: "2"
+    const auto t = rd::text_column(teams);
+    CHECK(t["values"] == nlohmann::ordered_json::array({"checkout", "search"}));
+    CHECK(t["index"].get<std::string>().substr(0, 3) == "AAB");
+  }
 }
