@@ -577,9 +577,6 @@ class PyLedger {
     for (const auto& r : take(open_ledger().running(stream))) rows.append(running_dict(r));
     return rows;
   }
-  py::dict running_test(const std::string& stream, const std::string& id) {
-    return running_dict(take(open_ledger().running_test(stream, id)));
-  }
 
   // `alphaledger explain STREAM [--id ID] --json`: the stream's decided tests walked through a fresh
   // Rule, stopping before `id` when one is asked for, with the CLI's checks against the ledger.
@@ -802,7 +799,6 @@ PYBIND11_MODULE(_native, m) {
       .def("launch", &PyLedger::launch)
       .def("abandon", &PyLedger::abandon)
       .def("running", &PyLedger::running)
-      .def("running_test", &PyLedger::running_test)
       .def("explain", &PyLedger::explain)
       .def("report", &PyLedger::report);
 
