@@ -578,8 +578,10 @@ class PyLedger {
     return rows;
   }
 
-  // `alphaledger explain STREAM [--id ID] --json`: the stream's decided tests walked through a fresh
-  // Rule, stopping before `id` when one is asked for, with the CLI's checks against the ledger.
+  // `alphaledger explain STREAM [--id ID] --json`, with the CLI's walk (src/cli/cmd_explain.cpp,
+  // walk_stream): the stream's launches, finishes and abandons replayed through a fresh Rule in
+  // chain order, stopping at the launch of `id` (decided or still running) when one is asked for,
+  // with the CLI's checks and messages against the ledger.
   py::dict explain(const std::string& stream, const std::optional<std::string>& id) {
     Ledger& l = open_ledger();
     auto info = take(l.status(stream));
@@ -590,25 +592,80 @@ class PyLedger {
     Status walked;
     {
       py::gil_scoped_release release;
-      walked = l.for_each_decision(stream, 1, [&](const DecisionRecord& r) {
-        if (id && r.id == *id) {
-          found = true;
-          recorded_level = r.level;
-          return false;
+      walked = [&]() -> Status {
+        auto history = l.history(stream);
+        if (!history) return history.error();
+        std::uint64_t wanted = 0;
+        std::optional<double> stored;
+        if (id) {
+          for (const auto& r : *history) {
+            if (r.id != *id) continue;
+            if (r.abandoned) {
+              return conflict("test '" + excerpt(*id) + "' of stream " + excerpt(stream) +
+                                  " was abandoned: it was never decided and its level is no longer reserved",
+                              "abandoned_test");
+            }
+            wanted = r.launch;
+            stored = r.level;
+          }
+          if (wanted == 0) {
+            auto running = l.running_test(stream, *id);
+            if (running) {
+              wanted = running->launch;
+              stored = running->level;
+            } else if (running.error().kind != ErrorKind::kNotFound) {
+              return running.error();
+            }
+          }
         }
-        const Outcome o = rule_takes_e_values(rule.config().kind) ? rule.record_e(r.p_value) : rule.record(r.p_value);
-        if (o.rejected) rejected_tests.push_back(o.step);
-        return true;
-      });
+        const auto mismatch = [&](const std::string& what) {
+          return conflict("stream " + excerpt(stream) + ": " + what + "; run 'alphaledger verify " +
+                          excerpt(stream) + "'");
+        };
+        const bool e_values = rule_takes_e_values(info.config.kind);
+        const auto launch_next = [&]() {  // false once the asked-for launch is reached
+          if (wanted != 0 && rule.tests() + 1 == wanted) {
+            found = true;
+            recorded_level = stored;
+            return false;
+          }
+          rule.launch();
+          return true;
+        };
+        std::uint64_t step = 1;
+        for (const auto& r : *history) {
+          for (; step < r.step; ++step) {
+            if (!launch_next()) return {};
+          }
+          if (r.launch == rule.tests() + 1 && !launch_next()) return {};  // launched and decided at once
+          if (r.abandoned) {
+            if (auto s = rule.abandon(r.launch); !s) {
+              return mismatch("the abandon at step " + std::to_string(r.step) +
+                              " does not replay: " + s.error().message);
+            }
+          } else {
+            auto out = e_values ? rule.finish_e(r.launch, r.p_value) : rule.finish(r.launch, r.p_value);
+            if (!out) {
+              return mismatch("the decision at step " + std::to_string(r.step) +
+                              " does not replay: " + out.error().message);
+            }
+            if (out->rejected) rejected_tests.push_back(out->step);
+          }
+          step = r.step + 1;
+        }
+        while (rule.tests() < info.tests) {  // tests still running
+          if (!launch_next()) return {};
+        }
+        if (!id && rule.next_level() != info.next_level) {
+          return mismatch("its history replayed gives the next level " + format_number(rule.next_level()) +
+                          ", the ledger says " + format_number(info.next_level));
+        }
+        return {};
+      }();
     }
     check(walked);
-    if (!id && rule.tests() == info.tests && rule.next_level() != info.next_level) {
-      raise(conflict("stream " + excerpt(stream) + ": its history replayed gives the next level " +
-                     format_number(rule.next_level()) + ", the ledger says " + format_number(info.next_level) +
-                     "; run 'alphaledger verify " + excerpt(stream) + "'"));
-    }
     if (id && !found) {
-      raise(not_found("no decided test with id '" + excerpt(*id) + "' in stream " + excerpt(stream) +
+      raise(not_found("no decided or running test with id '" + excerpt(*id) + "' in stream " + excerpt(stream) +
                           " (without id, explain gives the next level)",
                       "unknown_test"));
     }

@@ -178,7 +178,9 @@ class SimulateOverlapAndPeeking(unittest.TestCase):
     def test_bad_overlap_and_peeking(self):
         with self.assertRaises(al.InvalidInput) as ctx:
             al.simulate("lord++", tests=10, runs=2, mean_duration=-1)
-        self.assertIn("mean-duration", str(ctx.exception))
+        # The CLI's message with the keyword's name where the CLI names its flag (--mean-duration).
+        cli_message = cli_error(cli("simulate", "--tests", "10", "--runs", "2", "--mean-duration", "-1", ok=False))
+        self.assertEqual(str(ctx.exception), cli_message.replace("--mean-duration", "mean_duration"))
         with self.assertRaises(al.InvalidInput) as ctx:
             al.simulate("lord++", tests=10, runs=2, mixture_sd=1)
         self.assertIn("peeking", str(ctx.exception))
@@ -383,6 +385,40 @@ class Reports(TempFiles):
         theirs = os.path.join(self.dir, "theirs.html")
         cli("--ledger", path, "report", "s", "-o", theirs)
         self.assertEqual(_normalized_report(ours), _normalized_report(theirs))
+
+    def test_stream_report_with_launches_is_the_cli_page(self):
+        # Running tests, an abandoned one and a test decided against its reserved level: the page
+        # carries the wealth reserved after each decision and the running tests, and leaves the
+        # abandoned test out of the decisions, as `alphaledger report` writes it (one writer).
+        path = os.path.join(self.dir, "ledger")
+        with al.Ledger(path) as ledger:
+            ledger.create_stream("s", rule="lord++")
+            ledger.decide("s", id="a1", p_value=0.0004)
+            for name in ("b1", "b2", "b3"):
+                ledger.launch("s", id=name)
+            ledger.decide("s", id="a2", p_value=0.03)
+            ledger.decide("s", id="b2", p_value=0.0001)
+            ledger.abandon("s", id="b1")
+            ledger.launch("s", id="b4")
+            ledger.decide("s", id="a3", p_value=0.5)
+            ours = os.path.join(self.dir, "ours.html")
+            out = ledger.report("s", ours)
+            self.assertEqual(out["tests"], 4)  # a1, a2, b2, a3: the abandoned b1 is not a decision
+        theirs = os.path.join(self.dir, "theirs.html")
+        p = cli("--ledger", path, "report", "s", "-o", theirs)
+        self.assertIn("4 tests", p.stdout)
+        page = _normalized_report(ours)
+        self.assertEqual(page, _normalized_report(theirs))
+        self.assertIn('"id":["a1","a2","b2","a3"]', page)
+        self.assertRegex(page, r'"running":\{"id":\["b3","b4"\],"launch":\[4,6\]')
+        reserved = re.search(r'"reserved_wealth":\[([^\]]*)\]', page)
+        self.assertIsNotNone(reserved, "no reserved wealth on the page")
+        values = [float(v) for v in reserved.group(1).split(",")]
+        self.assertEqual(len(values), 4)
+        self.assertEqual(values[0], 0.0)  # nothing was running when a1 was decided
+        # After a3 (the last decision) the page's value is what status reports as reserved now.
+        with al.Ledger(path) as ledger:
+            self.assertEqual(values[-1], ledger.status("s")["reserved"])
 
     def test_replay_report_is_the_cli_page(self):
         ours = os.path.join(self.dir, "ours.html")
