@@ -33,8 +33,8 @@ fi
 unset PYTHONPATH
 export PIP_NO_INDEX=1 PIP_DISABLE_PIP_VERSION_CHECK=1 PIP_NO_CACHE_DIR=1 PIP_ROOT_USER_ACTION=ignore
 
-check_import() {  # $1: the python to run, $2: where the package must come from
-  (cd "$work" && "$1" - "$2" <<'EOF'
+check_import() {  # $1: the python to run, $2: where the package must come from, $3: a new ledger folder
+  (cd "$work" && "$1" - "$2" "$3" <<'EOF'
 import sys
 import alphaledger as al
 where = sys.argv[1]
@@ -42,6 +42,15 @@ assert al.__file__.startswith(where), f"imported from {al.__file__}, expected un
 out = al.Rule("lord++").record(0.0004)
 # docs/methods.md 14.3, t = 1: level 0.001370386057, rejected.
 assert abs(out.level / 0.001370386057 - 1) < 1e-9 and out.rejected, out
+# The store and the log reader work too: a ledger round trip and a replay of rows in memory.
+ledger_dir = sys.argv[2]
+with al.Ledger(ledger_dir) as ledger:
+    ledger.create_stream("s", rule="lord++")
+    d = ledger.decide("s", id="t1", p_value=0.0004)
+    assert d["level"] == out.level and d["rejected"], d
+    assert [r["id"] for r in ledger.history("s", as_frame=False)] == ["t1"]
+rows = al.replay([{"id": "t1", "p_value": 0.0004}, {"id": "t2", "p_value": 0.5}], rules=["lord++"], as_frame=False)
+assert [r["rejected"] for r in rows] == [1, 0] and rows[0]["level"] == out.level, rows
 print("imported", al.__file__, out)
 EOF
   )
@@ -50,12 +59,12 @@ EOF
 echo "== pip install --target"
 (cd "$work/tree" && "$python" -m pip install --no-build-isolation --no-index --no-deps --quiet \
    --target "$work/site" .)
-PYTHONPATH="$work/site" check_import "$python" "$work/site"
+PYTHONPATH="$work/site" check_import "$python" "$work/site" "$work/ledger-target"
 
 echo "== pip install into a venv with --system-site-packages"
 "$python" -m venv --system-site-packages --without-pip "$work/venv"
 (cd "$work/tree" && "$work/venv/bin/python" -m pip install --no-build-isolation --no-index --no-deps --quiet .)
-check_import "$work/venv/bin/python" "$work/venv"
+check_import "$work/venv/bin/python" "$work/venv" "$work/ledger-venv"
 "$work/venv/bin/python" -m pip uninstall --yes --quiet alphaledger
 left="$(cd "$work" && "$work/venv/bin/python" -c 'import alphaledger; print(alphaledger.__file__)' 2>/dev/null || true)"
 if [[ "$left" == "$work/venv"* ]]; then
