@@ -665,8 +665,8 @@ class PyLedger {
     }
     check(walked);
     if (id && !found) {
-      raise(not_found("no decided or running test with id '" + excerpt(*id) + "' in stream " + excerpt(stream) +
-                          " (without id, explain gives the next level)",
+      raise(not_found("no decided or running test with id '" + excerpt(*id) + "' in stream " +
+                          excerpt(stream) + " (without id, explain gives the next level)",
                       "unknown_test"));
     }
     auto e = take(explain_next_level(rule, rejected_tests));

@@ -357,6 +357,30 @@ class LedgerLaunchTime(TempFiles):
         self.assertTrue(cli_error(p).startswith(abandon_message), (cli_error(p), abandon_message))
 
 
+class ExplainOverlappingLaunches(TempFiles):
+    def test_running_and_overlapping_tests_like_cli(self):
+        # Tests launched while others run: the explanation of each, running or decided, and of the
+        # next test is the CLI's object (same walk through launches, finishes and abandons).
+        path = os.path.join(self.dir, "ledger")
+        with al.Ledger(path) as ledger:
+            ledger.create_stream("s", rule="lord++")
+            ledger.decide("s", id="a", p_value=0.0004)
+            ledger.launch("s", id="b")
+            ledger.launch("s", id="c")
+            ledger.decide("s", id="c", p_value=0.0001)  # rejected while b still runs
+            ledger.launch("s", id="d")
+            got = {name: ledger.explain("s", id=name) for name in ("a", "b", "c", "d")}
+            got_next = ledger.explain("s")
+            with self.assertRaises(al.Refused) as ctx:
+                ledger.explain("s", id="zz")
+            self.assertEqual(ctx.exception.code, "unknown_test")
+            # The level explained for a running test is the one reserved at its launch.
+            self.assertEqual(got["b"]["level"], ledger.running("s", as_frame=False)[0]["level"])
+        for name, e in got.items():
+            self.assertEqual(e, cli_json_lines("--ledger", path, "explain", "s", "--id", name)[0], msg=name)
+        self.assertEqual(got_next, cli_json_lines("--ledger", path, "explain", "s")[0])
+
+
 def _normalized_report(path):
     """The page with its own "report made" time taken out (the only part that differs between runs)."""
     with open(path, encoding="utf-8") as f:

@@ -15,8 +15,9 @@ namespace {
 // Decides the log again with each procedure (plus bh when missing) and writes the page; `other`
 // returns the log's other columns (read_input_columns, report_columns.hpp).
 template <typename ReadOther>
-Status write_replay_page(const std::string& path, const CompactLog& log, const std::vector<Procedure>& procedures,
-                         std::optional<double> alpha, std::string_view option, ReadOther&& other) {
+Status write_replay_page(const std::string& path, const CompactLog& log,
+                         const std::vector<Procedure>& procedures, std::optional<double> alpha,
+                         std::string_view option, ReadOther&& other) {
   // Each procedure decides the log once more through replay_each, the function the CSV rows come
   // from (same inputs, same bits), and the summary rows come from the same summarize().
   ReplayResult result{procedures, {}};
@@ -47,9 +48,10 @@ Status write_replay_page(const std::string& path, const CompactLog& log, const s
 
 }  // namespace
 
-Status write_replay_report(const std::string& path, const CompactLog& log, const std::vector<Procedure>& procedures,
-                           std::optional<double> alpha, const std::string& log_path,
-                           std::optional<std::string_view> forced_format, std::string_view option) {
+Status write_replay_report(const std::string& path, const CompactLog& log,
+                           const std::vector<Procedure>& procedures, std::optional<double> alpha,
+                           const std::string& log_path, std::optional<std::string_view> forced_format,
+                           std::string_view option) {
   return write_replay_page(path, log, procedures, alpha, option,
                            [&] { return read_input_columns(log_path, forced_format, log, kReportKeeps); });
 }
