@@ -6,6 +6,8 @@ packages=(g++ cmake ninja-build libboost-math-dev libspdlog-dev libcli11-dev lib
           doctest-dev nlohmann-json3-dev libcpp-httplib-dev pkgconf
           clang-14 libclang-rt-14-dev   # libFuzzer and sanitizers for scripts/fuzz.sh
           pybind11-dev python3-pybind11 python3-pandas  # the Python module and its tests (docs/python.md)
+          python3-pytest                # runs the Python tests (ctest python)
+          python3-pip python3-setuptools python3-wheel python3-venv  # the offline pip install (ctest python_install)
           libjs-chart.js                # Chart.js, embedded into the HTML reports (docs/reports.md)
           chromium                      # a real browser for the report tests (tests/cli/test_report_cli.cpp)
           firefox-esr)                  # the second browser the reports are rendered in (same tests)

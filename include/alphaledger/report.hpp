@@ -127,6 +127,31 @@ struct SimulationReportData {
 };
 std::string render_simulation_report(const SimulationReportData& data);
 
+// ---- Report files (src/harness/report_files.cpp) ----------------------------------------------
+// What `replay --report`, `report STREAM -o FILE` and the Python package write: the CLI and Python
+// call these, so a page is the same whoever asks (only its "report made" time differs). `option`
+// names the path's flag or argument in messages ("--report", "-o", "path").
+
+// The page of a replay of `log` by `procedures`, with the hindsight BH answer at `alpha` added
+// when `procedures` lacks bh. The log's other columns (team, metric...) are read again from
+// `log_path` with `forced_format` (none for "-": standard input cannot be read twice).
+Status write_replay_report(const std::string& path, const CompactLog& log, const std::vector<Procedure>& procedures,
+                           std::optional<double> alpha, const std::string& log_path,
+                           std::optional<std::string_view> forced_format, std::string_view option = "--report");
+// The same for a log that was read from `log_text` (in `format`) in memory.
+Status write_replay_report_from_text(const std::string& path, const CompactLog& log,
+                                     const std::vector<Procedure>& procedures, std::optional<double> alpha,
+                                     std::string_view log_text, LogFormat format,
+                                     std::string_view option = "--report");
+
+// The page of stream `stream` of `ledger`: its status, its decided tests in step order (from
+// Ledger::history, abandoned tests left out), the wealth reserved after each (reserved_after_each)
+// and the tests running now. Checks `path` first, writes nothing to the ledger. Returns the number
+// of decided tests on the page. Errors: those of check_output_path, Ledger::status (unknown
+// stream: kNotFound), Ledger::history, Ledger::running and write_file_atomically.
+Result<std::uint64_t> write_stream_report(Ledger& ledger, std::string_view stream, const std::string& path,
+                                          std::string_view option = "-o");
+
 // What a rule promises and under which conditions, in plain words (the configuration section).
 std::string guarantee_text(std::string_view rule);
 

@@ -24,7 +24,7 @@ from ._native import Error, InvalidInput, Outcome, Refused, Reservation, Running
 __all__ = [
     "Error", "InvalidInput", "Refused", "StorageError",
     "Outcome", "Reservation", "RunningTest",
-    "Rule", "Ledger", "replay", "replay_csv", "simulate", "simulate_csv",
+    "Rule", "Ledger", "replay", "replay_csv", "simulate", "simulate_csv", "explain",
     "pvalue_proportions", "pvalue_means", "plan_proportions", "plan_means", "format_number",
 ]
 
@@ -131,6 +131,15 @@ class Rule:
         """The tests launched and not yet finished or abandoned, in launch order."""
         return self._rule.running()
 
+    @property
+    def reserved(self) -> float:
+        """The sum of the levels reserved for the running tests."""
+        return self._rule.reserved
+
+    def explain(self) -> dict:
+        """Why the next test gets its level: the same as :func:`explain` (``explain(rule)``)."""
+        return explain(self)
+
     def __repr__(self) -> str:
         return f"Rule({self.configuration!r}, tests={self.tests})"
 
@@ -203,70 +212,98 @@ def _log_text(log: Any) -> str:
     return out.getvalue()
 
 
-def _replay(log, rules, alpha, format, params, csv):
+def _replay(log, rules, alpha, format, alternative, params, csv, report):
     if isinstance(rules, str):
         rules = [rules]
     p = _params(alpha, params)
+    report = None if report is None else os.fspath(report)
     if isinstance(log, (str, os.PathLike)):
-        return _native.replay(os.fspath(log), None, "", list(rules), p, format, csv)
-    return _native.replay(None, _log_text(log), "rows", list(rules), p, None, csv)
+        return _native.replay(os.fspath(log), None, "", list(rules), p, format, alternative, csv, report)
+    return _native.replay(None, _log_text(log), "rows", list(rules), p, None, alternative, csv, report)
 
 
 def replay(log: Any, rules: Union[str, Sequence[str]] = ("lord++",), alpha: Optional[float] = None, *,
-           format: Optional[str] = None, as_frame: Optional[bool] = None, **params: Any):
+           format: Optional[str] = None, alternative: Optional[str] = None,
+           report: Optional[Union[str, os.PathLike]] = None, as_frame: Optional[bool] = None, **params: Any):
     """Decides a whole log of finished tests with each rule in turn, touching no ledger.
 
     ``log`` is a pandas DataFrame, a list of dicts, or a path to a CSV / JSON Lines file, with
-    columns ``id`` and ``p_value`` (or summary columns), optionally ``finished_at`` (tests are
-    decided in that order) and ``is_null``. ``rules`` may also name the hindsight baselines bh and
-    storey-bh. ``alpha`` and ``params`` apply to every rule that takes them.
+    columns ``id`` and ``p_value`` (or summary columns, turned into p-values in the direction
+    ``alternative``: two-sided by default, greater or less), ``e_value`` for the e-value rules
+    (e-lond, e-bh), optionally ``finished_at`` (tests are decided in that order), ``launched_at``
+    (levels are reserved at launch) and ``is_null``. ``rules`` may also name the hindsight
+    baselines bh, storey-bh and e-bh. ``alpha`` and ``params`` apply to every rule that takes them.
 
     Returns one row per rule and test with columns rule, step, id, p_value, level, rejected,
-    wealth: the numbers of ``alphaledger replay`` exactly. A DataFrame when pandas is available
-    (``as_frame=False`` forces a list of dicts). Rows given in memory are read as the CSV form of
+    wealth: the numbers of ``alphaledger replay`` exactly. A log with launch times adds ``launch``
+    after step (None for the baselines); a log with e-values adds ``e_value`` after p_value
+    (p_value is None when the log has none). A DataFrame when pandas is available
+    (``as_frame=False`` forces a list of dicts). ``report="replay.html"`` also writes the page of
+    ``replay --report`` (the same writer). Rows given in memory are read as the CSV form of
     the table, so an error names ``rows:N``, N being the row's line in that form (line 1 is the
     header: the first row is ``rows:2``), or ``file:line`` for a file, and the field.
     """
-    cols = _replay(log, rules, alpha, format, params, False)
+    cols = _replay(log, rules, alpha, format, alternative, params, False, report)
+    names = list(cols["columns"])
     n = len(cols["rule"])
     pd = _pandas() if as_frame is not False else None
     if as_frame and pd is None:
         raise InvalidInput("as_frame=True needs pandas, which cannot be imported")
     if pd is not None:
-        return pd.DataFrame({c: cols[c] for c in _REPLAY_COLUMNS}, columns=list(_REPLAY_COLUMNS))
-    return [{c: cols[c][i] for c in _REPLAY_COLUMNS} for i in range(n)]
+        return pd.DataFrame({c: cols[c] for c in names}, columns=names)
+    return [{c: cols[c][i] for c in names} for i in range(n)]
 
 
 def replay_csv(log: Any, rules: Union[str, Sequence[str]] = ("lord++",), alpha: Optional[float] = None, *,
-               format: Optional[str] = None, **params: Any) -> str:
+               format: Optional[str] = None, alternative: Optional[str] = None,
+               report: Optional[Union[str, os.PathLike]] = None, **params: Any) -> str:
     """:func:`replay` as the CSV text ``alphaledger replay`` prints, byte for byte."""
-    return _replay(log, rules, alpha, format, params, True)
+    return _replay(log, rules, alpha, format, alternative, params, True, report)
+
+
+def explain(rule: "Rule") -> dict:
+    """Why the next test of ``rule`` gets its level: the rule's formula with the numbers filled in.
+
+    Returns the object of ``alphaledger explain --json``: ``rule``, ``evaluation``, ``test`` (the
+    test number the level is for), ``display`` (the formula in words), ``level`` (equal to
+    ``rule.next_level()``, bit for bit), ``uncapped`` (the sum of the terms), ``terms`` (dicts
+    with ``kind``, ``rejection``, ``test``, ``lag``, ``weight``, ``base``, ``scale`` and
+    ``amount``; the amounts add up to ``uncapped``, to rounding) and ``cap`` (``{"what",
+    "value"}`` when a cap bound the level, else None). ``stream`` and ``id`` are None here; see
+    :meth:`Ledger.explain` for a stream of the ledger.
+    """
+    if not isinstance(rule, Rule):
+        raise InvalidInput(f"explain takes a Rule, got {type(rule).__name__}")
+    return _native.explain(rule._rule)
 
 
 # ---- Simulate ----------------------------------------------------------------------------------
 
 _SIMULATE_COLUMNS = ("rule", "runs", "tests", "mean_rejections", "fdr", "fdr_se", "mfdr", "power", "power_se",
-                     "fwer")
+                     "fwer", "evaluation")
 
 
 def _simulate(rules, tests, runs, nonnull_fraction, seed, threads, effect, effect_sd, null_mean, pattern,
-              correlation, alpha, params, csv, report):
+              correlation, mean_duration, peeking, mixture_sd, alpha, params, csv, report):
     if isinstance(rules, str):
         rules = [rules]
     if threads is None:
         threads = max(1, os.cpu_count() or 1)
-    for name, v in (("tests", tests), ("runs", runs), ("seed", seed), ("threads", threads)):
+    for name, v in (("tests", tests), ("runs", runs), ("seed", seed), ("threads", threads), ("peeking", peeking)):
         if isinstance(v, bool) or not isinstance(v, int) or v < 0:
             raise InvalidInput(f"{name} must be a whole number >= 0, got {str(v)[:40]}")
     return _native.simulate(list(rules), _params(alpha, params), tests, runs, _number(nonnull_fraction,
                             "nonnull_fraction"), _number(effect, "effect"), _number(effect_sd, "effect_sd"),
-                            _number(null_mean, "null_mean"), pattern, correlation, seed, threads, csv,
+                            _number(null_mean, "null_mean"), pattern, correlation,
+                            _number(mean_duration, "mean_duration"), peeking,
+                            None if mixture_sd is None else _number(mixture_sd, "mixture_sd"), seed, threads, csv,
                             None if report is None else os.fspath(report))
 
 
 def simulate(rules: Union[str, Sequence[str]] = ("lord++",), *, tests: int = 1000, runs: int = 100,
              nonnull_fraction: float = 0.1, seed: int = 1, threads: Optional[int] = None, effect: float = 3,
              effect_sd: float = 0, null_mean: float = 0, pattern: str = "constant", correlation: str = "none",
+             mean_duration: float = 0, peeking: int = 0, mixture_sd: Optional[float] = None,
              alpha: Optional[float] = None, report: Optional[str] = None, as_frame: Optional[bool] = None,
              **params: Any):
     """Simulates ``runs`` streams of ``tests`` tests and measures each rule's error rates and power.
@@ -275,29 +312,39 @@ def simulate(rules: Union[str, Sequence[str]] = ("lord++",), *, tests: int = 100
     ``nonnull_fraction`` of the tests are non-null with z-mean ``effect`` (spread ``effect_sd``),
     nulls have mean ``null_mean``; ``pattern`` places the non-nulls (constant, bursts, rising,
     falling) and ``correlation`` ties neighbouring tests (none, ar1:RHO, blocks:SIZE:RHO).
-    ``threads`` (default: every core) does not change the result. The GIL is released while it runs.
-    ``report`` also writes the HTML page of ``simulate --report``.
+    ``mean_duration`` > 0 makes tests overlap (each runs while a geometric number of later tests
+    launch, with this mean; levels are reserved at launch). ``peeking=K`` looks at each test K
+    times as its data arrive and adds rows per rule (``R:peek-fixed``, ``R:peek-anytime``,
+    ``e-lond:peek-mixture``); ``mixture_sd`` is then the mixing scale of the always-valid evidence
+    (default: the effect). As on the command line, lord++, saffron and addis use the fast
+    evaluation unless ``evaluation`` says otherwise. ``threads`` (default: every core) does not
+    change the result. The GIL is released while it runs. ``report`` also writes the HTML page of
+    ``simulate --report``.
 
     Returns one row per rule: rule, runs, tests, mean_rejections, fdr, fdr_se, mfdr, power,
-    power_se, fwer (NaN where the command line leaves a cell empty).
+    power_se, fwer (NaN where the command line leaves a cell empty), and evaluation (exact or
+    fast for lord++, saffron and addis, else None; as in ``simulate --json``).
     """
     rows = _simulate(rules, tests, runs, nonnull_fraction, seed, threads, effect, effect_sd, null_mean, pattern,
-                     correlation, alpha, params, False, report)
+                     correlation, mean_duration, peeking, mixture_sd, alpha, params, False, report)
     return _table(rows, _SIMULATE_COLUMNS, as_frame)
 
 
 def simulate_csv(rules: Union[str, Sequence[str]] = ("lord++",), *, tests: int = 1000, runs: int = 100,
                  nonnull_fraction: float = 0.1, seed: int = 1, threads: Optional[int] = None, effect: float = 3,
                  effect_sd: float = 0, null_mean: float = 0, pattern: str = "constant",
-                 correlation: str = "none", alpha: Optional[float] = None, **params: Any) -> str:
+                 correlation: str = "none", mean_duration: float = 0, peeking: int = 0,
+                 mixture_sd: Optional[float] = None, alpha: Optional[float] = None, **params: Any) -> str:
     """:func:`simulate` as the CSV text ``alphaledger simulate`` prints, byte for byte."""
     return _simulate(rules, tests, runs, nonnull_fraction, seed, threads, effect, effect_sd, null_mean, pattern,
-                     correlation, alpha, params, True, None)
+                     correlation, mean_duration, peeking, mixture_sd, alpha, params, True, None)
 
 
 # ---- The ledger --------------------------------------------------------------------------------
 
-_HISTORY_COLUMNS = ("step", "id", "p_value", "level", "rejected", "wealth", "decided_at")
+_HISTORY_COLUMNS = ("step", "id", "p_value", "level", "rejected", "wealth", "decided_at", "launch", "reserved_at",
+                    "abandoned")
+_RUNNING_COLUMNS = ("id", "launch", "level", "launched_at")
 
 
 class Ledger:
@@ -341,17 +388,68 @@ class Ledger:
         """Decides test ``id`` of ``stream`` with ``p_value``, durably, and returns the decision.
 
         The same id with the same p-value returns the stored decision (``repeat`` True); with
-        another p-value it raises :class:`Refused`.
+        another p-value it raises :class:`Refused`. A test launched with :meth:`launch` is decided
+        against the level reserved at its launch. Keys: step, id, p_value, level, rejected,
+        wealth, decided_at, launch, launched_at, stream, repeat.
         """
         return self._ledger.decide(stream, id, _number(p_value, "p_value"))
 
     def history(self, stream: str, *, as_frame: Optional[bool] = None):
-        """Every decision of ``stream`` in step order: step, id, p_value, level, rejected, wealth, decided_at."""
+        """Every decided or abandoned test of ``stream`` in step order, as ``alphaledger history``.
+
+        Columns: step, id, p_value, level, rejected, wealth, decided_at, launch (launch number),
+        reserved_at (when the test was launched and its level reserved), abandoned (True for a
+        test abandoned before it was decided: p_value 0, rejected 0, decided_at when it was
+        abandoned). Tests still running are not listed (see :meth:`running`).
+        """
         return _table(self._ledger.history(stream), _HISTORY_COLUMNS, as_frame)
 
     def status(self, stream: str) -> dict:
-        """The stream's configuration, counts, wealth and next level."""
+        """The stream's configuration, counts, wealth, next level, ``running`` (tests launched and not
+        yet decided or abandoned) and ``reserved`` (the sum of their levels)."""
         return self._ledger.status(stream)
+
+    def launch(self, stream: str, *, id: str) -> dict:
+        """Launches test ``id`` of ``stream``: reserves its level now, durably, and returns it.
+
+        Decide it later with :meth:`decide` (against this level) or end it with :meth:`abandon`.
+        The same id while it runs returns the stored reservation (``repeat`` True); an id already
+        decided or abandoned raises :class:`Refused`. Keys: stream, id, launch, level, wealth,
+        launched_at, step, repeat.
+        """
+        return self._ledger.launch(stream, id)
+
+    def abandon(self, stream: str, *, id: str) -> dict:
+        """Ends running test ``id`` of ``stream`` without a p-value: never decided, its level not refunded.
+
+        Keys: stream, id, launch, level, wealth, launched_at, abandoned_at, step, repeat. An id that
+        was never launched raises :class:`Refused` (code ``unknown_test``), a decided one too.
+        """
+        return self._ledger.abandon(stream, id)
+
+    def running(self, stream: str, *, as_frame: Optional[bool] = None):
+        """The tests of ``stream`` launched and not yet decided or abandoned, in launch order.
+
+        Columns: id, launch, level (reserved at launch), launched_at.
+        """
+        return _table(self._ledger.running(stream), _RUNNING_COLUMNS, as_frame)
+
+    def explain(self, stream: str, id: Optional[str] = None) -> dict:
+        """Why a test of ``stream`` gets its level, as ``alphaledger explain STREAM --json``.
+
+        Without ``id``: the level of the next test. With ``id``: the level decided test ``id`` got.
+        The dict is that of :func:`explain` with ``stream`` and ``id`` filled in; its ``terms``'
+        amounts add up to ``uncapped`` and ``level`` is the stored level, bit for bit.
+        """
+        return self._ledger.explain(stream, id)
+
+    def report(self, stream: str, path: Union[str, os.PathLike]) -> dict:
+        """Writes the HTML page of ``stream`` to ``path``, as ``alphaledger report STREAM -o PATH``.
+
+        The same writer as the command line makes the same page (docs/reports.md). The file is
+        replaced in one step. Returns ``{"report": "stream", "stream", "tests", "path"}``.
+        """
+        return self._ledger.report(stream, os.fspath(path))
 
     def streams(self) -> list:
         """The status of every stream, by name."""

@@ -70,13 +70,19 @@ class Rule:
     def finish(self, launch: Union[int, Reservation], p_value: float) -> Outcome: ...
     def abandon(self, launch: Union[int, Reservation]) -> None: ...
     def running(self) -> list[RunningTest]: ...
+    @property
+    def reserved(self) -> float: ...
+    def explain(self) -> dict[str, Any]: ...
 
+def explain(rule: Rule) -> dict[str, Any]: ...
 def replay(
     log: _Log,
     rules: _Rules = ...,
     alpha: Optional[float] = ...,
     *,
     format: Optional[Literal["csv", "jsonl"]] = ...,
+    alternative: Optional[Literal["two-sided", "greater", "less"]] = ...,
+    report: Optional[Union[str, os.PathLike]] = ...,
     as_frame: Optional[bool] = ...,
     **params: Any,
 ) -> Any: ...
@@ -86,6 +92,8 @@ def replay_csv(
     alpha: Optional[float] = ...,
     *,
     format: Optional[Literal["csv", "jsonl"]] = ...,
+    alternative: Optional[Literal["two-sided", "greater", "less"]] = ...,
+    report: Optional[Union[str, os.PathLike]] = ...,
     **params: Any,
 ) -> str: ...
 def simulate(
@@ -101,6 +109,9 @@ def simulate(
     null_mean: float = ...,
     pattern: str = ...,
     correlation: str = ...,
+    mean_duration: float = ...,
+    peeking: int = ...,
+    mixture_sd: Optional[float] = ...,
     alpha: Optional[float] = ...,
     report: Optional[Union[str, os.PathLike]] = ...,
     as_frame: Optional[bool] = ...,
@@ -119,6 +130,9 @@ def simulate_csv(
     null_mean: float = ...,
     pattern: str = ...,
     correlation: str = ...,
+    mean_duration: float = ...,
+    peeking: int = ...,
+    mixture_sd: Optional[float] = ...,
     alpha: Optional[float] = ...,
     **params: Any,
 ) -> str: ...
@@ -138,6 +152,11 @@ class Ledger:
     def next_level(self, stream: str) -> float: ...
     def verify(self, stream: str, anchors: Sequence[str] = ...) -> dict[str, Any]: ...
     def close_stream(self, stream: str) -> dict[str, Any]: ...
+    def launch(self, stream: str, *, id: str) -> dict[str, Any]: ...
+    def abandon(self, stream: str, *, id: str) -> dict[str, Any]: ...
+    def running(self, stream: str, *, as_frame: Optional[bool] = ...) -> Any: ...
+    def explain(self, stream: str, id: Optional[str] = ...) -> dict[str, Any]: ...
+    def report(self, stream: str, path: Union[str, os.PathLike]) -> dict[str, Any]: ...
 
 def pvalue_proportions(
     *,

@@ -12,6 +12,7 @@
 #include <vector>
 
 #include "alphaledger/anytime.hpp"
+#include "alphaledger/explain.hpp"
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/replay.hpp"
 #include "alphaledger/report.hpp"
@@ -126,58 +127,131 @@ class PyRule {
     if (rule_takes_e_values(rule_.config().kind))
       raise(invalid_input(std::string(rule_name(rule_.config().kind)) + " takes e-values: use record_e(e)"));
     check(validate_p_value(p));
-    return rule_.record(p);
+    return noted(rule_.record(p));
   }
   Outcome record_e(double e) {
     if (!rule_takes_e_values(rule_.config().kind))
       raise(invalid_input(std::string(rule_name(rule_.config().kind)) + " takes p-values: use record(p)"));
     check(validate_e_value(e));
-    return rule_.record_e(e);
+    return noted(rule_.record_e(e));
   }
   Reservation launch() { return rule_.launch(); }
   Outcome finish(std::uint64_t launch, double p) {
-    if (rule_takes_e_values(rule_.config().kind)) return take(rule_.finish_e(launch, p));
-    return take(rule_.finish(launch, p));
+    if (rule_takes_e_values(rule_.config().kind)) return noted(take(rule_.finish_e(launch, p)));
+    return noted(take(rule_.finish(launch, p)));
   }
   void abandon(std::uint64_t launch) { check(rule_.abandon(launch)); }
   std::vector<RunningTest> running() const { return rule_.running(); }
+  double reserved() const { return rule_.reserved(); }
   const Rule& rule() const { return rule_; }
+  // The launch number of each rejection, in the order they were decided (explain's `test`).
+  const std::vector<std::uint64_t>& rejected_tests() const { return rejected_tests_; }
 
  private:
+  Outcome noted(const Outcome& o) {
+    if (o.rejected) rejected_tests_.push_back(o.step);
+    return o;
+  }
   Rule rule_;
+  std::vector<std::uint64_t> rejected_tests_;
 };
+
+// ---- Explain ----------------------------------------------------------------------------------
+
+// The object of `alphaledger explain --json`, key for key.
+py::dict explanation_dict(const LevelExplanation& e, const std::optional<std::string>& stream,
+                          const std::optional<std::string>& id) {
+  py::dict d;
+  d["stream"] = stream ? py::object(py::str(*stream)) : py::none();
+  d["id"] = id ? py::object(py::str(*id)) : py::none();
+  d["rule"] = std::string(rule_name(e.rule));
+  d["evaluation"] = std::string(evaluation_name(e.evaluation));
+  d["test"] = e.test;
+  d["display"] = std::string(level_display(e.rule));
+  d["level"] = e.level;
+  d["uncapped"] = e.uncapped;
+  py::list terms;
+  for (const auto& t : e.terms) {
+    py::dict x;
+    x["kind"] = std::string(term_kind_name(t.kind));
+    x["rejection"] = t.rejection;
+    x["test"] = t.test ? py::object(py::int_(*t.test)) : py::none();
+    x["lag"] = t.lag;
+    x["weight"] = t.weight;
+    x["base"] = t.base;
+    x["scale"] = t.scale;
+    x["amount"] = t.amount;
+    terms.append(x);
+  }
+  d["terms"] = terms;
+  if (e.cap) {
+    py::dict cap;
+    cap["what"] = e.cap->what;
+    cap["value"] = e.cap->value;
+    d["cap"] = cap;
+  } else {
+    d["cap"] = py::none();
+  }
+  return d;
+}
+
+py::dict explain_rule(const PyRule& r) {
+  return explanation_dict(take(explain_next_level(r.rule(), r.rejected_tests())), std::nullopt, std::nullopt);
+}
 
 // ---- Replay -----------------------------------------------------------------------------------
 
 struct ReplayColumns {
   std::vector<std::string> rule, id;
   std::vector<std::uint64_t> step;
-  std::vector<double> p_value, level;
+  std::vector<std::optional<std::uint64_t>> launch;  // only with launched_at; None for bh / storey-bh / e-bh
+  std::vector<std::optional<double>> p_value;         // None when the log has no p-values
+  std::vector<double> e_value;                        // only when the log has e-values
+  std::vector<double> level;
   std::vector<int> rejected;
   std::vector<std::optional<double>> wealth;
 };
 
 // Reads the log from a file (`path`) or from CSV text (`text`, named `source` in messages),
-// then replays it; both without the GIL. Returns the CLI's CSV text when `csv`, else columns.
+// then replays it; both without the GIL. Returns the CLI's CSV text when `csv`, else columns
+// (with "columns": their order). The rows, columns and CSV are those of `alphaledger replay`: a
+// launch column after step when the log has launched_at, an e_value column after p_value when it
+// has e-values. `report`: also writes the page of `replay --report`.
 py::object replay_native(const std::optional<std::string>& path, const std::optional<std::string>& text,
                          const std::string& source, const std::vector<std::string>& rules,
-                         const py::dict& params, const std::optional<std::string>& format, bool csv) {
+                         const py::dict& params, const std::optional<std::string>& format,
+                         const std::optional<std::string>& alternative, bool csv,
+                         const std::optional<std::string>& report) {
   auto procs = procedures_from(rules, params, /*allow_offline=*/true);
+  const std::optional<double> alpha = spec_from("", params).alpha;
+  ReadOptions read_options;
+  if (alternative) read_options.alternative = take(parse_alternative(*alternative));
+  if (report) check(check_output_path(*report, "report"));
   Result<CompactLog> log = invalid_input("no log");
+  Status checked;
+  Status written;
   std::string out;
   ReplayColumns cols;
+  bool launches = false, e_values = false, p_values = true;
   {
     py::gil_scoped_release release;
     if (path) {
       std::optional<std::string_view> forced;
       if (format) forced = *format;
-      log = read_compact_log_file(*path, forced);
+      log = read_compact_log_file(*path, forced, read_options);
     } else {
       std::istringstream in(*text);
-      log = read_compact_log(in, source, LogFormat::kCsv);
+      log = read_compact_log(in, source, LogFormat::kCsv, read_options);
     }
-    if (log) {
-      if (csv) out = "rule,step,id,p_value,level,rejected,wealth\n";
+    if (log) checked = check_log_columns(*log, procs);
+    if (log && checked) {
+      launches = log->has_launch;
+      e_values = log->has_e_values;
+      p_values = log->has_p_values;
+      if (csv) {
+        out = launches ? "rule,step,launch,id,p_value," : "rule,step,id,p_value,";
+        out += e_values ? "e_value,level,rejected,wealth\n" : "level,rejected,wealth\n";
+      }
       for (const Procedure& proc : procs) {
         replay_each(*log, proc, [&](std::size_t k, const Decision& d) {
           const CompactRecord& r = log->records[k];
@@ -187,13 +261,21 @@ py::object replay_native(const std::optional<std::string>& path, const std::opti
             out += ',';
             out += std::to_string(d.step);
             out += ',';
+            if (launches) {
+              if (d.launch > 0) out += std::to_string(d.launch);
+              out += ',';
+            }
             if (id.find_first_of(",\"\n\r") == std::string_view::npos)
               out += id;
             else
               out += csv_field(id);
             out += ',';
-            append_number_text(out, r.p_value);
+            if (p_values) append_number_text(out, r.p_value);
             out += ',';
+            if (e_values) {
+              append_number_text(out, r.e_value);
+              out += ',';
+            }
             append_number_text(out, d.level);
             out += d.rejected ? ",1," : ",0,";
             if (d.wealth) append_number_text(out, *d.wealth);
@@ -201,26 +283,44 @@ py::object replay_native(const std::optional<std::string>& path, const std::opti
           } else {
             cols.rule.push_back(proc.name);
             cols.step.push_back(d.step);
+            if (launches) cols.launch.push_back(d.launch > 0 ? std::optional<std::uint64_t>(d.launch) : std::nullopt);
             cols.id.emplace_back(id);
-            cols.p_value.push_back(r.p_value);
+            cols.p_value.push_back(p_values ? std::optional<double>(r.p_value) : std::nullopt);
+            if (e_values) cols.e_value.push_back(r.e_value);
             cols.level.push_back(d.level);
             cols.rejected.push_back(d.rejected ? 1 : 0);
             cols.wealth.push_back(d.wealth);
           }
         });
       }
+      if (report) {
+        written = path ? write_replay_report(*report, *log, procs, alpha, *path,
+                                             format ? std::optional<std::string_view>(*format) : std::nullopt,
+                                             "report")
+                       : write_replay_report_from_text(*report, *log, procs, alpha, *text, LogFormat::kCsv, "report");
+      }
     }
   }
   if (!log) raise(log.error());
+  check(checked);
+  check(written);
   if (csv) return py::str(out);
   py::dict d;
-  d["rule"] = py::cast(cols.rule);
-  d["step"] = py::cast(cols.step);
-  d["id"] = py::cast(cols.id);
-  d["p_value"] = py::cast(cols.p_value);
-  d["level"] = py::cast(cols.level);
-  d["rejected"] = py::cast(cols.rejected);
-  d["wealth"] = py::cast(cols.wealth);
+  py::list order;
+  auto put = [&](const char* name, py::object column) {
+    d[name] = std::move(column);
+    order.append(name);
+  };
+  put("rule", py::cast(cols.rule));
+  put("step", py::cast(cols.step));
+  if (launches) put("launch", py::cast(cols.launch));
+  put("id", py::cast(cols.id));
+  put("p_value", py::cast(cols.p_value));
+  if (e_values) put("e_value", py::cast(cols.e_value));
+  put("level", py::cast(cols.level));
+  put("rejected", py::cast(cols.rejected));
+  put("wealth", py::cast(cols.wealth));
+  d["columns"] = order;
   return d;
 }
 
@@ -238,22 +338,38 @@ py::dict summary_dict(const ProcedureSummary& s) {
   d["power"] = s.power;
   d["power_se"] = s.power_se;
   d["fwer"] = s.fwer;
+  // As in `simulate --json`: the evaluation lord++, saffron and addis ran with (None for the others).
+  d["evaluation"] = s.evaluation ? py::object(py::str(std::string(evaluation_name(*s.evaluation)))) : py::none();
   return d;
 }
 
 py::object simulate_native(const std::vector<std::string>& rules, const py::dict& params, std::uint64_t tests,
                            std::uint64_t runs, double nonnull_fraction, double effect, double effect_sd,
                            double null_mean, const std::string& pattern, const std::string& correlation,
+                           double mean_duration, std::uint64_t peeking, const std::optional<double>& mixture_sd,
                            std::uint64_t seed, unsigned threads, bool csv, const std::optional<std::string>& report) {
-  auto procs = procedures_from(rules, params, /*allow_offline=*/true);
+  // As `alphaledger simulate`: fast evaluation for the rules that have it unless asked otherwise.
+  py::dict flags = params.attr("copy")().cast<py::dict>();  // a copy: the caller's dict stays as it was
+  if (!flags.contains("evaluation") || flags["evaluation"].is_none()) {
+    for (const auto& n : rules) {
+      if (n == "lord++" || n == "saffron" || n == "addis") flags["evaluation"] = "fast";
+    }
+  }
+  auto procs = procedures_from(rules, flags, /*allow_offline=*/true);
   SimulationModel model;
   model.tests = tests;
   model.nonnull_fraction = nonnull_fraction;
   model.effect = effect;
   model.effect_sd = effect_sd;
   model.null_mean = null_mean;
+  model.mean_duration = mean_duration;
   model.pattern = take(parse_nonnull_pattern(pattern));
   model.correlation = take(parse_correlation(correlation));
+  PeekingSpec looks;
+  looks.looks = peeking;
+  looks.mixture_sd = mixture_sd.value_or(0);
+  if (mixture_sd && peeking == 0) raise(invalid_input("mixture_sd is used only with peeking=K (K >= 1 looks per test)"));
+  check(validate_peeking(looks));
   check(validate_model(model));
   if (tests < 1 || tests > 100'000'000) raise(invalid_input("tests must be in [1, 100000000], got " + std::to_string(tests)));
   if (runs < 1 || runs > 100'000'000) raise(invalid_input("runs must be in [1, 100000000], got " + std::to_string(runs)));
@@ -263,7 +379,7 @@ py::object simulate_native(const std::vector<std::string>& rules, const py::dict
   options.runs = runs;
   options.seed = seed;
   options.threads = threads;
-  const SimulationPlan plan(std::move(procs));
+  const SimulationPlan plan(std::move(procs), looks);
   Result<SimulationResult> result = invalid_input("not run");
   {
     py::gil_scoped_release release;
@@ -302,10 +418,13 @@ py::dict stream_dict(const StreamInfo& s) {
   d["rejections"] = s.rejections;
   d["wealth"] = s.wealth;
   d["next_level"] = s.next_level;
+  d["running"] = s.running;
+  d["reserved"] = s.reserved;
   d["closed_at"] = s.closed_at_ms ? py::object(py::str(format_timestamp(*s.closed_at_ms))) : py::none();
   return d;
 }
 
+// A decided test as `decide --json` gives it (launch, launched_at).
 py::dict decision_dict(const DecisionRecord& r) {
   py::dict d;
   d["step"] = r.step;
@@ -315,6 +434,35 @@ py::dict decision_dict(const DecisionRecord& r) {
   d["rejected"] = r.rejected ? 1 : 0;
   d["wealth"] = r.wealth;
   d["decided_at"] = format_timestamp(r.decided_at_ms);
+  d["launch"] = r.launch;
+  d["launched_at"] = format_timestamp(r.launched_at_ms);
+  return d;
+}
+
+// A row of `history`: the launch time is `reserved_at` there, as in the CLI's history (a column
+// named launched_at would be read as launch times if the table were replayed); `abandoned` marks a
+// test that was abandoned (p_value 0, rejected 0, decided_at when it was abandoned).
+py::dict history_dict(const DecisionRecord& r) {
+  py::dict d;
+  d["step"] = r.step;
+  d["id"] = r.id;
+  d["p_value"] = r.p_value;
+  d["level"] = r.level;
+  d["rejected"] = r.rejected ? 1 : 0;
+  d["wealth"] = r.wealth;
+  d["decided_at"] = format_timestamp(r.decided_at_ms);
+  d["launch"] = r.launch;
+  d["reserved_at"] = format_timestamp(r.launched_at_ms);
+  d["abandoned"] = r.abandoned;
+  return d;
+}
+
+py::dict running_dict(const RunningEntry& r) {
+  py::dict d;
+  d["id"] = r.id;
+  d["launch"] = r.launch;
+  d["level"] = r.level;
+  d["launched_at"] = format_timestamp(r.launched_at_ms);
   return d;
 }
 
@@ -355,7 +503,7 @@ class PyLedger {
   py::list history(const std::string& stream) {
     auto records = take(open_ledger().history(stream));
     py::list rows;
-    for (const auto& r : records) rows.append(decision_dict(r));
+    for (const auto& r : records) rows.append(history_dict(r));
     return rows;
   }
   py::dict status(const std::string& stream) { return stream_dict(take(open_ledger().status(stream))); }
@@ -383,6 +531,166 @@ class PyLedger {
   py::dict close_stream(const std::string& stream) {
     auto c = take(open_ledger().close_stream(stream));
     py::dict d = stream_dict(c.info);
+    return d;
+  }
+  py::dict launch(const std::string& stream, const std::string& id) {
+    Result<LaunchResult> r = invalid_input("not launched");
+    Ledger& l = open_ledger();
+    {
+      py::gil_scoped_release release;
+      r = l.launch(stream, id);
+    }
+    auto res = take(std::move(r));
+    py::dict d;
+    d["stream"] = res.stream;
+    d["id"] = res.id;
+    d["launch"] = res.launch;
+    d["level"] = res.level;
+    d["wealth"] = res.wealth;
+    d["launched_at"] = format_timestamp(res.launched_at_ms);
+    d["step"] = res.step;
+    d["repeat"] = res.repeat;
+    return d;
+  }
+  py::dict abandon(const std::string& stream, const std::string& id) {
+    Result<AbandonResult> r = invalid_input("not abandoned");
+    Ledger& l = open_ledger();
+    {
+      py::gil_scoped_release release;
+      r = l.abandon(stream, id);
+    }
+    auto res = take(std::move(r));
+    py::dict d;
+    d["stream"] = res.stream;
+    d["id"] = res.id;
+    d["launch"] = res.launch;
+    d["level"] = res.level;
+    d["wealth"] = res.wealth;
+    d["launched_at"] = format_timestamp(res.launched_at_ms);
+    d["abandoned_at"] = format_timestamp(res.abandoned_at_ms);
+    d["step"] = res.step;
+    d["repeat"] = res.repeat;
+    return d;
+  }
+  py::list running(const std::string& stream) {
+    py::list rows;
+    for (const auto& r : take(open_ledger().running(stream))) rows.append(running_dict(r));
+    return rows;
+  }
+
+  // `alphaledger explain STREAM [--id ID] --json`, with the CLI's walk (src/cli/cmd_explain.cpp,
+  // walk_stream): the stream's launches, finishes and abandons replayed through a fresh Rule in
+  // chain order, stopping at the launch of `id` (decided or still running) when one is asked for,
+  // with the CLI's checks and messages against the ledger.
+  py::dict explain(const std::string& stream, const std::optional<std::string>& id) {
+    Ledger& l = open_ledger();
+    auto info = take(l.status(stream));
+    Rule rule(info.config);
+    std::vector<std::uint64_t> rejected_tests;
+    bool found = false;
+    std::optional<double> recorded_level;
+    Status walked;
+    {
+      py::gil_scoped_release release;
+      walked = [&]() -> Status {
+        auto history = l.history(stream);
+        if (!history) return history.error();
+        std::uint64_t wanted = 0;
+        std::optional<double> stored;
+        if (id) {
+          for (const auto& r : *history) {
+            if (r.id != *id) continue;
+            if (r.abandoned) {
+              return conflict("test '" + excerpt(*id) + "' of stream " + excerpt(stream) +
+                                  " was abandoned: it was never decided and its level is no longer reserved",
+                              "abandoned_test");
+            }
+            wanted = r.launch;
+            stored = r.level;
+          }
+          if (wanted == 0) {
+            auto running = l.running_test(stream, *id);
+            if (running) {
+              wanted = running->launch;
+              stored = running->level;
+            } else if (running.error().kind != ErrorKind::kNotFound) {
+              return running.error();
+            }
+          }
+        }
+        const auto mismatch = [&](const std::string& what) {
+          return conflict("stream " + excerpt(stream) + ": " + what + "; run 'alphaledger verify " +
+                          excerpt(stream) + "'");
+        };
+        const bool e_values = rule_takes_e_values(info.config.kind);
+        const auto launch_next = [&]() {  // false once the asked-for launch is reached
+          if (wanted != 0 && rule.tests() + 1 == wanted) {
+            found = true;
+            recorded_level = stored;
+            return false;
+          }
+          rule.launch();
+          return true;
+        };
+        std::uint64_t step = 1;
+        for (const auto& r : *history) {
+          for (; step < r.step; ++step) {
+            if (!launch_next()) return {};
+          }
+          if (r.launch == rule.tests() + 1 && !launch_next()) return {};  // launched and decided at once
+          if (r.abandoned) {
+            if (auto s = rule.abandon(r.launch); !s) {
+              return mismatch("the abandon at step " + std::to_string(r.step) +
+                              " does not replay: " + s.error().message);
+            }
+          } else {
+            auto out = e_values ? rule.finish_e(r.launch, r.p_value) : rule.finish(r.launch, r.p_value);
+            if (!out) {
+              return mismatch("the decision at step " + std::to_string(r.step) +
+                              " does not replay: " + out.error().message);
+            }
+            if (out->rejected) rejected_tests.push_back(out->step);
+          }
+          step = r.step + 1;
+        }
+        while (rule.tests() < info.tests) {  // tests still running
+          if (!launch_next()) return {};
+        }
+        if (!id && rule.next_level() != info.next_level) {
+          return mismatch("its history replayed gives the next level " + format_number(rule.next_level()) +
+                          ", the ledger says " + format_number(info.next_level));
+        }
+        return {};
+      }();
+    }
+    check(walked);
+    if (id && !found) {
+      raise(not_found("no decided or running test with id '" + excerpt(*id) + "' in stream " +
+                          excerpt(stream) + " (without id, explain gives the next level)",
+                      "unknown_test"));
+    }
+    auto e = take(explain_next_level(rule, rejected_tests));
+    if (recorded_level && *recorded_level != e.level) {
+      raise(conflict("test '" + excerpt(*id) + "': the level replayed from the history, " + format_number(e.level) +
+                     ", differs from the level it got, " + format_number(*recorded_level) +
+                     "; run 'alphaledger verify'"));
+    }
+    return explanation_dict(e, stream, id);
+  }
+
+  // `alphaledger report STREAM -o PATH`: the same page, by the same writer.
+  py::dict report(const std::string& stream, const std::string& path) {
+    Ledger& l = open_ledger();
+    Result<std::uint64_t> tests = invalid_input("not written");
+    {
+      py::gil_scoped_release release;
+      tests = write_stream_report(l, stream, path, "path");
+    }
+    py::dict d;
+    d["report"] = "stream";
+    d["stream"] = stream;
+    d["tests"] = take(std::move(tests));
+    d["path"] = path;
     return d;
   }
 
@@ -525,6 +833,7 @@ PYBIND11_MODULE(_native, m) {
       .def("finish", &PyRule::finish)
       .def("abandon", &PyRule::abandon)
       .def("running", &PyRule::running)
+      .def_property_readonly("reserved", &PyRule::reserved)
       .def_property_readonly("name", [](const PyRule& r) { return std::string(rule_name(r.rule().config().kind)); })
       .def_property_readonly("configuration", [](const PyRule& r) { return describe_config(r.rule().config()); })
       .def_property_readonly("tests", [](const PyRule& r) { return r.rule().tests(); })
@@ -543,9 +852,15 @@ PYBIND11_MODULE(_native, m) {
       .def("streams", &PyLedger::streams)
       .def("next_level", &PyLedger::next_level)
       .def("verify", &PyLedger::verify)
-      .def("close_stream", &PyLedger::close_stream);
+      .def("close_stream", &PyLedger::close_stream)
+      .def("launch", &PyLedger::launch)
+      .def("abandon", &PyLedger::abandon)
+      .def("running", &PyLedger::running)
+      .def("explain", &PyLedger::explain)
+      .def("report", &PyLedger::report);
 
   m.def("replay", &replay_native);
+  m.def("explain", &explain_rule);
   m.def("simulate", &simulate_native);
   m.def("pvalue_proportions", &pvalue_proportions);
   m.def("pvalue_means", &pvalue_means);

@@ -200,7 +200,7 @@ class SimulateLikeCli(unittest.TestCase):
     def test_dataframe(self):
         frame = al.simulate(["lord++"], tests=100, runs=5, seed=1, threads=1)
         self.assertEqual(list(frame.columns), ["rule", "runs", "tests", "mean_rejections", "fdr", "fdr_se", "mfdr",
-                                               "power", "power_se", "fwer"])
+                                               "power", "power_se", "fwer", "evaluation"])
         self.assertEqual(frame["runs"].tolist(), [5])
 
     def test_gil_is_released(self):

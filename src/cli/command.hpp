@@ -54,11 +54,5 @@ void add_stats_commands(CLI::App& app, CommandContext& ctx);    // pvalue plan (
 void add_service_commands(CLI::App& app, CommandContext& ctx);  // pipe serve
 void add_recover_command(CLI::App& app, CommandContext& ctx);   // recover
 void add_report_command(CLI::App& app, CommandContext& ctx);    // report
-// replay --report FILE (src/cli/cmd_report.cpp): the HTML page of a replay of `log`, with the
-// hindsight BH answer at `alpha` added when `procedures` lacks bh.
-// `log_path` and `forced_format` are replay's: the log's other columns are read again from there.
-Status write_replay_report(const std::string& path, const CompactLog& log,
-                           const std::vector<Procedure>& procedures, std::optional<double> alpha,
-                           const std::string& log_path, std::optional<std::string_view> forced_format);
 
 }  // namespace alphaledger::cli

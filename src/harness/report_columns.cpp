@@ -50,12 +50,17 @@ std::vector<std::string> split_csv_line(std::string_view line) {
 
 InputColumns read_input_columns(const std::string& path, std::optional<std::string_view> forced,
                                 const CompactLog& log, std::span<const std::string_view> skip) {
-  InputColumns data;
-  if (path == "-") return data;
+  if (path == "-") return {};
   auto format = log_format_for(path, forced);
-  if (!format) return data;
+  if (!format) return {};
   std::ifstream in(path, std::ios::binary);
-  if (!in) return data;
+  if (!in) return {};
+  return read_input_columns(in, *format, log, skip);
+}
+
+InputColumns read_input_columns(std::istream& in, LogFormat format, const CompactLog& log,
+                                std::span<const std::string_view> skip) {
+  InputColumns data;
   std::unordered_map<std::uint64_t, std::size_t> row_of_line;
   for (std::size_t i = 0; i < log.size(); ++i) row_of_line[log.records[i].line] = i;
   const auto known = [&](std::string_view name) {
@@ -80,7 +85,7 @@ InputColumns read_input_columns(const std::string& path, std::optional<std::stri
     ++line_no;
     if (line_no == 1 && line.rfind("\xEF\xBB\xBF", 0) == 0) line.erase(0, 3);
     if (line.find_first_not_of(" \t\r") == std::string::npos) continue;
-    if (*format == LogFormat::kCsv) {
+    if (format == LogFormat::kCsv) {
       const auto cells = split_csv_line(line);
       if (header) {
         header = false;
@@ -124,6 +129,5 @@ InputColumns read_input_columns(const std::string& path, std::optional<std::stri
   if (!ok) return {};
   return data;
 }
-
 
 }  // namespace alphaledger

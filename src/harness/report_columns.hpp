@@ -4,6 +4,7 @@
 #pragma once
 
 #include <cstddef>
+#include <istream>
 #include <optional>
 #include <span>
 #include <string>
@@ -34,5 +35,8 @@ inline constexpr std::span<const std::string_view> kReportKeeps{kReportKeepsName
 // without them. Cells are excerpt()s; JSON Lines values that are not strings are their JSON text.
 InputColumns read_input_columns(const std::string& path, std::optional<std::string_view> forced,
                                 const CompactLog& log, std::span<const std::string_view> skip);
+// The same from a log already open as `in`, read from its start in `format` (a log held in memory).
+InputColumns read_input_columns(std::istream& in, LogFormat format, const CompactLog& log,
+                                std::span<const std::string_view> skip);
 
 }  // namespace alphaledger
