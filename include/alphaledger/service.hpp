@@ -91,7 +91,9 @@ class DecisionQueue {
 
   // As Ledger::decide. REQUIRES: the caller has validated id and p_value (validate_test_id,
   // validate_p_value), so one bad input cannot fail a shared batch.
-  Result<DecideResult> decide(const std::string& stream, const std::string& id, double p_value);
+  // With e_value, the number is an e-value (Ledger::decide_e; e-lond streams).
+  Result<DecideResult> decide(const std::string& stream, const std::string& id, double p_value,
+                              bool e_value = false);
 
   // Streams with a lane right now. A lane exists only while a decide() on its stream is queued or
   // running, so names seen once (unknown ones included) cost nothing afterwards.
