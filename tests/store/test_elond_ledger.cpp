@@ -10,7 +10,6 @@
 #include <limits>
 #include <random>
 
-#include "alphaledger/forms.hpp"
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/store.hpp"
 #include "store/faulty_store.hpp"
@@ -65,7 +64,7 @@ TEST_CASE("e-LOND ledger: levels and rejections equal the core Rule(\"e-lond\") 
       held = open_over(mem);
     }
     const Outcome o = rule.record_e(e_values[i]);
-    auto d = held->decide_e("e", "t" + std::to_string(i), e_values[i]);
+    auto d = held->decide_e("e", store_test::numbered("t", i), e_values[i]);
     REQUIRE(d.ok());
     CHECK(same_bits(d->record.level, o.level));
     CHECK(d->record.rejected == o.rejected);
@@ -84,13 +83,10 @@ TEST_CASE("e-LOND ledger: levels and rejections equal the core Rule(\"e-lond\") 
   REQUIRE(h.ok());
   REQUIRE(h->size() == e_values.size());
   CHECK(same_bits((*h)[7].p_value, e_values[7]));
-  // History and decisions name the number e_value (forms.hpp).
-  CHECK(history_row_json((*h)[0], "e-lond").find("\"e_value\":") != std::string::npos);
-  CHECK(history_row_json((*h)[0], "e-lond").find("\"p_value\"") == std::string::npos);
   auto again = ledger->decide_e("e", "t3", e_values[3]);
   REQUIRE(again.ok());
   CHECK(again->repeat);
-  CHECK(decision_json(*again).find("\"e_value\":") != std::string::npos);
+  CHECK(again->record.e_value);
 }
 
 TEST_CASE("e-LOND ledger: wrong kind of number, bad e-values and conflicts leave the ledger unchanged") {
@@ -133,7 +129,7 @@ TEST_CASE("e-LOND ledger: a batch of e-values and launched tests finished with e
   REQUIRE(ledger->create_stream("e", elond_config()).ok());
   Rule rule(elond_config());
   std::vector<TestInput> batch;
-  for (std::size_t i = 0; i < 20; ++i) batch.push_back({"b" + std::to_string(i), e_values[i], true});
+  for (std::size_t i = 0; i < 20; ++i) batch.push_back({store_test::numbered("b", i), e_values[i], true});
   auto r = ledger->decide_batch("e", batch, 8);
   REQUIRE(r.ok());
   REQUIRE_FALSE(r->error);

@@ -768,7 +768,7 @@ TEST_CASE("Ledger: decide_batch repeats within a batch, across and inside groups
     auto d = one_by_one->decide("s", t.id, t.p_value);
     REQUIRE(d.ok());
     for (const auto& got : r->decided) {
-      if (got.record.id != id) continue;
+      if (got.record.id != t.id) continue;
       CHECK(same_bits(got.record.level, d->record.level));
       CHECK(got.record.rejected == d->record.rejected);
       CHECK(same_bits(got.record.wealth, d->record.wealth));
