@@ -117,6 +117,7 @@ struct PipeSummary {
   std::uint64_t decided = 0;    // new decisions (a finish of a launched test included)
   std::uint64_t launched = 0;   // new launches ("event": "launch")
   std::uint64_t abandoned = 0;  // new abandons ("event": "abandon")
+  std::uint64_t looked = 0;     // new looks that said continue ("event": "look"; a stop counts as decided)
   std::uint64_t repeats = 0;    // retries answered with the stored decision, launch or abandon
   std::uint64_t bad = 0;        // lines answered with {"line": N, "error": "..."}
   bool stopped = false;         // stopped by stop_fd before the end of input

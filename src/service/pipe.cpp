@@ -155,6 +155,8 @@ class PipeRun {
         ++summary_.repeats;
       } else if (l->stop) {
         ++summary_.decided;
+      } else {
+        ++summary_.looked;
       }
     }
     out_ << text << '\n';

@@ -79,8 +79,11 @@ TEST_CASE("pipe: look lines continue, stop and repeat; bad look lines are answer
   CHECK(Json::parse(lines[5])["repeat"] == true);
   CHECK(Json::parse(lines[6])["error"].get<std::string>().find("never launched") != std::string::npos);
   CHECK(summary->decided == 1);
+  CHECK(summary->looked == 1);
+  CHECK(summary->launched == 1);
   CHECK(summary->repeats == 1);
   CHECK(summary->bad == 3);
+  CHECK(summary->lines == 7);
   auto v = ledger->verify("s");
   REQUIRE(v.ok());
   CHECK(v->ok);
