@@ -33,12 +33,15 @@ namespace alphaledger {
 // ---- decisions ---------------------------------------------------------------------------------
 
 // {"step","id","p_value","level","rejected" (1/0),"wealth","stream","decided_at","launch",
-// "launched_at","repeat"}. With a
+// "launched_at","repeat"}; "e_value" instead of "p_value" for an e-value (record.e_value set, or
+// `rule` e-lond). With a
 // non-empty `rule`, a first key "rule" holds it (decide --file rows carry replay's rule column).
 std::string decision_json(const DecideResult& d, std::string_view rule = {});
 
 // A decision as a CSV row under kDecisionCsvHeader (decide --file without --json; replay's columns).
 inline constexpr std::string_view kDecisionCsvHeader = "rule,step,id,p_value,level,rejected,wealth";
+// The same for an e-lond stream, whose rows hold e-values (replay reads the e_value column).
+inline constexpr std::string_view kDecisionCsvHeaderE = "rule,step,id,e_value,level,rejected,wealth";
 std::string decision_csv(const DecisionRecord& r, std::string_view rule);
 
 // ---- streams -----------------------------------------------------------------------------------
@@ -69,6 +72,12 @@ std::string history_row_json(const DecisionRecord& r, std::string_view rule);
 inline constexpr std::string_view kHistoryCsvHeader =
     "rule,step,id,p_value,level,rejected,wealth,decided_at,launch,reserved_at,abandoned";
 std::string history_row_csv(const DecisionRecord& r, std::string_view rule);
+// An e-lond stream's history holds e-values: the same columns with e_value for p_value (replay
+// reads an e_value column as e-values). history_row_json uses the e_value key there too.
+inline constexpr std::string_view kHistoryCsvHeaderE =
+    "rule,step,id,e_value,level,rejected,wealth,decided_at,launch,reserved_at,abandoned";
+// kHistoryCsvHeader, or kHistoryCsvHeaderE for a rule that takes e-values.
+std::string_view history_csv_header(std::string_view rule);
 // One page of history: {"stream","from","limit","total","next_step" (null at the end),
 // "decisions": [history_row_json, ...]}.
 std::string history_page_json(std::string_view stream, std::uint64_t from, std::uint64_t limit,
@@ -86,6 +95,16 @@ std::string running_json(std::string_view stream, const RunningEntry& r);
 std::string running_list_json(std::string_view stream, const std::vector<RunningEntry>& running);
 inline constexpr std::string_view kRunningCsvHeader = "id,launch,level,launched_at";
 std::string running_csv(const RunningEntry& r);
+
+// ---- looks at running tests ---------------------------------------------------------------
+
+// {"stream","id","look","launch","step","summary" ("proportions"/"means"),"control","treatment"
+// (objects: n, conversions / n, mean, sd),"mixture_sd","estimate","anytime_p_value","running_min",
+// "e_value","cs_low","cs_high","level","verdict" ("stop"/"continue"),"looked_at","decision" (the
+// decision_json object a stop made, else null),"repeat"} (`look --json`, pipe, HTTP).
+std::string look_json(const LookResult& l);
+// {"stream","id","looks": [look_json, ...]} (`looks --json`, GET .../looks).
+std::string look_list_json(std::string_view stream, std::string_view id, const std::vector<LookResult>& looks);
 
 // ---- verify ------------------------------------------------------------------------------------
 

@@ -86,6 +86,10 @@ struct DecisionRecord {
   std::int64_t launched_at_ms = 0; // equal to decided_at_ms when decided without a launch first
   // The test was abandoned (Ledger::abandon): never decided, p_value 0, rejected false.
   bool abandoned = false;
+  // p_value holds the test's e-value (a stream whose rule takes e-values, e-lond). Set in the
+  // answers of decide_e, decide_batch rows with e_value and looks; history rows leave it false
+  // (their rule says it: forms.hpp prints e_value for e-lond rows).
+  bool e_value = false;
 };
 
 struct DecideResult {
@@ -128,9 +132,48 @@ struct RunningEntry {
   friend bool operator==(const RunningEntry&, const RunningEntry&) = default;
 };
 
+// One look at a running test (Ledger::look): the cumulative summaries of both arms so far, and the
+// mixing scale of the always-valid p-value (alphaledger/anytime.hpp). Looks of one test keep the
+// same kind of summary and the same mixture_sd; counts never go down between looks.
+enum class LookSummary : std::uint8_t { kProportions = 1, kMeans = 2 };  // stored on disk: do not change
+struct LookData {
+  LookSummary summary = LookSummary::kProportions;
+  ProportionArm control_proportions{};  // kProportions
+  ProportionArm treatment_proportions{};
+  MeanArm control_means{};  // kMeans
+  MeanArm treatment_means{};
+  // tau, on the scale of the estimate, > 0. Absent: the one the test's first look used (the first
+  // look must give it). Later looks may repeat it but not change it.
+  std::optional<double> mixture_sd;
+};
+// Same summaries and mixing scale, bit for bit (a retried look).
+bool same_look_data(const LookData& a, const LookData& b);
+
+// The answer to one look (Ledger::look, Ledger::looks).
+struct LookResult {
+  std::string stream;
+  std::string id;
+  std::uint64_t look = 0;    // 1-based: this test's looks so far
+  std::uint64_t launch = 0;  // the test's launch number
+  std::uint64_t step = 0;    // the look's position in the stream's chain
+  double level = 0;          // the level reserved at the launch
+  double estimate = 0;       // treatment minus control at this look
+  double anytime_p_value = 1;  // 1 / e_value, at most 1: the always-valid p-value of this look alone
+  double running_min = 1;      // the smallest anytime_p_value over this test's looks up to this one
+  double e_value = 1;          // the mixture likelihood ratio at this look
+  double cs_low = 0;           // confidence sequence at coverage 1 - alpha (the stream's alpha)
+  double cs_high = 0;
+  bool stop = false;  // p-value streams: running_min <= level; e-lond: e_value >= 1 / level
+  std::int64_t looked_at_ms = 0;
+  LookData data;
+  std::optional<DecisionRecord> decision;  // when stop: the decision the look made
+  bool repeat = false;  // the same look data as the test's last look: the stored answer, nothing changed
+};
+
 struct TestInput {
   std::string id;
-  double p_value = 0;
+  double p_value = 0;  // or the e-value, with e_value set
+  bool e_value = false;  // the number is an e-value (streams whose rule takes e-values: e-lond)
 };
 
 // A test of a batch whose id the caller holds (decide --file points into the log it read, so a
@@ -138,6 +181,7 @@ struct TestInput {
 struct TestView {
   std::string_view id;
   double p_value = 0;
+  bool e_value = false;  // as in TestInput
 };
 
 // A chain hash noted earlier (from verify's output), to check that the ledger still holds it:
@@ -223,6 +267,12 @@ class Ledger {
   // (a finish event); an abandoned id is kConflict. An id never launched is launched and decided
   // at once, as before launches existed (docs/ledger.md "Launch-time levels").
   virtual Result<DecideResult> decide(std::string_view stream, std::string_view id, double p_value) = 0;
+  // A stream whose rule takes e-values (e-lond) is decided with decide_e, every other stream with
+  // decide: the other call is kInvalidArgument naming the field it wants (p_value / e_value).
+  // decide_e: the e-value must be finite and >= 0; the test is rejected iff e >= 1 / level, the
+  // e-value is stored where a p-value stream stores its p-value, and the rest is as decide. In a
+  // batch, TestInput::e_value says which each row holds.
+  virtual Result<DecideResult> decide_e(std::string_view stream, std::string_view id, double e_value) = 0;
 
   // Decides tests in order with one synced write per group (group commit). Every input is
   // checked first: a bad id or p-value (kInvalidArgument), or a conflict (kConflict: an id already
@@ -281,6 +331,22 @@ class Ledger {
   // One running test by id. Unknown id: kNotFound (code unknown_test); decided or abandoned:
   // kConflict saying so (its level is no longer reserved). Unknown stream: kNotFound.
   virtual Result<RunningEntry> running_test(std::string_view stream, std::string_view id) = 0;
+
+  // Looks at running test `id` (docs/ledger.md "Watching a running test"): computes the
+  // always-valid p-value from the cumulative summaries (anytime_evidence, the stream's alpha and
+  // direction), keeps the running minimum over the test's looks, and records the look as a chain
+  // entry. When the running minimum is at most the reserved level (e-lond: the e-value at least
+  // 1 / level) the look says stop and decides the test in the same write, exactly as decide with
+  // p = the running minimum (decide_e with the look's e-value). Otherwise nothing but the look is
+  // written. The same data as the test's last look: that look's answer with repeat = true (also
+  // after a stop decided the test). Errors (ledger unchanged): bad summaries or mixture_sd
+  // (kInvalidArgument naming the field), counts lower than at the last look, another kind of
+  // summary or mixture_sd than the first look (kInvalidArgument); unknown stream or an id never
+  // launched (kNotFound, code unknown_test); decided, abandoned or closed (kConflict).
+  virtual Result<LookResult> look(std::string_view stream, std::string_view id, const LookData& data) = 0;
+  // The looks of one test, oldest first (running, decided or abandoned). Unknown stream or id:
+  // kNotFound; a test never looked at gives an empty list.
+  virtual Result<std::vector<LookResult>> looks(std::string_view stream, std::string_view id) = 0;
 
   // Closes a stream: it takes no more tests, and its history stays readable and verifiable. The
   // closing time is hashed into the chain (docs/ledger-format.md "Closing"), so verify covers it.

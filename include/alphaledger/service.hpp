@@ -91,7 +91,9 @@ class DecisionQueue {
 
   // As Ledger::decide. REQUIRES: the caller has validated id and p_value (validate_test_id,
   // validate_p_value), so one bad input cannot fail a shared batch.
-  Result<DecideResult> decide(const std::string& stream, const std::string& id, double p_value);
+  // With e_value, the number is an e-value (Ledger::decide_e; e-lond streams).
+  Result<DecideResult> decide(const std::string& stream, const std::string& id, double p_value,
+                              bool e_value = false);
 
   // Streams with a lane right now. A lane exists only while a decide() on its stream is queued or
   // running, so names seen once (unknown ones included) cost nothing afterwards.
@@ -115,6 +117,7 @@ struct PipeSummary {
   std::uint64_t decided = 0;    // new decisions (a finish of a launched test included)
   std::uint64_t launched = 0;   // new launches ("event": "launch")
   std::uint64_t abandoned = 0;  // new abandons ("event": "abandon")
+  std::uint64_t looked = 0;     // new looks that said continue ("event": "look"; a stop counts as decided)
   std::uint64_t repeats = 0;    // retries answered with the stored decision, launch or abandon
   std::uint64_t bad = 0;        // lines answered with {"line": N, "error": "..."}
   bool stopped = false;         // stopped by stop_fd before the end of input

@@ -1,4 +1,4 @@
-// alphaledger decide STREAM --id ID --p P | --file F [--format csv|jsonl] [--sync-every N]
+// alphaledger decide STREAM --id ID (--p P | --e E) | --file F [--format csv|jsonl] [--sync-every N]
 #include <spdlog/spdlog.h>
 #include <unistd.h>
 
@@ -20,6 +20,7 @@ struct DecideOptions {
   std::string stream;
   std::optional<std::string> id;
   std::optional<std::string> p;
+  std::optional<std::string> e;  // an e-value, for e-lond streams
   std::optional<std::string> file;
   std::optional<std::string> format;
   std::size_t sync_every = 256;
@@ -28,7 +29,11 @@ struct DecideOptions {
 std::string decision_text(const DecideResult& d) {
   const auto& r = d.record;
   std::string line = "step " + std::to_string(r.step) + "  " + r.id + "  ";
-  if (r.rejected) {
+  if (r.e_value) {  // e-lond: rejected iff e >= 1 / level
+    line += (r.rejected ? "REJECTED  e_value " : "not rejected  e_value ") + format_rounded(r.p_value, 6) +
+            (r.rejected ? " >= 1/level " : " < 1/level ") + format_rounded(1.0 / r.level, 6) + " (level " +
+            format_rounded(r.level, 6) + ")";
+  } else if (r.rejected) {
     line += "REJECTED  p_value " + format_rounded(r.p_value, 6) + " <= level " + format_rounded(r.level, 6);
   } else {
     line +=
@@ -44,13 +49,39 @@ std::string decision_text(const DecideResult& d) {
   return line;
 }
 
+// The number of --p or --e, checked against what the stream's rule takes.
+Result<double> evidence_of(const DecideOptions& o, const StreamInfo& info) {
+  const bool wants_e = rule_takes_e_values(info.config.kind);
+  const std::string rule(rule_name(info.config.kind));
+  if (wants_e && o.p) {
+    return invalid_input("--p: stream " + o.stream + " uses rule " + rule +
+                         ", which takes e-values: give --e E (an e-value >= 0), not --p (the ledger is unchanged)");
+  }
+  if (!wants_e && o.e) {
+    return invalid_input("--e: stream " + o.stream + " uses rule " + rule +
+                         ", which takes p-values: give --p P, not --e (only e-lond streams take e-values; the "
+                         "ledger is unchanged)");
+  }
+  if (o.p) {
+    auto p = parse_p_value_text(*o.p);
+    if (!p) return invalid_input("--p: " + p.error().message);
+    return *p;
+  }
+  auto e = parse_number_text(*o.e, "e_value");
+  if (!e) return invalid_input("--e: " + e.error().message);
+  if (auto v = validate_e_value(*e); !v) return invalid_input("--e: " + v.error().message);
+  return *e;
+}
+
 Status run_decide_one(const DecideOptions& o, const GlobalOptions& g, std::ostream& out) {
-  auto p = parse_p_value_text(*o.p);
-  if (!p) return invalid_input("--p: " + p.error().message);
   if (auto s = validate_test_id(*o.id); !s) return invalid_input("--id: " + s.error().message);
   auto ledger = open_ledger(g, /*create=*/false);
   if (!ledger) return ledger.error();
-  auto d = (*ledger)->decide(o.stream, *o.id, *p);
+  auto info = (*ledger)->status(o.stream);
+  if (!info) return info.error();
+  auto x = evidence_of(o, *info);
+  if (!x) return x.error();
+  auto d = o.e ? (*ledger)->decide_e(o.stream, *o.id, *x) : (*ledger)->decide(o.stream, *o.id, *x);
   if (!d) return d.error();
   // decide() returned: the decision is synced. Only now is it printed.
   out << (g.json ? decision_json(*d) : decision_text(*d)) << '\n';
@@ -89,6 +120,11 @@ Result<BatchInput> read_batch(const DecideOptions& o, const StreamInfo& info) {
   b.ids->shrink_to_fit();
   const std::string_view ids = *b.ids;
   const auto& records = log->records;
+  const bool e_values = rule_takes_e_values(info.config.kind);
+  if (e_values && !log->has_e_values) {
+    return invalid_input(b.source + ": stream " + info.name + " uses rule " + std::string(rule_name(info.config.kind)) +
+                         ", which takes e-values: every row needs an e_value column (a number >= 0)");
+  }
   if (!records.empty()) b.first_line = records.front().line;
   bool in_file_order = true;
   for (std::size_t i = 0; i < records.size() && in_file_order; ++i) {
@@ -97,7 +133,7 @@ Result<BatchInput> read_batch(const DecideOptions& o, const StreamInfo& info) {
   b.tests.reserve(records.size());
   if (!in_file_order) b.lines.reserve(records.size());
   for (const auto& r : records) {
-    b.tests.push_back({ids.substr(r.id_offset, r.id_size), r.p_value});
+    b.tests.push_back({ids.substr(r.id_offset, r.id_size), e_values ? r.e_value : r.p_value, e_values});
     if (!in_file_order) b.lines.push_back(r.line);
   }
   return b;
@@ -113,8 +149,8 @@ class BatchPrinter {
         total_(total),
         progress_(::isatty(STDERR_FILENO) != 0) {}
 
-  void header() {
-    if (!json_) out_ << kDecisionCsvHeader << '\n';
+  void header(bool e_values) {
+    if (!json_) out_ << (e_values ? kDecisionCsvHeaderE : kDecisionCsvHeader) << '\n';
     out_.flush();
   }
   void print(const std::vector<DecideResult>& group) {
@@ -157,12 +193,13 @@ Status run_decide_file(const DecideOptions& o, const GlobalOptions& g, std::ostr
   if (!ledger) return ledger.error();
   auto info = (*ledger)->status(o.stream);
   if (!info) return info.error();
+  const bool e_values = rule_takes_e_values(info->config.kind);
   auto batch_input = read_batch(o, *info);
   if (!batch_input) return batch_input.error();
   const BatchInput& input = *batch_input;
 
   BatchPrinter printer(out, g.json, std::string(rule_name(info->config.kind)), input.tests.size());
-  printer.header();
+  printer.header(e_values);
   auto batch = (*ledger)->decide_batch_streamed(o.stream, std::span<const TestView>(input.tests), o.sync_every,
                                                 [&](const std::vector<DecideResult>& group) {
                                                   printer.print(group);  // after the group's sync
@@ -176,11 +213,14 @@ Status run_decide_file(const DecideOptions& o, const GlobalOptions& g, std::ostr
 }
 
 Status run_decide(const DecideOptions& o, const GlobalOptions& g, std::ostream& out) {
-  const bool one = o.id.has_value() || o.p.has_value();
-  if (o.file && one) return invalid_input("give either --id ID --p P, or --file F, not both");
+  const bool one = o.id.has_value() || o.p.has_value() || o.e.has_value();
+  if (o.file && one) return invalid_input("give either --id ID with --p P or --e E, or --file F, not both");
   if (o.file) return run_decide_file(o, g, out);
-  if (!o.id || !o.p) {
-    return invalid_input("decide needs --id ID and --p P (one test), or --file F (a log of tests)");
+  if (o.p && o.e) return invalid_input("give --p P (a p-value) or --e E (an e-value, e-lond streams), not both");
+  if (!o.id || (!o.p && !o.e)) {
+    return invalid_input(
+        "decide needs --id ID and --p P (or --e E on an e-lond stream) for one test, or --file F (a log of "
+        "tests)");
   }
   if (o.format) return invalid_input("--format applies only with --file");
   return run_decide_one(o, g, out);
@@ -196,6 +236,7 @@ void add_decide_command(CLI::App& app, CommandContext& ctx) {
   sub->add_option("stream", o->stream, "stream name")->required();
   sub->add_option("--id", o->id, "test id: 1 to 256 bytes, no control characters; decided once");
   sub->add_option("--p", o->p, "the test's p-value, in [0, 1]");
+  sub->add_option("--e", o->e, "the test's e-value, >= 0 (streams of rule e-lond; rejected iff e >= 1/level)");
   sub->add_option("--file", o->file,
                   "log of tests (replay format: CSV with a header, or JSON Lines); - reads standard input");
   sub->add_option("--format", o->format, "csv or jsonl; default from the file extension")

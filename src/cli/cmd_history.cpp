@@ -22,7 +22,7 @@ Status run_history(const HistoryOptions& o, const GlobalOptions& g, std::ostream
   if (!info) return info.error();
   const std::string rule(rule_name(info->config.kind));
   const bool json = g.json || o.format == "jsonl";
-  if (!json) out << kHistoryCsvHeader << '\n';
+  if (!json) out << history_csv_header(rule) << '\n';
   // A page of chain entries at a time: a long history is never held in memory. Decided and
   // abandoned tests are listed (abandoned = 1); a launch still running gives no row.
   constexpr std::size_t kPage = 1024;

@@ -21,6 +21,7 @@
 namespace alphaledger::cli {
 
 void add_explain_command(CLI::App& app, CommandContext& ctx);  // src/cli/cmd_explain.cpp
+void add_look_commands(CLI::App& app, CommandContext& ctx);    // src/cli/cmd_look.cpp: look, looks
 
 std::string ledger_path(const GlobalOptions& global) {
   if (!global.ledger.empty()) return global.ledger;
@@ -114,6 +115,7 @@ void build_app(CLI::App& app, CommandContext& ctx) {
   add_recover_command(app, ctx);
   add_report_command(app, ctx);
   add_explain_command(app, ctx);  // src/cli/cmd_explain.cpp
+  add_look_commands(app, ctx);    // src/cli/cmd_look.cpp
 }
 
 void set_up_logging(const GlobalOptions& global) {

@@ -15,7 +15,8 @@ std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger,
   if (max_group == 0) max_group = 1;
   // Returns false after a storage failure: nothing more is tried.
   auto decide_one = [&](std::size_t k) {
-    out[k] = ledger.decide(stream, tests[k].id, tests[k].p_value);
+    out[k] = tests[k].e_value ? ledger.decide_e(stream, tests[k].id, tests[k].p_value)
+                              : ledger.decide(stream, tests[k].id, tests[k].p_value);
     return out[k]->ok() || !is_storage_failure(out[k]->error().kind);
   };
   // Inputs not yet answered, in arrival order.
@@ -100,6 +101,7 @@ struct DecisionQueue::Lane {
   struct Pending {
     const std::string* id;
     double p_value;
+    bool e_value;
     std::optional<Result<DecideResult>> result;
   };
   std::mutex mutex;
@@ -136,14 +138,15 @@ std::size_t DecisionQueue::lane_count() const {
   return lanes_.size();
 }
 
-Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std::string& id, double p_value) {
+Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std::string& id, double p_value,
+                                           bool e_value) {
   Lane& lane = acquire(stream);
   struct Release {
     DecisionQueue* queue;
     const std::string& stream;
     ~Release() { queue->release(stream); }
   } release_on_return{this, stream};
-  Lane::Pending me{&id, p_value, std::nullopt};
+  Lane::Pending me{&id, p_value, e_value, std::nullopt};
   std::unique_lock<std::mutex> lock(lane.mutex);
   lane.waiting.push_back(&me);
   while (!me.result) {
@@ -161,7 +164,7 @@ Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std:
     lock.unlock();
     std::vector<TestInput> inputs;
     inputs.reserve(group.size());
-    for (const auto* p : group) inputs.push_back({*p->id, p->p_value});
+    for (const auto* p : group) inputs.push_back({*p->id, p->p_value, p->e_value});
     std::vector<std::optional<Result<DecideResult>>> results;
     try {
       results = decide_in_order(ledger_, stream, inputs, max_group_);

@@ -52,12 +52,18 @@ Json stream_object(const StreamInfo& s) {
   return j;
 }
 
+// The key of a record's number: e_value for a rule that takes e-values (e-lond), else p_value.
+const char* evidence_key(const DecisionRecord& r, std::string_view rule) {
+  auto kind = parse_rule_name(rule);
+  return r.e_value || (kind && rule_takes_e_values(*kind)) ? "e_value" : "p_value";
+}
+
 Json history_row_object(const DecisionRecord& r, std::string_view rule) {
   Json j;
   j["rule"] = std::string(rule);
   j["step"] = r.step;
   j["id"] = r.id;
-  j["p_value"] = number(r.p_value);
+  j[evidence_key(r, rule)] = number(r.p_value);
   j["level"] = number(r.level);
   j["rejected"] = r.rejected ? 1 : 0;
   j["wealth"] = number(r.wealth);
@@ -91,7 +97,7 @@ std::string decision_json(const DecideResult& d, std::string_view rule) {
   if (!rule.empty()) j["rule"] = std::string(rule);
   j["step"] = d.record.step;
   j["id"] = d.record.id;
-  j["p_value"] = number(d.record.p_value);
+  j[evidence_key(d.record, rule)] = number(d.record.p_value);
   j["level"] = number(d.record.level);
   j["rejected"] = d.record.rejected ? 1 : 0;
   j["wealth"] = number(d.record.wealth);
@@ -104,6 +110,61 @@ std::string decision_json(const DecideResult& d, std::string_view rule) {
 }
 
 std::string decision_csv(const DecisionRecord& r, std::string_view rule) { return csv_row(r, rule); }
+
+std::string_view history_csv_header(std::string_view rule) {
+  auto kind = parse_rule_name(rule);
+  return kind && rule_takes_e_values(*kind) ? kHistoryCsvHeaderE : kHistoryCsvHeader;
+}
+
+namespace {
+
+Json look_object(const LookResult& l) {
+  Json j;
+  j["stream"] = l.stream;
+  j["id"] = l.id;
+  j["look"] = l.look;
+  j["launch"] = l.launch;
+  j["step"] = l.step;
+  j["summary"] = l.data.summary == LookSummary::kMeans ? "means" : "proportions";
+  if (l.data.summary == LookSummary::kMeans) {
+    for (auto [key, arm] : {std::pair{"control", &l.data.control_means}, {"treatment", &l.data.treatment_means}})
+      j[key] = Json{{"n", arm->n}, {"mean", number(arm->mean)}, {"sd", number(arm->sd)}};
+  } else {
+    for (auto [key, arm] : {std::pair{"control", &l.data.control_proportions},
+                            {"treatment", &l.data.treatment_proportions}})
+      j[key] = Json{{"n", arm->n}, {"conversions", arm->conversions}};
+  }
+  j["mixture_sd"] = number(l.data.mixture_sd.value_or(0.0));
+  j["estimate"] = number(l.estimate);
+  j["anytime_p_value"] = number(l.anytime_p_value);
+  j["running_min"] = number(l.running_min);
+  j["e_value"] = number(l.e_value);
+  j["cs_low"] = number(l.cs_low);
+  j["cs_high"] = number(l.cs_high);
+  j["level"] = number(l.level);
+  j["verdict"] = l.stop ? "stop" : "continue";
+  j["looked_at"] = format_timestamp(l.looked_at_ms);
+  if (l.decision) {
+    j["decision"] = Json::parse(decision_json(DecideResult{l.stream, *l.decision, l.repeat}));
+  } else {
+    j["decision"] = nullptr;
+  }
+  j["repeat"] = l.repeat;
+  return j;
+}
+
+}  // namespace
+
+std::string look_json(const LookResult& l) { return json_text(look_object(l)); }
+
+std::string look_list_json(std::string_view stream, std::string_view id, const std::vector<LookResult>& looks) {
+  Json j;
+  j["stream"] = std::string(stream);
+  j["id"] = std::string(id);
+  j["looks"] = Json::array();
+  for (const auto& l : looks) j["looks"].push_back(look_object(l));
+  return json_text(j);
+}
 
 std::string stream_json(const StreamInfo& s) { return json_text(stream_object(s)); }
 

@@ -1,9 +1,12 @@
 // Reading HTTP requests: bearer tokens, JSON bodies and query strings (service/http_requests.hpp).
 #include "service/http_requests.hpp"
 
+#include <algorithm>
 #include <charconv>
+#include <cmath>
 
 #include "harness/json_input.hpp"
+#include "harness/json_text.hpp"
 
 namespace alphaledger::routes {
 
@@ -124,6 +127,81 @@ Result<std::vector<Anchor>> anchor_query(std::string_view query) {
     out.push_back(*a);
   }
   return out;
+}
+
+namespace {
+
+// A whole number >= 0 (at most 2^53) from a JSON number.
+Result<std::uint64_t> whole_field(const nlohmann::json& arm, const std::string& where, const char* key) {
+  auto it = arm.find(key);
+  if (it == arm.end()) return invalid_input(where + " needs '" + key + "' (a whole number >= 0)");
+  const double v = it->is_number() ? it->get<double>() : -1.0;
+  if (v < 0 || v != std::floor(v) || v > 9007199254740992.0)
+    return invalid_input(where + "." + key + " must be a whole number >= 0, got " + excerpt(json_text(*it)));
+  return static_cast<std::uint64_t>(v);
+}
+
+Result<double> real_field(const nlohmann::json& arm, const std::string& where, const char* key) {
+  auto it = arm.find(key);
+  if (it == arm.end() || !it->is_number())
+    return invalid_input(where + " needs '" + key + "' as a JSON number");
+  return it->get<double>();
+}
+
+// One arm into `data`; `proportions` says which kind the look is.
+Status arm_from_json(const nlohmann::json& object, const std::string& where, bool proportions, bool control,
+                     LookData& data) {
+  auto it = object.find(where);
+  if (it == object.end() || !it->is_object()) {
+    return invalid_input("missing field '" + where +
+                         "': an object {\"n\", \"conversions\"} (proportions) or {\"n\", \"mean\", \"sd\"} (means)");
+  }
+  for (auto k = it->begin(); k != it->end(); ++k) {
+    const std::string& key = k.key();
+    if (key != "n" && key != (proportions ? "conversions" : "mean") && (proportions || key != "sd"))
+      return invalid_input(where + ": unknown field '" + excerpt(key) + "'");
+  }
+  auto n = whole_field(*it, where, "n");
+  if (!n) return n.error();
+  if (proportions) {
+    auto x = whole_field(*it, where, "conversions");
+    if (!x) return x.error();
+    (control ? data.control_proportions : data.treatment_proportions) = ProportionArm{*n, *x};
+    return {};
+  }
+  auto mean = real_field(*it, where, "mean");
+  if (!mean) return mean.error();
+  auto sd = real_field(*it, where, "sd");
+  if (!sd) return sd.error();
+  (control ? data.control_means : data.treatment_means) = MeanArm{*n, *mean, *sd};
+  return {};
+}
+
+}  // namespace
+
+Result<LookData> look_from_json(const nlohmann::json& object, const std::vector<std::string_view>& also) {
+  if (!object.is_object()) return invalid_input("expected a JSON object such as " + std::string(kLookExample));
+  for (auto it = object.begin(); it != object.end(); ++it) {
+    const std::string& key = it.key();
+    const bool known = key == "control" || key == "treatment" || key == "mixture_sd" ||
+                       std::find(also.begin(), also.end(), key) != also.end();
+    if (!known) {
+      return invalid_input("unknown field '" + excerpt(key) +
+                           "'; a look takes control, treatment and mixture_sd, e.g. " + std::string(kLookExample));
+    }
+  }
+  LookData data;
+  auto control = object.find("control");
+  const bool proportions = control == object.end() || !control->is_object() || control->contains("conversions");
+  data.summary = proportions ? LookSummary::kProportions : LookSummary::kMeans;
+  if (auto s = arm_from_json(object, "control", proportions, true, data); !s) return s.error();
+  if (auto s = arm_from_json(object, "treatment", proportions, false, data); !s) return s.error();
+  if (auto it = object.find("mixture_sd"); it != object.end() && !it->is_null()) {
+    if (!it->is_number() || !(it->get<double>() > 0))
+      return invalid_input("mixture_sd must be a JSON number > 0, got " + excerpt(json_text(*it)));
+    data.mixture_sd = it->get<double>();
+  }
+  return data;
 }
 
 }  // namespace alphaledger::routes

@@ -34,11 +34,14 @@ inline constexpr std::string_view kCreateExample =
     R"({"name": "checkout-team", "rule": "lord++", "alpha": 0.05})";
 inline constexpr std::string_view kDecideExample = R"({"id": "exp-0142", "p_value": 0.0004})";
 inline constexpr std::string_view kLaunchExample = R"({"id": "exp-0150"})";
+inline constexpr std::string_view kLookExample =
+    R"({"control": {"n": 8000, "conversions": 400}, "treatment": {"n": 8000, "conversions": 470}, "mixture_sd": 0.005})";
 inline constexpr std::string_view kRouteList =
     "routes: GET /v1/health, GET|POST /v1/streams, GET /v1/streams/{name}, GET /v1/streams/{name}/next, POST "
     "/v1/streams/{name}/tests, GET /v1/streams/{name}/history?from=STEP&limit=N, GET "
     "/v1/streams/{name}/verify?expect=STEP:HASH, POST /v1/streams/{name}/close, POST "
-    "/v1/streams/{name}/launches, POST /v1/streams/{name}/tests/{id}/abandon, GET /v1/streams/{name}/running";
+    "/v1/streams/{name}/launches, POST /v1/streams/{name}/tests/{id}/abandon, GET /v1/streams/{name}/running, GET|POST "
+    "/v1/streams/{name}/tests/{id}/looks";
 
 // History pages (docs/http.md "History"): without `limit`, kDefaultPage records; never more than
 // kMaxPage in one answer, so one request never holds a whole long history in memory.
@@ -53,6 +56,12 @@ struct PageQuery {
 
 // `expect=STEP:HASH` or `expect=closed:HASH` anchors in one verify request: at most this many.
 inline constexpr std::size_t kMaxAnchors = 64;
+
+// A look's data from a JSON object: "control" and "treatment" objects ({"n", "conversions"} for
+// proportions, {"n", "mean", "sd"} for means, both the same kind), optional "mixture_sd" (a number
+// > 0). `also` names further keys the caller reads itself (pipe: "event", "id"); any other key is
+// refused, naming it, so a misspelt field cannot be dropped silently.
+Result<LookData> look_from_json(const nlohmann::json& object, const std::vector<std::string_view>& also = {});
 
 // Equal, comparing every byte whatever the first difference (timing does not reveal the prefix).
 bool same_secret(std::string_view a, std::string_view b);

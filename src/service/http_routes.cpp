@@ -25,6 +25,8 @@ const Routes::Route Routes::kRoutes[] = {
     {"POST", "streams/*/launches", &Routes::launch},
     {"POST", "streams/*/tests/?/abandon", &Routes::abandon},
     {"GET", "streams/*/running", &Routes::running},
+    {"POST", "streams/*/tests/?/looks", &Routes::look},
+    {"GET", "streams/*/tests/?/looks", &Routes::list_looks},
 };
 
 namespace {
@@ -199,7 +201,7 @@ Response Routes::decide(const Request& req, const std::string& name) {
   auto s = find_stream(name, error);
   if (!s) return error;
   if (s->closed_at_ms) return closed_answer(*s);
-  auto d = queue_.decide(name, input->id, input->p_value);
+  auto d = queue_.decide(name, input->id, input->p_value, input->e_value);
   if (!d) {
     note_write(&d.error());
     return ledger_error(d.error());
@@ -319,6 +321,59 @@ Response Routes::running(const Request&, const std::string& name) {
   auto r = ledger_.running(name);
   if (!r) return ledger_error(r.error());
   return json_answer(200, running_list_json(name, *r));
+}
+
+namespace {
+
+// The test id of a path /v1/streams/{name}/tests/{id}/..., checked; or the error answer.
+std::optional<std::string> path_test_id(const Request& req, Response& error) {
+  auto parts = path_segments(req.path);
+  if (!parts || parts->size() != 6) {
+    error = error_response(400, "invalid_request", "the path " + excerpt(req.path) + " names no test");
+    return std::nullopt;
+  }
+  if (auto v = validate_test_id((*parts)[4]); !v) {
+    error = error_response(400, "invalid_input", "test id in the path: " + v.error().message);
+    return std::nullopt;
+  }
+  return (*parts)[4];
+}
+
+}  // namespace
+
+// POST /v1/streams/{name}/tests/{id}/looks with a look body (kLookExample): Ledger::look. 201
+// with look_json for a new look (a stop has decided the test: its decision is inside), 200 with
+// repeat true for the same data as the test's last look; refusals as decide (unknown or never
+// launched 404, decided or abandoned 409, bad data 400).
+Response Routes::look(const Request& req, const std::string& name) {
+  Response error;
+  auto id = path_test_id(req, error);
+  if (!id) return error;
+  auto body = json_body(req, kLookExample, error);
+  if (!body) return error;
+  auto data = look_from_json(*body);
+  if (!data) return error_response(400, "invalid_input", data.error().message);
+  auto s = find_stream(name, error);
+  if (!s) return error;
+  if (s->closed_at_ms) return closed_answer(*s);
+  auto l = ledger_.look(name, *id, *data);
+  if (!l) {
+    note_write(&l.error());
+    return ledger_error(l.error());
+  }
+  if (!l->repeat) note_write(nullptr);
+  return json_answer(l->repeat ? 200 : 201, look_json(*l));
+}
+
+// GET /v1/streams/{name}/tests/{id}/looks: {"stream","id","looks":[...]}, oldest first.
+Response Routes::list_looks(const Request& req, const std::string& name) {
+  Response error;
+  auto id = path_test_id(req, error);
+  if (!id) return error;
+  if (!find_stream(name, error)) return error;
+  auto list = ledger_.looks(name, *id);
+  if (!list) return ledger_error(list.error());
+  return json_answer(200, look_list_json(name, *id, *list));
 }
 
 }  // namespace alphaledger::routes

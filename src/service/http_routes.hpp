@@ -45,6 +45,8 @@ class Routes {
   http::Response launch(const http::Request& req, const std::string& stream);
   http::Response abandon(const http::Request& req, const std::string& stream);
   http::Response running(const http::Request& req, const std::string& stream);
+  http::Response look(const http::Request& req, const std::string& stream);
+  http::Response list_looks(const http::Request& req, const std::string& stream);
 
   // Remembers the outcome of a write for health(): a storage failure makes it 503 until a later
   // write succeeds.

@@ -7,16 +7,39 @@
 #include "alphaledger/stats.hpp"
 #include "harness/json_input.hpp"
 #include "harness/json_text.hpp"
+#include "harness/test_log_internal.hpp"
 
 namespace alphaledger {
 
+namespace {
+
+// {"id": ..., "e_value": E} (a test of an e-lond stream): an e-value and no p-value.
+Result<TestInput> e_test_from_json(const nlohmann::json& object) {
+  if (auto p = object.find("p_value"); p != object.end() && !p->is_null())
+    return invalid_input("give p_value (p-value streams) or e_value (e-lond streams), not both");
+  auto fields = detail::json_fields(object);
+  if (!fields) return fields.error();
+  auto r = detail::make_record(*fields, std::nullopt, /*e_may_replace_p=*/true);
+  if (!r) return r.error();
+  return TestInput{std::move(r->id), *r->e_value, true};
+}
+
+bool has_e_value(const nlohmann::json& object) {
+  auto e = object.find("e_value");
+  return object.is_object() && e != object.end() && !e->is_null();
+}
+
+}  // namespace
+
 Result<TestInput> test_from_json(const nlohmann::json& object) {
+  if (has_e_value(object)) return e_test_from_json(object);
   auto r = test_record_from_json(object, std::nullopt);
   if (!r) return r.error();
   return TestInput{std::move(r->id), r->p_value};
 }
 
 Result<TestInput> test_from_json(const nlohmann::json& object, Alternative summary_direction) {
+  if (has_e_value(object)) return e_test_from_json(object);
   auto r = test_record_from_json(object, summary_direction);
   if (!r) return r.error();
   return TestInput{std::move(r->id), r->p_value};

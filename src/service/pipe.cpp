@@ -11,19 +11,21 @@
 #include "alphaledger/text.hpp"
 #include "harness/json_input.hpp"
 #include "harness/json_text.hpp"
+#include "service/http_requests.hpp"
 #include "service/json_input.hpp"
 
 namespace alphaledger {
 namespace {
 
 // What a line asks for: its "event" key, absent meaning decide (docs/http.md, "pipe").
-enum class LineEvent { kDecide, kLaunch, kAbandon };
+enum class LineEvent { kDecide, kLaunch, kAbandon, kLook };
 
 // One input line, parsed or refused.
 struct LineWork {
   std::uint64_t line = 0;
   LineEvent event = LineEvent::kDecide;
   std::optional<TestInput> input;  // set when the line is a valid test (for launch and abandon: the id)
+  std::optional<LookData> look;    // a look line's data
   std::string error;               // otherwise, why not
 };
 
@@ -31,12 +33,13 @@ struct LineWork {
 Result<LineEvent> line_event(const nlohmann::json& j) {
   auto it = j.find("event");
   if (it == j.end()) return LineEvent::kDecide;
-  const char* accepted = "; accepted: \"launch\", \"abandon\", \"decide\" (the same as no event)";
+  const char* accepted = "; accepted: \"launch\", \"abandon\", \"look\", \"decide\" (the same as no event)";
   if (!it->is_string()) return invalid_input("event must be a JSON string" + std::string(accepted));
   const auto& e = it->get_ref<const std::string&>();
   if (e == "decide") return LineEvent::kDecide;
   if (e == "launch") return LineEvent::kLaunch;
   if (e == "abandon") return LineEvent::kAbandon;
+  if (e == "look") return LineEvent::kLook;
   return invalid_input("unknown event " + excerpt(e) + std::string(accepted));
 }
 
@@ -83,6 +86,15 @@ LineWork parse_line(std::uint64_t line_no, std::string_view text, Alternative di
       return w;
     }
     w.input = TestInput{std::move(*id), 0};
+    if (w.event == LineEvent::kLook) {
+      auto data = routes::look_from_json(*j, {"event", "id"});
+      if (!data) {
+        w.input.reset();
+        w.error = data.error().message;
+        return w;
+      }
+      w.look = std::move(*data);
+    }
     return w;
   }
   auto input = test_from_json(*j, direction);  // summary rows in the stream's frozen direction
@@ -130,7 +142,34 @@ class PipeRun {
   PipeSummary summary_;
 
  private:
+  // A look line: Ledger::look, answered with look_json (a stop counts as a decision).
+  Status answer_look(const LineWork& w) {
+    auto l = ledger_.look(stream_, w.input->id, *w.look);
+    std::string text;
+    if (!l) {
+      text = line_error_json(w.line, l.error().message);
+      ++summary_.bad;
+    } else {
+      text = look_json(*l);
+      if (l->repeat) {
+        ++summary_.repeats;
+      } else if (l->stop) {
+        ++summary_.decided;
+      } else {
+        ++summary_.looked;
+      }
+    }
+    out_ << text << '\n';
+    out_.flush();
+    if (!out_) return io_error("cannot write the answer to line " + std::to_string(w.line) + " to the output");
+    ++summary_.lines;
+    if (!l && is_storage_failure(l.error().kind))
+      return with_message(l.error(), "line " + std::to_string(w.line) + ": " + l.error().message);
+    return {};
+  }
+
   Status answer_event(const LineWork& w) {
+    if (w.event == LineEvent::kLook) return answer_look(w);
     std::string text;
     std::optional<Error> failure;
     bool repeat = false;

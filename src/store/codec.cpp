@@ -79,6 +79,9 @@ void set_record_key_step(std::string& key, std::uint64_t step) {
   char* end = key.data() + key.size();
   for (int i = 1; i <= 16; ++i, step >>= 4) end[-i] = kHex[step & 15];
 }
+std::string look_key(std::string_view stream, std::string_view id) {
+  return "l/" + std::string(stream) + "/" + std::string(id);
+}
 std::string index_prefix(std::string_view stream) { return "i/" + std::string(stream) + "/"; }
 std::string index_key(std::string_view stream, std::string_view id) {
   std::string out;
@@ -216,7 +219,7 @@ Result<StoredConfig> decode_config(std::string_view bytes) {
   for (int f = 1; f <= kConfigFieldCount; ++f) {
     if (!seen[f]) return corruption("stream configuration lacks field number " + std::to_string(f));
   }
-  if (kind < 1 || kind > 6)
+  if (kind < 1 || kind > 7)
     return corruption("stream configuration has unknown rule number " + std::to_string(kind));
   if (evaluation < 1 || evaluation > 2) {
     return corruption("stream configuration has unknown evaluation number " + std::to_string(evaluation));
@@ -329,9 +332,87 @@ std::string_view event_kind_name(EventKind kind) {
       return "finish";
     case EventKind::kAbandon:
       return "abandon";
+    case EventKind::kLook:
+      return "look";
   }
   return "unknown";
 }
+
+bool operator==(const LookPayload& a, const LookPayload& b) {
+  auto bits = [](double x) { return std::bit_cast<std::uint64_t>(x); };
+  return a.look == b.look && a.previous_look == b.previous_look && same_look_data(a.data, b.data) &&
+         bits(a.estimate) == bits(b.estimate) && bits(a.variance) == bits(b.variance) &&
+         bits(a.anytime_p_value) == bits(b.anytime_p_value) && bits(a.running_min) == bits(b.running_min) &&
+         bits(a.e_value) == bits(b.e_value) && bits(a.cs_low) == bits(b.cs_low) &&
+         bits(a.cs_high) == bits(b.cs_high) && a.stop == b.stop;
+}
+
+namespace {
+
+void put_mean_arm(std::string& out, const MeanArm& a) {
+  put_u64(out, a.n);
+  put_f64(out, a.mean);
+  put_f64(out, a.sd);
+}
+
+MeanArm get_mean_arm(Reader& r) {
+  MeanArm a;
+  a.n = r.u64();
+  a.mean = r.f64();
+  a.sd = r.f64();
+  return a;
+}
+
+// The look payload, after the event fields: look, previous look, summary kind, the two arms
+// (proportions: n, conversions; means: n, mean, sd), mixture_sd, then the answer.
+void put_look(std::string& out, const LookPayload& l) {
+  put_u64(out, l.look);
+  put_u64(out, l.previous_look);
+  put_u8(out, static_cast<std::uint8_t>(l.data.summary));
+  if (l.data.summary == LookSummary::kProportions) {
+    for (const ProportionArm* a : {&l.data.control_proportions, &l.data.treatment_proportions}) {
+      put_u64(out, a->n);
+      put_u64(out, a->conversions);
+    }
+  } else {
+    put_mean_arm(out, l.data.control_means);
+    put_mean_arm(out, l.data.treatment_means);
+  }
+  put_f64(out, l.data.mixture_sd.value_or(0.0));
+  for (double x : {l.estimate, l.variance, l.anytime_p_value, l.running_min, l.e_value,
+                   l.cs_low, l.cs_high})
+    put_f64(out, x);
+  put_u8(out, l.stop ? 1 : 0);
+}
+
+Status get_look(Reader& r, LookPayload& l) {
+  l.look = r.u64();
+  l.previous_look = r.u64();
+  const auto summary = r.u8();
+  if (summary == static_cast<std::uint8_t>(LookSummary::kProportions)) {
+    for (ProportionArm* a : {&l.data.control_proportions, &l.data.treatment_proportions}) {
+      a->n = r.u64();
+      a->conversions = r.u64();
+    }
+  } else if (summary == static_cast<std::uint8_t>(LookSummary::kMeans)) {
+    l.data.control_means = get_mean_arm(r);
+    l.data.treatment_means = get_mean_arm(r);
+  } else if (r.ok) {
+    return corruption("look event has summary kind " + std::to_string(summary) + ", expected 1 or 2");
+  }
+  l.data.summary = static_cast<LookSummary>(summary);
+  l.data.mixture_sd = r.f64();
+  for (double* x : {&l.estimate, &l.variance, &l.anytime_p_value, &l.running_min,
+                    &l.e_value, &l.cs_low, &l.cs_high})
+    *x = r.f64();
+  const auto stop = r.u8();
+  if (r.ok && stop > 1) return corruption("look event has stop = " + std::to_string(stop) + ", expected 0 or 1");
+  l.stop = stop == 1;
+  if (r.ok && l.look == 0) return corruption("look event has look number 0; looks count from 1");
+  return {};
+}
+
+}  // namespace
 
 std::string encode_event(const EventRecord& e, const Digest& prev_hash, Digest* hash) {
   std::string out;
@@ -347,6 +428,7 @@ std::string encode_event(const EventRecord& e, const Digest& prev_hash, Digest* 
   put_f64(out, e.wealth);
   put_u64(out, static_cast<std::uint64_t>(e.at_ms));
   put_u64(out, static_cast<std::uint64_t>(e.launched_at_ms));
+  if (e.kind == EventKind::kLook) put_look(out, e.look);
   out.append(reinterpret_cast<const char*>(prev_hash.data()), prev_hash.size());
   const Digest h = sha256(out);
   out.append(reinterpret_cast<const char*>(h.data()), h.size());
@@ -373,11 +455,14 @@ Result<StoredEvent> decode_event(std::string_view bytes) {
   s.event.wealth = r.f64();
   s.event.at_ms = static_cast<std::int64_t>(r.u64());
   s.event.launched_at_ms = static_cast<std::int64_t>(r.u64());
+  if (kind == static_cast<std::uint8_t>(EventKind::kLook)) {
+    if (auto st = get_look(r, s.event.look); !st) return st.error();
+  }
   s.prev_hash = r.digest();
   s.hash = r.digest();
   if (!r.ok || !r.in.empty()) return corruption("event record is truncated or has trailing bytes");
-  if (kind < 1 || kind > 3)
-    return corruption("event record has kind " + std::to_string(kind) + ", expected 1, 2 or 3");
+  if (kind < 1 || kind > 4)
+    return corruption("event record has kind " + std::to_string(kind) + ", expected 1, 2, 3 or 4");
   s.event.kind = static_cast<EventKind>(kind);
   if (rejected > 1)
     return corruption("event record has rejected = " + std::to_string(rejected) + ", expected 0 or 1");
@@ -427,7 +512,7 @@ std::optional<DecisionRecord> history_row(const ChainEntry& e) {
     r.launched_at_ms = r.decided_at_ms;
     return r;
   }
-  if (e.event.event.kind == EventKind::kLaunch) return std::nullopt;
+  if (e.event.event.kind == EventKind::kLaunch || e.event.event.kind == EventKind::kLook) return std::nullopt;
   return event_row(e.event.event);
 }
 

@@ -49,6 +49,8 @@ std::string index_key(std::string_view stream, std::string_view id);  // "i/<str
 // index_key() into `out`, reusing its storage.
 void assign_index_key(std::string& out, std::string_view stream, std::string_view id);
 inline constexpr std::string_view kConfigPrefix = "c/";
+// A test's look state: the chain entry of its last look (8 bytes, encode_step).
+std::string look_key(std::string_view stream, std::string_view id);  // "l/<stream>/<id bytes>"
 
 std::string encode_format_version(std::uint32_t version);
 Result<std::uint32_t> decode_format_version(std::string_view bytes);
@@ -105,8 +107,25 @@ Digest recompute_record_hash(std::string_view encoded);
 // Launch-time events (docs/ledger-format.md "Event record"): a chain entry of value version 2 that
 // records one launch, finish or abandon of a test. A version-1 decision record is a launch and
 // its finish at once. The numbers of the kinds never change meaning.
-enum class EventKind : std::uint8_t { kLaunch = 1, kFinish = 2, kAbandon = 3 };
-std::string_view event_kind_name(EventKind kind);  // "launch", "finish", "abandon"
+enum class EventKind : std::uint8_t { kLaunch = 1, kFinish = 2, kAbandon = 3, kLook = 4 };
+std::string_view event_kind_name(EventKind kind);  // "launch", "finish", "abandon", "look"
+
+// What a look event carries besides the event fields (docs/ledger-format.md "Look event"): the
+// summaries it was computed from and everything it answered, so verify can recompute it.
+struct LookPayload {
+  std::uint64_t look = 0;           // 1-based, this test's looks
+  std::uint64_t previous_look = 0;  // chain entry of the test's look before, 0 for the first
+  LookData data;
+  double estimate = 0;
+  double variance = 0;
+  double anytime_p_value = 1;
+  double running_min = 1;
+  double e_value = 1;
+  double cs_low = 0;
+  double cs_high = 0;
+  bool stop = false;
+  friend bool operator==(const LookPayload& a, const LookPayload& b);
+};
 
 struct EventRecord {
   EventKind kind = EventKind::kLaunch;
@@ -120,6 +139,7 @@ struct EventRecord {
   std::int64_t at_ms = 0;    // when the event happened, milliseconds since the Unix epoch
   // When the test was launched (equal to at_ms in a launch), so a finish alone gives a history row.
   std::int64_t launched_at_ms = 0;
+  LookPayload look;  // kLook only (a look has p_value 0, rejected false, the wealth unchanged)
   friend bool operator==(const EventRecord&, const EventRecord&) = default;
 };
 struct StoredEvent {
@@ -149,7 +169,7 @@ struct ChainEntry {
 // Errors: kCorruption (empty, unknown version, or what the decoder of its version refuses).
 Result<ChainEntry> decode_entry(std::string_view bytes);
 // The history row an entry gives: a decision record (launch = step, launched_at = decided_at), a
-// finish, or an abandon (abandoned set, decided_at = the abandon's time); none for a launch.
+// finish, or an abandon (abandoned set, decided_at = the abandon's time); none for a launch or a look.
 std::optional<DecisionRecord> history_row(const ChainEntry& e);
 // The history row of a finish or abandon event.
 DecisionRecord event_row(const EventRecord& e);

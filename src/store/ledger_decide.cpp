@@ -12,21 +12,51 @@
 
 namespace alphaledger::store {
 
+namespace {
+
+// Whether the stream's rule takes the kind of number given (p-value or e-value).
+Status evidence_fits(std::string_view stream, const RuleConfig& config, bool e_value, std::string_view test) {
+  const bool wants_e = rule_takes_e_values(config.kind);
+  if (wants_e == e_value) return {};
+  const std::string rule(rule_name(config.kind));
+  if (wants_e) {
+    return invalid_input(std::string(test) + ": stream " + in_quotes(stream) + " uses rule " + rule +
+                         ", which takes e-values: give e_value, not p_value (the ledger is unchanged)");
+  }
+  return invalid_input(std::string(test) + ": stream " + in_quotes(stream) + " uses rule " + rule +
+                       ", which takes p-values: give p_value, not e_value (only e-lond streams take e-values; "
+                       "the ledger is unchanged)");
+}
+
+}  // namespace
+
 Result<DecideResult> StoreLedger::decide(std::string_view stream, std::string_view id, double p_value) {
+  return decide_value(stream, id, p_value, false);
+}
+
+Result<DecideResult> StoreLedger::decide_e(std::string_view stream, std::string_view id, double e_value) {
+  auto r = decide_value(stream, id, e_value, true);
+  if (r) r->record.e_value = true;
+  return r;
+}
+
+Result<DecideResult> StoreLedger::decide_value(std::string_view stream, std::string_view id, double p_value,
+                                               bool e_value) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_test_id(id); !s) return s.error();
-  if (auto s = validate_p_value(p_value); !s)
+  if (auto s = e_value ? validate_e_value(p_value) : validate_p_value(p_value); !s)
     return invalid_input("test " + in_quotes(id) + ": " + s.error().message);
   SlotGuard slot(*this, stream);
   if (auto s = load(stream, *slot); !s) return s.error();
   if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = evidence_fits(stream, slot->config.config, e_value, "test " + in_quotes(id)); !s) return s.error();
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
   std::string key;
   auto found = look_up(stream, id, key);
   if (!found) return found.error();
   using Phase = TestLookup::Phase;
   if (found->phase == Phase::kDecided) {
-    auto r = repeat_or_conflict(stream, found->row, p_value);
+    auto r = repeat_or_conflict(stream, found->row, p_value, e_value);
     if (!r) return with_message(r.error(), r.error().message + " (the ledger is unchanged)");
     return r;
   }
@@ -90,7 +120,7 @@ class FirstRowTable {
 std::vector<TestView> views_of(const std::vector<TestInput>& tests) {
   std::vector<TestView> views;
   views.reserve(tests.size());
-  for (const auto& t : tests) views.push_back({t.id, t.p_value});
+  for (const auto& t : tests) views.push_back({t.id, t.p_value, t.e_value});
   return views;
 }
 
@@ -127,7 +157,7 @@ Status validate_batch(std::span<const TestView> tests) {
     if (auto s = validate_test_id(t.id); !s) {
       return invalid_input("test " + std::to_string(i + 1) + " of the batch: " + s.error().message);
     }
-    if (auto s = validate_p_value(t.p_value); !s) {
+    if (auto s = t.e_value ? validate_e_value(t.p_value) : validate_p_value(t.p_value); !s) {
       return invalid_input("test " + std::to_string(i + 1) + " of the batch (" + in_quotes(t.id) +
                            "): " + s.error().message);
     }
@@ -167,7 +197,7 @@ Result<bool> StoreLedger::plan_batch(std::string_view stream, std::span<const Te
     }
     if (!found) return found.error();
     if (*found) {
-      if (auto r = repeat_or_conflict(stream, **found, t.p_value); !r) {
+      if (auto r = repeat_or_conflict(stream, **found, t.p_value, t.e_value); !r) {
         out.error = with_message(r.error(), r.error().message + " (the ledger is unchanged)");
         out.stopped_at = i;
         return false;
@@ -260,6 +290,7 @@ void StoreLedger::write_batch_groups(std::string_view stream, StreamSlot& slot, 
       slot.loaded = false;
       group.push_back(decide_into(stream, rule, head, std::string(t.id), t.p_value, batch));
     }
+    group.back().record.e_value = t.e_value;
     if (group.size() >= group_size) {
       if (!flush()) return;
       group_start = i + 1;
@@ -278,6 +309,11 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
   SlotGuard slot(*this, stream);
   if (auto s = load(stream, *slot); !s) return s.error();
   if (!slot->exists) return unknown_stream(stream, location());
+  for (std::size_t i = 0; i < tests.size(); ++i) {
+    auto s = evidence_fits(stream, slot->config.config, tests[i].e_value,
+                           "test " + std::to_string(i + 1) + " of the batch (" + in_quotes(tests[i].id) + ")");
+    if (!s) return s.error();
+  }
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
 
   BatchResult out;
@@ -327,12 +363,12 @@ Result<std::optional<DecisionRecord>> StoreLedger::find_decided(std::string_view
 }
 
 Result<DecideResult> StoreLedger::repeat_or_conflict(std::string_view stream, const DecisionRecord& prior,
-                                                     double p_value) {
+                                                     double p_value, bool e_value) {
   if (prior.p_value == p_value) return DecideResult{std::string(stream), prior, true};
+  const std::string field = e_value ? "e_value " : "p_value ";
   return conflict("test " + in_quotes(prior.id) + " was already decided in stream " + in_quotes(stream) +
-                  " at step " + std::to_string(prior.step) + " with p_value " +
-                  readable_number(prior.p_value) + "; a test id is decided once, so p_value " +
-                  readable_number(p_value) + " is refused");
+                  " at step " + std::to_string(prior.step) + " with " + field + readable_number(prior.p_value) +
+                  "; a test id is decided once, so " + field + readable_number(p_value) + " is refused");
 }
 
 // Decides one new test on `rule` / `head` and adds its record and index entry to `batch`.

@@ -58,6 +58,12 @@ class StoreLedger final : public Ledger {
 
   Result<DecideResult> decide(std::string_view stream, std::string_view id, double p_value) override;
 
+  Result<DecideResult> decide_e(std::string_view stream, std::string_view id, double e_value) override;
+
+  Result<LookResult> look(std::string_view stream, std::string_view id, const LookData& data) override;
+
+  Result<std::vector<LookResult>> looks(std::string_view stream, std::string_view id) override;
+
   Result<BatchResult> decide_batch(std::string_view stream, const std::vector<TestInput>& tests,
                                    std::size_t group_size) override;
 
@@ -171,7 +177,18 @@ class StoreLedger final : public Ledger {
                                                      std::string& key);
 
   Result<DecideResult> repeat_or_conflict(std::string_view stream, const DecisionRecord& prior,
-                                          double p_value);
+                                          double p_value, bool e_value = false);
+
+  // decide and decide_e: `e_value` says which the number is.
+  Result<DecideResult> decide_value(std::string_view stream, std::string_view id, double p_value, bool e_value);
+
+  // The test's last look (its look state key), if it was looked at (ledger_look.cpp).
+  Result<std::optional<LookResult>> last_look(std::string_view stream, std::string_view id);
+  // Writes a new look at running test `launched` after `previous` (and its finish when it says stop).
+  Result<LookResult> write_look(std::string_view stream, StreamSlot& slot, const EventRecord& launched,
+                                LookData data, const std::optional<LookResult>& previous);
+  // The stored answer of the look at chain entry `entry` (a look event of test `id`).
+  Result<LookResult> stored_look(std::string_view stream, std::string_view id, std::uint64_t entry);
 
   // Finishes running test (its launch event `launched`) with p_value and adds the finish event and
   // index entry to `batch` (ledger_launch.cpp).

@@ -7,6 +7,7 @@
 #include "alphaledger/text.hpp"
 #include "store/codec.hpp"
 #include "store/ledger_internal.hpp"
+#include "store/ledger_look.hpp"
 
 namespace alphaledger {
 
@@ -95,6 +96,7 @@ class StreamVerifier {
     if (!head) return fail(0, "the head cannot be read: " + head.error().message);
 
     rule_.emplace(config->config);
+    alternative_ = config->alternative;
     prev_ = genesis_hash(**config_bytes);
     if (auto p = anchor_problem(0, prev_)) return fail(0, *p);
     expected_key_ = record_key(stream_, 1);
@@ -127,6 +129,8 @@ class StreamVerifier {
     std::uint64_t entry = 0;
     std::int64_t at_ms = 0;
     std::optional<std::uint64_t> indexed;
+    std::optional<LookPayload> last_look;  // the test's last look so far, and its entry
+    std::uint64_t last_look_entry = 0;
   };
 
   VerifyReport fail(std::uint64_t step, std::string problem) {
@@ -152,9 +156,75 @@ class StreamVerifier {
     return std::nullopt;
   }
 
+  // The stored p-value (or e-value, for a rule that takes e-values) of a decision or finish.
+  std::optional<std::string> evidence_problem(double x) const {
+    auto v = rule_takes_e_values(rule_->config().kind) ? validate_e_value(x) : validate_p_value(x);
+    if (!v) return "the stored " + v.error().message;
+    return std::nullopt;
+  }
+
+  // A look event: recomputed from its stored summaries and the test's look before it.
+  std::optional<std::string> replay_look(const EventRecord& ev, Launched& t) {
+    const LookPayload& stored = ev.look;
+    if (!same_bits(ev.level, running_level(ev.launch)))
+      return mismatch("the reserved level", running_level(ev.launch), ev.level);
+    if (!same_bits(rule_->wealth(), ev.wealth)) return mismatch("wealth", rule_->wealth(), ev.wealth);
+    if (stored.previous_look != t.last_look_entry) {
+      return "look " + std::to_string(stored.look) + " links to the look at step " +
+             std::to_string(stored.previous_look) + " but the test's look before it is at step " +
+             std::to_string(t.last_look_entry);
+    }
+    if (!stored.data.mixture_sd) return "the look has no mixing scale";
+    if (t.last_look) {
+      if (t.last_look->data.summary != stored.data.summary ||
+          !same_bits(*t.last_look->data.mixture_sd, *stored.data.mixture_sd))
+        return "the look changes the kind of summary or the mixing scale of the test's first look";
+    }
+    auto again = compute_look(rule_->config(), alternative_, ev.level, stored.data,
+                              t.last_look ? &*t.last_look : nullptr);
+    if (!again) return "the look's stored summaries are refused: " + again.error().message;
+    again->previous_look = stored.previous_look;
+    if (!(*again == stored)) {
+      return "recomputing the look from its stored summaries gives anytime p-value " +
+             readable_number(again->anytime_p_value) + ", running minimum " + readable_number(again->running_min) +
+             ", " + (again->stop ? "stop" : "continue") + ", but the entry has " +
+             readable_number(stored.anytime_p_value) + ", " + readable_number(stored.running_min) + ", " +
+             (stored.stop ? "stop" : "continue") + " (the look was changed)";
+    }
+    t.last_look = stored;
+    t.last_look_entry = ev.entry;
+    if (stored.stop) {
+      pending_stop_ = ev.launch;
+      pending_value_ = rule_takes_e_values(rule_->config().kind) ? stored.e_value : stored.running_min;
+    }
+    return std::nullopt;
+  }
+
+  double running_level(std::uint64_t launch) const {
+    for (const auto& t : rule_->running())
+      if (t.launch == launch) return t.level;
+    return 0.0;
+  }
+
+  // The look state key of a test that was looked at must point to its last look.
+  std::optional<std::string> look_state_problem(const Launched& t) {
+    if (t.last_look_entry == 0) return std::nullopt;
+    auto state = store_.get(look_key(stream_, t.id));
+    if (!state) {
+      io_error_ = state.error();
+      return "the look state cannot be read";
+    }
+    auto entry = *state ? decode_step(**state) : Result<std::uint64_t>(corruption("absent"));
+    if (!entry || *entry != t.last_look_entry) {
+      return "the look state of test " + in_quotes(excerpt(t.id)) + " does not point to its last look (step " +
+             std::to_string(t.last_look_entry) + ")";
+    }
+    return std::nullopt;
+  }
+
   // A version-1 decision record: a launch and a finish at once.
   std::optional<std::string> replay_decision(const DecisionRecord& r) {
-    if (auto v = validate_p_value(r.p_value); !v) return "the stored " + v.error().message;
+    if (auto v = evidence_problem(r.p_value)) return v;
     const Outcome o = rule_->record(r.p_value);
     ++launches_;
     if (o.step != r.step) {
@@ -179,13 +249,13 @@ class StreamVerifier {
     }
     if (!same_bits(r.level, ev.level)) return mismatch("the reserved level", r.level, ev.level);
     if (!same_bits(r.wealth, ev.wealth)) return mismatch("wealth", r.wealth, ev.wealth);
-    running_ids_.emplace(ev.launch, Launched{ev.id, ev.entry, ev.at_ms, std::nullopt});
+    running_ids_.emplace(ev.launch, Launched{ev.id, ev.entry, ev.at_ms, std::nullopt, std::nullopt, 0});
     return std::nullopt;
   }
 
   std::optional<std::string> replay_finish(const EventRecord& ev) {
     Rule& rule = *rule_;
-    if (auto v = validate_p_value(ev.p_value); !v) return "the stored " + v.error().message;
+    if (auto v = evidence_problem(ev.p_value)) return v;
     auto o = rule_takes_e_values(rule.config().kind) ? rule.finish_e(ev.launch, ev.p_value)
                                                      : rule.finish(ev.launch, ev.p_value);
     if (!o) return "the rule refuses the finish: " + o.error().message;
@@ -212,6 +282,13 @@ class StreamVerifier {
 
   // Replays one entry through the rule; the problem text when it disagrees.
   std::optional<std::string> replay_entry(const ChainEntry& e) {
+    if (pending_stop_) {  // a look said stop: the next entry is that test's finish with its value
+      const bool finishes = e.is_event && e.event.event.kind == EventKind::kFinish &&
+                            e.event.event.launch == *pending_stop_ && same_bits(e.event.event.p_value, pending_value_);
+      pending_stop_.reset();
+      if (!finishes)
+        return "the look before this entry said stop, but this entry is not that test's finish with its value";
+    }
     if (!e.is_event) return replay_decision(e.record.record);
     const EventRecord& ev = e.event.event;
     if (ev.kind == EventKind::kLaunch) return replay_launch(ev);
@@ -229,7 +306,9 @@ class StreamVerifier {
       return "the " + what + " event says the test was launched at " + format_timestamp(ev.launched_at_ms) +
              " but its launch event says " + format_timestamp(it->second.at_ms);
     }
+    if (ev.kind == EventKind::kLook) return replay_look(ev, it->second);
     auto problem = ev.kind == EventKind::kFinish ? replay_finish(ev) : replay_abandon(ev);
+    if (!problem) problem = look_state_problem(it->second);
     if (!problem) running_ids_.erase(it);
     return problem;
   }
@@ -270,7 +349,9 @@ class StreamVerifier {
       bad_ = fail(expected_, *problem);
       return false;
     }
-    if (!check_index_entry(*rec)) return false;
+    const bool is_look = rec->is_event && rec->event.event.kind == EventKind::kLook;
+    if (io_error_) return false;
+    if (!is_look && !check_index_entry(*rec)) return false;
     if (auto p = anchor_problem(expected_, rec->hash())) {
       bad_ = fail(expected_, *p);
       return false;
@@ -337,7 +418,9 @@ class StreamVerifier {
     if (head.rule_state != rule_->encode_state()) {
       return fail(steps, "the stored rule state does not equal the state replayed from the history");
     }
+    if (pending_stop_) return fail(steps, "the last look said stop, but the test's finish is missing");
     for (const auto& [launch, t] : running_ids_) {
+      if (auto p = look_state_problem(t)) return fail(t.last_look_entry, *p);
       if (t.indexed != t.entry) {
         return fail(t.entry, "the test id index for running test " + in_quotes(excerpt(t.id)) + " points to " +
                                  index_target(t.indexed) + ", not to its launch");
@@ -426,6 +509,9 @@ class StreamVerifier {
   std::optional<VerifyReport> bad_;
   std::optional<Error> io_error_;
   std::map<std::uint64_t, Launched> running_ids_;
+  Alternative alternative_ = Alternative::kTwoSided;
+  std::optional<std::uint64_t> pending_stop_;  // a look said stop: its launch, and the value to finish with
+  double pending_value_ = 0;
   std::uint64_t launches_ = 0;  // tests launched: decision records and launch events (one id each)
 };
 

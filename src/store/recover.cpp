@@ -80,9 +80,14 @@ void apply(Rule& rule, const Replayed& r) {
   } else if (r.kind == store::EventKind::kFinish) {
     (void)(rule_takes_e_values(rule.config().kind) ? rule.finish_e(r.launch, r.p_value)
                                                    : rule.finish(r.launch, r.p_value));
-  } else {
+  } else if (r.kind == store::EventKind::kAbandon) {
     (void)rule.abandon(r.launch);
-  }
+  }  // a look changes nothing in the rule
+}
+
+// A stored p-value, or e-value for a rule that takes e-values (e-lond).
+Status validate_evidence(const Rule& rule, double x) {
+  return rule_takes_e_values(rule.config().kind) ? validate_e_value(x) : validate_p_value(x);
 }
 
 // Replays one chain entry through the rule, checking what verify checks of it (the rule gives
@@ -97,7 +102,7 @@ Result<Replayed> replay(Rule& rule, const store::ChainEntry& e, std::set<std::st
   if (!e.is_event) {
     const DecisionRecord& r = e.record.record;
     if (ids.count(r.id)) return refuse("the test id was decided before");
-    if (!validate_p_value(r.p_value)) return refuse("the stored p-value is invalid");
+    if (!validate_evidence(rule, r.p_value)) return refuse("the stored p-value is invalid");
     touched = true;
     const Outcome o = rule.record(r.p_value);
     if (o.step != r.step || !same_bits(o.level, r.level) || o.rejected != r.rejected ||
@@ -133,8 +138,9 @@ Result<Replayed> replay(Rule& rule, const store::ChainEntry& e, std::set<std::st
   if (it->second.first != ev.id || it->second.second != ev.launched_at_ms)
     return refuse("the " + what + " event does not name the test and launch time of launch " +
                   std::to_string(ev.launch));
+  if (ev.kind == store::EventKind::kLook) return out;  // verify recomputes looks; the rule is unchanged
   if (ev.kind == store::EventKind::kFinish) {
-    if (!validate_p_value(ev.p_value)) return refuse("the stored p-value is invalid");
+    if (!validate_evidence(rule, ev.p_value)) return refuse("the stored p-value is invalid");
     auto o = rule_takes_e_values(rule.config().kind) ? rule.finish_e(ev.launch, ev.p_value)
                                                      : rule.finish(ev.launch, ev.p_value);
     if (!o) return refuse("the rule refuses the finish: " + o.error().message);
@@ -277,7 +283,10 @@ Status copy_stream(Store& from, Store& to, const std::string& name, const std::s
     out.kept_steps = step;
     // A test's id points to its last entry: a running test's to its launch, a finished or
     // abandoned one's to its finish or abandon (a later put of the same key wins in the batch).
-    batch.put(store::index_key(name, rec->id()), store::encode_step(step));
+    // A look moves the test's look state key instead (ledger_look.cpp).
+    const bool is_look = rec->is_event && rec->event.event.kind == store::EventKind::kLook;
+    batch.put(is_look ? store::look_key(name, rec->id()) : store::index_key(name, rec->id()),
+              store::encode_step(step));
     batch.put(store::record_key(name, step), std::move(bytes));
     if (auto s = flush(to, batch, false); !s) return s;
   }

@@ -763,12 +763,12 @@ TEST_CASE("Ledger: decide_batch repeats within a batch, across and inside groups
   MemoryStore mem2;
   auto one_by_one = open_over(mem2);
   REQUIRE(one_by_one->create_stream("s", config).ok());
-  for (const auto& [id, p] : std::vector<TestInput>{
+  for (const auto& t : std::vector<TestInput>{
            {"old", 0.5}, {"a", 0.001}, {"b", 0.2}, {"c", 0.0001}, {"d", 0.4}, {"e", 0.003}}) {
-    auto d = one_by_one->decide("s", id, p);
+    auto d = one_by_one->decide("s", t.id, t.p_value);
     REQUIRE(d.ok());
     for (const auto& got : r->decided) {
-      if (got.record.id != id) continue;
+      if (got.record.id != t.id) continue;
       CHECK(same_bits(got.record.level, d->record.level));
       CHECK(got.record.rejected == d->record.rejected);
       CHECK(same_bits(got.record.wealth, d->record.wealth));
