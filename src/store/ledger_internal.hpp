@@ -9,6 +9,7 @@
 #include <cmath>
 #include <cstdint>
 #include <functional>
+#include <optional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -61,6 +62,12 @@ struct ChainEntry;
 // The same walk over the raw chain entries lo..hi.
 Status visit_entries(Store& store, const std::string& where, std::string_view stream, std::uint64_t lo,
                      std::uint64_t hi, const std::function<bool(const ChainEntry&)>& visit);
+
+struct StoredRunning;
+// The running tests stored apart under running_prefix(stream) against `expected` (in launch
+// order; empty: none may be stored): the first difference in words, or nothing (ledger_launch.cpp).
+Result<std::optional<std::string>> running_keys_problem(Store& store, std::string_view stream,
+                                                        const std::vector<StoredRunning>& expected);
 
 // Ledger::verify over a store (ledger_verify.cpp).
 Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::string_view stream,
