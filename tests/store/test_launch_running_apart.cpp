@@ -58,9 +58,14 @@ std::unique_ptr<Ledger> open_over(Store& store, Clock clock = store_test::tickin
 }
 
 const std::vector<RuleSpec> kSpecs = {
-    {.rule = "alpha-spending"}, {.rule = "alpha-investing"}, {.rule = "lond"},
-    {.rule = "lord++"},         {.rule = "saffron"},         {.rule = "addis"},
-    {.rule = "lord++", .evaluation = "fast"}, {.rule = "saffron", .evaluation = "fast"},
+    {.rule = "alpha-spending"},
+    {.rule = "alpha-investing"},
+    {.rule = "lond"},
+    {.rule = "lord++"},
+    {.rule = "saffron"},
+    {.rule = "addis"},
+    {.rule = "lord++", .evaluation = "fast"},
+    {.rule = "saffron", .evaluation = "fast"},
 };
 
 std::string spec_name(const RuleSpec& s) { return s.rule + (s.evaluation ? " " + *s.evaluation : ""); }
@@ -78,10 +83,12 @@ void make_older_form(MemoryStore& mem, const std::string& name, const Rule& rule
   head->rule_state = rule.encode_state();
   WriteBatch batch;
   batch.put(store::head_key(name), store::encode_head(*head));
-  REQUIRE(mem.scan(store::running_prefix(name), [&](std::string_view key, std::string_view) {
-                batch.erase(std::string(key));
-                return true;
-              }).ok());
+  REQUIRE(mem.scan(store::running_prefix(name),
+                   [&](std::string_view key, std::string_view) {
+                     batch.erase(std::string(key));
+                     return true;
+                   })
+              .ok());
   REQUIRE(mem.write(batch, true).ok());
   auto again = mem.get(store::head_key(name));
   REQUIRE((*again)->front() == static_cast<char>(head->closed_at_ms ? 2 : 1));
@@ -89,10 +96,12 @@ void make_older_form(MemoryStore& mem, const std::string& name, const Rule& rule
 
 std::size_t running_keys(MemoryStore& mem, const std::string& name) {
   std::size_t n = 0;
-  REQUIRE(mem.scan(store::running_prefix(name), [&](std::string_view, std::string_view) {
-                ++n;
-                return true;
-              }).ok());
+  REQUIRE(mem.scan(store::running_prefix(name),
+                   [&](std::string_view, std::string_view) {
+                     ++n;
+                     return true;
+                   })
+              .ok());
   return n;
 }
 
@@ -268,12 +277,12 @@ TEST_CASE("Running apart: apply_events gives the chain of the same events one by
     }
     using T = EventType;
     const std::vector<EventInput> events = {
-        {T::kLaunch, "a"},          {T::kLaunch, "b"},          {T::kDecide, "old-1", 0.0001},
-        {T::kDecide, "a", 0.3},     {T::kAbandon, "old-2"},     {T::kLaunch, "b"},
-        {T::kDecide, "c", 0.00001}, {T::kAbandon, "nobody"},    {T::kDecide, "a", 0.3},
-        {T::kDecide, "a", 0.4},     {T::kLaunch, "a"},          {T::kAbandon, "b"},
-        {T::kAbandon, "b"},         {T::kDecide, "b", 0.1},     {T::kLaunch, "d"},
-        {T::kDecide, "done", 0.5},  {T::kDecide, "bad", 2.0},   {T::kLaunch, " x"},
+        {T::kLaunch, "a"},          {T::kLaunch, "b"},        {T::kDecide, "old-1", 0.0001},
+        {T::kDecide, "a", 0.3},     {T::kAbandon, "old-2"},   {T::kLaunch, "b"},
+        {T::kDecide, "c", 0.00001}, {T::kAbandon, "nobody"},  {T::kDecide, "a", 0.3},
+        {T::kDecide, "a", 0.4},     {T::kLaunch, "a"},        {T::kAbandon, "b"},
+        {T::kAbandon, "b"},         {T::kDecide, "b", 0.1},   {T::kLaunch, "d"},
+        {T::kDecide, "done", 0.5},  {T::kDecide, "bad", 2.0}, {T::kLaunch, " x"},
         {T::kLaunch, "e"},          {T::kDecide, "d", 0.02},
     };
     std::vector<Result<EventOutcome>> singles;
@@ -341,7 +350,12 @@ TEST_CASE("Running apart: apply_events gives the chain of the same events one by
     std::size_t repeats = 0;
     for (const auto& r : again) {
       if (!r.ok()) continue;
-      std::visit([&](const auto& x) { repeats += x.repeat ? 1 : 0; CHECK(x.repeat); }, *r);
+      std::visit(
+          [&](const auto& x) {
+            repeats += x.repeat ? 1 : 0;
+            CHECK(x.repeat);
+          },
+          *r);
     }
     CHECK(repeats >= 8);
   }
