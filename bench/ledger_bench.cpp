@@ -12,10 +12,11 @@
 //      read-only open, then the read-write open) and for reading only (as `next`, `status`).
 //   5. decide on the in-memory store: the CPU cost of a decision without any disk, one at a time
 //      and in groups of 4096 (memory_throughput below), for LORD++ fast and exact.
-//   6. launch-time events (launch_events below): Ledger::launch and the finish of a running test
-//      (Ledger::decide of a launched id), each one synced write, with 0, 1,000 and 10,000 tests
+//   6. launch-time events (launch_events below): Ledger::launch, the finish of a running test
+//      (Ledger::decide of a launched id), abandon and decide, each one synced write, then the same
+//      events grouped (Ledger::apply_events, 80 per synced write), with 0, 100 and 10,000 tests
 //      already running (LORD++ fast), on RocksDB and on the in-memory store; and the core Rule's
-//      launch + finish alone, fast and exact, with the size of the encoded state it stores.
+//      launch + finish alone, fast and exact, with the size of the encoded state.
 // Prints the set-up, then per measurement: operations, seconds, microseconds per op, ops/s.
 //
 // Usage: ledger_bench [FOLDER] [SECONDS-PER-MEASUREMENT] [memory]   (defaults: ./ledger-bench.tmp, 3)
@@ -220,9 +221,11 @@ void memory_throughput(const std::vector<double>& p, double seconds) {
 }
 
 // Launch-time events with `running` tests already running: the tests launched before the clock
-// starts, then, for `seconds`, one new launch and the finish of the oldest running test in turn
-// (first in, first out), so the number running stays `running` (or one more). The launch and the
-// finish are timed apart; on RocksDB each is one synced write.
+// starts, then, for `seconds`, in turn: one new launch, the finish of the oldest running test
+// (first in, first out), one more launch and its abandon, and one decide of a new id, so the
+// number running stays `running` (or one more). Each kind is timed apart; on RocksDB each is one
+// synced write. Then the same cycle in groups of 16 cycles (80 events) per Ledger::apply_events,
+// one synced write per group (group commit, as `pipe` and `serve` do when requests queue).
 void launch_events_on(std::unique_ptr<Ledger> ledger, const RuleConfig& config, std::size_t running,
                       const std::vector<double>& p, double seconds, const char* where) {
   if (!ledger->create_stream("bench", config)) std::exit(1);
@@ -236,8 +239,10 @@ void launch_events_on(std::unique_ptr<Ledger> ledger, const RuleConfig& config, 
   const auto t_fill = SteadyClock::now();
   for (; launched < running; ++launched) must_ok(ledger->launch("bench", bench_id(launched)).ok(), "launch");
   const double fill_secs = seconds_since(t_fill);
-  double launch_secs = 0, finish_secs = 0, cpu = 0;
-  std::size_t ops = 0;
+  double launch_secs = 0, finish_secs = 0, abandon_secs = 0, decide_secs = 0, cpu = 0;
+  std::size_t ops = 0, decided = 0;
+  auto decide_id = [](std::size_t n) { return "d" + std::to_string(n); };
+  auto abandon_id = [](std::size_t n) { return "x" + std::to_string(n); };
   const auto t0 = SteadyClock::now();
   while (ops < 20 || seconds_since(t0) < seconds) {
     const double cpu0 = cpu_seconds();
@@ -249,8 +254,49 @@ void launch_events_on(std::unique_ptr<Ledger> ledger, const RuleConfig& config, 
     must_ok(ledger->decide("bench", bench_id(finished), p[finished % p.size()]).ok(), "finish");
     finish_secs += seconds_since(t);
     ++finished;
+    must_ok(ledger->launch("bench", abandon_id(ops)).ok(), "launch");
+    t = SteadyClock::now();
+    must_ok(ledger->abandon("bench", abandon_id(ops)).ok(), "abandon");
+    abandon_secs += seconds_since(t);
+    t = SteadyClock::now();
+    must_ok(ledger->decide("bench", decide_id(decided), p[decided % p.size()]).ok(), "decide");
+    decide_secs += seconds_since(t);
+    ++decided;
     cpu += cpu_seconds() - cpu0;
     ++ops;
+  }
+  // Grouped: 16 cycles of the same five events per apply_events call.
+  constexpr std::size_t kCycles = 16;
+  std::size_t grouped_events = 0, groups = 0;
+  double grouped_secs = 0, grouped_cpu = 0;
+  std::vector<std::string> ids;
+  const auto tg = SteadyClock::now();
+  while (groups < 5 || seconds_since(tg) < seconds) {
+    ids.clear();
+    std::vector<EventInput> events;
+    ids.reserve(5 * kCycles);
+    for (std::size_t c = 0; c < kCycles; ++c, ++ops) {
+      ids.push_back(bench_id(launched++));
+      ids.push_back(bench_id(finished++));
+      ids.push_back(abandon_id(ops));
+      ids.push_back(decide_id(decided++));
+    }
+    for (std::size_t c = 0; c < kCycles; ++c) {
+      const std::string* cycle = &ids[4 * c];
+      events.push_back({EventType::kLaunch, cycle[0]});
+      events.push_back({EventType::kDecide, cycle[1], p[(finished + c) % p.size()]});
+      events.push_back({EventType::kLaunch, cycle[2]});
+      events.push_back({EventType::kAbandon, cycle[2]});
+      events.push_back({EventType::kDecide, cycle[3], p[(decided + c) % p.size()]});
+    }
+    const double cpu0 = cpu_seconds();
+    const auto t = SteadyClock::now();
+    auto answers = ledger->apply_events("bench", events);
+    grouped_secs += seconds_since(t);
+    grouped_cpu += cpu_seconds() - cpu0;
+    for (const auto& a : answers) must_ok(a.ok(), "grouped event");
+    grouped_events += events.size();
+    ++groups;
   }
   auto status = ledger->status("bench");
   must_ok(status.ok() && status->running == running, "status");
@@ -264,9 +310,14 @@ void launch_events_on(std::unique_ptr<Ledger> ledger, const RuleConfig& config, 
     std::snprintf(label, sizeof label, "  %zu launches to fill", running);
     report(label, running, fill_secs);
   }
-  report("  launch", ops, launch_secs);
-  report("  finish (decide of a running id)", ops, finish_secs);
-  std::printf("  CPU time: %.1f us per launch + finish pair\n", 1e6 * cpu / static_cast<double>(ops));
+  report("  launch", ops - groups * kCycles, launch_secs);
+  report("  finish (decide of a running id)", ops - groups * kCycles, finish_secs);
+  report("  abandon", ops - groups * kCycles, abandon_secs);
+  report("  decide (new id)", ops - groups * kCycles, decide_secs);
+  std::printf("  CPU time: %.1f us per cycle of 5 events (2 launches, finish, abandon, decide)\n",
+              1e6 * cpu / static_cast<double>(ops - groups * kCycles));
+  report("  grouped, 80 mixed events per synced write (per event)", grouped_events, grouped_secs);
+  std::printf("  grouped CPU time: %.1f us per event\n", 1e6 * grouped_cpu / static_cast<double>(grouped_events));
   report("  verify (per chain entry)", v->steps, verify_secs);
   std::fflush(stdout);
 }
@@ -292,20 +343,21 @@ void launch_events_rule(const RuleConfig& config, std::size_t running, const std
   char label[96];
   std::snprintf(label, sizeof label, "Rule %s, %zu running, launch+finish", name, running);
   report(label, ops, spent);
-  std::printf("  encoded state: %zu bytes\n", rule.encode_state().size());
+  std::printf("  encoded state: %zu bytes with the running tests, %zu bytes without (the head's)\n",
+              rule.encode_state().size(), rule.encode_state_without_running().size());
   std::fflush(stdout);
 }
 
 void launch_events(const std::string& folder, const std::vector<double>& p, double seconds) {
   const RuleConfig exact = resolve_config({.rule = "lord++", .evaluation = "exact"}).value();
-  for (std::size_t running : {0u, 1000u, 10000u}) {
+  for (std::size_t running : {0u, 100u, 10000u}) {
     launch_events_rule(lord(), running, p, seconds, "lord++ fast");
     launch_events_rule(exact, running, p, seconds, "lord++ exact");
   }
-  for (std::size_t running : {0u, 1000u, 10000u})
+  for (std::size_t running : {0u, 100u, 10000u})
     launch_events_on(must(Ledger::open(std::make_unique<MemoryStore>())), lord(), running, p, seconds,
                      "in-memory store, lord++ fast");
-  for (std::size_t running : {0u, 1000u, 10000u}) {
+  for (std::size_t running : {0u, 100u, 10000u}) {
     const std::string path = folder + "/launch-" + std::to_string(running);
     launch_events_on(must(Ledger::open(path)), lord(), running, p, seconds, "RocksDB, lord++ fast");
     std::filesystem::remove_all(path);

@@ -19,6 +19,8 @@
 //   --folder     where the ledger folders go (default ./load-http.tmp; created and removed); put it
 //                on the disk you want to measure
 //   --decisions  decisions per HTTP scenario, split over the clients (default 4000)
+//   --launch     launches instead of decisions: each request launches a new test (group commit of
+//                launches goes through the same queue as decisions)
 //   --cli        decisions for the CLI scenario (default 200; 0 skips it)
 #include <fcntl.h>
 #include <httplib.h>
@@ -50,6 +52,7 @@ struct Options {
   std::string binary = ALPHALEDGER_BINARY;
   std::string folder = "load-http.tmp";
   std::size_t decisions = 4000;
+  bool launch = false;  // --launch: each request launches a new test (POST .../launches)
   std::vector<int> clients = {1, 8, 32, 64};
   std::size_t cli = 200;
 };
@@ -183,14 +186,15 @@ void http_scenario(const Options& o, int clients, bool one_stream, int round) {
       std::mt19937_64 rng(static_cast<std::uint64_t>(1000 + c));
       std::uniform_real_distribution<double> unif(0.0, 1.0);
       const std::string path =
-          "/v1/streams/" + (one_stream ? std::string("shared") : "s" + std::to_string(c)) + "/tests";
+          "/v1/streams/" + (one_stream ? std::string("shared") : "s" + std::to_string(c)) +
+          (o.launch ? "/launches" : "/tests");
       auto& lat = latency[static_cast<std::size_t>(c)];
       lat.reserve(per_client);
       while (!go.load()) std::this_thread::yield();
       for (std::size_t n = 0; n < per_client; ++n) {
         nlohmann::json body;
         body["id"] = "c" + std::to_string(c) + "-" + std::to_string(n);
-        body["p_value"] = unif(rng);
+        if (!o.launch) body["p_value"] = unif(rng);
         const auto t0 = SteadyClock::now();
         auto r = cli->Post(path.c_str(), body.dump(), "application/json");
         lat.push_back(std::chrono::duration<double, std::milli>(SteadyClock::now() - t0).count());
@@ -270,6 +274,8 @@ int main(int argc, char** argv) {
       o.decisions = std::strtoull(value().c_str(), nullptr, 10);
     else if (a == "--clients")
       o.clients = parse_list(value());
+    else if (a == "--launch")
+      o.launch = true;
     else if (a == "--cli")
       o.cli = std::strtoull(value().c_str(), nullptr, 10);
     else

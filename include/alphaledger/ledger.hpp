@@ -31,6 +31,7 @@
 #include <span>
 #include <string>
 #include <string_view>
+#include <variant>
 #include <vector>
 
 #include "alphaledger/result.hpp"
@@ -175,6 +176,17 @@ struct TestInput {
   double p_value = 0;  // or the e-value, with e_value set
   bool e_value = false;  // the number is an e-value (streams whose rule takes e-values: e-lond)
 };
+
+// One event of a group given to Ledger::apply_events.
+enum class EventType : std::uint8_t { kDecide, kLaunch, kAbandon };
+struct EventInput {
+  EventType type = EventType::kDecide;
+  std::string_view id;
+  double p_value = 0;     // kDecide only: the p-value, or the e-value with e_value set
+  bool e_value = false;  // kDecide only: the number is an e-value (e-lond streams)
+};
+// The answer to one EventInput: what decide(), launch() or abandon() returns.
+using EventOutcome = std::variant<DecideResult, LaunchResult, AbandonResult>;
 
 // A test of a batch whose id the caller holds (decide --file points into the log it read, so a
 // 10^6-row log is not copied into 10^6 strings). The id must outlive the call.
@@ -325,8 +337,17 @@ class Ledger {
   // (code unknown_test); an id already decided: kConflict; an id already abandoned: the stored
   // abandon with repeat = true. Closed stream: kConflict. On any failure the ledger is unchanged.
   virtual Result<AbandonResult> abandon(std::string_view stream, std::string_view id) = 0;
-  // The running tests in launch order. Unknown stream: kNotFound. Reads the chain from the
-  // earliest running launch on.
+  // Group commit of mixed events: applies `events` to `stream` in order, each answered exactly
+  // as decide(), launch() or abandon() called one after another would answer it (same levels,
+  // same chain, same refusals and messages), and makes every new event durable with one synced
+  // write before returning. One answer per input, in order; a refusal answers its input only. A
+  // storage failure (a read or the write) answers every input with that error and the group
+  // counts as not done: the slot is reloaded, and sending the group again is safe (what reached
+  // the disk comes back as repeats).
+  virtual std::vector<Result<EventOutcome>> apply_events(std::string_view stream,
+                                                         std::span<const EventInput> events) = 0;
+  // The running tests in launch order. Unknown stream: kNotFound. Reads one key per running
+  // test (docs/ledger-format.md "Running tests").
   virtual Result<std::vector<RunningEntry>> running(std::string_view stream) = 0;
   // One running test by id. Unknown id: kNotFound (code unknown_test); decided or abandoned:
   // kConflict saying so (its level is no longer reserved). Unknown stream: kNotFound.

@@ -31,6 +31,7 @@
 #include <map>
 #include <memory>
 #include <optional>
+#include <span>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -168,6 +169,17 @@ class Rule {
   // On failure (truncated, wrong version, wrong shape for this configuration) returns
   // kCorruption and leaves this Rule unchanged.
   Status restore_state(std::string_view bytes);
+  // The compact state without the list of running tests (version 3): the counters and
+  // accumulators of encode_state(), how many tests are running, whether the test launched last is
+  // running without having advanced the clock (saffron/addis), and the alpha-investing
+  // reservation. Its size does not grow with the number of running tests, so a store that keeps
+  // each running test apart (docs/ledger-format.md) writes it per event in O(K) in fast mode.
+  std::string encode_state_without_running() const;
+  // Restores a version 3 state with its running tests (launch number and level, in launch order)
+  // given back. Errors as restore_state(), also when the list disagrees with the state's count.
+  Status restore_state_without_running(std::string_view bytes, std::span<const RunningTest> running);
+  // Whether test `launch` is running.
+  bool is_running(std::uint64_t launch) const { return running_.count(launch) != 0; }
 
   // The spending sequence in use (exact mode) or its mixture (fast mode). Null for
   // alpha-investing.
@@ -191,6 +203,11 @@ class Rule {
   Outcome finish_running(std::uint64_t launch, double p);  // REQUIRES: launch is running
   void clock_advance_for(double level);                    // saffron/addis: one test advances the clock
   Status restore_running(std::string_view bytes);          // version 2 tail of the encoded state, into *this
+  // Version 3 tail, with the running tests given apart, into *this.
+  Status restore_apart(std::string_view bytes, std::span<const RunningTest> running);
+  // restore_state() / restore_state_without_running() (running null for the first).
+  Status restore_any(std::string_view bytes, const std::span<const RunningTest>* running);
+  void encode_counters(std::string& out, std::uint8_t version) const;  // every state version's start
 
   // A running test. `advanced`: saffron/addis, it has already advanced the clock.
   struct Running {

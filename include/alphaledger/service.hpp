@@ -77,7 +77,14 @@ std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger,
                                                                  const std::vector<TestInput>& tests,
                                                                  std::size_t max_group = 256);
 
-// Group commit for concurrent callers: decide() from many threads; requests for one stream are
+// Applies mixed events (decides, launches, abandons) in order with Ledger::apply_events, at most
+// max_group per synced write. One entry per input, in order; after the first storage failure every
+// later group is not tried (std::nullopt: not done).
+std::vector<std::optional<Result<EventOutcome>>> apply_in_order(Ledger& ledger, std::string_view stream,
+                                                                const std::vector<EventInput>& events,
+                                                                std::size_t max_group = 256);
+
+// Group commit for concurrent callers: decide(), launch() and abandon() from many threads; requests for one stream are
 // queued and the thread that finds the stream idle decides everything queued (decide_in_order),
 // so N waiting clients share one synced write. Different streams proceed in parallel.
 // Thread-safety: safe from many threads.
@@ -94,6 +101,10 @@ class DecisionQueue {
   // With e_value, the number is an e-value (Ledger::decide_e; e-lond streams).
   Result<DecideResult> decide(const std::string& stream, const std::string& id, double p_value,
                               bool e_value = false);
+  // As Ledger::launch and Ledger::abandon, queued with the decides (Ledger::apply_events).
+  // REQUIRES: the caller has validated id.
+  Result<LaunchResult> launch(const std::string& stream, const std::string& id);
+  Result<AbandonResult> abandon(const std::string& stream, const std::string& id);
 
   // Streams with a lane right now. A lane exists only while a decide() on its stream is queued or
   // running, so names seen once (unknown ones included) cost nothing afterwards.
@@ -101,6 +112,7 @@ class DecisionQueue {
 
  private:
   struct Lane;
+  Result<EventOutcome> submit(const std::string& stream, const EventInput& event);
   Lane& acquire(const std::string& stream);
   void release(const std::string& stream);
 

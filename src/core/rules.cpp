@@ -19,6 +19,8 @@ namespace {
 // 1, so synchronous streams keep the bytes they had before launch-time levels existed.
 constexpr std::uint8_t kStateVersion = 2;
 constexpr std::uint8_t kStateVersionSynchronous = 1;
+// The running tests kept apart (encode_state_without_running): counts and flags only.
+constexpr std::uint8_t kStateVersionApart = 3;
 
 // Hot loops get an AVX2 clone, chosen at run time, on x86-64. The clones do the same IEEE
 // operations in the same order, so they give the same bits as the baseline code. Not in sanitizer
@@ -557,10 +559,8 @@ Status Rule::restore_running(std::string_view bytes) {
   return {};
 }
 
-std::string Rule::encode_state() const {
-  std::string out;
-  const bool synchronous = running_.empty() && investing_reserved_ == 0.0;
-  out.push_back(static_cast<char>(synchronous ? kStateVersionSynchronous : kStateVersion));
+void Rule::encode_counters(std::string& out, std::uint8_t version) const {
+  out.push_back(static_cast<char>(version));
   out.push_back(static_cast<char>(config_.kind));
   out.push_back(static_cast<char>(config_.evaluation));
   put_u64(out, step_);
@@ -574,6 +574,12 @@ std::string Rule::encode_state() const {
   for (double h : head_) put_f64(out, h);
   put_u64(out, accumulator_.size());
   for (double a : accumulator_) put_f64(out, a);
+}
+
+std::string Rule::encode_state() const {
+  std::string out;
+  const bool synchronous = running_.empty() && investing_reserved_ == 0.0;
+  encode_counters(out, synchronous ? kStateVersionSynchronous : kStateVersion);
   if (synchronous) return out;
   put_u64(out, running_.size());
   for (const auto& [launch, r] : running_) {
@@ -585,14 +591,80 @@ std::string Rule::encode_state() const {
   return out;
 }
 
-Status Rule::restore_state(std::string_view bytes) {
+std::string Rule::encode_state_without_running() const {
+  std::string out;
+  encode_counters(out, kStateVersionApart);
+  put_u64(out, running_.size());
+  // Only the test launched last can be running without having advanced the clock (saffron,
+  // addis: the next launch advances it), so one flag stands for every running test's flag.
+  const bool clocked = config_.kind == RuleKind::kSaffron || config_.kind == RuleKind::kAddis;
+  const auto last = running_.find(step_);
+  out.push_back(static_cast<char>(clocked && last != running_.end() && !last->second.advanced ? 1 : 0));
+  put_f64(out, investing_reserved_);
+  return out;
+}
+
+Status Rule::restore_state(std::string_view bytes) { return restore_any(bytes, nullptr); }
+
+Status Rule::restore_state_without_running(std::string_view bytes, std::span<const RunningTest> running) {
+  return restore_any(bytes, &running);
+}
+
+Status Rule::restore_apart(std::string_view bytes, std::span<const RunningTest> running) {
+  Reader r{bytes};
+  const std::uint64_t n = r.u64();
+  const std::uint8_t last_pending = r.u8();
+  investing_reserved_ = r.f64();
+  if (!r.ok || !r.in.empty()) return corruption("rule state is truncated or has trailing bytes (running tests)");
+  if (n != running.size()) {
+    return corruption("rule state counts " + std::to_string(n) + " running tests but " +
+                      std::to_string(running.size()) + " are stored");
+  }
+  const bool clocked = config_.kind == RuleKind::kSaffron || config_.kind == RuleKind::kAddis;
+  if (last_pending > 1 || (last_pending == 1 && !clocked)) {
+    return corruption("rule state is inconsistent: impossible clock flag for the test launched last");
+  }
+  std::uint64_t previous = 0;
+  for (const RunningTest& t : running) {
+    if (t.launch <= previous || t.launch > step_) {
+      return corruption("rule state is inconsistent: running test " + std::to_string(t.launch) +
+                        " is out of order or beyond the " + std::to_string(step_) + " tests launched");
+    }
+    if (!(t.level >= 0.0 && t.level <= 1.0)) {
+      return corruption("rule state is inconsistent: running test " + std::to_string(t.launch) +
+                        " has an impossible level");
+    }
+    const bool advanced = clocked && !(last_pending == 1 && t.launch == step_);
+    running_.emplace_hint(running_.end(), t.launch, Running{t.level, advanced});
+    previous = t.launch;
+  }
+  if (last_pending == 1 && running_.find(step_) == running_.end()) {
+    return corruption("rule state is inconsistent: the test launched last is flagged but not running");
+  }
+  const bool investing = config_.kind == RuleKind::kAlphaInvesting;
+  if (!(investing_reserved_ >= 0.0 && investing_reserved_ < 1e300) ||
+      (!investing && investing_reserved_ != 0.0) ||
+      (investing && running_.empty() && investing_reserved_ != 0)) {
+    return corruption("rule state is inconsistent: impossible reserved wealth");
+  }
+  return {};
+}
+
+Status Rule::restore_any(std::string_view bytes, const std::span<const RunningTest>* running) {
   Reader r{bytes};
   const auto version = r.u8();
   const auto kind = r.u8();
   const auto evaluation = r.u8();
-  if (!r.ok || (version != kStateVersion && version != kStateVersionSynchronous)) {
+  if (!r.ok || (version != kStateVersion && version != kStateVersionSynchronous &&
+                version != kStateVersionApart)) {
     return corruption("rule state has format version " + std::to_string(version) +
-                      ", this build reads versions 1 and 2");
+                      ", this build reads versions 1, 2 and 3");
+  }
+  if ((version == kStateVersionApart) != (running != nullptr)) {
+    return corruption(version == kStateVersionApart
+                          ? "rule state of version 3 keeps its running tests apart, and none were given"
+                          : "rule state of version " + std::to_string(version) +
+                                " holds its running tests itself, yet a list was given apart");
   }
   if (kind != static_cast<std::uint8_t>(config_.kind) ||
       evaluation != static_cast<std::uint8_t>(config_.evaluation)) {
@@ -618,6 +690,9 @@ Status Rule::restore_state(std::string_view bytes) {
   next.investing_reserved_ = 0;
   if (version == kStateVersion) {
     if (auto s = next.restore_running(r.in); !s) return s.error();
+    r.in = {};
+  } else if (version == kStateVersionApart) {
+    if (auto s = next.restore_apart(r.in, *running); !s) return s.error();
     r.in = {};
   }
   if (!r.ok || !r.in.empty()) return corruption("rule state is truncated or has trailing bytes");

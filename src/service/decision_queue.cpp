@@ -1,5 +1,7 @@
 // Deciding tests in arrival order with group commit (pipe) and across concurrent callers (HTTP).
 #include <algorithm>
+#include <span>
+#include <variant>
 #include <condition_variable>
 #include <deque>
 #include <unordered_set>
@@ -97,18 +99,34 @@ std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger,
   return out;
 }
 
+std::vector<std::optional<Result<EventOutcome>>> apply_in_order(Ledger& ledger, std::string_view stream,
+                                                                const std::vector<EventInput>& events,
+                                                                std::size_t max_group) {
+  std::vector<std::optional<Result<EventOutcome>>> out(events.size());
+  if (max_group == 0) max_group = 1;
+  for (std::size_t from = 0; from < events.size(); from += max_group) {
+    const std::size_t n = std::min(max_group, events.size() - from);
+    auto answers = ledger.apply_events(stream, std::span<const EventInput>(events.data() + from, n));
+    bool failed = false;
+    for (std::size_t k = 0; k < n && k < answers.size(); ++k) {
+      failed = failed || (!answers[k].ok() && is_storage_failure(answers[k].error().kind));
+      out[from + k] = std::move(answers[k]);
+    }
+    if (failed) break;  // later groups are not tried
+  }
+  return out;
+}
+
 struct DecisionQueue::Lane {
   struct Pending {
-    const std::string* id;
-    double p_value;
-    bool e_value;
-    std::optional<Result<DecideResult>> result;
+    const EventInput* event;
+    std::optional<Result<EventOutcome>> result;
   };
   std::mutex mutex;
   std::condition_variable done;
   std::deque<Pending*> waiting;
   bool busy = false;
-  std::size_t users = 0;  // decide() calls holding this lane; guarded by lanes_mutex_
+  std::size_t users = 0;  // calls holding this lane; guarded by lanes_mutex_
 };
 
 DecisionQueue::DecisionQueue(Ledger& ledger, std::size_t max_group)
@@ -138,15 +156,37 @@ std::size_t DecisionQueue::lane_count() const {
   return lanes_.size();
 }
 
+namespace {
+
+template <typename T>
+Result<T> as(Result<EventOutcome>&& r) {
+  if (!r) return r.error();
+  return std::get<T>(std::move(*r));
+}
+
+}  // namespace
+
 Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std::string& id, double p_value,
                                            bool e_value) {
+  return as<DecideResult>(submit(stream, EventInput{EventType::kDecide, id, p_value, e_value}));
+}
+
+Result<LaunchResult> DecisionQueue::launch(const std::string& stream, const std::string& id) {
+  return as<LaunchResult>(submit(stream, EventInput{EventType::kLaunch, id, 0}));
+}
+
+Result<AbandonResult> DecisionQueue::abandon(const std::string& stream, const std::string& id) {
+  return as<AbandonResult>(submit(stream, EventInput{EventType::kAbandon, id, 0}));
+}
+
+Result<EventOutcome> DecisionQueue::submit(const std::string& stream, const EventInput& event) {
   Lane& lane = acquire(stream);
   struct Release {
     DecisionQueue* queue;
     const std::string& stream;
     ~Release() { queue->release(stream); }
   } release_on_return{this, stream};
-  Lane::Pending me{&id, p_value, e_value, std::nullopt};
+  Lane::Pending me{&event, std::nullopt};
   std::unique_lock<std::mutex> lock(lane.mutex);
   lane.waiting.push_back(&me);
   while (!me.result) {
@@ -154,7 +194,8 @@ Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std:
       lane.done.wait(lock);
       continue;
     }
-    // This thread decides everything queued so far (up to max_group), in arrival order.
+    // This thread applies everything queued so far (up to max_group), in arrival order, with one
+    // synced write (Ledger::apply_events).
     lane.busy = true;
     std::vector<Lane::Pending*> group;
     while (!lane.waiting.empty() && group.size() < max_group_) {
@@ -162,16 +203,16 @@ Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std:
       lane.waiting.pop_front();
     }
     lock.unlock();
-    std::vector<TestInput> inputs;
+    std::vector<EventInput> inputs;
     inputs.reserve(group.size());
-    for (const auto* p : group) inputs.push_back({*p->id, p->p_value, p->e_value});
-    std::vector<std::optional<Result<DecideResult>>> results;
+    for (const auto* p : group) inputs.push_back(*p->event);
+    std::vector<std::optional<Result<EventOutcome>>> results;
     try {
-      results = decide_in_order(ledger_, stream, inputs, max_group_);
+      results = apply_in_order(ledger_, stream, inputs, max_group_);
     } catch (...) {
       results.assign(group.size(), std::nullopt);
-      // The library's own text is not shown; whether anything was decided is unknown, and a
-      // resend is safe (a decided test comes back as a repeat).
+      // The library's own text is not shown; whether anything was written is unknown, and a
+      // resend is safe (a decided, launched or abandoned test comes back as a repeat).
       results[0].emplace(io_error(
           "the ledger failed unexpectedly while deciding; send the tests again (a decided one comes back "
           "as a repeat)"));
@@ -184,8 +225,8 @@ Result<DecideResult> DecisionQueue::decide(const std::string& stream, const std:
           storage_failure = results[k]->error();
         group[k]->result = std::move(results[k]);
       } else {
-        // Not attempted after a storage failure: not decided, and the caller is told so.
-        group[k]->result = Result<DecideResult>(
+        // Not attempted after a storage failure: not done, and the caller is told so.
+        group[k]->result = Result<EventOutcome>(
             storage_failure ? *storage_failure
                             : io_error("not decided: the ledger failed earlier in the same group"));
       }

@@ -283,7 +283,7 @@ Response Routes::launch(const Request& req, const std::string& name) {
   auto s = find_stream(name, error);
   if (!s) return error;
   if (s->closed_at_ms) return closed_answer(*s);
-  auto l = ledger_.launch(name, id);
+  auto l = queue_.launch(name, id);
   if (!l) {
     note_write(&l.error());
     return ledger_error(l.error());
@@ -305,7 +305,7 @@ Response Routes::abandon(const Request& req, const std::string& name) {
   auto s = find_stream(name, error);
   if (!s) return error;
   if (s->closed_at_ms) return closed_answer(*s);
-  auto a = ledger_.abandon(name, id);
+  auto a = queue_.abandon(name, id);
   if (!a) {
     note_write(&a.error());
     return ledger_error(a.error());

@@ -119,23 +119,25 @@ class PipeRun {
   PipeRun(Ledger& ledger, std::string_view stream, std::ostream& out)
       : ledger_(ledger), stream_(stream), out_(out) {}
 
-  // Answers a group of complete lines in order: runs of decide lines together (group commit),
-  // each launch or abandon on its own. Returns an error on storage failure or when the output
-  // cannot be written.
+  // Answers a group of complete lines in order: decide, launch and abandon lines together, with
+  // one synced write per group (group commit, Ledger::apply_events). Returns an error on storage
+  // failure or when the output cannot be written.
   Status answer(std::vector<LineWork>& work) {
+    // Looks are answered one by one; every other line joins a run answered in order with group
+    // commit (apply_in_order).
     std::vector<LineWork> run;
     for (auto& w : work) {
-      if (!w.input || w.event == LineEvent::kDecide) {
+      if (!w.input || w.event != LineEvent::kLook) {
         run.push_back(std::move(w));
         continue;
       }
       if (!run.empty()) {
-        if (auto s = answer_decides(run); !s) return s;
+        if (auto s = answer_run(run); !s) return s;
         run.clear();
       }
-      if (auto s = answer_event(w); !s) return s;
+      if (auto s = answer_look(w); !s) return s;
     }
-    if (!run.empty()) return answer_decides(run);
+    if (!run.empty()) return answer_run(run);
     return {};
   }
 
@@ -168,54 +170,17 @@ class PipeRun {
     return {};
   }
 
-  Status answer_event(const LineWork& w) {
-    if (w.event == LineEvent::kLook) return answer_look(w);
-    std::string text;
-    std::optional<Error> failure;
-    bool repeat = false;
-    if (w.event == LineEvent::kLaunch) {
-      auto l = ledger_.launch(stream_, w.input->id);
-      if (l) {
-        text = launch_json(*l);
-        repeat = l->repeat;
-      } else {
-        failure = l.error();
-      }
-    } else {
-      auto a = ledger_.abandon(stream_, w.input->id);
-      if (a) {
-        text = abandon_json(*a);
-        repeat = a->repeat;
-      } else {
-        failure = a.error();
-      }
-    }
-    if (failure) {
-      text = line_error_json(w.line, failure->message);
-      ++summary_.bad;
-    } else if (repeat) {
-      ++summary_.repeats;
-    } else if (w.event == LineEvent::kLaunch) {
-      ++summary_.launched;
-    } else {
-      ++summary_.abandoned;
-    }
-    out_ << text << '\n';
-    out_.flush();
-    if (!out_) return io_error("cannot write the answer to line " + std::to_string(w.line) + " to the output");
-    ++summary_.lines;
-    if (failure && is_storage_failure(failure->kind))
-      return with_message(*failure, "line " + std::to_string(w.line) + ": " + failure->message);
-    return {};
-  }
-
-  // Decides and answers a run of decide lines (and refused lines).
-  Status answer_decides(std::vector<LineWork>& work) {
-    std::vector<TestInput> inputs;
+  // Decides and answers a run of decide, launch and abandon lines (and refused lines).
+  Status answer_run(std::vector<LineWork>& work) {
+    std::vector<EventInput> inputs;
     for (const auto& w : work) {
-      if (w.input) inputs.push_back(*w.input);
+      if (!w.input) continue;
+      const EventType type = w.event == LineEvent::kLaunch    ? EventType::kLaunch
+                             : w.event == LineEvent::kAbandon ? EventType::kAbandon
+                                                              : EventType::kDecide;
+      inputs.push_back({type, w.input->id, w.input->p_value, w.input->e_value});
     }
-    auto results = decide_in_order(ledger_, stream_, inputs);
+    auto results = apply_in_order(ledger_, stream_, inputs);
     std::size_t next_input = 0;
     for (std::size_t k = 0; k < work.size(); ++k) {
       std::string text;
@@ -227,11 +192,7 @@ class PipeRun {
         auto& r = results[next_input++];
         if (!r) break;  // not attempted after a storage failure: stop without answering
         if (r->ok()) {
-          text = decision_json(r->value());
-          if (r->value().repeat)
-            ++summary_.repeats;
-          else
-            ++summary_.decided;
+          text = answer_text(r->value());
         } else {
           text = line_error_json(work[k].line, r->error().message);
           ++summary_.bad;
@@ -246,6 +207,21 @@ class PipeRun {
       if (fatal) return with_message(*fatal, "line " + std::to_string(work[k].line) + ": " + fatal->message);
     }
     return {};
+  }
+
+  // The answer line of a done event, counted in the summary.
+  std::string answer_text(const EventOutcome& outcome) {
+    if (const auto* d = std::get_if<DecideResult>(&outcome)) {
+      ++(d->repeat ? summary_.repeats : summary_.decided);
+      return decision_json(*d);
+    }
+    if (const auto* l = std::get_if<LaunchResult>(&outcome)) {
+      ++(l->repeat ? summary_.repeats : summary_.launched);
+      return launch_json(*l);
+    }
+    const auto& a = std::get<AbandonResult>(outcome);
+    ++(a.repeat ? summary_.repeats : summary_.abandoned);
+    return abandon_json(a);
   }
 
   Ledger& ledger_;

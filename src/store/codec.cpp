@@ -83,6 +83,15 @@ std::string look_key(std::string_view stream, std::string_view id) {
   return "l/" + std::string(stream) + "/" + std::string(id);
 }
 std::string index_prefix(std::string_view stream) { return "i/" + std::string(stream) + "/"; }
+std::string running_prefix(std::string_view stream) { return "t/" + std::string(stream) + "/"; }
+std::string running_key(std::string_view stream, std::uint64_t launch) {
+  std::string out;
+  out.reserve(stream.size() + 3 + 16);
+  out.append("t/").append(stream).push_back('/');
+  out.append(16, '0');
+  set_record_key_step(out, launch);
+  return out;
+}
 std::string index_key(std::string_view stream, std::string_view id) {
   std::string out;
   assign_index_key(out, stream, id);
@@ -239,7 +248,11 @@ Result<StoredConfig> decode_config(std::string_view bytes) {
 
 std::string encode_head(const StoredHead& h) {
   std::string out;
-  put_u8(out, h.closed_at_ms ? kClosedHeadVersion : kHeadVersion);
+  if (h.running_apart) {
+    put_u8(out, h.closed_at_ms ? kClosedApartHeadVersion : kApartHeadVersion);
+  } else {
+    put_u8(out, h.closed_at_ms ? kClosedHeadVersion : kHeadVersion);
+  }
   put_u64(out, h.steps);
   out.append(as_bytes(h.last_hash));
   if (h.closed_at_ms) put_u64(out, static_cast<std::uint64_t>(*h.closed_at_ms));
@@ -252,19 +265,54 @@ Result<StoredHead> decode_head(std::string_view bytes) {
   Reader r{{bytes}};
   const auto version = r.u8();
   if (!r.ok) return corruption("stream head is empty");
-  if (version != kHeadVersion && version != kClosedHeadVersion) {
-    return corruption("stream head has version " + std::to_string(version) +
-                         ", this build reads versions " + std::to_string(kHeadVersion) + " and " +
-                         std::to_string(kClosedHeadVersion));
+  if (version < kHeadVersion || version > kClosedApartHeadVersion) {
+    return corruption("stream head has version " + std::to_string(version) + ", this build reads versions " +
+                      std::to_string(kHeadVersion) + " to " + std::to_string(kClosedApartHeadVersion));
   }
   StoredHead h;
+  h.running_apart = version == kApartHeadVersion || version == kClosedApartHeadVersion;
   h.steps = r.u64();
   h.last_hash = r.digest();
-  if (version == kClosedHeadVersion) h.closed_at_ms = static_cast<std::int64_t>(r.u64());
+  if (version == kClosedHeadVersion || version == kClosedApartHeadVersion)
+    h.closed_at_ms = static_cast<std::int64_t>(r.u64());
   const auto n = r.u32();
   h.rule_state = std::string(r.bytes(n));
   if (!r.ok || !r.in.empty()) return corruption("stream head is truncated or has trailing bytes");
   return h;
+}
+
+std::string encode_running(const StoredRunning& t) {
+  std::string out;
+  out.reserve(1 + 8 + 8 + t.id.size());
+  put_u8(out, kRunningVersion);
+  put_f64(out, t.level);
+  put_u64(out, static_cast<std::uint64_t>(t.launched_at_ms));
+  out.append(t.id);
+  return out;
+}
+
+Result<StoredRunning> decode_running(std::string_view key, std::string_view value) {
+  StoredRunning t;
+  if (key.size() < 16) return corruption("running test key is too short");
+  for (char c : key.substr(key.size() - 16)) {
+    const int digit = c >= '0' && c <= '9' ? c - '0' : c >= 'a' && c <= 'f' ? c - 'a' + 10 : -1;
+    if (digit < 0) return corruption("running test key does not end in 16 hex digits");
+    t.launch = (t.launch << 4) | static_cast<std::uint64_t>(digit);
+  }
+  Reader r{{value}};
+  const auto version = r.u8();
+  t.level = r.f64();
+  t.launched_at_ms = static_cast<std::int64_t>(r.u64());
+  if (!r.ok) return corruption("running test " + std::to_string(t.launch) + " is truncated");
+  if (version != kRunningVersion) {
+    return corruption("running test " + std::to_string(t.launch) + " has version " + std::to_string(version) +
+                      ", this build reads version " + std::to_string(kRunningVersion));
+  }
+  t.id = std::string(r.in);
+  if (t.launch == 0 || !(t.level >= 0.0 && t.level <= 1.0) || !validate_test_id(t.id).ok()) {
+    return corruption("running test " + std::to_string(t.launch) + " has an impossible launch number, level or id");
+  }
+  return t;
 }
 
 std::string encode_record(const DecisionRecord& rec, const Digest& prev_hash, Digest* hash) {

@@ -27,6 +27,11 @@ inline constexpr std::uint32_t kFormatVersion = 1;
 inline constexpr std::uint8_t kConfigVersion = 1;
 inline constexpr std::uint8_t kHeadVersion = 1;        // an open stream's head
 inline constexpr std::uint8_t kClosedHeadVersion = 2;  // a closed stream's head (adds the closing time)
+// Versions 3 and 4: as 1 and 2, with the running tests kept apart, one key each (running_key),
+// and the rule state of version 3 (Rule::encode_state_without_running). Written while tests run.
+inline constexpr std::uint8_t kApartHeadVersion = 3;
+inline constexpr std::uint8_t kClosedApartHeadVersion = 4;
+inline constexpr std::uint8_t kRunningVersion = 1;  // a running test's value
 inline constexpr std::uint8_t kClosingVersion = 1;     // the closing entry hashed into the chain
 inline constexpr std::uint8_t kRecordVersion = 1;
 inline constexpr std::uint8_t kEventVersion = 2;  // a launch-time event in the chain (EventRecord)
@@ -51,6 +56,8 @@ void assign_index_key(std::string& out, std::string_view stream, std::string_vie
 inline constexpr std::string_view kConfigPrefix = "c/";
 // A test's look state: the chain entry of its last look (8 bytes, encode_step).
 std::string look_key(std::string_view stream, std::string_view id);  // "l/<stream>/<id bytes>"
+std::string running_prefix(std::string_view stream);                     // "t/<stream>/"
+std::string running_key(std::string_view stream, std::uint64_t launch);  // "t/<stream>/<16 hex digits>"
 
 std::string encode_format_version(std::uint32_t version);
 Result<std::uint32_t> decode_format_version(std::string_view bytes);
@@ -85,10 +92,28 @@ struct StoredHead {
   Digest last_hash{};
   std::string rule_state;
   std::optional<std::int64_t> closed_at_ms;  // set once the stream is closed
+  // The running tests are stored apart under running_key() and rule_state is of version 3
+  // (head value versions 3 and 4). False: rule_state holds them itself, as ledgers written before
+  // running tests were kept apart do (versions 1 and 2), or none is running.
+  bool running_apart = false;
   friend bool operator==(const StoredHead&, const StoredHead&) = default;
 };
 std::string encode_head(const StoredHead& h);
 Result<StoredHead> decode_head(std::string_view bytes);
+
+// A running test as stored under running_key(stream, launch): what restoring the rule needs (the
+// level) and what listing the running tests shows (id, launch time).
+struct StoredRunning {
+  std::uint64_t launch = 0;  // from the key
+  double level = 0;
+  std::int64_t launched_at_ms = 0;
+  std::string id;
+  friend bool operator==(const StoredRunning&, const StoredRunning&) = default;
+};
+// u8 version (1), f64 level, i64 launch time (ms), then the id's bytes (the rest of the value).
+std::string encode_running(const StoredRunning& r);
+// `key` is the full key (the launch number is its last 16 hex digits). Errors: kCorruption.
+Result<StoredRunning> decode_running(std::string_view key, std::string_view value);
 
 // One decision as stored: the fields, the hash of the previous record (the chain link), and this
 // record's own hash, SHA-256 over every byte before it.

@@ -305,13 +305,36 @@ Status StoreLedger::load(std::string_view name, StreamSlot& slot) {
   auto head = store::decode_head(**head_bytes);
   if (!head) return corruption(where + head.error().message);
   Rule rule(config->config);
-  if (auto s = rule.restore_state(head->rule_state); !s) return corruption(where + s.error().message);
+  std::vector<StoredRunning> legacy;
+  if (head->running_apart) {
+    // The running tests are kept apart, one key each (docs/ledger-format.md "Running tests").
+    auto stored = stored_running(name);
+    if (!stored) {
+      if (stored.error().kind != ErrorKind::kCorruption) return stored.error();
+      return corruption(where + stored.error().message);
+    }
+    std::vector<RunningTest> tests;
+    tests.reserve(stored->size());
+    for (const auto& t : *stored) tests.push_back({t.launch, t.level});
+    if (auto s = rule.restore_state_without_running(head->rule_state, tests); !s)
+      return corruption(where + s.error().message);
+  } else if (auto s = rule.restore_state(head->rule_state); !s) {
+    return corruption(where + s.error().message);
+  }
   // Every test has one launch (a decision record or a launch event) in the chain, and a finish
   // or abandon adds one more entry: never fewer entries than tests.
   if (rule.tests() > head->steps) {
     return corruption(where + "the rule state counts " + std::to_string(rule.tests()) +
                       " tests but the head counts " + std::to_string(head->steps) + " chain entries");
   }
+  if (!head->running_apart && rule.running_count() > 0) {
+    // An older-form head (its rule state lists the running tests): their ids and launch times
+    // come from the chain, once; the next write stores them apart (put_head).
+    auto found = running_from_chain(name, rule, head->steps);
+    if (!found) return found.error();
+    legacy = std::move(*found);
+  }
+  slot.legacy_running = std::move(legacy);
   slot.config = std::move(*config);
   slot.encoded_config = std::move(**config_bytes);
   slot.rule.emplace(std::move(rule));

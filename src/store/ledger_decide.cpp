@@ -12,8 +12,6 @@
 
 namespace alphaledger::store {
 
-namespace {
-
 // Whether the stream's rule takes the kind of number given (p-value or e-value).
 Status evidence_fits(std::string_view stream, const RuleConfig& config, bool e_value, std::string_view test) {
   const bool wants_e = rule_takes_e_values(config.kind);
@@ -27,8 +25,6 @@ Status evidence_fits(std::string_view stream, const RuleConfig& config, bool e_v
                        ", which takes p-values: give p_value, not e_value (only e-lond streams take e-values; "
                        "the ledger is unchanged)");
 }
-
-}  // namespace
 
 Result<DecideResult> StoreLedger::decide(std::string_view stream, std::string_view id, double p_value) {
   return decide_value(stream, id, p_value, false);
@@ -51,39 +47,10 @@ Result<DecideResult> StoreLedger::decide_value(std::string_view stream, std::str
   if (!slot->exists) return unknown_stream(stream, location());
   if (auto s = evidence_fits(stream, slot->config.config, e_value, "test " + in_quotes(id)); !s) return s.error();
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
-  std::string key;
-  auto found = look_up(stream, id, key);
-  if (!found) return found.error();
-  using Phase = TestLookup::Phase;
-  if (found->phase == Phase::kDecided) {
-    auto r = repeat_or_conflict(stream, found->row, p_value, e_value);
-    if (!r) return with_message(r.error(), r.error().message + " (the ledger is unchanged)");
-    return r;
-  }
-  if (found->phase == Phase::kAbandoned) return not_running(stream, *found, "decide");
-  if (found->phase == Phase::kRunning) {
-    // A launched test is decided against the level reserved at its launch (a finish event).
-    slot->loaded = false;
-    WriteBatch batch;
-    auto result = finish_into(stream, *slot->rule, slot->head, found->event, p_value, batch);
-    if (!result) return result.error();  // the rule is unchanged on error; reloaded anyway
-    slot->head.rule_state = slot->rule->encode_state();
-    batch.put(store::head_key(stream), store::encode_head(slot->head));
-    if (auto s = store_->write(batch, true); !s) return s.error();
-    slot->loaded = true;
-    return result;
-  }
-
-  // The cached rule and head advance in place (no copy of a long exact-mode state); until the
-  // write succeeds the slot counts as not loaded, so a failure (or an exception) makes the next
-  // call reload the stream from the store, which is the truth.
-  slot->loaded = false;
-  Rule& rule = *slot->rule;
-  StoredHead& head = slot->head;
   WriteBatch batch;
-  DecideResult result = decide_into(stream, rule, head, std::string(id), p_value, batch);
-  head.rule_state = rule.encode_state();
-  batch.put(store::head_key(stream), store::encode_head(head));
+  auto result = decide_event_into(stream, *slot, id, p_value, e_value, batch, nullptr);
+  if (!result || batch.empty()) return result;
+  put_head(stream, *slot, batch);
   if (auto s = store_->write(batch, true); !s) return s.error();
   slot->loaded = true;
   return result;
@@ -244,8 +211,7 @@ void StoreLedger::write_batch_groups(std::string_view stream, StreamSlot& slot, 
   // having recorded the error in `out`.
   auto flush = [&]() -> bool {
     if (!batch.empty()) {
-      head.rule_state = rule.encode_state();
-      batch.put(store::head_key(stream), store::encode_head(head));
+      put_head(stream, slot, batch);
       if (auto s = store_->write(batch, true); !s) {
         out.error = s.error();
         out.stopped_at = group_start;

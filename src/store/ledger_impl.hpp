@@ -38,6 +38,10 @@ struct StreamSlot {
   std::string encoded_config;
   std::optional<Rule> rule;
   StoredHead head;
+  // A head of the older form (running tests listed inside its rule state, no running keys): the
+  // running tests read from the chain at load, written under their own keys by the next write
+  // (StoreLedger::put_head). Empty otherwise.
+  std::vector<StoredRunning> legacy_running;
 };
 
 class StoreLedger final : public Ledger {
@@ -74,6 +78,9 @@ class StoreLedger final : public Ledger {
                                             std::size_t group_size, const GroupCallback& on_durable) override;
 
   Result<LaunchResult> launch(std::string_view stream, std::string_view id) override;
+
+  std::vector<Result<EventOutcome>> apply_events(std::string_view stream,
+                                                 std::span<const EventInput> events) override;
 
   Result<AbandonResult> abandon(std::string_view stream, std::string_view id) override;
 
@@ -155,6 +162,29 @@ class StoreLedger final : public Ledger {
     EventRecord event;   // kRunning: the launch event; kAbandoned: the abandon event
   };
   Result<TestLookup> look_up(std::string_view stream, std::string_view id, std::string& key);
+  // Ids changed earlier in the same group of events (apply_events), not yet in the store.
+  using Touched = std::map<std::string, TestLookup, std::less<>>;
+  // look_up(), seeing the group's earlier events first when `touched` is set.
+  Result<TestLookup> look_up_in(std::string_view stream, std::string_view id, std::string& key,
+                                const Touched* touched);
+  // One event on a loaded, open stream: its answer, its entries, index entries and running keys
+  // added to `batch`, the cached rule and head advanced (slot.loaded turned false before any
+  // change), `touched` updated. The head is not written (put_head). ledger_launch.cpp.
+  Result<LaunchResult> launch_into(std::string_view stream, StreamSlot& slot, std::string_view id,
+                                   WriteBatch& batch, Touched* touched);
+  Result<AbandonResult> abandon_into(std::string_view stream, StreamSlot& slot, std::string_view id,
+                                     WriteBatch& batch, Touched* touched);
+  // With e_value the number is an e-value (e-lond streams; the caller has checked that it fits).
+  Result<DecideResult> decide_event_into(std::string_view stream, StreamSlot& slot, std::string_view id,
+                                         double p_value, bool e_value, WriteBatch& batch, Touched* touched);
+  // Adds the head (its rule state in the form that fits: version 3 with the running tests apart
+  // while any runs) to `batch`, and the running keys of an older-form head still to be written.
+  void put_head(std::string_view stream, StreamSlot& slot, WriteBatch& batch);
+  // The running tests stored apart (one key each), in launch order.
+  Result<std::vector<StoredRunning>> stored_running(std::string_view stream);
+  // The running tests of an older-form head, from the chain (launch events from the earliest running one).
+  Result<std::vector<StoredRunning>> running_from_chain(std::string_view stream, const Rule& rule,
+                                                        std::uint64_t entries);
   // The refusal for an id that is no longer running (decided or abandoned), for `what` (launch,
   // abandon, decide).
   Error not_running(std::string_view stream, const TestLookup& found, std::string_view what);

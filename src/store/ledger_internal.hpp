@@ -9,6 +9,7 @@
 #include <cmath>
 #include <cstdint>
 #include <functional>
+#include <optional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -19,6 +20,10 @@
 #include "alphaledger/text.hpp"
 
 namespace alphaledger::store {
+
+// Whether the stream's rule takes the kind of number given (p-value, or e-value when e_value):
+// an error naming `test` and the field it wants when not (src/store/ledger_decide.cpp).
+Status evidence_fits(std::string_view stream, const RuleConfig& config, bool e_value, std::string_view test);
 
 inline bool same_bits(double a, double b) {
   return std::bit_cast<std::uint64_t>(a) == std::bit_cast<std::uint64_t>(b);
@@ -61,6 +66,12 @@ struct ChainEntry;
 // The same walk over the raw chain entries lo..hi.
 Status visit_entries(Store& store, const std::string& where, std::string_view stream, std::uint64_t lo,
                      std::uint64_t hi, const std::function<bool(const ChainEntry&)>& visit);
+
+struct StoredRunning;
+// The running tests stored apart under running_prefix(stream) against `expected` (in launch
+// order; empty: none may be stored): the first difference in words, or nothing (ledger_launch.cpp).
+Result<std::optional<std::string>> running_keys_problem(Store& store, std::string_view stream,
+                                                        const std::vector<StoredRunning>& expected);
 
 // Ledger::verify over a store (ledger_verify.cpp).
 Result<VerifyReport> verify_stream(Store& store, const std::string& where, std::string_view stream,

@@ -2,11 +2,14 @@
 // running tests (docs/ledger.md "Launch-time levels"; entries in docs/ledger-format.md "Event
 // record"). The rule's side is Rule::launch / finish / abandon (src/core/rules_launch.cpp).
 #include <algorithm>
+#include <map>
+#include <optional>
 #include <string>
 
 #include "alphaledger/text.hpp"
 #include "store/codec.hpp"
 #include "store/ledger_impl.hpp"
+#include "store/ledger_internal.hpp"
 
 namespace alphaledger::store {
 
@@ -41,6 +44,15 @@ Result<StoreLedger::TestLookup> StoreLedger::look_up(std::string_view stream, st
     out.phase = TestLookup::Phase::kDecided;
   }
   return out;
+}
+
+Result<StoreLedger::TestLookup> StoreLedger::look_up_in(std::string_view stream, std::string_view id,
+                                                        std::string& key, const Touched* touched) {
+  if (touched) {
+    auto it = touched->find(id);
+    if (it != touched->end()) return it->second;
+  }
+  return look_up(stream, id, key);
 }
 
 Error StoreLedger::not_running(std::string_view stream, const TestLookup& found, std::string_view what) {
@@ -96,15 +108,10 @@ Result<DecideResult> StoreLedger::finish_into(std::string_view stream, Rule& rul
   return out;
 }
 
-Result<LaunchResult> StoreLedger::launch(std::string_view stream, std::string_view id) {
-  if (auto s = store::validate_stream_name(stream); !s) return s.error();
-  if (auto s = validate_test_id(id); !s) return s.error();
-  SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
-  if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
+Result<LaunchResult> StoreLedger::launch_into(std::string_view stream, StreamSlot& slot, std::string_view id,
+                                              WriteBatch& batch, Touched* touched) {
   std::string key;
-  auto found = look_up(stream, id, key);
+  auto found = look_up_in(stream, id, key, touched);
   if (!found) return found.error();
   if (found->phase == TestLookup::Phase::kRunning) {
     const EventRecord& e = found->event;
@@ -114,9 +121,8 @@ Result<LaunchResult> StoreLedger::launch(std::string_view stream, std::string_vi
     const Error e = not_running(stream, *found, "launch");
     return with_message(e, e.message + " (the ledger is unchanged)");
   }
-  slot->loaded = false;  // as in decide(): trusted again only after the write
-  Rule& rule = *slot->rule;
-  StoredHead& head = slot->head;
+  slot.loaded = false;  // as in decide(): trusted again only after the write
+  Rule& rule = *slot.rule;
   const Reservation r = rule.launch();
   EventRecord e;
   e.kind = EventKind::kLaunch;
@@ -126,24 +132,22 @@ Result<LaunchResult> StoreLedger::launch(std::string_view stream, std::string_vi
   e.wealth = r.wealth;
   e.at_ms = clock_();
   e.launched_at_ms = e.at_ms;
-  WriteBatch batch;
-  append_event(stream, head, e, batch);
-  head.rule_state = rule.encode_state();
-  batch.put(store::head_key(stream), store::encode_head(head));
-  if (auto s = store_->write(batch, true); !s) return s.error();
-  slot->loaded = true;
-  return LaunchResult{std::string(stream), e.id, e.launch, e.level, e.wealth, e.at_ms, e.entry, false};
+  append_event(stream, slot.head, e, batch);
+  batch.put(store::running_key(stream, e.launch), store::encode_running({e.launch, e.level, e.at_ms, e.id}));
+  LaunchResult out{std::string(stream), e.id, e.launch, e.level, e.wealth, e.at_ms, e.entry, false};
+  if (touched) {
+    TestLookup now;
+    now.phase = TestLookup::Phase::kRunning;
+    now.event = std::move(e);
+    (*touched)[std::string(id)] = std::move(now);
+  }
+  return out;
 }
 
-Result<AbandonResult> StoreLedger::abandon(std::string_view stream, std::string_view id) {
-  if (auto s = store::validate_stream_name(stream); !s) return s.error();
-  if (auto s = validate_test_id(id); !s) return s.error();
-  SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
-  if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
+Result<AbandonResult> StoreLedger::abandon_into(std::string_view stream, StreamSlot& slot, std::string_view id,
+                                                WriteBatch& batch, Touched* touched) {
   std::string key;
-  auto found = look_up(stream, id, key);
+  auto found = look_up_in(stream, id, key, touched);
   if (!found) return found.error();
   using Phase = TestLookup::Phase;
   if (found->phase == Phase::kNone) {
@@ -161,9 +165,8 @@ Result<AbandonResult> StoreLedger::abandon(std::string_view stream, std::string_
     const Error e = not_running(stream, *found, "abandon");
     return with_message(e, e.message + " (the ledger is unchanged)");
   }
-  slot->loaded = false;
-  Rule& rule = *slot->rule;
-  StoredHead& head = slot->head;
+  slot.loaded = false;
+  Rule& rule = *slot.rule;
   const EventRecord& launched = found->event;
   if (auto s = rule.abandon(launched.launch); !s) {
     return with_reason(corruption("ledger " + location() + ", stream " + in_quotes(stream) + ", test " +
@@ -179,41 +182,218 @@ Result<AbandonResult> StoreLedger::abandon(std::string_view stream, std::string_
   e.wealth = rule.wealth();
   e.at_ms = clock_();
   e.launched_at_ms = launched.launched_at_ms;
-  WriteBatch batch;
-  append_event(stream, head, e, batch);
-  head.rule_state = rule.encode_state();
-  batch.put(store::head_key(stream), store::encode_head(head));
-  if (auto s = store_->write(batch, true); !s) return s.error();
-  slot->loaded = true;
-  return AbandonResult{std::string(stream), e.id, e.launch, e.level, e.wealth, e.launched_at_ms, e.at_ms,
-                       e.entry,             false};
+  append_event(stream, slot.head, e, batch);
+  batch.erase(store::running_key(stream, e.launch));
+  AbandonResult out{std::string(stream), e.id, e.launch, e.level, e.wealth, e.launched_at_ms, e.at_ms,
+                    e.entry,             false};
+  if (touched) {
+    TestLookup now;
+    now.phase = Phase::kAbandoned;
+    now.row = event_row(e);
+    now.event = std::move(e);
+    (*touched)[std::string(id)] = std::move(now);
+  }
+  return out;
 }
 
-Result<std::vector<RunningEntry>> StoreLedger::running(std::string_view stream) {
-  if (auto s = store::validate_stream_name(stream); !s) return s.error();
-  std::vector<RunningTest> tests;
-  std::uint64_t count = 0;
-  {
-    SlotGuard slot(*this, stream);
-    if (auto s = load(stream, *slot); !s) return s.error();
-    if (!slot->exists) return unknown_stream(stream, location());
-    tests = slot->rule->running();
-    count = slot->head.steps;
+Result<DecideResult> StoreLedger::decide_event_into(std::string_view stream, StreamSlot& slot,
+                                                    std::string_view id, double p_value, bool e_value,
+                                                    WriteBatch& batch, Touched* touched) {
+  std::string key;
+  auto found = look_up_in(stream, id, key, touched);
+  if (!found) return found.error();
+  using Phase = TestLookup::Phase;
+  if (found->phase == Phase::kDecided) {
+    auto r = repeat_or_conflict(stream, found->row, p_value, e_value);
+    if (!r) return with_message(r.error(), r.error().message + " (the ledger is unchanged)");
+    return r;
   }
-  std::vector<RunningEntry> out;
+  if (found->phase == Phase::kAbandoned) return not_running(stream, *found, "decide");
+  std::optional<DecideResult> result;
+  // The cached rule and head advance in place (no copy of a long exact-mode state); until the
+  // write succeeds the slot counts as not loaded, so a failure (or an exception) makes the next
+  // call reload the stream from the store, which is the truth.
+  slot.loaded = false;
+  if (found->phase == Phase::kRunning) {
+    // A launched test is decided against the level reserved at its launch (a finish event).
+    auto finished = finish_into(stream, *slot.rule, slot.head, found->event, p_value, batch);
+    if (!finished) return finished.error();  // the rule is unchanged on error; reloaded anyway
+    batch.erase(store::running_key(stream, found->event.launch));
+    result = std::move(*finished);
+  } else {
+    result = decide_into(stream, *slot.rule, slot.head, std::string(id), p_value, batch);
+  }
+  if (touched) {
+    TestLookup now;
+    now.phase = Phase::kDecided;
+    now.row = result->record;
+    (*touched)[std::string(id)] = std::move(now);
+  }
+  return std::move(*result);
+}
+
+void StoreLedger::put_head(std::string_view stream, StreamSlot& slot, WriteBatch& batch) {
+  const Rule& rule = *slot.rule;
+  StoredHead& head = slot.head;
+  head.running_apart = rule.running_count() > 0;
+  head.rule_state = head.running_apart ? rule.encode_state_without_running() : rule.encode_state();
+  // An older-form head listed its running tests in the rule state: from this write on, each one
+  // still running has its own key (those the batch finished or abandoned need none).
+  for (const StoredRunning& t : slot.legacy_running) {
+    if (rule.is_running(t.launch)) batch.put(store::running_key(stream, t.launch), store::encode_running(t));
+  }
+  slot.legacy_running.clear();  // a failed write leaves the slot not loaded: the next load reads them again
+  batch.put(store::head_key(stream), store::encode_head(head));
+}
+
+namespace {
+
+// Whether an answer ends the group: a failure of the store (nothing of the group is written).
+template <typename T>
+bool store_failed(const Result<T>& r) {
+  return !r.ok() && is_storage_failure(r.error().kind);
+}
+
+}  // namespace
+
+Result<LaunchResult> StoreLedger::launch(std::string_view stream, std::string_view id) {
+  if (auto s = store::validate_stream_name(stream); !s) return s.error();
+  if (auto s = validate_test_id(id); !s) return s.error();
+  SlotGuard slot(*this, stream);
+  if (auto s = load(stream, *slot); !s) return s.error();
+  if (!slot->exists) return unknown_stream(stream, location());
+  if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
+  WriteBatch batch;
+  auto out = launch_into(stream, *slot, id, batch, nullptr);
+  if (!out || batch.empty()) return out;
+  put_head(stream, *slot, batch);
+  if (auto s = store_->write(batch, true); !s) return s.error();
+  slot->loaded = true;
+  return out;
+}
+
+Result<AbandonResult> StoreLedger::abandon(std::string_view stream, std::string_view id) {
+  if (auto s = store::validate_stream_name(stream); !s) return s.error();
+  if (auto s = validate_test_id(id); !s) return s.error();
+  SlotGuard slot(*this, stream);
+  if (auto s = load(stream, *slot); !s) return s.error();
+  if (!slot->exists) return unknown_stream(stream, location());
+  if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
+  WriteBatch batch;
+  auto out = abandon_into(stream, *slot, id, batch, nullptr);
+  if (!out || batch.empty()) return out;
+  put_head(stream, *slot, batch);
+  if (auto s = store_->write(batch, true); !s) return s.error();
+  slot->loaded = true;
+  return out;
+}
+
+std::vector<Result<EventOutcome>> StoreLedger::apply_events(std::string_view stream,
+                                                            std::span<const EventInput> events) {
+  std::vector<Result<EventOutcome>> out;
+  out.reserve(events.size());
+  // Checks of each input on its own, as the single calls make them before touching the stream.
+  std::vector<std::optional<Error>> bad(events.size());
+  for (std::size_t k = 0; k < events.size(); ++k) {
+    const EventInput& in = events[k];
+    if (auto s = validate_test_id(in.id); !s) {
+      bad[k] = s.error();
+    } else if (in.type == EventType::kDecide) {
+      if (auto p = in.e_value ? validate_e_value(in.p_value) : validate_p_value(in.p_value); !p)
+        bad[k] = invalid_input("test " + in_quotes(in.id) + ": " + p.error().message);
+    }
+  }
+  auto answer_all = [&](const Error& e) {
+    out.clear();
+    for (std::size_t k = 0; k < events.size(); ++k) out.emplace_back(bad[k] ? *bad[k] : e);
+    return out;
+  };
+  if (auto s = store::validate_stream_name(stream); !s) return answer_all(s.error());
+  SlotGuard slot(*this, stream);
+  if (auto s = load(stream, *slot); !s) return answer_all(s.error());
+  if (!slot->exists) return answer_all(unknown_stream(stream, location()));
+  if (slot->head.closed_at_ms) return answer_all(closed_stream(stream, *slot->head.closed_at_ms));
+  WriteBatch batch;
+  Touched touched;
+  for (std::size_t k = 0; k < events.size(); ++k) {
+    const EventInput& in = events[k];
+    if (bad[k]) {
+      out.emplace_back(*bad[k]);
+      continue;
+    }
+    std::optional<Error> failed;
+    switch (in.type) {
+      case EventType::kDecide: {
+        if (auto s = evidence_fits(stream, slot->config.config, in.e_value, "test " + in_quotes(in.id)); !s) {
+          out.emplace_back(s.error());
+          break;
+        }
+        auto r = decide_event_into(stream, *slot, in.id, in.p_value, in.e_value, batch, &touched);
+        if (r && in.e_value) r->record.e_value = true;
+        if (store_failed(r)) failed = r.error();
+        out.push_back(r ? Result<EventOutcome>(std::move(*r)) : Result<EventOutcome>(r.error()));
+        break;
+      }
+      case EventType::kLaunch: {
+        auto r = launch_into(stream, *slot, in.id, batch, &touched);
+        if (store_failed(r)) failed = r.error();
+        out.push_back(r ? Result<EventOutcome>(std::move(*r)) : Result<EventOutcome>(r.error()));
+        break;
+      }
+      case EventType::kAbandon: {
+        auto r = abandon_into(stream, *slot, in.id, batch, &touched);
+        if (store_failed(r)) failed = r.error();
+        out.push_back(r ? Result<EventOutcome>(std::move(*r)) : Result<EventOutcome>(r.error()));
+        break;
+      }
+    }
+    if (failed) {
+      slot->loaded = false;  // earlier events of the group may have advanced the cached state
+      return answer_all(*failed);
+    }
+  }
+  if (batch.empty()) return out;
+  put_head(stream, *slot, batch);
+  if (auto s = store_->write(batch, true); !s) return answer_all(s.error());
+  slot->loaded = true;
+  return out;
+}
+
+Result<std::vector<StoredRunning>> StoreLedger::stored_running(std::string_view stream) {
+  std::vector<StoredRunning> out;
+  std::optional<Error> bad;
+  auto s = store_->scan(store::running_prefix(stream), [&](std::string_view key, std::string_view value) {
+    auto t = store::decode_running(key, value);
+    if (!t) {
+      bad = t.error();
+      return false;
+    }
+    out.push_back(std::move(*t));
+    return true;
+  });
+  if (!s) return s.error();
+  if (bad) return *bad;
+  return out;
+}
+
+Result<std::vector<StoredRunning>> StoreLedger::running_from_chain(std::string_view stream, const Rule& rule,
+                                                                   std::uint64_t entries) {
+  const std::vector<RunningTest> tests = rule.running();
+  std::vector<StoredRunning> out;
   if (tests.empty()) return out;
   // Launch L is written at chain entry L or later, so the walk starts at the earliest running
-  // launch number. A launch whose test is still running (in the rule state read above) is listed.
+  // launch number.
   std::map<std::uint64_t, std::size_t> wanted;  // launch -> position in `tests`
   for (std::size_t i = 0; i < tests.size(); ++i) wanted.emplace(tests[i].launch, i);
   out.resize(tests.size());
   std::size_t filled = 0;
-  auto s = visit_entries(*store_, location(), stream, tests.front().launch, count, [&](const ChainEntry& e) {
+  auto s = visit_entries(*store_, location(), stream, tests.front().launch, entries, [&](const ChainEntry& e) {
     if (!e.is_event || e.event.event.kind != EventKind::kLaunch) return true;
     auto it = wanted.find(e.event.event.launch);
     if (it == wanted.end()) return true;
-    out[it->second] = RunningEntry{e.event.event.id, e.event.event.launch, e.event.event.level,
-                                   e.event.event.at_ms};
+    // The level is the rule state's (the chain's launch event holds the same, verify checks it).
+    out[it->second] = StoredRunning{e.event.event.launch, tests[it->second].level, e.event.event.at_ms,
+                                    e.event.event.id};
     return ++filled < tests.size();
   });
   if (!s) return s.error();
@@ -224,6 +404,38 @@ Result<std::vector<RunningEntry>> StoreLedger::running(std::string_view stream) 
                                   " of them"),
                        "damaged_record", std::string(stream));
   }
+  return out;
+}
+
+Result<std::vector<RunningEntry>> StoreLedger::running(std::string_view stream) {
+  if (auto s = store::validate_stream_name(stream); !s) return s.error();
+  SlotGuard slot(*this, stream);
+  if (auto s = load(stream, *slot); !s) return s.error();
+  if (!slot->exists) return unknown_stream(stream, location());
+  std::vector<RunningEntry> out;
+  const std::size_t count = slot->rule->running_count();
+  if (count == 0) return out;
+  std::vector<StoredRunning> tests;
+  if (!slot->legacy_running.empty()) {
+    tests = slot->legacy_running;
+  } else {
+    auto stored = stored_running(stream);
+    if (!stored) {
+      if (stored.error().kind != ErrorKind::kCorruption) return stored.error();
+      return with_reason(corruption("ledger " + location() + ", stream " + in_quotes(stream) + ": " +
+                                    stored.error().message),
+                         "damaged_record", std::string(stream));
+    }
+    tests = std::move(*stored);
+  }
+  if (tests.size() != count) {
+    return with_reason(corruption("ledger " + location() + ", stream " + in_quotes(stream) +
+                                  ": the rule state counts " + std::to_string(count) + " running tests but " +
+                                  std::to_string(tests.size()) + " are stored"),
+                       "damaged_record", std::string(stream));
+  }
+  out.reserve(tests.size());
+  for (auto& t : tests) out.push_back(RunningEntry{std::move(t.id), t.launch, t.level, t.launched_at_ms});
   return out;
 }
 
@@ -252,6 +464,43 @@ Result<RunningEntry> StoreLedger::running_test(std::string_view stream, std::str
                       (r.abandoned ? "abandoned" : "decided") + " at " + format_timestamp(r.decided_at_ms) +
                       " (launch " + std::to_string(r.launch) + ", level " + readable_number(r.level) + ")",
                   r.abandoned ? "abandoned_test" : "decided_test");
+}
+
+Result<std::optional<std::string>> running_keys_problem(Store& store, std::string_view stream,
+                                                        const std::vector<StoredRunning>& expected) {
+  std::optional<std::string> problem;
+  std::size_t seen = 0;
+  auto s = store.scan(running_prefix(stream), [&](std::string_view key, std::string_view value) {
+    auto t = decode_running(key, value);
+    if (!t) {
+      problem = "a running test's key cannot be read: " + t.error().message;
+      return false;
+    }
+    if (seen >= expected.size() || expected[seen].launch > t->launch) {
+      problem = "a key says launch " + std::to_string(t->launch) + " (test " + in_quotes(excerpt(t->id)) +
+                ") is running, but the history says it is not";
+      return false;
+    }
+    const StoredRunning& want = expected[seen];
+    if (want.launch < t->launch) {
+      problem = "running test " + in_quotes(excerpt(want.id)) + " (launch " + std::to_string(want.launch) +
+                ") has no key of its own";
+      return false;
+    }
+    if (!(want == *t)) {
+      problem = "the key of running test " + in_quotes(excerpt(want.id)) + " (launch " +
+                std::to_string(want.launch) + ") does not hold its id, reserved level and launch time";
+      return false;
+    }
+    ++seen;
+    return true;
+  });
+  if (!s) return s.error();
+  if (!problem && seen < expected.size()) {
+    problem = "running test " + in_quotes(excerpt(expected[seen].id)) + " (launch " +
+              std::to_string(expected[seen].launch) + ") has no key of its own";
+  }
+  return problem;
 }
 
 }  // namespace alphaledger::store

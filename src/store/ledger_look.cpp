@@ -187,11 +187,11 @@ Result<LookResult> StoreLedger::write_look(std::string_view stream, StreamSlot& 
     const double x = rule_takes_e_values(slot.config.config.kind) ? e.look.e_value : e.look.running_min;
     auto finished = finish_into(stream, *slot.rule, head, launched, x, batch);
     if (!finished) return finished.error();  // reloaded on next use
+    batch.erase(running_key(stream, launched.launch));
     out.decision = finished->record;
     out.decision->e_value = rule_takes_e_values(slot.config.config.kind);
   }
-  head.rule_state = slot.rule->encode_state();
-  batch.put(head_key(stream), encode_head(head));
+  put_head(stream, slot, batch);
   if (auto s = store_->write(batch, true); !s) return s.error();
   slot.loaded = true;
   return out;

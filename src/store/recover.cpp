@@ -332,7 +332,7 @@ Status write_recovered(Store& from, const std::string& target, RecoveryReport& r
     if (auto st = copy_stream(from, **to, name, bytes, sr); !st) return st.error();
     report.streams.push_back(std::move(sr));
   }
-  // Keys outside the four stream prefixes and the format key: no part of the format, so they are
+  // Keys outside the six stream prefixes (c, h, r, i, t for running tests, l for look state) and the format key: no part of the format, so they are
   // copied as they were and named in the report as not verified. Keys under a stream prefix whose
   // stream has no configuration cannot be proven and are not copied; their streams are named.
   std::set<std::string> with_config;
@@ -341,7 +341,8 @@ Status write_recovered(Store& from, const std::string& target, RecoveryReport& r
   WriteBatch other;
   s = from.scan("", [&](std::string_view key, std::string_view value) {
     if (key == store::kFormatKey) return true;
-    if (key.starts_with("c/") || key.starts_with("h/") || key.starts_with("r/") || key.starts_with("i/")) {
+    if (key.starts_with("c/") || key.starts_with("h/") || key.starts_with("r/") || key.starts_with("i/") ||
+        key.starts_with("t/") || key.starts_with("l/")) {
       std::string_view rest = key.substr(2);
       const std::string stream(rest.substr(0, rest.find('/')));
       if (!with_config.count(stream) && orphans.size() < 1000) orphans.insert(stream);
