@@ -3,9 +3,13 @@
 // `explain --json` and the Python module's explain both use these, so they give the same object,
 // key for key and in the same order (docs/cli.md "Explain").
 //
-// Example:
-//   auto e = explain_stream_test(ledger, "checkout-team", std::string("exp-0142"));
-//   if (e) std::cout << explanation_json(*e, "checkout-team", std::string("exp-0142")) << '\n';
+// Example (compiled only: it opens a ledger folder):
+//   auto ledger = Ledger::open("alphaledger.db");
+//   const std::optional<std::string> id = "exp-0142";
+//   auto e = explain_stream_test(**ledger, "checkout-team", id);
+//   if (e) std::cout << explanation_json(*e, std::string("checkout-team"), id) << '\n';
+//   // {"stream":"checkout-team","id":"exp-0142","rule":"lord++",...,"running":{...}}
+
 #pragma once
 
 #include <cstdint>
