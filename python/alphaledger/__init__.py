@@ -269,8 +269,10 @@ def explain(rule: "Rule") -> dict:
     ``rule.next_level()``, bit for bit), ``uncapped`` (the sum of the terms), ``terms`` (dicts
     with ``kind``, ``rejection``, ``test``, ``lag``, ``weight``, ``base``, ``scale`` and
     ``amount``; the amounts add up to ``uncapped``, to rounding) and ``cap`` (``{"what",
-    "value"}`` when a cap bound the level, else None). ``stream`` and ``id`` are None here; see
-    :meth:`Ledger.explain` for a stream of the ledger.
+    "value"}`` when a cap bound the level, else None) and ``running`` (``{"explained_test_running",
+    "reserved", "tests"}``: the tests launched and not finished when the level was set, each
+    ``{"id", "launch", "level"}``; a Rule does not know test ids, so ``id`` is None there).
+    ``stream`` and ``id`` are None here; see :meth:`Ledger.explain` for a stream of the ledger.
     """
     if not isinstance(rule, Rule):
         raise InvalidInput(f"explain takes a Rule, got {type(rule).__name__}")
@@ -345,6 +347,25 @@ def simulate_csv(rules: Union[str, Sequence[str]] = ("lord++",), *, tests: int =
 _HISTORY_COLUMNS = ("step", "id", "p_value", "level", "rejected", "wealth", "decided_at", "launch", "reserved_at",
                     "abandoned")
 _RUNNING_COLUMNS = ("id", "launch", "level", "launched_at")
+_LOOK_COLUMNS = ("stream", "id", "look", "launch", "step", "summary", "control", "treatment", "mixture_sd",
+                 "estimate", "anytime_p_value", "running_min", "e_value", "cs_low", "cs_high", "level", "verdict",
+                 "looked_at", "decision", "repeat")
+
+
+def _look_arm(value: Any, field: str) -> tuple:
+    """An arm of a look: ("proportions", (n, conversions)) or ("means", (n, mean, sd))."""
+    if not isinstance(value, (tuple, list)) or len(value) not in (2, 3):
+        raise InvalidInput(f"{field} must be (n, conversions) (proportions) or (n, mean, sd) (means), "
+                           f"cumulative so far; got {str(value)[:40]}")
+    n = _whole(value[0], f"{field} n")
+    if n > 2 ** 53:
+        raise InvalidInput(f"{field} n must be at most 2^53, got {str(n)[:40]}")
+    if len(value) == 2:
+        x = _whole(value[1], f"{field} conversions")
+        if x > 2 ** 53:
+            raise InvalidInput(f"{field} conversions must be at most 2^53, got {str(x)[:40]}")
+        return "proportions", (n, x)
+    return "means", (n, _number(value[1], f"{field} mean"), _number(value[2], f"{field} sd"))
 
 
 class Ledger:
@@ -384,15 +405,23 @@ class Ledger:
         """
         return self._ledger.create_stream(name, rule, _params(alpha, params))
 
-    def decide(self, stream: str, *, id: str, p_value: float) -> dict:
+    def decide(self, stream: str, *, id: str, p_value: Optional[float] = None,
+               e_value: Optional[float] = None) -> dict:
         """Decides test ``id`` of ``stream`` with ``p_value``, durably, and returns the decision.
 
-        The same id with the same p-value returns the stored decision (``repeat`` True); with
-        another p-value it raises :class:`Refused`. A test launched with :meth:`launch` is decided
-        against the level reserved at its launch. Keys: step, id, p_value, level, rejected,
-        wealth, decided_at, launch, launched_at, stream, repeat.
+        A stream whose rule takes e-values (``e-lond``) is decided with ``e_value`` instead (finite,
+        >= 0; rejected when ``e_value >= 1 / level``); give exactly one of the two, the one the
+        stream's rule takes (the other raises :class:`InvalidInput`, the ledger unchanged).
+        The same id with the same number returns the stored decision (``repeat`` True); with
+        another number it raises :class:`Refused`. A test launched with :meth:`launch` is decided
+        against the level reserved at its launch. Keys: step, id, p_value (e_value for an e-value),
+        level, rejected, wealth, decided_at, launch, launched_at, stream, repeat.
         """
-        return self._ledger.decide(stream, id, _number(p_value, "p_value"))
+        if (p_value is None) == (e_value is None):
+            raise InvalidInput("decide needs exactly one of p_value (p-value streams) or e_value (e-lond streams)")
+        if e_value is not None:
+            return self._ledger.decide(stream, id, _number(e_value, "e_value"), True)
+        return self._ledger.decide(stream, id, _number(p_value, "p_value"), False)
 
     def history(self, stream: str, *, as_frame: Optional[bool] = None):
         """Every decided or abandoned test of ``stream`` in step order, as ``alphaledger history``.
@@ -437,11 +466,44 @@ class Ledger:
     def explain(self, stream: str, id: Optional[str] = None) -> dict:
         """Why a test of ``stream`` gets its level, as ``alphaledger explain STREAM --json``.
 
-        Without ``id``: the level of the next test. With ``id``: the level decided test ``id`` got.
-        The dict is that of :func:`explain` with ``stream`` and ``id`` filled in; its ``terms``'
-        amounts add up to ``uncapped`` and ``level`` is the stored level, bit for bit.
+        Without ``id``: the level of the next test. With ``id``: the level test ``id`` got (decided)
+        or reserved at its launch (still running). The dict is that of :func:`explain` with
+        ``stream`` and ``id`` filled in, built by the same code as the command line's, so equal to
+        its JSON key for key and in order; its ``terms``' amounts add up to ``uncapped``,
+        ``level`` is the stored level, bit for bit, and ``running`` names the tests that were
+        running when it was set. An abandoned ``id`` or an unknown one raises :class:`Refused`.
         """
         return self._ledger.explain(stream, id)
+
+    def look(self, stream: str, *, id: str, control: Sequence[float], treatment: Sequence[float],
+             mixture_sd: Optional[float] = None) -> dict:
+        """Looks at running test ``id`` of ``stream``, as ``alphaledger look ... --json``.
+
+        ``control`` and ``treatment`` are the cumulative summaries so far, both ``(n, conversions)``
+        (proportions) or both ``(n, mean, sd)`` (a numeric metric). ``mixture_sd`` (about the effect
+        hoped for, on the scale of the estimate) is needed at a test's first look and kept for its
+        later looks. The answer gives the always-valid p-value of this look, its running minimum,
+        the e-value, the confidence sequence and ``verdict``: ``"stop"`` decides the test in the
+        same write (``decision``), ``"continue"`` leaves it running. The same data again returns
+        the stored answer (``repeat`` True). Keys: stream, id, look, launch, step, summary,
+        control, treatment, mixture_sd, estimate, anytime_p_value, running_min, e_value, cs_low,
+        cs_high, level, verdict, looked_at, decision, repeat.
+        """
+        summary, c = _look_arm(control, "control")
+        other, t = _look_arm(treatment, "treatment")
+        if summary != other:
+            raise InvalidInput("control and treatment must both be (n, conversions) (proportions) or both "
+                               "(n, mean, sd) (means)")
+        return self._ledger.look(stream, id, summary, c, t,
+                                 None if mixture_sd is None else _number(mixture_sd, "mixture_sd"))
+
+    def looks(self, stream: str, *, id: str, as_frame: Optional[bool] = None):
+        """The looks at test ``id`` of ``stream``, oldest first, as ``alphaledger looks ... --json``.
+
+        Each row is the dict :meth:`look` returned for it (``control``, ``treatment`` and
+        ``decision`` stay dicts inside a DataFrame). A test never looked at gives no rows.
+        """
+        return _table(self._ledger.looks(stream, id), _LOOK_COLUMNS, as_frame)
 
     def report(self, stream: str, path: Union[str, os.PathLike]) -> dict:
         """Writes the HTML page of ``stream`` to ``path``, as ``alphaledger report STREAM -o PATH``.

@@ -13,6 +13,8 @@
 
 #include "alphaledger/anytime.hpp"
 #include "alphaledger/explain.hpp"
+#include "alphaledger/explain_stream.hpp"
+#include "alphaledger/forms.hpp"
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/replay.hpp"
 #include "alphaledger/report.hpp"
@@ -158,45 +160,16 @@ class PyRule {
 
 // ---- Explain ----------------------------------------------------------------------------------
 
-// The object of `alphaledger explain --json`, key for key.
-py::dict explanation_dict(const LevelExplanation& e, const std::optional<std::string>& stream,
-                          const std::optional<std::string>& id) {
-  py::dict d;
-  d["stream"] = stream ? py::object(py::str(*stream)) : py::none();
-  d["id"] = id ? py::object(py::str(*id)) : py::none();
-  d["rule"] = std::string(rule_name(e.rule));
-  d["evaluation"] = std::string(evaluation_name(e.evaluation));
-  d["test"] = e.test;
-  d["display"] = std::string(level_display(e.rule));
-  d["level"] = e.level;
-  d["uncapped"] = e.uncapped;
-  py::list terms;
-  for (const auto& t : e.terms) {
-    py::dict x;
-    x["kind"] = std::string(term_kind_name(t.kind));
-    x["rejection"] = t.rejection;
-    x["test"] = t.test ? py::object(py::int_(*t.test)) : py::none();
-    x["lag"] = t.lag;
-    x["weight"] = t.weight;
-    x["base"] = t.base;
-    x["scale"] = t.scale;
-    x["amount"] = t.amount;
-    terms.append(x);
-  }
-  d["terms"] = terms;
-  if (e.cap) {
-    py::dict cap;
-    cap["what"] = e.cap->what;
-    cap["value"] = e.cap->value;
-    d["cap"] = cap;
-  } else {
-    d["cap"] = py::none();
-  }
-  return d;
-}
+// A JSON object written by the library's one form of it (the CLI prints the same text), as a dict
+// in the same key order.
+py::object from_json(const std::string& text) { return py::module_::import("json").attr("loads")(text); }
 
-py::dict explain_rule(const PyRule& r) {
-  return explanation_dict(take(explain_next_level(r.rule(), r.rejected_tests())), std::nullopt, std::nullopt);
+// `alphaledger explain --log ... --json` for the tests recorded so far: the same form. The ids of
+// running tests are not known to a Rule, so they are None in "running".
+py::object explain_rule(const PyRule& r) {
+  ExplainedTest e;
+  e.explanation = take(explain_next_level(r.rule(), r.rejected_tests()));
+  return from_json(explanation_json(e, std::nullopt, std::nullopt));
 }
 
 // ---- Replay -----------------------------------------------------------------------------------
@@ -429,7 +402,7 @@ py::dict decision_dict(const DecisionRecord& r) {
   py::dict d;
   d["step"] = r.step;
   d["id"] = r.id;
-  d["p_value"] = r.p_value;
+  d[r.e_value ? "e_value" : "p_value"] = r.p_value;
   d["level"] = r.level;
   d["rejected"] = r.rejected ? 1 : 0;
   d["wealth"] = r.wealth;
@@ -487,12 +460,13 @@ class PyLedger {
     d["created"] = created.created;
     return d;
   }
-  py::dict decide(const std::string& stream, const std::string& id, double p_value) {
+  // `e_value`: the number is an e-value (decide_e, e-lond streams), else a p-value (decide).
+  py::dict decide(const std::string& stream, const std::string& id, double x, bool e_value) {
     Result<DecideResult> r = invalid_input("not decided");
     Ledger& l = open_ledger();
     {
       py::gil_scoped_release release;
-      r = l.decide(stream, id, p_value);
+      r = e_value ? l.decide_e(stream, id, x) : l.decide(stream, id, x);
     }
     auto res = take(std::move(r));
     py::dict d = decision_dict(res.record);
@@ -578,104 +552,49 @@ class PyLedger {
     return rows;
   }
 
-  // `alphaledger explain STREAM [--id ID] --json`, with the CLI's walk (src/cli/cmd_explain.cpp,
-  // walk_stream): the stream's launches, finishes and abandons replayed through a fresh Rule in
-  // chain order, stopping at the launch of `id` (decided or still running) when one is asked for,
-  // with the CLI's checks and messages against the ledger.
-  py::dict explain(const std::string& stream, const std::optional<std::string>& id) {
+  // `alphaledger explain STREAM [--id ID] --json`: the same walk and the same form
+  // (alphaledger/explain_stream.hpp), so the same dict, key for key.
+  py::object explain(const std::string& stream, const std::optional<std::string>& id) {
     Ledger& l = open_ledger();
-    auto info = take(l.status(stream));
-    Rule rule(info.config);
-    std::vector<std::uint64_t> rejected_tests;
-    bool found = false;
-    std::optional<double> recorded_level;
-    Status walked;
+    Result<ExplainedTest> e = invalid_input("not explained");
     {
       py::gil_scoped_release release;
-      walked = [&]() -> Status {
-        auto history = l.history(stream);
-        if (!history) return history.error();
-        std::uint64_t wanted = 0;
-        std::optional<double> stored;
-        if (id) {
-          for (const auto& r : *history) {
-            if (r.id != *id) continue;
-            if (r.abandoned) {
-              return conflict("test '" + excerpt(*id) + "' of stream " + excerpt(stream) +
-                                  " was abandoned: it was never decided and its level is no longer reserved",
-                              "abandoned_test");
-            }
-            wanted = r.launch;
-            stored = r.level;
-          }
-          if (wanted == 0) {
-            auto running = l.running_test(stream, *id);
-            if (running) {
-              wanted = running->launch;
-              stored = running->level;
-            } else if (running.error().kind != ErrorKind::kNotFound) {
-              return running.error();
-            }
-          }
-        }
-        const auto mismatch = [&](const std::string& what) {
-          return conflict("stream " + excerpt(stream) + ": " + what + "; run 'alphaledger verify " +
-                          excerpt(stream) + "'");
-        };
-        const bool e_values = rule_takes_e_values(info.config.kind);
-        const auto launch_next = [&]() {  // false once the asked-for launch is reached
-          if (wanted != 0 && rule.tests() + 1 == wanted) {
-            found = true;
-            recorded_level = stored;
-            return false;
-          }
-          rule.launch();
-          return true;
-        };
-        std::uint64_t step = 1;
-        for (const auto& r : *history) {
-          for (; step < r.step; ++step) {
-            if (!launch_next()) return {};
-          }
-          if (r.launch == rule.tests() + 1 && !launch_next()) return {};  // launched and decided at once
-          if (r.abandoned) {
-            if (auto s = rule.abandon(r.launch); !s) {
-              return mismatch("the abandon at step " + std::to_string(r.step) +
-                              " does not replay: " + s.error().message);
-            }
-          } else {
-            auto out = e_values ? rule.finish_e(r.launch, r.p_value) : rule.finish(r.launch, r.p_value);
-            if (!out) {
-              return mismatch("the decision at step " + std::to_string(r.step) +
-                              " does not replay: " + out.error().message);
-            }
-            if (out->rejected) rejected_tests.push_back(out->step);
-          }
-          step = r.step + 1;
-        }
-        while (rule.tests() < info.tests) {  // tests still running
-          if (!launch_next()) return {};
-        }
-        if (!id && rule.next_level() != info.next_level) {
-          return mismatch("its history replayed gives the next level " + format_number(rule.next_level()) +
-                          ", the ledger says " + format_number(info.next_level));
-        }
-        return {};
-      }();
+      e = explain_stream_test(l, stream, id, "id");
     }
-    check(walked);
-    if (id && !found) {
-      raise(not_found("no decided or running test with id '" + excerpt(*id) + "' in stream " +
-                          excerpt(stream) + " (without id, explain gives the next level)",
-                      "unknown_test"));
+    return from_json(explanation_json(take(std::move(e)), stream, id));
+  }
+
+  // `alphaledger look STREAM --id ID --control C --treatment T [--mixture-sd TAU] --json`.
+  // `summary` is "proportions" (arms (n, conversions)) or "means" (arms (n, mean, sd)); the wrapper
+  // checked the arms' shapes, the ledger checks their values.
+  py::object look(const std::string& stream, const std::string& id, const std::string& summary,
+                  const py::tuple& control, const py::tuple& treatment, const std::optional<double>& mixture_sd) {
+    LookData data;
+    if (summary == "means") {
+      data.summary = LookSummary::kMeans;
+      data.control_means = MeanArm{control[0].cast<std::uint64_t>(), control[1].cast<double>(), control[2].cast<double>()};
+      data.treatment_means =
+          MeanArm{treatment[0].cast<std::uint64_t>(), treatment[1].cast<double>(), treatment[2].cast<double>()};
+    } else {
+      data.summary = LookSummary::kProportions;
+      data.control_proportions = ProportionArm{control[0].cast<std::uint64_t>(), control[1].cast<std::uint64_t>()};
+      data.treatment_proportions =
+          ProportionArm{treatment[0].cast<std::uint64_t>(), treatment[1].cast<std::uint64_t>()};
     }
-    auto e = take(explain_next_level(rule, rejected_tests));
-    if (recorded_level && *recorded_level != e.level) {
-      raise(conflict("test '" + excerpt(*id) + "': the level replayed from the history, " + format_number(e.level) +
-                     ", differs from the level it got, " + format_number(*recorded_level) +
-                     "; run 'alphaledger verify'"));
+    data.mixture_sd = mixture_sd;
+    Ledger& l = open_ledger();
+    Result<LookResult> r = invalid_input("not looked");
+    {
+      py::gil_scoped_release release;
+      r = l.look(stream, id, data);
     }
-    return explanation_dict(e, stream, id);
+    return from_json(look_json(take(std::move(r))));
+  }
+
+  // `alphaledger looks STREAM --id ID --json`: its "looks", each as look() gives it.
+  py::object looks(const std::string& stream, const std::string& id) {
+    auto list = take(open_ledger().looks(stream, id));
+    return from_json(look_list_json(stream, id, list))["looks"];
   }
 
   // `alphaledger report STREAM -o PATH`: the same page, by the same writer.
@@ -857,6 +776,8 @@ PYBIND11_MODULE(_native, m) {
       .def("abandon", &PyLedger::abandon)
       .def("running", &PyLedger::running)
       .def("explain", &PyLedger::explain)
+      .def("look", &PyLedger::look)
+      .def("looks", &PyLedger::looks)
       .def("report", &PyLedger::report);
 
   m.def("replay", &replay_native);

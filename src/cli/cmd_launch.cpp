@@ -1,6 +1,7 @@
 // alphaledger launch STREAM --id ID | abandon STREAM --id ID | running STREAM: tests that overlap in
 // time, whose level is reserved at launch (docs/ledger.md "Launch-time levels"). A launched test
-// is decided with `alphaledger decide STREAM --id ID --p P`.
+// is decided with `alphaledger decide STREAM --id ID --p P` (--e E on a stream whose rule takes
+// e-values: e-lond).
 #include <iostream>
 
 #include "alphaledger/forms.hpp"
@@ -25,9 +26,13 @@ Status run_launch(const TestOptions& o, const GlobalOptions& g, std::ostream& ou
   if (g.json) {
     out << launch_json(*l) << '\n';
   } else {
+    // The hint names the number the stream's rule takes. The launch is durable already: should the
+    // status read fail, the hint falls back to --p rather than the command failing.
+    const auto info = (*ledger)->status(o.stream);
+    const bool e_values = info && rule_takes_e_values(info->config.kind);
     out << format_number(l->level) << "  (level reserved for test " << l->id << ", launch " << l->launch
         << " of stream " << l->stream << "; decide it with: alphaledger decide " << l->stream << " --id "
-        << l->id << " --p P)";
+        << l->id << (e_values ? " --e E)" : " --p P)");
     if (l->repeat)
       out << "  (repeat: running since " << format_timestamp(l->launched_at_ms) << "; nothing changed)";
     out << '\n';

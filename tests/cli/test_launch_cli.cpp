@@ -214,3 +214,23 @@ TEST_CASE("LaunchCli: refusals exit 2 or 3, name the id and leave the ledger unc
   CHECK(j.exit_code == 3);
   CHECK(j.err.find("\"unknown_test\"") != std::string::npos);
 }
+
+// The text answer of launch says how to decide the test: with --p on a p-value stream, with --e on
+// an e-lond stream (its rule takes e-values; decide refuses --p there). Following the hint works.
+TEST_CASE("LaunchCli: the decide hint of launch names --e on an e-lond stream, --p elsewhere") {
+  TempDir dir;
+  const std::string db = dir.sub("ledger");
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "ev", "--rule", "e-lond"})).exit_code == 0);
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "pv", "--rule", "lord++"})).exit_code == 0);
+  auto e = run_alphaledger(with_ledger(db, {"launch", "ev", "--id", "a"}));
+  REQUIRE(e.exit_code == 0);
+  CHECK(e.out.find("alphaledger decide ev --id a --e E)") != std::string::npos);
+  CHECK(e.out.find("--p P") == std::string::npos);
+  auto p = run_alphaledger(with_ledger(db, {"launch", "pv", "--id", "a"}));
+  REQUIRE(p.exit_code == 0);
+  CHECK(p.out.find("alphaledger decide pv --id a --p P)") != std::string::npos);
+  CHECK(p.out.find("--e E") == std::string::npos);
+  // The hint is the one decide accepts: --e decides the running e-lond test (an e-value >= 0).
+  CHECK(run_alphaledger(with_ledger(db, {"decide", "ev", "--id", "a", "--e", "3"})).exit_code == 0);
+  CHECK(run_alphaledger(with_ledger(db, {"decide", "pv", "--id", "a", "--p", "0.5"})).exit_code == 0);
+}
