@@ -57,7 +57,7 @@ run_asan() {
 run_tsan() {
   local start=$SECONDS
   build_tree build-tsan "-fsanitize=thread" alphaledger test_store test_service
-  TSAN_OPTIONS="halt_on_error=1:second_deadlock_stack=1" \
+  TSAN_OPTIONS="halt_on_error=1:second_deadlock_stack=1:suppressions=$PWD/tests/tsan.supp" \
     ctest --test-dir build-tsan -L "store|service" -j "$jobs" --output-on-failure
   echo "sanitize.sh: tsan passed in $((SECONDS - start)) s"
 }
