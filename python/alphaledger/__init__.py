@@ -429,9 +429,14 @@ class Ledger:
         Columns: step, id, p_value, level, rejected, wealth, decided_at, launch (launch number),
         reserved_at (when the test was launched and its level reserved), abandoned (True for a
         test abandoned before it was decided: p_value 0, rejected 0, decided_at when it was
-        abandoned). Tests still running are not listed (see :meth:`running`).
+        abandoned). Tests still running are not listed (see :meth:`running`). On an e-lond stream
+        the number is named e_value instead of p_value, as in the CLI's history.
         """
-        return _table(self._ledger.history(stream), _HISTORY_COLUMNS, as_frame)
+        rows = self._ledger.history(stream)
+        columns = _HISTORY_COLUMNS
+        if rows and "e_value" in rows[0]:
+            columns = tuple("e_value" if c == "p_value" else c for c in columns)
+        return _table(rows, columns, as_frame)
 
     def status(self, stream: str) -> dict:
         """The stream's configuration, counts, wealth, next level, ``running`` (tests launched and not

@@ -414,12 +414,13 @@ py::dict decision_dict(const DecisionRecord& r) {
 
 // A row of `history`: the launch time is `reserved_at` there, as in the CLI's history (a column
 // named launched_at would be read as launch times if the table were replayed); `abandoned` marks a
-// test that was abandoned (p_value 0, rejected 0, decided_at when it was abandoned).
-py::dict history_dict(const DecisionRecord& r) {
+// test that was abandoned (p_value 0, rejected 0, decided_at when it was abandoned). On a stream
+// whose rule takes e-values (e-lond) the number is named e_value, as in the CLI's history.
+py::dict history_dict(const DecisionRecord& r, bool e_values) {
   py::dict d;
   d["step"] = r.step;
   d["id"] = r.id;
-  d["p_value"] = r.p_value;
+  d[e_values ? "e_value" : "p_value"] = r.p_value;
   d["level"] = r.level;
   d["rejected"] = r.rejected ? 1 : 0;
   d["wealth"] = r.wealth;
@@ -475,9 +476,10 @@ class PyLedger {
     return d;
   }
   py::list history(const std::string& stream) {
+    const bool e_values = rule_takes_e_values(take(open_ledger().status(stream)).config.kind);
     auto records = take(open_ledger().history(stream));
     py::list rows;
-    for (const auto& r : records) rows.append(history_dict(r));
+    for (const auto& r : records) rows.append(history_dict(r, e_values));
     return rows;
   }
   py::dict status(const std::string& stream) { return stream_dict(take(open_ledger().status(stream))); }

@@ -65,6 +65,13 @@ class ELondDecide(LedgerDir):
             self.assertTrue(want.pop("repeat"))
             self.assertFalse(got.pop("repeat"))
             self.assertEqual(got, want)
+        # history names the number e_value on an e-lond stream, as the CLI's history does.
+        with al.Ledger(self.path) as ledger:
+            rows = ledger.history("ev", as_frame=False)
+        cli_rows = [json.loads(line) for line in
+                    cli("--ledger", self.path, "--json", "history", "ev").stdout.splitlines() if line.strip()]
+        self.assertEqual([r["e_value"] for r in rows], [r["e_value"] for r in cli_rows])
+        self.assertTrue(all("p_value" not in r for r in rows))
 
     def test_explain_e_lond_stream_with_a_running_test_like_cli(self):
         with al.Ledger(self.path) as ledger:

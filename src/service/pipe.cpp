@@ -163,7 +163,8 @@ class PipeRun {
     }
     out_ << text << '\n';
     out_.flush();
-    if (!out_) return io_error("cannot write the answer to line " + std::to_string(w.line) + " to the output");
+    if (!out_)
+      return io_error("cannot write the answer to line " + std::to_string(w.line) + " to the output");
     ++summary_.lines;
     if (!l && is_storage_failure(l.error().kind))
       return with_message(l.error(), "line " + std::to_string(w.line) + ": " + l.error().message);

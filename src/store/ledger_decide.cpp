@@ -21,9 +21,10 @@ Status evidence_fits(std::string_view stream, const RuleConfig& config, bool e_v
     return invalid_input(std::string(test) + ": stream " + in_quotes(stream) + " uses rule " + rule +
                          ", which takes e-values: give e_value, not p_value (the ledger is unchanged)");
   }
-  return invalid_input(std::string(test) + ": stream " + in_quotes(stream) + " uses rule " + rule +
-                       ", which takes p-values: give p_value, not e_value (only e-lond streams take e-values; "
-                       "the ledger is unchanged)");
+  return invalid_input(
+      std::string(test) + ": stream " + in_quotes(stream) + " uses rule " + rule +
+      ", which takes p-values: give p_value, not e_value (only e-lond streams take e-values; "
+      "the ledger is unchanged)");
 }
 
 Result<DecideResult> StoreLedger::decide(std::string_view stream, std::string_view id, double p_value) {
@@ -45,7 +46,8 @@ Result<DecideResult> StoreLedger::decide_value(std::string_view stream, std::str
   SlotGuard slot(*this, stream);
   if (auto s = load(stream, *slot); !s) return s.error();
   if (!slot->exists) return unknown_stream(stream, location());
-  if (auto s = evidence_fits(stream, slot->config.config, e_value, "test " + in_quotes(id)); !s) return s.error();
+  if (auto s = evidence_fits(stream, slot->config.config, e_value, "test " + in_quotes(id)); !s)
+    return s.error();
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
   WriteBatch batch;
   auto result = decide_event_into(stream, *slot, id, p_value, e_value, batch, nullptr);
@@ -74,7 +76,7 @@ class FirstRowTable {
 
   // The slot that holds `id`'s row, or the empty slot where it belongs.
   std::uint32_t& slot(std::string_view id, std::span<const TestView> tests) {
-    std::size_t at = std::hash<std::string_view>{}(id) & mask_;
+    std::size_t at = std::hash<std::string_view>{}(id)&mask_;
     while (slots_[at] != kEmpty && tests[slots_[at]].id != id) at = (at + 1) & mask_;
     return slots_[at];
   }
@@ -145,10 +147,11 @@ Result<bool> StoreLedger::plan_batch(std::string_view stream, std::span<const Te
     if (seen != FirstRowTable::kEmpty) {
       const double first_p = tests[seen].p_value;
       if (first_p != t.p_value) {
-        out.error = conflict("test " + in_quotes(t.id) + " appears twice in the batch with different p-values (" +
-                             readable_number(first_p) + " at position " + std::to_string(seen + 1) + ", " +
-                             readable_number(t.p_value) + " at position " + std::to_string(i + 1) +
-                             "); a test id is decided once (the ledger is unchanged)");
+        out.error =
+            conflict("test " + in_quotes(t.id) + " appears twice in the batch with different p-values (" +
+                     readable_number(first_p) + " at position " + std::to_string(seen + 1) + ", " +
+                     readable_number(t.p_value) + " at position " + std::to_string(i + 1) +
+                     "); a test id is decided once (the ledger is unchanged)");
         out.stopped_at = i;
         return false;
       }
@@ -157,8 +160,8 @@ Result<bool> StoreLedger::plan_batch(std::string_view stream, std::span<const Te
     }
     auto found = find_decided(stream, t.id, key);
     if (!found && found.error().kind == ErrorKind::kConflict) {  // a running or abandoned id
-      out.error =
-          with_message(found.error(), "test " + std::to_string(i + 1) + " of the batch: " + found.error().message);
+      out.error = with_message(found.error(),
+                               "test " + std::to_string(i + 1) + " of the batch: " + found.error().message);
       out.stopped_at = i;
       return false;
     }
@@ -178,7 +181,8 @@ Result<bool> StoreLedger::plan_batch(std::string_view stream, std::span<const Te
   return true;
 }
 
-void StoreLedger::write_batch_groups(std::string_view stream, StreamSlot& slot, std::span<const TestView> tests,
+void StoreLedger::write_batch_groups(std::string_view stream, StreamSlot& slot,
+                                     std::span<const TestView> tests,
                                      const std::vector<std::uint32_t>& first_row, std::size_t group_size,
                                      const GroupCallback& on_durable, BatchResult& out) {
   // As in decide(): the cached state advances in place and counts as loaded only after each
@@ -276,8 +280,9 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view 
   if (auto s = load(stream, *slot); !s) return s.error();
   if (!slot->exists) return unknown_stream(stream, location());
   for (std::size_t i = 0; i < tests.size(); ++i) {
-    auto s = evidence_fits(stream, slot->config.config, tests[i].e_value,
-                           "test " + std::to_string(i + 1) + " of the batch (" + in_quotes(tests[i].id) + ")");
+    auto s =
+        evidence_fits(stream, slot->config.config, tests[i].e_value,
+                      "test " + std::to_string(i + 1) + " of the batch (" + in_quotes(tests[i].id) + ")");
     if (!s) return s.error();
   }
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
@@ -333,8 +338,9 @@ Result<DecideResult> StoreLedger::repeat_or_conflict(std::string_view stream, co
   if (prior.p_value == p_value) return DecideResult{std::string(stream), prior, true};
   const std::string field = e_value ? "e_value " : "p_value ";
   return conflict("test " + in_quotes(prior.id) + " was already decided in stream " + in_quotes(stream) +
-                  " at step " + std::to_string(prior.step) + " with " + field + readable_number(prior.p_value) +
-                  "; a test id is decided once, so " + field + readable_number(p_value) + " is refused");
+                  " at step " + std::to_string(prior.step) + " with " + field +
+                  readable_number(prior.p_value) + "; a test id is decided once, so " + field +
+                  readable_number(p_value) + " is refused");
 }
 
 // Decides one new test on `rule` / `head` and adds its record and index entry to `batch`.

@@ -61,8 +61,8 @@ Error StoreLedger::not_running(std::string_view stream, const TestLookup& found,
   if (found.phase == TestLookup::Phase::kAbandoned) {
     return conflict(name + " was abandoned at " + format_timestamp(r.decided_at_ms) + " (launch " +
                         std::to_string(r.launch) + ", step " + std::to_string(r.step) +
-                        "); an abandoned test cannot be " + (what == "decide" ? "decided" : "launched again") +
-                        ": give the new test a new id",
+                        "); an abandoned test cannot be " +
+                        (what == "decide" ? "decided" : "launched again") + ": give the new test a new id",
                     "abandoned_test");
   }
   return conflict(name + " was already decided at step " + std::to_string(r.step) + " (launch " +
@@ -82,7 +82,8 @@ void StoreLedger::append_event(std::string_view stream, StoredHead& head, EventR
 }
 
 Result<DecideResult> StoreLedger::finish_into(std::string_view stream, Rule& rule, StoredHead& head,
-                                              const EventRecord& launched, double p_value, WriteBatch& batch) {
+                                              const EventRecord& launched, double p_value,
+                                              WriteBatch& batch) {
   auto o = rule_takes_e_values(rule.config().kind) ? rule.finish_e(launched.launch, p_value)
                                                    : rule.finish(launched.launch, p_value);
   if (!o) {
@@ -144,22 +145,23 @@ Result<LaunchResult> StoreLedger::launch_into(std::string_view stream, StreamSlo
   return out;
 }
 
-Result<AbandonResult> StoreLedger::abandon_into(std::string_view stream, StreamSlot& slot, std::string_view id,
-                                                WriteBatch& batch, Touched* touched) {
+Result<AbandonResult> StoreLedger::abandon_into(std::string_view stream, StreamSlot& slot,
+                                                std::string_view id, WriteBatch& batch, Touched* touched) {
   std::string key;
   auto found = look_up_in(stream, id, key, touched);
   if (!found) return found.error();
   using Phase = TestLookup::Phase;
   if (found->phase == Phase::kNone) {
-    return with_reason(not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream) +
-                                     "; only a running test can be abandoned (the ledger is unchanged)",
-                                 "unknown_test"),
-                       "not_launched", std::string(stream));
+    return with_reason(
+        not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream) +
+                      "; only a running test can be abandoned (the ledger is unchanged)",
+                  "unknown_test"),
+        "not_launched", std::string(stream));
   }
   if (found->phase == Phase::kAbandoned) {
     const EventRecord& e = found->event;
-    return AbandonResult{std::string(stream), e.id, e.launch, e.level, e.wealth, e.launched_at_ms,
-                         e.at_ms,             e.entry, true};
+    return AbandonResult{std::string(stream), e.id,    e.launch, e.level, e.wealth,
+                         e.launched_at_ms,    e.at_ms, e.entry,  true};
   }
   if (found->phase == Phase::kDecided) {
     const Error e = not_running(stream, *found, "abandon");
@@ -184,8 +186,8 @@ Result<AbandonResult> StoreLedger::abandon_into(std::string_view stream, StreamS
   e.launched_at_ms = launched.launched_at_ms;
   append_event(stream, slot.head, e, batch);
   batch.erase(store::running_key(stream, e.launch));
-  AbandonResult out{std::string(stream), e.id, e.launch, e.level, e.wealth, e.launched_at_ms, e.at_ms,
-                    e.entry,             false};
+  AbandonResult out{std::string(stream), e.id,    e.launch, e.level, e.wealth,
+                    e.launched_at_ms,    e.at_ms, e.entry,  false};
   if (touched) {
     TestLookup now;
     now.phase = Phase::kAbandoned;
@@ -387,22 +389,23 @@ Result<std::vector<StoredRunning>> StoreLedger::running_from_chain(std::string_v
   for (std::size_t i = 0; i < tests.size(); ++i) wanted.emplace(tests[i].launch, i);
   out.resize(tests.size());
   std::size_t filled = 0;
-  auto s = visit_entries(*store_, location(), stream, tests.front().launch, entries, [&](const ChainEntry& e) {
-    if (!e.is_event || e.event.event.kind != EventKind::kLaunch) return true;
-    auto it = wanted.find(e.event.event.launch);
-    if (it == wanted.end()) return true;
-    // The level is the rule state's (the chain's launch event holds the same, verify checks it).
-    out[it->second] = StoredRunning{e.event.event.launch, tests[it->second].level, e.event.event.at_ms,
-                                    e.event.event.id};
-    return ++filled < tests.size();
-  });
+  auto s =
+      visit_entries(*store_, location(), stream, tests.front().launch, entries, [&](const ChainEntry& e) {
+        if (!e.is_event || e.event.event.kind != EventKind::kLaunch) return true;
+        auto it = wanted.find(e.event.event.launch);
+        if (it == wanted.end()) return true;
+        // The level is the rule state's (the chain's launch event holds the same, verify checks it).
+        out[it->second] = StoredRunning{e.event.event.launch, tests[it->second].level, e.event.event.at_ms,
+                                        e.event.event.id};
+        return ++filled < tests.size();
+      });
   if (!s) return s.error();
   if (filled < tests.size()) {
-    return with_reason(corruption("ledger " + location() + ", stream " + in_quotes(stream) +
-                                  ": the rule state lists " + std::to_string(tests.size()) +
-                                  " running tests but the chain launches only " + std::to_string(filled) +
-                                  " of them"),
-                       "damaged_record", std::string(stream));
+    return with_reason(
+        corruption("ledger " + location() + ", stream " + in_quotes(stream) + ": the rule state lists " +
+                   std::to_string(tests.size()) + " running tests but the chain launches only " +
+                   std::to_string(filled) + " of them"),
+        "damaged_record", std::string(stream));
   }
   return out;
 }
@@ -450,9 +453,10 @@ Result<RunningEntry> StoreLedger::running_test(std::string_view stream, std::str
   if (!found) return found.error();
   switch (found->phase) {
     case TestLookup::Phase::kNone:
-      return with_reason(not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream),
-                                   "unknown_test"),
-                         "not_launched", std::string(stream));
+      return with_reason(
+          not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream),
+                    "unknown_test"),
+          "not_launched", std::string(stream));
     case TestLookup::Phase::kRunning:
       return RunningEntry{found->event.id, found->event.launch, found->event.level, found->event.at_ms};
     case TestLookup::Phase::kDecided:

@@ -4,6 +4,8 @@
 // looks, and records itself as a chain entry; a look that says stop also finishes the test in the
 // same write. The test's look state is its own key, "l/<stream>/<id>": the chain entry of its last
 // look, whose payload links to the look before.
+#include "store/ledger_look.hpp"
+
 #include <algorithm>
 #include <bit>
 #include <cmath>
@@ -13,7 +15,6 @@
 #include "alphaledger/text.hpp"
 #include "store/codec.hpp"
 #include "store/ledger_impl.hpp"
-#include "store/ledger_look.hpp"
 
 namespace alphaledger {
 
@@ -112,7 +113,8 @@ Result<LookPayload> compute_look(const RuleConfig& config, Alternative alternati
   return l;
 }
 
-Result<LookResult> StoreLedger::stored_look(std::string_view stream, std::string_view id, std::uint64_t entry) {
+Result<LookResult> StoreLedger::stored_look(std::string_view stream, std::string_view id,
+                                            std::uint64_t entry) {
   const std::string where =
       "ledger " + location() + ", stream " + in_quotes(stream) + ", test " + in_quotes(id) + ": ";
   auto damaged = [&](const std::string& what) {
@@ -120,7 +122,8 @@ Result<LookResult> StoreLedger::stored_look(std::string_view stream, std::string
   };
   auto bytes = store_->get(record_key(stream, entry));
   if (!bytes) return bytes.error();
-  if (!*bytes) return damaged("its look state points to step " + std::to_string(entry) + ", which has no record");
+  if (!*bytes)
+    return damaged("its look state points to step " + std::to_string(entry) + ", which has no record");
   auto e = decode_entry(**bytes);
   if (!e) return damaged(e.error().message);
   if (!e->is_event || e->event.event.kind != EventKind::kLook || e->event.event.id != id)
@@ -131,7 +134,8 @@ Result<LookResult> StoreLedger::stored_look(std::string_view stream, std::string
     if (!next) return next.error();
     auto f = *next ? decode_entry(**next) : Result<ChainEntry>(corruption("missing"));
     if (!f || !f->is_event || f->event.event.kind != EventKind::kFinish || f->event.event.id != id)
-      return damaged("the look at step " + std::to_string(entry) + " said stop, but the next entry is not its finish");
+      return damaged("the look at step " + std::to_string(entry) +
+                     " said stop, but the next entry is not its finish");
     out.decision = event_row(f->event.event);
   }
   return out;
@@ -152,8 +156,9 @@ Result<std::optional<LookResult>> StoreLedger::last_look(std::string_view stream
   return std::optional<LookResult>{std::move(*r)};
 }
 
-Result<LookResult> StoreLedger::write_look(std::string_view stream, StreamSlot& slot, const EventRecord& launched,
-                                           LookData data, const std::optional<LookResult>& previous) {
+Result<LookResult> StoreLedger::write_look(std::string_view stream, StreamSlot& slot,
+                                           const EventRecord& launched, LookData data,
+                                           const std::optional<LookResult>& previous) {
   LookPayload before;
   if (previous) {
     before.look = previous->look;
@@ -203,7 +208,8 @@ namespace {
 Status check_look_input(std::string_view id, const LookData& data) {
   const std::string test = "test " + in_quotes(id) + ": ";
   if (data.mixture_sd && !(std::isfinite(*data.mixture_sd) && *data.mixture_sd > 0)) {
-    return invalid_input(test + "mixture_sd must be a finite number > 0 (the effect you hope to detect, on the " +
+    return invalid_input(test +
+                         "mixture_sd must be a finite number > 0 (the effect you hope to detect, on the " +
                          "scale of the estimate), got " + format_number(*data.mixture_sd));
   }
   if (data.summary != LookSummary::kProportions && data.summary != LookSummary::kMeans)
@@ -237,7 +243,8 @@ Status fit_previous(std::string_view id, LookData& data, const LookResult& last)
 Result<LookResult> StoreLedger::look(std::string_view stream, std::string_view id, const LookData& input) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_test_id(id); !s) return s.error();
-  if (auto s = check_look_input(id, input); !s) return with_message(s.error(), s.error().message + " (the ledger is unchanged)");
+  if (auto s = check_look_input(id, input); !s)
+    return with_message(s.error(), s.error().message + " (the ledger is unchanged)");
   SlotGuard slot(*this, stream);
   if (auto s = load(stream, *slot); !s) return s.error();
   if (!slot->exists) return unknown_stream(stream, location());
@@ -247,11 +254,12 @@ Result<LookResult> StoreLedger::look(std::string_view stream, std::string_view i
   if (!found) return found.error();
   using Phase = TestLookup::Phase;
   if (found->phase == Phase::kNone) {
-    return with_reason(not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream) +
-                                     "; only a running test can be looked at: launch it first (the ledger is "
-                                     "unchanged)",
-                                 "unknown_test"),
-                       "not_launched", std::string(stream));
+    return with_reason(
+        not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream) +
+                      "; only a running test can be looked at: launch it first (the ledger is "
+                      "unchanged)",
+                  "unknown_test"),
+        "not_launched", std::string(stream));
   }
   auto last = last_look(stream, id);
   if (!last) return last.error();
@@ -273,10 +281,12 @@ Result<LookResult> StoreLedger::look(std::string_view stream, std::string_view i
                     r.abandoned ? "abandoned_test" : "decided_test");
   }
   if (*last) {
-    if (auto s = fit_previous(id, data, **last); !s) return with_message(s.error(), s.error().message + " (the ledger is unchanged)");
+    if (auto s = fit_previous(id, data, **last); !s)
+      return with_message(s.error(), s.error().message + " (the ledger is unchanged)");
   } else if (!data.mixture_sd) {
-    return invalid_input("test " + in_quotes(id) + ": its first look needs mixture_sd (the effect you hope to " +
-                         "detect, on the scale of the estimate); later looks reuse it (the ledger is unchanged)");
+    return invalid_input(
+        "test " + in_quotes(id) + ": its first look needs mixture_sd (the effect you hope to " +
+        "detect, on the scale of the estimate); later looks reuse it (the ledger is unchanged)");
   }
   return write_look(stream, *slot, found->event, std::move(data), *last);
 }
@@ -291,9 +301,10 @@ Result<std::vector<LookResult>> StoreLedger::looks(std::string_view stream, std:
   auto found = look_up(stream, id, key);
   if (!found) return found.error();
   if (found->phase == TestLookup::Phase::kNone) {
-    return with_reason(not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream),
-                                 "unknown_test"),
-                       "not_launched", std::string(stream));
+    return with_reason(
+        not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream),
+                  "unknown_test"),
+        "not_launched", std::string(stream));
   }
   std::vector<LookResult> out;
   auto last = last_look(stream, id);
@@ -307,10 +318,10 @@ Result<std::vector<LookResult>> StoreLedger::looks(std::string_view stream, std:
     auto e = *bytes ? decode_entry(**bytes) : Result<ChainEntry>(corruption("missing"));
     previous = e ? e->event.event.look.previous_look : 0;
     if (previous == 0 || previous >= out.back().step) {
-      return with_reason(corruption("ledger " + location() + ", stream " + in_quotes(stream) + ", test " +
-                                    in_quotes(id) + ": look " + std::to_string(out.back().look) +
-                                    " does not link to the look before it"),
-                         "damaged_record", std::string(stream));
+      return with_reason(
+          corruption("ledger " + location() + ", stream " + in_quotes(stream) + ", test " + in_quotes(id) +
+                     ": look " + std::to_string(out.back().look) + " does not link to the look before it"),
+          "damaged_record", std::string(stream));
     }
     auto r = stored_look(stream, id, previous);
     if (!r) return r.error();

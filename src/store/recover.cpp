@@ -332,9 +332,10 @@ Status write_recovered(Store& from, const std::string& target, RecoveryReport& r
     if (auto st = copy_stream(from, **to, name, bytes, sr); !st) return st.error();
     report.streams.push_back(std::move(sr));
   }
-  // Keys outside the six stream prefixes (c, h, r, i, t for running tests, l for look state) and the format key: no part of the format, so they are
-  // copied as they were and named in the report as not verified. Keys under a stream prefix whose
-  // stream has no configuration cannot be proven and are not copied; their streams are named.
+  // Keys outside the six stream prefixes (c, h, r, i, t for running tests, l for look state) and the format
+  // key: no part of the format, so they are copied as they were and named in the report as not verified. Keys
+  // under a stream prefix whose stream has no configuration cannot be proven and are not copied; their
+  // streams are named.
   std::set<std::string> with_config;
   for (const auto& c : configs) with_config.insert(c.first);
   std::set<std::string> orphans;
