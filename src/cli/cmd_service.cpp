@@ -73,9 +73,10 @@ Status run_pipe_command(const PipeOptions& o, const GlobalOptions& g, std::ostre
   if (!ledger) return ledger.error();
   auto summary = run_pipe(**ledger, o.stream, /*in_fd=*/0, out, (*signals)->fd());
   if (!summary) return summary.error();
-  spdlog::info("pipe {}: {} lines, {} decided, {} launched, {} abandoned, {} repeats, {} refused{}", o.stream,
-               summary->lines, summary->decided, summary->launched, summary->abandoned, summary->repeats,
-               summary->bad, summary->stopped ? ", stopped by a signal" : "");
+  spdlog::info(
+      "pipe {}: {} lines, {} decided, {} launched, {} abandoned, {} looked, {} repeats, {} refused{}",
+      o.stream, summary->lines, summary->decided, summary->launched, summary->abandoned, summary->looked,
+      summary->repeats, summary->bad, summary->stopped ? ", stopped by a signal" : "");
   if (summary->bad > 0) {
     return invalid_input(std::to_string(summary->bad) + " of " + std::to_string(summary->lines) +
                          " lines were refused; each was answered with {\"line\": N, \"error\": \"...\"}");

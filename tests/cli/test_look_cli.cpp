@@ -157,3 +157,19 @@ TEST_CASE("decide --e: e-LOND streams take e-values, other streams refuse them, 
   REQUIRE(repeat.exit_code == 0);
   CHECK(json_of(repeat.out)["repeat"] == true);
 }
+
+TEST_CASE("look cli: the pipe's summary line counts looks that said continue") {
+  TempDir dir;
+  const std::string db = dir.sub("db");
+  REQUIRE(run_alphaledger(with_ledger(db, {"new", "shop", "--rule", "lord++"})).exit_code == 0);
+  const std::string in =
+      R"({"event":"launch","id":"exp-1"})"
+      "\n"
+      R"({"event":"look","id":"exp-1","control":{"n":8000,"conversions":400},"treatment":{"n":8000,"conversions":430},"mixture_sd":0.005})"
+      "\n";
+  auto r = run_alphaledger(with_ledger(db, {"--log-level", "info", "pipe", "shop"}), in);
+  REQUIRE(r.exit_code == 0);
+  CHECK(complete_lines(r.out).size() == 2);
+  CHECK(r.err.find("2 lines, 0 decided, 1 launched, 0 abandoned, 1 looked, 0 repeats, 0 refused") !=
+        std::string::npos);
+}
