@@ -69,7 +69,7 @@ class CheckTables(unittest.TestCase):
 
     def test_lord_first_levels_by_hand(self):
         # docs/methods.md 14.3 "By hand": alpha_1 = W0 gamma_1, alpha_2 = W0 gamma_2 + (alpha - W0) gamma_1.
-        # The JM sequence (methods.md 14.2, C = 0.079081966722): gamma_j = C log(max(j, 2)) / (j exp(sqrt(log j))).
+        # The JM sequence (docs/methods.md 14.2, C = 0.079081966722): gamma_j = C log(max(j, 2)) / (j exp(sqrt(log j))).
         import math
         c = 0.079081966722
         gamma = [c * math.log(max(j, 2)) / (j * math.exp(math.sqrt(math.log(j)))) for j in (1, 2)]

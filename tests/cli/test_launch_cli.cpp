@@ -161,7 +161,7 @@ TEST_CASE("LaunchCli: overlapping tests, running, status, plan --test, abandon a
   CHECK(run_alphaledger(with_ledger(db, {"verify", "team"})).exit_code == 0);
 }
 
-// The issue's "Bad input" list on the command line: exit code as CONTRACT.md (2 bad usage, 3
+// The issue's "Bad input" list on the command line: exit code as docs/errors.md (2 bad usage, 3
 // refused by the ledger), a message naming the id, and nothing changed.
 TEST_CASE("LaunchCli: refusals exit 2 or 3, name the id and leave the ledger unchanged") {
   TempDir dir;

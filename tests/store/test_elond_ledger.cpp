@@ -2,7 +2,7 @@
 // e >= 1/level, history, verify, repeats and refusals (docs/ledger.md "Streams of e-values").
 // The core e-LOND levels are checked against the formula of Xu & Ramdas (2024), "Online
 // multiple testing with e-values" (e-LOND: a test is rejected iff e_t >= 1/alpha_t, with alpha_t as in
-// methods.md section 10); the core is checked against it in tests/core, and here the ledger
+// docs/methods.md section 10); the core is checked against it in tests/core, and here the ledger
 // must give the very same numbers.
 #include <doctest/doctest.h>
 
@@ -140,7 +140,7 @@ TEST_CASE("e-LOND ledger: a batch of e-values and launched tests finished with e
     CHECK(r->decided[i].record.rejected == o.rejected);
     CHECK(r->decided[i].record.e_value);
   }
-  // Two overlapping launches (methods.md 9.1), finished with e-values in the other order.
+  // Two overlapping launches (docs/methods.md 9.1), finished with e-values in the other order.
   auto l1 = ledger->launch("e", "x1");
   auto l2 = ledger->launch("e", "x2");
   REQUIRE((l1.ok() && l2.ok()));

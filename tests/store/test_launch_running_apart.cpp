@@ -147,7 +147,7 @@ TEST_CASE("Running apart: a launch, finish or abandon writes the same bytes at 5
 // Existing ledgers open and verify unchanged: a head of the older form (built with the encoders
 // that wrote it: head version 1, Rule::encode_state listing the running tests) opens, lists its
 // running tests from the chain, verifies, and its next write moves it to the new form with one
-// key per running test; levels stay those of the core Rule bit for bit (methods.md 9.1).
+// key per running test; levels stay those of the core Rule bit for bit (docs/methods.md 9.1).
 TEST_CASE("Running apart: an older-form head opens, decides, verifies and moves to the new form") {
   for (const auto& spec : kSpecs) {
     INFO(spec_name(spec));
