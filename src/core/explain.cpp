@@ -13,7 +13,7 @@
 namespace alphaledger {
 namespace {
 
-// The fields of an encoded rule state (format versions 1 and 2, rules.cpp).
+// The fields of an encoded rule state (format versions 1 and 2, rules_state.cpp).
 struct State {
   std::uint64_t step = 0;
   std::uint64_t rejections = 0;
