@@ -230,91 +230,130 @@ class PipeRun {
   std::ostream& out_;
 };
 
+// Splits the input into lines as it arrives and parses each. A line ends with LF, CRLF or a lone
+// CR, as in logs (docs/formats.md); a line longer than kMaxPipeLineBytes is answered once as too
+// long and the rest of it skipped.
+class LineSplitter {
+ public:
+  explicit LineSplitter(Alternative direction) : direction_(direction) {}
+
+  void append(const char* bytes, std::size_t n) { buffer_.append(bytes, n); }
+
+  // Every complete line read so far, parsed (and, at the end of input, the last unterminated one).
+  std::vector<LineWork> take(bool eof) {
+    if (after_cr_ && !buffer_.empty()) {
+      if (buffer_[0] == '\n') buffer_.erase(0, 1);
+      after_cr_ = false;
+    }
+    std::vector<LineWork> work;
+    std::size_t start = 0;
+    while (true) {
+      const std::size_t end = buffer_.find_first_of("\r\n", start);
+      if (end == std::string::npos) break;
+      if (skipping_long_) {
+        skipping_long_ = false;  // the rest of an over-long line: already answered
+      } else {
+        ++line_no_;
+        if (end - start > kMaxPipeLineBytes) {
+          work.push_back(too_long(line_no_));
+        } else {
+          const std::string_view line = std::string_view(buffer_).substr(start, end - start);
+          work.push_back(parse_line(line_no_, line, direction_));
+        }
+      }
+      start = end + 1;
+      if (buffer_[end] == '\r') {
+        if (start < buffer_.size()) {
+          if (buffer_[start] == '\n') ++start;
+        } else {
+          after_cr_ = true;  // the LF of a CRLF may arrive with the next read
+        }
+      }
+    }
+    buffer_.erase(0, start);
+    if (!skipping_long_ && buffer_.size() > kMaxPipeLineBytes) {
+      ++line_no_;
+      work.push_back(too_long(line_no_));
+      skipping_long_ = true;
+      buffer_.clear();
+    } else if (skipping_long_) {
+      buffer_.clear();
+    }
+    if (eof && !buffer_.empty() && !skipping_long_) {
+      ++line_no_;
+      work.push_back(parse_line(line_no_, buffer_, direction_));
+      buffer_.clear();
+    }
+    return work;
+  }
+
+ private:
+  Alternative direction_;
+  std::string buffer_;  // bytes read but not yet split into lines
+  std::uint64_t line_no_ = 0;
+  bool skipping_long_ = false;  // inside a line already answered as too long
+  bool after_cr_ = false;       // the last line ended with CR at the end of the buffer: skip one LF
+};
+
+// What one wait for input gave.
+struct ReadStep {
+  bool interrupted = false;  // the wait was interrupted by a signal: nothing happened, wait again
+  bool stop = false;         // asked to stop: nothing was read
+  bool eof = false;          // the input has ended
+};
+
+// Waits until the input or the stop descriptor (when >= 0) is ready, and reads what the input has
+// into `lines`. Once asked to stop, nothing more is read.
+Result<ReadStep> wait_and_read(int in_fd, int stop_fd, LineSplitter& lines) {
+  ReadStep step;
+  pollfd fds[2] = {{in_fd, POLLIN, 0}, {stop_fd, POLLIN, 0}};
+  const nfds_t n = stop_fd >= 0 ? 2 : 1;
+  const int ready = ::poll(fds, n, -1);
+  if (ready < 0) {
+    if (errno == EINTR) {
+      step.interrupted = true;
+      return step;
+    }
+    return io_error(std::string("cannot wait for input: ") + std::strerror(errno));
+  }
+  step.stop = n == 2 && (fds[1].revents & POLLIN) != 0;
+  if (!step.stop && (fds[0].revents & (POLLIN | POLLHUP | POLLERR)) != 0) {
+    char chunk[65536];
+    const ssize_t got = ::read(in_fd, chunk, sizeof chunk);
+    if (got < 0) {
+      if (errno != EINTR && errno != EAGAIN)
+        return io_error(std::string("cannot read the input: ") + std::strerror(errno));
+    } else if (got == 0) {
+      step.eof = true;
+    } else {
+      lines.append(chunk, static_cast<std::size_t>(got));
+    }
+  }
+  if (!step.stop && (fds[0].revents & POLLNVAL) != 0)
+    return io_error("cannot read the input: not an open file descriptor");
+  return step;
+}
+
 }  // namespace
 
 Result<PipeSummary> run_pipe(Ledger& ledger, std::string_view stream, int in_fd, std::ostream& out,
                              int stop_fd) {
   auto info = ledger.status(stream);
   if (!info) return info.error();
-  const Alternative direction = info->alternative;
   PipeRun run(ledger, stream, out);
-  std::string buffer;  // bytes read but not yet split into lines
-  std::uint64_t line_no = 0;
-  bool skipping_long = false;  // inside a line already answered as too long
-  bool after_cr = false;       // the last line ended with CR at the end of the buffer: skip one LF
+  LineSplitter lines(info->alternative);
   bool eof = false;
-  char chunk[65536];
   while (!eof) {
-    pollfd fds[2] = {{in_fd, POLLIN, 0}, {stop_fd, POLLIN, 0}};
-    const nfds_t n = stop_fd >= 0 ? 2 : 1;
-    const int ready = ::poll(fds, n, -1);
-    if (ready < 0) {
-      if (errno == EINTR) continue;
-      return io_error(std::string("cannot wait for input: ") + std::strerror(errno));
-    }
-    // Once asked to stop, nothing more is read: the complete lines already read are answered.
-    const bool stop = n == 2 && (fds[1].revents & POLLIN) != 0;
-    if (!stop && (fds[0].revents & (POLLIN | POLLHUP | POLLERR)) != 0) {
-      const ssize_t got = ::read(in_fd, chunk, sizeof chunk);
-      if (got < 0) {
-        if (errno != EINTR && errno != EAGAIN)
-          return io_error(std::string("cannot read the input: ") + std::strerror(errno));
-      } else if (got == 0) {
-        eof = true;
-      } else {
-        buffer.append(chunk, static_cast<std::size_t>(got));
-      }
-    }
-    if (!stop && (fds[0].revents & POLLNVAL) != 0)
-      return io_error("cannot read the input: not an open file descriptor");
-    // Split off every complete line (and, at the end of input, the last unterminated one). A line
-    // ends with LF, CRLF or a lone CR, as in logs (docs/formats.md).
-    if (after_cr && !buffer.empty()) {
-      if (buffer[0] == '\n') buffer.erase(0, 1);
-      after_cr = false;
-    }
-    std::vector<LineWork> work;
-    std::size_t start = 0;
-    while (true) {
-      const std::size_t end = buffer.find_first_of("\r\n", start);
-      if (end == std::string::npos) break;
-      if (skipping_long) {
-        skipping_long = false;  // the rest of an over-long line: already answered
-      } else {
-        ++line_no;
-        if (end - start > kMaxPipeLineBytes) {
-          work.push_back(too_long(line_no));
-        } else {
-          work.push_back(parse_line(line_no, std::string_view(buffer).substr(start, end - start), direction));
-        }
-      }
-      start = end + 1;
-      if (buffer[end] == '\r') {
-        if (start < buffer.size()) {
-          if (buffer[start] == '\n') ++start;
-        } else {
-          after_cr = true;  // the LF of a CRLF may arrive with the next read
-        }
-      }
-    }
-    buffer.erase(0, start);
-    if (!skipping_long && buffer.size() > kMaxPipeLineBytes) {
-      ++line_no;
-      work.push_back(too_long(line_no));
-      skipping_long = true;
-      buffer.clear();
-    } else if (skipping_long) {
-      buffer.clear();
-    }
-    if (eof && !buffer.empty() && !skipping_long) {
-      ++line_no;
-      work.push_back(parse_line(line_no, buffer, direction));
-      buffer.clear();
-    }
+    auto step = wait_and_read(in_fd, stop_fd, lines);
+    if (!step) return step.error();
+    if (step->interrupted) continue;
+    eof = step->eof;
+    // The complete lines already read are answered, also when asked to stop.
+    std::vector<LineWork> work = lines.take(eof);
     if (!work.empty()) {
       if (auto s = run.answer(work); !s) return s.error();
     }
-    if (stop) {
+    if (step->stop) {
       run.summary_.stopped = true;
       break;
     }
