@@ -10,93 +10,113 @@
 
 namespace alphaledger {
 
-std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger, std::string_view stream,
-                                                                 const std::vector<TestInput>& tests,
-                                                                 std::size_t max_group) {
-  std::vector<std::optional<Result<DecideResult>>> out(tests.size());
-  if (max_group == 0) max_group = 1;
+namespace {
+
+// decide_in_order's state: the answers so far, and the inputs not yet answered in arrival order.
+class InOrder {
+ public:
+  InOrder(Ledger& ledger, std::string_view stream, const std::vector<TestInput>& tests)
+      : ledger_(ledger), stream_(stream), tests_(tests), out_(tests.size()) {
+    for (std::size_t k = 0; k < tests.size(); ++k) pending_.push_back(k);
+  }
+
+  // Decides every input. Stops after a storage failure: nothing more is tried.
+  std::vector<std::optional<Result<DecideResult>>> run(std::size_t max_group) {
+    while (!pending_.empty()) {
+      const std::vector<std::size_t> group = next_group(max_group);
+      if (group.size() == 1) {
+        if (!one_by_one(group, 0)) break;
+        continue;
+      }
+      std::vector<TestInput> inputs;
+      inputs.reserve(group.size());
+      for (std::size_t k : group) inputs.push_back(tests_[k]);
+      auto batch = ledger_.decide_batch(stream_, inputs, inputs.size());
+      // The whole batch failed before deciding anything (e.g. one invalid input): decide one by
+      // one so that only the guilty input is answered with the error. Or a launched test, which
+      // decide() alone finishes (a batch does not finish launched tests): the group goes one by
+      // one, in order, so every level stays the one of arrival order.
+      if (!batch || (batch->error && batch->decided.empty() && batch->error->code == "running_test")) {
+        if (!one_by_one(group, 0)) break;
+        continue;
+      }
+      if (!take_batch(group, *batch)) break;
+    }
+    return std::move(out_);
+  }
+
+ private:
   // Returns false after a storage failure: nothing more is tried.
-  auto decide_one = [&](std::size_t k) {
-    out[k] = tests[k].e_value ? ledger.decide_e(stream, tests[k].id, tests[k].p_value)
-                              : ledger.decide(stream, tests[k].id, tests[k].p_value);
-    return out[k]->ok() || !is_storage_failure(out[k]->error().kind);
-  };
-  // Inputs not yet answered, in arrival order.
-  std::deque<std::size_t> pending;
-  for (std::size_t k = 0; k < tests.size(); ++k) pending.push_back(k);
-  while (!pending.empty()) {
-    // The longest run of pending inputs without a repeated id: a retry inside one batch must see
-    // the first decision, so it waits for the next batch.
+  bool decide_one(std::size_t k) {
+    out_[k] = tests_[k].e_value ? ledger_.decide_e(stream_, tests_[k].id, tests_[k].p_value)
+                                : ledger_.decide(stream_, tests_[k].id, tests_[k].p_value);
+    return out_[k]->ok() || !is_storage_failure(out_[k]->error().kind);
+  }
+
+  // The longest run of pending inputs without a repeated id, at most max_group: a retry inside
+  // one batch must see the first decision, so it waits for the next batch.
+  std::vector<std::size_t> next_group(std::size_t max_group) const {
     std::vector<std::size_t> group;
     std::unordered_set<std::string_view> ids;
-    for (std::size_t k : pending) {
-      if (group.size() == max_group || !ids.insert(tests[k].id).second) break;
+    for (std::size_t k : pending_) {
+      if (group.size() == max_group || !ids.insert(tests_[k].id).second) break;
       group.push_back(k);
     }
-    if (group.size() == 1) {
-      pending.pop_front();
-      if (!decide_one(group[0])) return out;
-      continue;
+    return group;
+  }
+
+  // The group leaves the front of `pending_`; its inputs from `from` on are decided one by one.
+  bool one_by_one(const std::vector<std::size_t>& group, std::size_t from) {
+    for (std::size_t k = 0; k < group.size(); ++k) pending_.pop_front();
+    for (std::size_t k = from; k < group.size(); ++k) {
+      if (!decide_one(group[k])) return false;
     }
-    std::vector<TestInput> inputs;
-    inputs.reserve(group.size());
-    for (std::size_t k : group) inputs.push_back(tests[k]);
-    auto batch = ledger.decide_batch(stream, inputs, inputs.size());
-    if (!batch) {
-      // The whole batch failed before deciding anything (e.g. one invalid input): decide one by
-      // one so that only the guilty input is answered with the error.
-      for (std::size_t k : group) {
-        pending.pop_front();
-        if (!decide_one(k)) return out;
-      }
-      continue;
-    }
-    if (batch->error && batch->decided.empty() && batch->error->code == "running_test") {
-      // A launched test is finished by decide() alone (a batch does not finish launched tests):
-      // the group goes one by one, in order, so every level stays the one of arrival order.
-      for (std::size_t k : group) {
-        pending.pop_front();
-        if (!decide_one(k)) return out;
-      }
-      continue;
-    }
+    return true;
+  }
+
+  // Answers what the batch of `group` decided. Returns false after a storage failure.
+  bool take_batch(const std::vector<std::size_t>& group, Ledger::BatchResult& batch) {
     // Decided inputs (a prefix of the group) are answered; the ledger may also have refused one
     // input (a conflict), which decides nothing and so does not depend on its neighbours: it is
     // answered with the error and the rest of the group is batched again.
-    const std::size_t done = std::min(batch->decided.size(), group.size());
-    for (std::size_t k = 0; k < done; ++k) out[group[k]] = std::move(batch->decided[k]);
+    const std::size_t done = std::min(batch.decided.size(), group.size());
+    for (std::size_t k = 0; k < done; ++k) out_[group[k]] = std::move(batch.decided[k]);
     std::optional<std::size_t> refused_at;
-    if (batch->error) {
-      if (batch->stopped_at < done || batch->stopped_at >= group.size()) {
-        // Outside the contract; fall back to one by one for the undecided rest.
-        for (std::size_t k = 0; k < done; ++k) pending.pop_front();
-        for (std::size_t k = done; k < group.size(); ++k) {
-          pending.pop_front();
-          if (!decide_one(group[k])) return out;
-        }
-        continue;
-      }
-      refused_at = batch->stopped_at;
-      out[group[*refused_at]] = *batch->error;
-      if (is_storage_failure(batch->error->kind)) return out;
+    if (batch.error) {
+      // Outside the contract: one by one for the undecided rest.
+      if (batch.stopped_at < done || batch.stopped_at >= group.size()) return one_by_one(group, done);
+      refused_at = batch.stopped_at;
+      out_[group[*refused_at]] = *batch.error;
+      if (is_storage_failure(batch.error->kind)) return false;
     } else if (done < group.size()) {
       // Outside the contract (no error, yet not everything decided): one by one.
-      for (std::size_t k = 0; k < group.size(); ++k) pending.pop_front();
-      for (std::size_t k = done; k < group.size(); ++k) {
-        if (!decide_one(group[k])) return out;
-      }
-      continue;
+      return one_by_one(group, done);
     }
-    // Drop the answered inputs from the front part of `pending` that this group came from.
+    // Drop the answered inputs from the front part of `pending_` that this group came from.
     std::deque<std::size_t> rest;
     for (std::size_t k = 0; k < group.size(); ++k) {
       const bool answered = k < done || (refused_at && k == *refused_at);
       if (!answered) rest.push_back(group[k]);
     }
-    for (std::size_t k = 0; k < group.size(); ++k) pending.pop_front();
-    pending.insert(pending.begin(), rest.begin(), rest.end());
+    for (std::size_t k = 0; k < group.size(); ++k) pending_.pop_front();
+    pending_.insert(pending_.begin(), rest.begin(), rest.end());
+    return true;
   }
-  return out;
+
+  Ledger& ledger_;
+  std::string_view stream_;
+  const std::vector<TestInput>& tests_;
+  std::vector<std::optional<Result<DecideResult>>> out_;
+  std::deque<std::size_t> pending_;  // inputs not yet answered, in arrival order
+};
+
+}  // namespace
+
+std::vector<std::optional<Result<DecideResult>>> decide_in_order(Ledger& ledger, std::string_view stream,
+                                                                 const std::vector<TestInput>& tests,
+                                                                 std::size_t max_group) {
+  if (max_group == 0) max_group = 1;
+  return InOrder(ledger, stream, tests).run(max_group);
 }
 
 std::vector<std::optional<Result<EventOutcome>>> apply_in_order(Ledger& ledger, std::string_view stream,
