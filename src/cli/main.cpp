@@ -11,9 +11,9 @@
 #include <memory>
 #include <mutex>
 #include <new>
+#include <nlohmann/json.hpp>
 #include <optional>
 #include <string_view>
-#include <nlohmann/json.hpp>
 
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/test_log.hpp"
@@ -85,9 +85,8 @@ alphaledger::Error with_flag_hint(alphaledger::Error error, const CLI::App& app)
     // Asked of the parsed command, not by name: the app may hold only the command that was run.
     const auto parsed = app.get_subcommands();
     const bool recover = !parsed.empty() && parsed.front()->get_name() == "recover";
-    error.message += recover
-                         ? " (give the damaged ledger folder with --ledger DIR)"
-                         : " (create a stream first, or give the ledger folder with --ledger DIR)";
+    error.message += recover ? " (give the damaged ledger folder with --ledger DIR)"
+                             : " (create a stream first, or give the ledger folder with --ledger DIR)";
   }
   return error;
 }
@@ -140,17 +139,17 @@ struct Registration {
   AddCommands add;
 };
 constexpr Registration kRegistrations[] = {
-    {"replay", add_replay_command},     {"new", add_new_command},
-    {"decide", add_decide_command},     {"next", add_stream_read_commands},
+    {"replay", add_replay_command},       {"new", add_new_command},
+    {"decide", add_decide_command},       {"next", add_stream_read_commands},
     {"status", add_stream_read_commands}, {"streams", add_stream_read_commands},
-    {"history", add_history_command},   {"verify", add_verify_command},
-    {"close", add_close_command},       {"launch", add_launch_commands},
-    {"abandon", add_launch_commands},   {"running", add_launch_commands},
-    {"simulate", add_simulate_command}, {"pvalue", add_stats_commands},
-    {"plan", add_stats_commands},       {"pipe", add_service_commands},
-    {"serve", add_service_commands},    {"recover", add_recover_command},
-    {"report", add_report_command},     {"explain", add_explain_command},
-    {"look", add_look_commands},        {"looks", add_look_commands},
+    {"history", add_history_command},     {"verify", add_verify_command},
+    {"close", add_close_command},         {"launch", add_launch_commands},
+    {"abandon", add_launch_commands},     {"running", add_launch_commands},
+    {"simulate", add_simulate_command},   {"pvalue", add_stats_commands},
+    {"plan", add_stats_commands},         {"pipe", add_service_commands},
+    {"serve", add_service_commands},      {"recover", add_recover_command},
+    {"report", add_report_command},       {"explain", add_explain_command},
+    {"look", add_look_commands},          {"looks", add_look_commands},
 };
 
 const Registration* registration_of(std::string_view word) {
@@ -162,7 +161,7 @@ const Registration* registration_of(std::string_view word) {
 
 // What the lazy app needs to hold for this command line.
 struct LazyPlan {
-  bool usable = false;               // false: build the whole app
+  bool usable = false;                    // false: build the whole app
   const Registration* command = nullptr;  // null with usable: global flags only (--version)
 };
 
@@ -192,7 +191,8 @@ LazyPlan plan_for(const std::vector<std::string>& args) {
   if (command == nullptr || version) return {};
   for (std::size_t j = i + 1; j < args.size(); ++j) {
     const std::string& a = args[j];
-    if (a == "-h" || a == "--help" || a == "--version" || a == "--" || registration_of(a) != nullptr) return {};
+    if (a == "-h" || a == "--help" || a == "--version" || a == "--" || registration_of(a) != nullptr)
+      return {};
   }
   return LazyPlan{.usable = true, .command = command};
 }

@@ -65,7 +65,8 @@ TEST_CASE("the top-level help is the whole app's, byte for byte") {
       "                              trace|debug|info|warn|error|off; default warn\n"
       "\n"
       "Subcommands:\n"
-      "  replay                      decide a whole log of finished tests with one or more rules, touching no "
+      "  replay                      decide a whole log of finished tests with one or more rules, touching "
+      "no "
       "ledger\n"
       "  new                         create a stream; its rule and parameters are frozen from now on\n"
       "  decide                      decide one test (--id, --p) or a log of tests (--file); each answer is "
@@ -141,11 +142,13 @@ TEST_CASE("a command's help is the same, wherever the help flag stands") {
 TEST_CASE("unknown and missing commands get the whole list, as before") {
   auto r = run_alphaledger({"stauts", "S"});
   CHECK(r.exit_code == 2);
-  CHECK(r.err == "alphaledger: error: unknown command 'stauts'; did you mean 'status'? (see 'alphaledger --help')\n");
+  CHECK(r.err ==
+        "alphaledger: error: unknown command 'stauts'; did you mean 'status'? (see 'alphaledger --help')\n");
   r = run_alphaledger({"--json", "frobnicate"});
   CHECK(r.exit_code == 2);
-  CHECK(r.err == std::string(R"x({"error":{"code":"usage","message":"unknown command 'frobnicate'; commands: )x") +
-                     kCommands + R"x( (see 'alphaledger --help')"}})x" + "\n");
+  CHECK(r.err ==
+        std::string(R"x({"error":{"code":"usage","message":"unknown command 'frobnicate'; commands: )x") +
+            kCommands + R"x( (see 'alphaledger --help')"}})x" + "\n");
   r = run_alphaledger({"--ledger", "x"});
   CHECK(r.exit_code == 2);
   CHECK(r.err == std::string("alphaledger: error: no command given; commands: ") + kCommands +
@@ -153,11 +156,13 @@ TEST_CASE("unknown and missing commands get the whole list, as before") {
   r = run_alphaledger({"status", "--bogus", "S"});
   CHECK(r.exit_code == 2);
   CHECK(r.err ==
-        "alphaledger: error: unknown option '--bogus' for 'alphaledger status' (see 'alphaledger status --help')\n");
+        "alphaledger: error: unknown option '--bogus' for 'alphaledger status' (see 'alphaledger status "
+        "--help')\n");
   r = run_alphaledger({"status", "S", "extra"});
   CHECK(r.exit_code == 2);
   CHECK(r.err ==
-        "alphaledger: error: unexpected argument 'extra' for 'alphaledger status' (see 'alphaledger status --help')\n");
+        "alphaledger: error: unexpected argument 'extra' for 'alphaledger status' (see 'alphaledger status "
+        "--help')\n");
   r = run_alphaledger({"--log-level", "loud", "status", "S"});
   CHECK(r.exit_code == 2);
   CHECK(r.err.find("--log-level: 'loud' is not accepted; accepted: {trace,debug,info,warn,error,off}") !=
@@ -193,7 +198,8 @@ TEST_CASE("the missing-ledger hint still names the right flag for recover and fo
   const std::string missing = dir.path() + "/none";
   auto r = run_alphaledger({"--ledger", missing, "recover", "--to", dir.path() + "/new"});
   CHECK(r.exit_code == 3);
-  CHECK(r.err == "alphaledger: error: no ledger at " + missing + " (give the damaged ledger folder with --ledger DIR)\n");
+  CHECK(r.err == "alphaledger: error: no ledger at " + missing +
+                     " (give the damaged ledger folder with --ledger DIR)\n");
   r = run_alphaledger({"--ledger", missing, "status", "S"});
   CHECK(r.exit_code == 3);
   CHECK(r.err == "alphaledger: error: no ledger at " + missing +
