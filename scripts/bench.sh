@@ -6,7 +6,8 @@
 #     in groups of 1, 256 and 4,096 (bench/sqlite_ledger.py); PostgreSQL only if a server answers
 #     on 127.0.0.1 (pg_isready), else a note;
 #   - reading a log: `replay` against `awk` on the same CSV file;
-#   - the fixed CPU cost of one CLI process (--version, next, status, streams, history);
+#   - the fixed CPU cost of one CLI process (--version, next, status, streams, history), and the
+#     same beside /bin/true (bench/cli_start.sh);
 #   - peak memory of `decide --file`, `history` and `verify` on a long stream.
 # docs/benchmarks.md records a run and how to read it.
 #
@@ -160,5 +161,9 @@ for args in "--version" "--ledger $scratch/cli next S" "--ledger $scratch/cli st
   # shellcheck disable=SC2086
   printf "cli %-24s %8.2f ms CPU per process (target: 5 ms)\n" "${args#--ledger $scratch/cli }" "$(cli_cost $args)"
 done
+
+# The same fixed cost beside /bin/true, minus it, and against the 5 ms target, on a 50-decision
+# ledger (docs/benchmarks.md "CLI fixed cost after lazy start").
+bench/cli_start.sh "$bin" "$cli_runs"
 
 echo "== load at end: $(cut -d' ' -f1-3 /proc/loadavg)"

@@ -5,17 +5,21 @@
 
 #include <algorithm>
 #include <chrono>
+#include <cstdio>
 #include <cstdlib>
 #include <iostream>
 #include <memory>
 #include <mutex>
 #include <new>
 #include <nlohmann/json.hpp>
+#include <optional>
+#include <string_view>
 
 #include "alphaledger/ledger.hpp"
 #include "alphaledger/test_log.hpp"
 #include "cli/cli_errors.hpp"
 #include "cli/command.hpp"
+#include "cli/ledger_common.hpp"
 #include "harness/json_text.hpp"
 
 namespace alphaledger::cli {
@@ -78,9 +82,11 @@ class JsonLogSink final : public spdlog::sinks::base_sink<std::mutex> {
 // Lower layers say what happened; the flag that would fix it is the command line's to name.
 alphaledger::Error with_flag_hint(alphaledger::Error error, const CLI::App& app) {
   if (error.code == "no_ledger") {
-    error.message += app.got_subcommand("recover")
-                         ? " (give the damaged ledger folder with --ledger DIR)"
-                         : " (create a stream first, or give the ledger folder with --ledger DIR)";
+    // Asked of the parsed command, not by name: the app may hold only the command that was run.
+    const auto parsed = app.get_subcommands();
+    const bool recover = !parsed.empty() && parsed.front()->get_name() == "recover";
+    error.message += recover ? " (give the damaged ledger folder with --ledger DIR)"
+                             : " (create a stream first, or give the ledger folder with --ledger DIR)";
   }
   return error;
 }
@@ -90,8 +96,8 @@ alphaledger::Error with_flag_hint(alphaledger::Error error, const CLI::App& app)
 namespace alphaledger::cli {
 namespace {
 
-// The global flags and every subcommand.
-void build_app(CLI::App& app, CommandContext& ctx) {
+// The global flags, which every command line may use.
+void add_global_flags(CLI::App& app, CommandContext& ctx) {
   app.footer(
       "A FILE argument of '-' reads standard input. Exit codes: 0 success, 2 bad usage or input,\n"
       "3 refused by the ledger, 4 storage failure; with --json a failure is one JSON object on\n"
@@ -106,7 +112,11 @@ void build_app(CLI::App& app, CommandContext& ctx) {
                "machine-readable output, one JSON object per line; errors too, as one JSON object on stderr");
   app.add_option("--log-level", ctx.global.log_level, "trace|debug|info|warn|error|off; default warn")
       ->check(CLI::IsMember({"trace", "debug", "info", "warn", "error", "off"}));
+}
 
+// The global flags and every subcommand, in the order --help lists them.
+void build_app(CLI::App& app, CommandContext& ctx) {
+  add_global_flags(app, ctx);
   add_replay_command(app, ctx);
   add_ledger_commands(app, ctx);
   add_simulate_command(app, ctx);
@@ -116,6 +126,75 @@ void build_app(CLI::App& app, CommandContext& ctx) {
   add_report_command(app, ctx);
   add_explain_command(app, ctx);  // src/cli/cmd_explain.cpp
   add_look_commands(app, ctx);    // src/cli/cmd_look.cpp
+}
+
+// Building every subcommand (about 25 of them, with their options and checks) is a good part of
+// a read command's few milliseconds, so a command line that names one command builds only the
+// function that registers it (and the few commands registered with it). Every other line (--help,
+// no command, an unknown one, anything the lazy app cannot read) is read again by the whole app,
+// so that what it prints is the same as before, byte for byte (docs/benchmarks.md).
+using AddCommands = void (*)(CLI::App&, CommandContext&);
+struct Registration {
+  std::string_view name;
+  AddCommands add;
+};
+constexpr Registration kRegistrations[] = {
+    {"replay", add_replay_command},       {"new", add_new_command},
+    {"decide", add_decide_command},       {"next", add_stream_read_commands},
+    {"status", add_stream_read_commands}, {"streams", add_stream_read_commands},
+    {"history", add_history_command},     {"verify", add_verify_command},
+    {"close", add_close_command},         {"launch", add_launch_commands},
+    {"abandon", add_launch_commands},     {"running", add_launch_commands},
+    {"simulate", add_simulate_command},   {"pvalue", add_stats_commands},
+    {"plan", add_stats_commands},         {"pipe", add_service_commands},
+    {"serve", add_service_commands},      {"recover", add_recover_command},
+    {"report", add_report_command},       {"explain", add_explain_command},
+    {"look", add_look_commands},          {"looks", add_look_commands},
+};
+
+const Registration* registration_of(std::string_view word) {
+  for (const auto& r : kRegistrations) {
+    if (r.name == word) return &r;
+  }
+  return nullptr;
+}
+
+// What the lazy app needs to hold for this command line.
+struct LazyPlan {
+  bool usable = false;                    // false: build the whole app
+  const Registration* command = nullptr;  // null with usable: global flags only (--version)
+};
+
+// Global flags first (--ledger X, --log-level X, --json, in either form), then a command's name.
+// The whole app is needed for a help flag anywhere, "--", a word before the command that is not a
+// global flag, an unknown command, or a second command name anywhere on the line (CLI11 reads it
+// as a value, but the cheap path does not rely on that).
+LazyPlan plan_for(const std::vector<std::string>& args) {
+  std::size_t i = 0;
+  bool version = false;
+  for (; i < args.size(); ++i) {
+    const std::string& a = args[i];
+    if (a == "--json") continue;
+    if (a == "--version") {
+      version = true;
+      continue;
+    }
+    if (a == "--ledger" || a == "--log-level") {
+      ++i;
+      continue;
+    }
+    if (a.starts_with("--ledger=") || a.starts_with("--log-level=")) continue;
+    break;
+  }
+  if (i >= args.size()) return LazyPlan{.usable = version, .command = nullptr};  // only global flags
+  const Registration* command = registration_of(args[i]);
+  if (command == nullptr || version) return {};
+  for (std::size_t j = i + 1; j < args.size(); ++j) {
+    const std::string& a = args[j];
+    if (a == "-h" || a == "--help" || a == "--version" || a == "--" || registration_of(a) != nullptr)
+      return {};
+  }
+  return LazyPlan{.usable = true, .command = command};
 }
 
 void set_up_logging(const GlobalOptions& global) {
@@ -160,19 +239,72 @@ int run_command(const CommandContext& ctx, const CLI::App& app) {
   return 0;
 }
 
+// Ends the process once the command has finished. Every command has closed its ledger by then (it
+// is a local of the command's run function), and output is flushed here, so what is left for exit()
+// is the destruction of static objects: RocksDB's option tables, the logger registry, CLI11's
+// checks. That was a measurable part of a read command's cost (docs/benchmarks.md "CLI fixed cost
+// after lazy start"), so it is skipped; except under a sanitizer, whose leak check runs at exit.
+[[noreturn]] void leave(int code) {
+  std::cout.flush();
+  std::cerr.flush();
+  std::fflush(nullptr);
+#if defined(__SANITIZE_ADDRESS__) || defined(__SANITIZE_THREAD__)
+  std::exit(code);
+#elif defined(__has_feature)
+#if __has_feature(address_sanitizer) || __has_feature(thread_sanitizer)
+  std::exit(code);
+#else
+  std::_Exit(code);
+#endif
+#else
+  std::_Exit(code);
+#endif
+}
+
+constexpr const char* kDescription =
+    "alphaledger " ALPHALEDGER_VERSION
+    ": decide each hypothesis test the moment it finishes, keeping the false discovery\n"
+    "rate of the whole stream below a target (LORD++, SAFFRON, ADDIS, LOND, alpha-investing,\n"
+    "alpha-spending), with a durable, verifiable ledger.";
+
+// The cheap path: an app with the global flags and the named command's registration only. Returns
+// the exit code, or nothing when the line must be read by the whole app instead (it did not parse
+// cleanly into exactly the planned command). Nothing has run and nothing was printed then.
+std::optional<int> run_lazily(const LazyPlan& plan, const std::vector<std::string>& args, int argc,
+                              char** argv) {
+  CLI::App app{kDescription};
+  CommandContext ctx;
+  add_global_flags(app, ctx);
+  if (plan.command != nullptr) plan.command->add(app, ctx);
+  if (!check_arguments(app, args).empty()) return std::nullopt;
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::CallForVersion& e) {  // its text does not depend on the commands
+    return app.exit(e);
+  } catch (const CLI::Error&) {
+    return std::nullopt;
+  }
+  const auto parsed = app.get_subcommands();
+  if (plan.command == nullptr || parsed.size() != 1 || parsed.front()->get_name() != plan.command->name) {
+    return std::nullopt;
+  }
+  set_up_logging(ctx.global);
+  leave(run_command(ctx, app));
+}
+
 }  // namespace
 }  // namespace alphaledger::cli
 
 int main(int argc, char** argv) {
   using namespace alphaledger;
   using namespace alphaledger::cli;
-  CLI::App app{"alphaledger " ALPHALEDGER_VERSION
-               ": decide each hypothesis test the moment it finishes, keeping the false discovery\n"
-               "rate of the whole stream below a target (LORD++, SAFFRON, ADDIS, LOND, alpha-investing,\n"
-               "alpha-spending), with a durable, verifiable ledger."};
+  const std::vector<std::string> args(argv + std::min(argc, 1), argv + argc);
+  if (const LazyPlan plan = plan_for(args); plan.usable) {
+    if (auto code = run_lazily(plan, args, argc, argv)) return *code;
+  }
+  CLI::App app{kDescription};
   CommandContext ctx;
   build_app(app, ctx);
-  const std::vector<std::string> args(argv + std::min(argc, 1), argv + argc);
   if (const std::string problem = check_arguments(app, args); !problem.empty()) {
     return fail(usage_failure(problem), wants_json(args));
   }
@@ -184,5 +316,5 @@ int main(int argc, char** argv) {
     return fail(usage_failure(explain_usage_error(app, args, e)), wants_json(args));
   }
   set_up_logging(ctx.global);
-  return run_command(ctx, app);
+  leave(run_command(ctx, app));
 }

@@ -19,8 +19,8 @@ namespace {
 
 // gamma_j is read from a table for j <= kTableSize and computed from the formula past it (the same
 // bits either way: the table holds the formula's values). Only the first kEagerTableSize values are
-// computed when a sequence is parsed; the rest of the table is filled on the first gamma_j past
-// them (after kLazyMisses calls that compute gamma_j directly). A read command decides nothing and
+// computed when shared() makes a sequence (parse() alone computes none); the rest of the table is
+// filled on the first gamma_j past them (after kLazyMisses calls that compute gamma_j directly). A read command decides nothing and
 // needs a handful of values, and filling 65,536 values was 10-20% of its CPU time
 // (docs/benchmarks.md "CLI fixed cost").
 constexpr std::size_t kTableSize = 65536;
@@ -131,10 +131,10 @@ Result<SpendingSequence> SpendingSequence::parse(std::string_view spec) {
   } else {
     return invalid_input("unknown spending sequence '" + std::string(spec) + "'; " + kAccepted);
   }
-  std::vector<double> table;
-  table.reserve(kEagerTableSize);
-  for (std::uint64_t j = 1; j <= kEagerTableSize; ++j) table.push_back(seq.closed_form(j));
-  seq.table_ = std::make_shared<const std::vector<double>>(std::move(table));
+  // No table yet: parse() also serves to check a specification (resolve_config), which then drops
+  // the sequence; shared(), where Rules get theirs, fills the first kEagerTableSize values. Without
+  // them gamma_j and table() give the same bits, computed when first asked for.
+  seq.table_ = std::make_shared<const std::vector<double>>();
   seq.grown_ = std::make_shared<GrowingTable>();
   seq.grown_->current = seq.table_;
   seq.mixture_ = std::make_shared<LazyMixture>();
@@ -197,6 +197,11 @@ Result<std::shared_ptr<const SpendingSequence>> SpendingSequence::shared(std::st
   }
   auto seq = parse(spec);
   if (!seq) return seq.error();
+  std::vector<double> table;
+  table.reserve(kEagerTableSize);
+  for (std::uint64_t j = 1; j <= kEagerTableSize; ++j) table.push_back(seq->closed_form(j));
+  seq->table_ = std::make_shared<const std::vector<double>>(std::move(table));
+  seq->grown_->current = seq->table_;
   auto made = std::make_shared<const SpendingSequence>(std::move(seq).value());
   if (known->size() >= 64) std::erase_if(*known, [](const auto& e) { return e.second.expired(); });
   (*known)[std::string(spec)] = made;

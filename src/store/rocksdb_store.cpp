@@ -11,6 +11,7 @@
 //     short or removed after it had acknowledged decisions is found on the next open.
 //
 // The other files of the store are listed in store/rocksdb_internal.hpp.
+#include <rocksdb/cache.h>
 #include <rocksdb/db.h>
 #include <rocksdb/env.h>
 #include <rocksdb/filter_policy.h>
@@ -67,6 +68,23 @@ class RecordKeyPrefix final : public rocksdb::SliceTransform {
   }
 };
 
+// The environment of a read-only open: the process's own, except that opening does not start
+// RocksDB's two background threads (one for flushes, one for compactions). A read-only database
+// never flushes or compacts; starting and later joining those threads was a measurable part of a
+// read command's cost (docs/benchmarks.md "CLI fixed cost after lazy start"). Should anything be
+// scheduled after all, the pool starts a thread for it then, as it does for any first job.
+class ReaderEnv final : public rocksdb::EnvWrapper {
+ public:
+  ReaderEnv() : rocksdb::EnvWrapper(rocksdb::Env::Default()) {}
+  const char* Name() const override { return "alphaledger.ReaderEnv"; }
+  void IncBackgroundThreadsIfNeeded(int /*number*/, Priority /*pri*/) override {}
+};
+
+rocksdb::Env* reader_env() {
+  static ReaderEnv env;  // built at the first read-only open, not at start-up
+  return &env;
+}
+
 rocksdb::Options base_options(bool read_only) {
   rocksdb::Options o;
   o.create_if_missing = false;
@@ -102,6 +120,14 @@ rocksdb::Options base_options(bool read_only) {
   // The bytes of keys and values are unchanged; only RocksDB's table files gain a filter block.
   rocksdb::BlockBasedTableOptions table;
   table.filter_policy.reset(rocksdb::NewBloomFilterPolicy(10));
+  if (read_only) {
+    // A reader of a few keys (status, next) or one pass over a stream (history, verify): an 8 MB
+    // block cache and a table cache in one shard each, not RocksDB's default of 16 and 64 shards
+    // built for many threads; building those was most of a read-only open's set-up.
+    table.block_cache = rocksdb::NewLRUCache(8 << 20, /*num_shard_bits=*/0);
+    o.table_cache_numshardbits = 0;
+    o.env = reader_env();
+  }
   o.table_factory.reset(rocksdb::NewBlockBasedTableFactory(table));
   if (!read_only) {
     o.memtable_prefix_bloom_size_ratio = 0.05;
