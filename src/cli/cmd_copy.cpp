@@ -17,22 +17,14 @@ struct CopyCommandOptions {
   std::string to;
 };
 
-// The store at a ledger location, as the other commands open it.
+// The store at a ledger location (a folder or a PostgreSQL URI), as the other commands open it.
 Result<std::unique_ptr<Store>> open_location(const std::string& location, bool for_reading) {
-  if (for_reading) return open_rocksdb_store(location, RocksStoreOptions{.create_if_missing = false, .read_only = true});
-  return open_rocksdb_store(location, RocksStoreOptions{.create_if_missing = true});
+  if (for_reading) return open_store_at(location, RocksStoreOptions{.create_if_missing = false, .read_only = true});
+  return open_store_at(location, RocksStoreOptions{.create_if_missing = true});
 }
 
-// A location as it may be shown: a URI's password (user:PASSWORD@host) replaced by "***".
-std::string shown(const std::string& location) {
-  const auto scheme = location.find("://");
-  if (scheme == std::string::npos) return location;
-  const auto at = location.find('@', scheme + 3);
-  if (at == std::string::npos) return location;
-  const auto colon = location.find(':', scheme + 3);
-  if (colon == std::string::npos || colon > at) return location;
-  return location.substr(0, colon + 1) + "***" + location.substr(at);
-}
+// A location as it may be shown: a URI's password replaced by ***.
+std::string shown(const std::string& location) { return redact_uri(location); }
 
 void print_copied(const CopyCommandOptions& o, const std::string& from, const CopySummary& copied,
                   const VerifyReport& report, bool json, std::ostream& out) {

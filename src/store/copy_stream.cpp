@@ -155,7 +155,16 @@ Result<CopySummary> copy_stream(Store& from, Store& to, std::string_view stream,
   WriteBatch last;
   last.put(config_key, **config);
   last.put(head_key, **head);
-  if (auto s = to.write(last, /*sync=*/true); !s) return from_store(s.error(), "writing to", to);
+  // Only if the target still has no head: two copies of one stream into a shared store (another
+  // process) cannot both create it.
+  if (auto s = to.write_if(last, head_key, std::nullopt, /*sync=*/true); !s) {
+    if (is_head_moved(s.error())) {
+      return conflict("ledger " + to.describe() + " got a stream named " + in_quotes(stream) +
+                          " from another writer while copying; this copy's stream was not written",
+                      "stream_exists");
+    }
+    return from_store(s.error(), "writing to", to);
+  }
   ++summary.writes;
   summary.keys += 2;
   return summary;

@@ -133,3 +133,24 @@ TEST_CASE("CopyCli: folder -> PostgreSQL -> folder, verify passes on each copy")
     CHECK(r->err.find(password) == std::string::npos);
   }
 }
+
+// The decisions table puts an e-LOND stream's numbers in its e_value column; the copy writes the
+// stream's configuration last, so the rows must still come out right (verify compares them).
+TEST_CASE("CopyCli: an e-LOND stream into PostgreSQL verifies there, rows and all") {
+  auto admin = alphaledger::test_support::test_pg_uri();
+  if (!admin) return;
+  TempDir dir;
+  const std::string from = dir.sub("from");
+  REQUIRE(run_alphaledger(with_ledger(from, {"new", "e", "--rule", "e-lond"})).exit_code == 0);
+  auto piped = run_alphaledger(with_ledger(from, {"pipe", "e"}),
+                               "{\"id\":\"a\",\"e_value\":3.5}\n{\"id\":\"b\",\"e_value\":120}\n{\"id\":\"c\",\"e_value\":0.2}\n");
+  INFO(piped.out << piped.err);
+  REQUIRE(piped.exit_code == 0);
+  PgDatabase db(*admin);
+  auto up = run_alphaledger(with_ledger(from, {"copy", "e", "--to", db.uri()}));
+  INFO(up.out << up.err);
+  CHECK(up.exit_code == 0);
+  auto verified = run_alphaledger(with_ledger(db.uri(), {"verify", "e"}));
+  INFO(verified.out << verified.err);
+  CHECK(verified.exit_code == 0);
+}

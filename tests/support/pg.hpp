@@ -61,10 +61,10 @@ inline std::string uri_password(const std::string& uri) {
   return uri.substr(colon + 1, at - colon - 1);
 }
 
-// psql of the cluster's bin folder ($ALPHALEDGER_TEST_PG_BIN), else the one on PATH.
+// psql of the cluster's bin folder ($ALPHALEDGER_TEST_PG_BIN), else /usr/bin/psql (Debian's wrapper).
 inline std::string psql_program() {
   const std::string bin = env_or_empty("ALPHALEDGER_TEST_PG_BIN");
-  return bin.empty() ? std::string("psql") : bin + "/psql";
+  return bin.empty() ? std::string("/usr/bin/psql") : bin + "/psql";
 }
 
 // Runs one SQL command with psql on `uri`; fails the test with psql's message when it fails.
@@ -115,7 +115,7 @@ class PrivateCluster {
     // Not inside a TempDir: the cluster's folder must be reachable by the postgres user.
     dir_ = concat(tmp, "/alphaledger-test-pg-", std::to_string(::getpid()), "-", std::to_string(counter++));
     const std::string port = std::to_string(free_port());
-    auto r = run_process("bash", {script(), "start", dir_, port});
+    auto r = run_process("/bin/bash", {script(), "start", dir_, port});
     if (r.exit_code != 0) throw std::runtime_error(concat("pg_cluster.sh start failed: ", r.err));
     for (std::size_t at = r.out.find("export "); at != std::string::npos; at = r.out.find("export ", at + 1)) {
       const auto eq = r.out.find('=', at);
@@ -127,7 +127,7 @@ class PrivateCluster {
   }
   ~PrivateCluster() {
     try {
-      run_process("bash", {script(), "stop", dir_});
+      run_process("/bin/bash", {script(), "stop", dir_});
     } catch (...) {
     }
   }
@@ -136,8 +136,8 @@ class PrivateCluster {
 
   const std::string& uri() const { return uri_; }
   // pg_ctl -m immediate stop (as a crash would), then start again.
-  bool halt() { return run_process("bash", {script(), "halt", dir_}).exit_code == 0; }
-  bool resume() { return run_process("bash", {script(), "resume", dir_}).exit_code == 0; }
+  bool halt() { return run_process("/bin/bash", {script(), "halt", dir_}).exit_code == 0; }
+  bool resume() { return run_process("/bin/bash", {script(), "resume", dir_}).exit_code == 0; }
 
  private:
   static std::string script() { return std::string(ALPHALEDGER_SOURCE_DIR) + "/scripts/pg_cluster.sh"; }
