@@ -4,6 +4,7 @@
 #include <libpq-fe.h>
 
 #include <bit>
+#include <charconv>
 #include <cstring>
 #include <optional>
 #include <string>

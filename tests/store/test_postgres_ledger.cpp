@@ -133,18 +133,18 @@ TEST_CASE("PostgreSQL: two ledgers race on one stream from several threads; ever
   // Both create the same stream at once: one creates it, the other finds it.
   std::atomic<int> created{0};
   {
-    std::thread ta([&] {
-      auto r = a->create_stream("race", config_of({"lord++", 0.05}));
+    const RuleConfig config = config_of({"lord++", 0.05});
+    std::atomic<int> refused{0};
+    auto create = [&](Ledger& l) {
+      auto r = l.create_stream("race", config);
+      if (!r.ok()) ++refused;
       if (r.ok() && r->created) ++created;
-      CHECK(r.ok());
-    });
-    std::thread tb([&] {
-      auto r = b->create_stream("race", config_of({"lord++", 0.05}));
-      if (r.ok() && r->created) ++created;
-      CHECK(r.ok());
-    });
+    };
+    std::thread ta([&] { create(*a); });
+    std::thread tb([&] { create(*b); });
     ta.join();
     tb.join();
+    CHECK(refused.load() == 0);
   }
   CHECK(created.load() == 1);
 
@@ -161,7 +161,7 @@ TEST_CASE("PostgreSQL: two ledgers race on one stream from several threads; ever
         auto r = ledger.decide("race", store_test::numbered("id", n), p[n]);
         if (!r.ok()) {
           ++failures;
-          MESSAGE(r.error().message);
+          continue;
         }
         // The same id again through the other ledger: the stored decision, not a new one.
         if (i % 5 == 0) {

@@ -233,3 +233,24 @@ TEST_CASE("PostgreSQL: schema creation, no ledger for readers, unknown versions,
   CHECK(newer.error().kind == ErrorKind::kCorruption);
   CHECK(newer.error().message.find("version 99") != std::string::npos);
 }
+
+TEST_CASE("PostgreSQL: a refused password is a storage error that does not show the password") {
+  const auto server = test_pg_uri();
+  if (!server) {
+    MESSAGE("skipped: set ALPHALEDGER_TEST_PG to a PostgreSQL server URI to run it");
+    return;
+  }
+  pg_exec(*server, "DO $$ BEGIN IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = 'alphaledger_test_pw') "
+                   "THEN CREATE ROLE alphaledger_test_pw LOGIN PASSWORD 'the-right-one'; END IF; END $$");
+  const std::string uri =
+      *server + (server->find('?') == std::string::npos ? "?" : "&") + "user=alphaledger_test_pw&password=Wr0ngPassw0rd";
+  auto s = open_postgres_store(uri);
+  if (s.ok()) {
+    MESSAGE("skipped: the server lets alphaledger_test_pw in without checking its password (trust)");
+    return;
+  }
+  CHECK(s.error().kind == ErrorKind::kIOError);
+  CHECK(s.error().message.find("Wr0ngPassw0rd") == std::string::npos);
+  CHECK(s.error().message.find("password=***") != std::string::npos);
+  CHECK(s.error().message.find("authentication failed") != std::string::npos);
+}
