@@ -91,7 +91,7 @@ std::string clean_message(std::string_view message, std::string_view secret) {
   std::string out;
   out.reserve(message.size());
   for (char c : message) {
-    if (c == '\r') continue;
+    if (c == '\r' || c == '\t') continue;
     if (c == '\n') {
       out += "; ";
     } else {

@@ -132,10 +132,11 @@ class PostgresStore final : public Store {
                               nullptr};
     const char* values[] = {timeout.c_str(), "alphaledger", "UTF8", uri_.c_str(), nullptr};
     ConnPtr conn(PQconnectdbParams(keywords, values, 1));
-    if (!conn) return io_error(what + ": cannot connect to PostgreSQL at " + where_ + ": out of memory");
+    if (!conn) return io_error(what + ": cannot connect to the PostgreSQL server: out of memory");
     if (PQstatus(conn.get()) != CONNECTION_OK) {
-      return io_error(what + ": cannot connect to PostgreSQL at " + where_ + ": " +
-                      store::pg::clean_message(PQerrorMessage(conn.get()), secret_));
+      return io_error(what + ": cannot connect to the PostgreSQL server: " +
+                      store::pg::clean_message(PQerrorMessage(conn.get()), secret_) +
+                      " (check the URI, the server, and the credentials in the URI, PGPASSWORD or ~/.pgpass)");
     }
     PQsetNoticeProcessor(conn.get(), ignore_notice, nullptr);
     if (options_.read_only) {
