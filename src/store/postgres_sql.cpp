@@ -126,11 +126,13 @@ Error translate(PGconn* conn, const PGresult* result, const std::string& what, s
   const std::string_view state(PQresultErrorField(result, PG_DIAG_SQLSTATE));
   if (state == kMovedState || state == "40001" || state == "40P01" || state == "23505") {
     Error e = head_moved("the stream's head");
-    e.message = what + ": another writer changed the stream at the same time (" + message + "); read again and redo";
+    e.message =
+        what + ": another writer changed the stream at the same time (" + message + "); read again and redo";
     return e;
   }
   if (state == "25006") {
-    return io_error(what + ": the ledger was opened for reading only, or the server is a read-only standby (" +
+    return io_error(what +
+                    ": the ledger was opened for reading only, or the server is a read-only standby (" +
                     message + ")");
   }
   if (state == "42501") {

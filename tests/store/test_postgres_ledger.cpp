@@ -226,7 +226,8 @@ TEST_CASE("PostgreSQL: verify reports a decisions or streams row edited by hand,
   CHECK(clean->ok);
   // An analyst's query reads the decisions (the values the ledger returned).
   CHECK(pg_value(db.uri(), "SELECT id FROM alphaledger.decisions WHERE stream = 'x' AND step = 3") == "t3");
-  CHECK(pg_value(db.uri(), "SELECT rejected FROM alphaledger.decisions WHERE stream = 'x' AND step = 1") == "t");
+  CHECK(pg_value(db.uri(), "SELECT rejected FROM alphaledger.decisions WHERE stream = 'x' AND step = 1") ==
+        "t");
 
   SUBCASE("a level") {
     pg_exec(db.uri(), "UPDATE alphaledger.decisions SET level = 0.9 WHERE stream = 'x' AND step = 3");
@@ -238,7 +239,8 @@ TEST_CASE("PostgreSQL: verify reports a decisions or streams row edited by hand,
     CHECK(v->problem.find("column level") != std::string::npos);
   }
   SUBCASE("a rejection") {
-    pg_exec(db.uri(), "UPDATE alphaledger.decisions SET rejected = NOT rejected WHERE stream = 'x' AND step = 2");
+    pg_exec(db.uri(),
+            "UPDATE alphaledger.decisions SET rejected = NOT rejected WHERE stream = 'x' AND step = 2");
     auto v = ledger->verify("x");
     REQUIRE(v.ok());
     CHECK_FALSE(v->ok);

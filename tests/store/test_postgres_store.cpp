@@ -213,8 +213,9 @@ TEST_CASE("PostgreSQL: schema creation, no ledger for readers, unknown versions,
   // A user that may not create the schema: a clear storage error (exit 4).
   {
     ScratchDatabase empty(*server);
-    pg_exec(*server, "DO $$ BEGIN IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = 'alphaledger_test_reader') "
-                     "THEN CREATE ROLE alphaledger_test_reader LOGIN; END IF; END $$");
+    pg_exec(*server,
+            "DO $$ BEGIN IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = 'alphaledger_test_reader') "
+            "THEN CREATE ROLE alphaledger_test_reader LOGIN; END IF; END $$");
     pg_exec(*server, "REVOKE CREATE ON DATABASE " + empty.name() + " FROM PUBLIC");
     // The same server and database as the reader role (a query parameter overrides the URI's user).
     const std::string base = test_support::with_database(*server, empty.name());
@@ -240,10 +241,11 @@ TEST_CASE("PostgreSQL: a refused password is a storage error that does not show 
     MESSAGE("skipped: set ALPHALEDGER_TEST_PG to a PostgreSQL server URI to run it");
     return;
   }
-  pg_exec(*server, "DO $$ BEGIN IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = 'alphaledger_test_pw') "
-                   "THEN CREATE ROLE alphaledger_test_pw LOGIN PASSWORD 'the-right-one'; END IF; END $$");
-  const std::string uri =
-      *server + (server->find('?') == std::string::npos ? "?" : "&") + "user=alphaledger_test_pw&password=Wr0ngPassw0rd";
+  pg_exec(*server,
+          "DO $$ BEGIN IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = 'alphaledger_test_pw') "
+          "THEN CREATE ROLE alphaledger_test_pw LOGIN PASSWORD 'the-right-one'; END IF; END $$");
+  const std::string uri = *server + (server->find('?') == std::string::npos ? "?" : "&") +
+                          "user=alphaledger_test_pw&password=Wr0ngPassw0rd";
   auto s = open_postgres_store(uri);
   if (s.ok()) {
     MESSAGE("skipped: the server lets alphaledger_test_pw in without checking its password (trust)");
