@@ -4,6 +4,7 @@
 #include <libpq-fe.h>
 
 #include <bit>
+#include <charconv>
 #include <cstring>
 #include <optional>
 #include <string>
@@ -99,8 +100,9 @@ void append_optional_float(std::string& sql, const std::optional<double>& v) {
 }
 
 void append_decision(std::string& sql, std::string_view stream, const DecisionRow& row) {
-  sql += "INSERT INTO alphaledger.decisions (stream, step, id, kind, launch, p_value, e_value, level, rejected, "
-         "wealth, decided_at, hash) VALUES (";
+  sql +=
+      "INSERT INTO alphaledger.decisions (stream, step, id, kind, launch, p_value, e_value, level, rejected, "
+      "wealth, decided_at, hash) VALUES (";
   append_text(sql, stream);
   sql += ", " + std::to_string(row.step) + ", ";
   append_text(sql, row.id);
@@ -116,10 +118,11 @@ void append_decision(std::string& sql, std::string_view stream, const DecisionRo
   append_time(sql, row.decided_at_ms);
   sql += ", ";
   append_bytea(sql, row.hash);
-  sql += ") ON CONFLICT (stream, step) DO UPDATE SET id = EXCLUDED.id, kind = EXCLUDED.kind, "
-         "launch = EXCLUDED.launch, p_value = EXCLUDED.p_value, e_value = EXCLUDED.e_value, "
-         "level = EXCLUDED.level, rejected = EXCLUDED.rejected, wealth = EXCLUDED.wealth, "
-         "decided_at = EXCLUDED.decided_at, hash = EXCLUDED.hash;\n";
+  sql +=
+      ") ON CONFLICT (stream, step) DO UPDATE SET id = EXCLUDED.id, kind = EXCLUDED.kind, "
+      "launch = EXCLUDED.launch, p_value = EXCLUDED.p_value, e_value = EXCLUDED.e_value, "
+      "level = EXCLUDED.level, rejected = EXCLUDED.rejected, wealth = EXCLUDED.wealth, "
+      "decided_at = EXCLUDED.decided_at, hash = EXCLUDED.hash;\n";
 }
 
 }  // namespace
@@ -137,15 +140,17 @@ Status append_projection(std::string& sql, const WriteBatch& batch, const EValue
     }
     auto config = decode_config(op.value);
     if (!config) continue;
-    sql += "INSERT INTO alphaledger.streams (stream, rule, alpha, alternative, created_at, record_count, "
-           "closed_at) VALUES (";
+    sql +=
+        "INSERT INTO alphaledger.streams (stream, rule, alpha, alternative, created_at, record_count, "
+        "closed_at) VALUES (";
     append_text(sql, *stream);
     sql += ", '" + std::string(rule_name(config->config.kind)) + "', ";
     append_float(sql, config->config.alpha);
     sql += ", '" + std::string(alternative_name(config->alternative)) + "', ";
     append_time(sql, config->created_at_ms);
-    sql += ", 0, NULL) ON CONFLICT (stream) DO UPDATE SET rule = EXCLUDED.rule, alpha = EXCLUDED.alpha, "
-           "alternative = EXCLUDED.alternative, created_at = EXCLUDED.created_at;\n";
+    sql +=
+        ", 0, NULL) ON CONFLICT (stream) DO UPDATE SET rule = EXCLUDED.rule, alpha = EXCLUDED.alpha, "
+        "alternative = EXCLUDED.alternative, created_at = EXCLUDED.created_at;\n";
   }
   for (const auto& op : batch.ops) {
     if (auto stream = stream_of(op.key, "r/")) {
@@ -153,7 +158,8 @@ Status append_projection(std::string& sql, const WriteBatch& batch, const EValue
         // The step is the key's last 16 hex digits.
         const std::string_view hex = std::string_view(op.key).substr(op.key.rfind('/') + 1);
         std::uint64_t step = 0;
-        if (hex.size() != 16 || std::from_chars(hex.data(), hex.data() + hex.size(), step, 16).ec != std::errc())
+        if (hex.size() != 16 ||
+            std::from_chars(hex.data(), hex.data() + hex.size(), step, 16).ec != std::errc())
           continue;
         sql += "DELETE FROM alphaledger.decisions WHERE stream = ";
         append_text(sql, *stream);
@@ -168,7 +174,8 @@ Status append_projection(std::string& sql, const WriteBatch& batch, const EValue
     } else if (auto head_of = stream_of(op.key, "h/"); head_of && !op.erase) {
       auto head = decode_head(op.value);
       if (!head) continue;
-      sql += "UPDATE alphaledger.streams SET record_count = " + std::to_string(head->steps) + ", closed_at = ";
+      sql +=
+          "UPDATE alphaledger.streams SET record_count = " + std::to_string(head->steps) + ", closed_at = ";
       if (head->closed_at_ms) {
         append_time(sql, *head->closed_at_ms);
       } else {
@@ -195,11 +202,15 @@ class Fields {
  public:
   Fields(const PGresult* r, int row) : r_(r), row_(row) {}
   bool null(int col) const { return PQgetisnull(r_, row_, col) != 0; }
-  std::string_view bytes(int col) const { return {PQgetvalue(r_, row_, col), static_cast<std::size_t>(PQgetlength(r_, row_, col))}; }
+  std::string_view bytes(int col) const {
+    return {PQgetvalue(r_, row_, col), static_cast<std::size_t>(PQgetlength(r_, row_, col))};
+  }
   std::int64_t int64(int col) const { return static_cast<std::int64_t>(be64(PQgetvalue(r_, row_, col))); }
   double float8(int col) const { return std::bit_cast<double>(be64(PQgetvalue(r_, row_, col))); }
   bool boolean(int col) const { return PQgetvalue(r_, row_, col)[0] != 0; }
-  std::optional<double> opt_float8(int col) const { return null(col) ? std::nullopt : std::optional(float8(col)); }
+  std::optional<double> opt_float8(int col) const {
+    return null(col) ? std::nullopt : std::optional(float8(col));
+  }
 
  private:
   const PGresult* r_;
@@ -219,12 +230,15 @@ std::optional<std::string> first_difference(const DecisionRow& stored, const Dec
   const auto differs = [](std::string_view column, const std::string& is, const std::string& says) {
     return "column " + std::string(column) + " is " + is + ", the ledger entry says " + says;
   };
-  if (stored.id != expected.id) return differs("id", in_quotes(excerpt(stored.id)), in_quotes(excerpt(expected.id)));
+  if (stored.id != expected.id)
+    return differs("id", in_quotes(excerpt(stored.id)), in_quotes(excerpt(expected.id)));
   if (stored.kind != expected.kind) return differs("kind", excerpt(stored.kind), expected.kind);
   if (stored.launch != expected.launch)
     return differs("launch", std::to_string(stored.launch), std::to_string(expected.launch));
-  if (!same(stored.p_value, expected.p_value)) return differs("p_value", shown(stored.p_value), shown(expected.p_value));
-  if (!same(stored.e_value, expected.e_value)) return differs("e_value", shown(stored.e_value), shown(expected.e_value));
+  if (!same(stored.p_value, expected.p_value))
+    return differs("p_value", shown(stored.p_value), shown(expected.p_value));
+  if (!same(stored.e_value, expected.e_value))
+    return differs("e_value", shown(stored.e_value), shown(expected.e_value));
   if (!same_bits(stored.level, expected.level))
     return differs("level", readable_number(stored.level), readable_number(expected.level));
   if (stored.rejected != expected.rejected)
@@ -232,7 +246,8 @@ std::optional<std::string> first_difference(const DecisionRow& stored, const Dec
   if (!same_bits(stored.wealth, expected.wealth))
     return differs("wealth", readable_number(stored.wealth), readable_number(expected.wealth));
   if (stored.decided_at_ms != expected.decided_at_ms)
-    return differs("decided_at", format_timestamp(stored.decided_at_ms), format_timestamp(expected.decided_at_ms));
+    return differs("decided_at", format_timestamp(stored.decided_at_ms),
+                   format_timestamp(expected.decided_at_ms));
   if (stored.hash != expected.hash) return differs("hash", "another value", "the entry's own hash");
   return std::nullopt;
 }
@@ -248,7 +263,8 @@ ResultPtr run(PGconn* conn, const char* sql, const std::string& param, const std
 }  // namespace
 
 Result<std::optional<Store::ProjectionProblem>> check_projection(PGconn* conn, std::string_view stream,
-                                                                 const std::string& where, std::string_view secret) {
+                                                                 const std::string& where,
+                                                                 std::string_view secret) {
   using Problem = Store::ProjectionProblem;
   const std::string what = "cannot verify ledger " + where;
   const std::string name(stream);
@@ -259,9 +275,9 @@ Result<std::optional<Store::ProjectionProblem>> check_projection(PGconn* conn, s
   const std::string lo = record_prefix(stream);
   std::string hi = lo;
   hi.back() = static_cast<char>('/' + 1);
-  ResultPtr entries(run(conn,
-                        "SELECT value FROM alphaledger.entries WHERE key >= $1::bytea AND key < $2::bytea ORDER BY key",
-                        lo, hi, 2));
+  ResultPtr entries(run(
+      conn, "SELECT value FROM alphaledger.entries WHERE key >= $1::bytea AND key < $2::bytea ORDER BY key",
+      lo, hi, 2));
   if (PQresultStatus(entries.get()) != PGRES_TUPLES_OK) return fail(entries.get());
   ResultPtr rows(run(conn,
                      "SELECT step, id, kind, launch, p_value, e_value, level, rejected, wealth, "
@@ -269,7 +285,8 @@ Result<std::optional<Store::ProjectionProblem>> check_projection(PGconn* conn, s
                      "WHERE stream = $1::text ORDER BY step",
                      name));
   if (PQresultStatus(rows.get()) != PGRES_TUPLES_OK) return fail(rows.get());
-  ResultPtr config(run(conn, "SELECT value FROM alphaledger.entries WHERE key = $1::bytea", config_key(stream)));
+  ResultPtr config(
+      run(conn, "SELECT value FROM alphaledger.entries WHERE key = $1::bytea", config_key(stream)));
   if (PQresultStatus(config.get()) != PGRES_TUPLES_OK) return fail(config.get());
   ResultPtr head(run(conn, "SELECT value FROM alphaledger.entries WHERE key = $1::bytea", head_key(stream)));
   if (PQresultStatus(head.get()) != PGRES_TUPLES_OK) return fail(head.get());
@@ -289,23 +306,28 @@ Result<std::optional<Store::ProjectionProblem>> check_projection(PGconn* conn, s
   if (PQntuples(srow.get()) != 1) return std::optional<Problem>{Problem{0, table_row + " is missing"}};
   {
     const Fields f(srow.get(), 0);
-    StreamRow expected{std::string(rule_name(cfg->config.kind)), cfg->config.alpha,
-                       std::string(alternative_name(cfg->alternative)), cfg->created_at_ms, hd->steps,
+    StreamRow expected{std::string(rule_name(cfg->config.kind)),
+                       cfg->config.alpha,
+                       std::string(alternative_name(cfg->alternative)),
+                       cfg->created_at_ms,
+                       hd->steps,
                        hd->closed_at_ms};
     const auto differs = [&](std::string_view column, const std::string& is, const std::string& says) {
-      return std::optional<Problem>{
-          Problem{0, table_row + ": column " + std::string(column) + " is " + is + ", the ledger entries say " + says}};
+      return std::optional<Problem>{Problem{0, table_row + ": column " + std::string(column) + " is " + is +
+                                                   ", the ledger entries say " + says}};
     };
     if (f.bytes(0) != expected.rule) return differs("rule", excerpt(f.bytes(0)), expected.rule);
     if (!same_bits(f.float8(1), expected.alpha))
       return differs("alpha", readable_number(f.float8(1)), readable_number(expected.alpha));
-    if (f.bytes(2) != expected.alternative) return differs("alternative", excerpt(f.bytes(2)), expected.alternative);
+    if (f.bytes(2) != expected.alternative)
+      return differs("alternative", excerpt(f.bytes(2)), expected.alternative);
     if (f.int64(3) != expected.created_at_ms)
       return differs("created_at", format_timestamp(f.int64(3)), format_timestamp(expected.created_at_ms));
     if (static_cast<std::uint64_t>(f.int64(4)) != expected.record_count)
       return differs("record_count", std::to_string(f.int64(4)), std::to_string(expected.record_count));
     const std::optional<std::int64_t> closed = f.null(5) ? std::nullopt : std::optional(f.int64(5));
-    if (closed != expected.closed_at_ms) return differs("closed_at", shown_time(closed), shown_time(expected.closed_at_ms));
+    if (closed != expected.closed_at_ms)
+      return differs("closed_at", shown_time(closed), shown_time(expected.closed_at_ms));
   }
 
   const bool e_values = rule_takes_e_values(cfg->config.kind);
@@ -318,8 +340,8 @@ Result<std::optional<Store::ProjectionProblem>> check_projection(PGconn* conn, s
     if (!entry) continue;  // the chain check reports it
     const DecisionRow expected = row_of(*entry, e_values);
     if (j >= n_rows || static_cast<std::uint64_t>(Fields(rows.get(), j).int64(0)) > expected.step) {
-      return std::optional<Problem>{
-          Problem{expected.step, table + std::to_string(expected.step) + " is missing (the ledger has that entry)"}};
+      return std::optional<Problem>{Problem{
+          expected.step, table + std::to_string(expected.step) + " is missing (the ledger has that entry)"}};
     }
     const Fields f(rows.get(), j);
     const auto step = static_cast<std::uint64_t>(f.int64(0));

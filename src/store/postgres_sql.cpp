@@ -91,7 +91,7 @@ std::string clean_message(std::string_view message, std::string_view secret) {
   std::string out;
   out.reserve(message.size());
   for (char c : message) {
-    if (c == '\r') continue;
+    if (c == '\r' || c == '\t') continue;
     if (c == '\n') {
       out += "; ";
     } else {
@@ -126,11 +126,13 @@ Error translate(PGconn* conn, const PGresult* result, const std::string& what, s
   const std::string_view state(PQresultErrorField(result, PG_DIAG_SQLSTATE));
   if (state == kMovedState || state == "40001" || state == "40P01" || state == "23505") {
     Error e = head_moved("the stream's head");
-    e.message = what + ": another writer changed the stream at the same time (" + message + "); read again and redo";
+    e.message =
+        what + ": another writer changed the stream at the same time (" + message + "); read again and redo";
     return e;
   }
   if (state == "25006") {
-    return io_error(what + ": the ledger was opened for reading only, or the server is a read-only standby (" +
+    return io_error(what +
+                    ": the ledger was opened for reading only, or the server is a read-only standby (" +
                     message + ")");
   }
   if (state == "42501") {

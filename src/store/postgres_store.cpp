@@ -101,10 +101,7 @@ std::string password_of(const std::string& uri) {
 class PostgresStore final : public Store {
  public:
   PostgresStore(std::string uri, PostgresStoreOptions options)
-      : uri_(std::move(uri)),
-        where_(redact_uri(uri_)),
-        secret_(password_of(uri_)),
-        options_(options) {}
+      : uri_(std::move(uri)), where_(redact_uri(uri_)), secret_(password_of(uri_)), options_(options) {}
 
   ~PostgresStore() override = default;
 
@@ -132,10 +129,12 @@ class PostgresStore final : public Store {
                               nullptr};
     const char* values[] = {timeout.c_str(), "alphaledger", "UTF8", uri_.c_str(), nullptr};
     ConnPtr conn(PQconnectdbParams(keywords, values, 1));
-    if (!conn) return io_error(what + ": cannot connect to PostgreSQL at " + where_ + ": out of memory");
+    if (!conn) return io_error(what + ": cannot connect to the PostgreSQL server: out of memory");
     if (PQstatus(conn.get()) != CONNECTION_OK) {
-      return io_error(what + ": cannot connect to PostgreSQL at " + where_ + ": " +
-                      store::pg::clean_message(PQerrorMessage(conn.get()), secret_));
+      return io_error(
+          what + ": cannot connect to the PostgreSQL server: " +
+          store::pg::clean_message(PQerrorMessage(conn.get()), secret_) +
+          " (check the URI, the server, and the credentials in the URI, PGPASSWORD or ~/.pgpass)");
     }
     PQsetNoticeProcessor(conn.get(), ignore_notice, nullptr);
     if (options_.read_only) {
@@ -198,11 +197,14 @@ class PostgresStore final : public Store {
             return store::pg::translate(conn, r.get(), what, secret_);
           }
           if (PQntuples(r.get()) == 0) return std::optional<std::string>{};
-          return std::optional<std::string>{std::string(PQgetvalue(r.get(), 0, 0), PQgetlength(r.get(), 0, 0))};
+          return std::optional<std::string>{
+              std::string(PQgetvalue(r.get(), 0, 0), PQgetlength(r.get(), 0, 0))};
         });
   }
 
-  Status write(const WriteBatch& batch, bool sync) override { return write_checked(batch, nullptr, {}, sync); }
+  Status write(const WriteBatch& batch, bool sync) override {
+    return write_checked(batch, nullptr, {}, sync);
+  }
 
   Status write_if(const WriteBatch& batch, std::string_view key, const std::optional<std::string>& expected,
                   bool sync) override {
@@ -217,52 +219,54 @@ class PostgresStore final : public Store {
     while (!upper.empty() && static_cast<unsigned char>(upper.back()) == 0xff) upper.pop_back();
     if (!upper.empty()) upper.back() = static_cast<char>(static_cast<unsigned char>(upper.back()) + 1);
     bool visited = false;  // a scan that failed after visiting rows is not made again
-    return as_status(with_connection<std::monostate>(what, [&](PGconn* conn, bool& lost) -> Result<std::monostate> {
-      // One snapshot over all pages.
-      ResultPtr begin(PQexec(conn, "BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY"));
-      if (PQresultStatus(begin.get()) != PGRES_COMMAND_OK) {
-        lost = store::pg::connection_lost(conn, begin.get());
-        return store::pg::translate(conn, begin.get(), what, secret_);
-      }
-      std::string from(prefix);
-      bool first = true;
-      int limit = 64;
-      while (true) {
-        std::string sql = first ? "SELECT key, value FROM alphaledger.entries WHERE key >= $1"
-                                : "SELECT key, value FROM alphaledger.entries WHERE key > $1";
-        if (!upper.empty()) sql += " AND key < $2";
-        sql += " ORDER BY key LIMIT " + std::to_string(limit);
-        const char* values[] = {from.data(), upper.data()};
-        const int lengths[] = {static_cast<int>(from.size()), static_cast<int>(upper.size())};
-        const int formats[] = {1, 1};
-        const Oid types[] = {17, 17};
-        ResultPtr r(PQexecParams(conn, sql.c_str(), upper.empty() ? 1 : 2, types, values, lengths, formats, 1));
-        if (PQresultStatus(r.get()) != PGRES_TUPLES_OK) {
-          lost = !visited && store::pg::connection_lost(conn, r.get());
-          return store::pg::translate(conn, r.get(), what, secret_);
-        }
-        const int rows = PQntuples(r.get());
-        if (rows > 0) visited = true;
-        for (int i = 0; i < rows; ++i) {
-          const std::string_view k(PQgetvalue(r.get(), i, 0), PQgetlength(r.get(), i, 0));
-          const std::string_view v(PQgetvalue(r.get(), i, 1), PQgetlength(r.get(), i, 1));
-          if (!visit(k, v)) {
-            ResultPtr end(PQexec(conn, "COMMIT"));
-            return std::monostate{};
+    return as_status(
+        with_connection<std::monostate>(what, [&](PGconn* conn, bool& lost) -> Result<std::monostate> {
+          // One snapshot over all pages.
+          ResultPtr begin(PQexec(conn, "BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY"));
+          if (PQresultStatus(begin.get()) != PGRES_COMMAND_OK) {
+            lost = store::pg::connection_lost(conn, begin.get());
+            return store::pg::translate(conn, begin.get(), what, secret_);
           }
-          if (i + 1 == rows) from.assign(k);
-        }
-        if (rows < limit) break;
-        first = false;
-        limit = std::min(limit * 4, 4096);
-      }
-      ResultPtr end(PQexec(conn, "COMMIT"));
-      if (PQresultStatus(end.get()) != PGRES_COMMAND_OK) {
-        lost = !visited && store::pg::connection_lost(conn, end.get());
-        return store::pg::translate(conn, end.get(), what, secret_);
-      }
-      return std::monostate{};
-    }));
+          std::string from(prefix);
+          bool first = true;
+          int limit = 64;
+          while (true) {
+            std::string sql = first ? "SELECT key, value FROM alphaledger.entries WHERE key >= $1"
+                                    : "SELECT key, value FROM alphaledger.entries WHERE key > $1";
+            if (!upper.empty()) sql += " AND key < $2";
+            sql += " ORDER BY key LIMIT " + std::to_string(limit);
+            const char* values[] = {from.data(), upper.data()};
+            const int lengths[] = {static_cast<int>(from.size()), static_cast<int>(upper.size())};
+            const int formats[] = {1, 1};
+            const Oid types[] = {17, 17};
+            ResultPtr r(
+                PQexecParams(conn, sql.c_str(), upper.empty() ? 1 : 2, types, values, lengths, formats, 1));
+            if (PQresultStatus(r.get()) != PGRES_TUPLES_OK) {
+              lost = !visited && store::pg::connection_lost(conn, r.get());
+              return store::pg::translate(conn, r.get(), what, secret_);
+            }
+            const int rows = PQntuples(r.get());
+            if (rows > 0) visited = true;
+            for (int i = 0; i < rows; ++i) {
+              const std::string_view k(PQgetvalue(r.get(), i, 0), PQgetlength(r.get(), i, 0));
+              const std::string_view v(PQgetvalue(r.get(), i, 1), PQgetlength(r.get(), i, 1));
+              if (!visit(k, v)) {
+                ResultPtr end(PQexec(conn, "COMMIT"));
+                return std::monostate{};
+              }
+              if (i + 1 == rows) from.assign(k);
+            }
+            if (rows < limit) break;
+            first = false;
+            limit = std::min(limit * 4, 4096);
+          }
+          ResultPtr end(PQexec(conn, "COMMIT"));
+          if (PQresultStatus(end.get()) != PGRES_COMMAND_OK) {
+            lost = !visited && store::pg::connection_lost(conn, end.get());
+            return store::pg::translate(conn, end.get(), what, secret_);
+          }
+          return std::monostate{};
+        }));
   }
 
   std::string describe() const override { return where_; }
@@ -296,12 +300,14 @@ class PostgresStore final : public Store {
     const bool exists = std::string_view(PQgetvalue(found.get(), 0, 0)) == "t";
     if (!exists) {
       if (options_.read_only || !options_.create_if_missing) {
-        return not_found("no ledger at " + where_ + " (the database has no alphaledger schema; `new` creates it)",
-                         "no_ledger");
+        return not_found(
+            "no ledger at " + where_ + " (the database has no alphaledger schema; `new` creates it)",
+            "no_ledger");
       }
       ResultPtr made(PQexec(conn, kCreateSchema));
       if (PQresultStatus(made.get()) != PGRES_COMMAND_OK) {
-        Error e = store::pg::translate(conn, made.get(), what + ": cannot create the alphaledger schema", secret_);
+        Error e =
+            store::pg::translate(conn, made.get(), what + ": cannot create the alphaledger schema", secret_);
         return e;
       }
     }
@@ -309,13 +315,15 @@ class PostgresStore final : public Store {
     if (PQresultStatus(version.get()) != PGRES_TUPLES_OK)
       return store::pg::translate(conn, version.get(), what, secret_);
     if (PQntuples(version.get()) != 1) {
-      return corruption(what + ": alphaledger.schema_version holds " + std::to_string(PQntuples(version.get())) +
+      return corruption(what + ": alphaledger.schema_version holds " +
+                        std::to_string(PQntuples(version.get())) +
                         " rows, not 1: the schema is damaged or was not made by alphaledger");
     }
     const std::string v = PQgetvalue(version.get(), 0, 0);
     if (v != std::to_string(store::pg::kSchemaVersion)) {
-      return corruption(what + ": its schema has version " + excerpt(v, 20) + ", which this build of alphaledger " +
-                        "does not know (it reads version " + std::to_string(store::pg::kSchemaVersion) +
+      return corruption(what + ": its schema has version " + excerpt(v, 20) +
+                        ", which this build of alphaledger " + "does not know (it reads version " +
+                        std::to_string(store::pg::kSchemaVersion) +
                         "); use the alphaledger that made it, or a newer one");
     }
     return {};
@@ -357,9 +365,8 @@ class PostgresStore final : public Store {
         sql += ") ON CONFLICT (key) DO UPDATE SET value = EXCLUDED.value;\n";
       }
     }
-    auto projected = store::pg::append_projection(sql, batch, [&](std::string_view stream) {
-      return e_values_of(stream, batch);
-    });
+    auto projected = store::pg::append_projection(
+        sql, batch, [&](std::string_view stream) { return e_values_of(stream, batch); });
     if (!projected) return note_failure(projected.error());
     auto r = with_connection<std::monostate>(what, [&](PGconn* conn, bool& lost) -> Result<std::monostate> {
       // Tried again on a fresh connection when a connection from the pool had lost its server. Safe
@@ -426,7 +433,8 @@ class PostgresStore final : public Store {
 
 }  // namespace
 
-Result<std::unique_ptr<Store>> open_postgres_store(const std::string& uri, const PostgresStoreOptions& options) {
+Result<std::unique_ptr<Store>> open_postgres_store(const std::string& uri,
+                                                   const PostgresStoreOptions& options) {
   if (!is_postgres_uri(uri)) {
     return invalid_input("a PostgreSQL ledger location starts with postgresql:// or postgres://, got " +
                          excerpt(redact_uri(uri)));

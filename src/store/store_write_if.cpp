@@ -17,8 +17,8 @@ Error head_moved(std::string_view key) {
 // Correct for a store that only this object writes, and whose writers all come through here:
 // the compare and the write happen under one lock, so no other write_if() falls between them.
 // RocksDB uses it: it is never shared(), so the ledger does not call it there except in tests.
-Status Store::write_if(const WriteBatch& batch, std::string_view key, const std::optional<std::string>& expected,
-                       bool sync) {
+Status Store::write_if(const WriteBatch& batch, std::string_view key,
+                       const std::optional<std::string>& expected, bool sync) {
   static std::mutex mu;
   std::lock_guard lock(mu);
   auto now = get(key);

@@ -133,18 +133,18 @@ TEST_CASE("PostgreSQL: two ledgers race on one stream from several threads; ever
   // Both create the same stream at once: one creates it, the other finds it.
   std::atomic<int> created{0};
   {
-    std::thread ta([&] {
-      auto r = a->create_stream("race", config_of({"lord++", 0.05}));
+    const RuleConfig config = config_of({"lord++", 0.05});
+    std::atomic<int> refused{0};
+    auto create = [&](Ledger& l) {
+      auto r = l.create_stream("race", config);
+      if (!r.ok()) ++refused;
       if (r.ok() && r->created) ++created;
-      CHECK(r.ok());
-    });
-    std::thread tb([&] {
-      auto r = b->create_stream("race", config_of({"lord++", 0.05}));
-      if (r.ok() && r->created) ++created;
-      CHECK(r.ok());
-    });
+    };
+    std::thread ta([&] { create(*a); });
+    std::thread tb([&] { create(*b); });
     ta.join();
     tb.join();
+    CHECK(refused.load() == 0);
   }
   CHECK(created.load() == 1);
 
@@ -161,7 +161,7 @@ TEST_CASE("PostgreSQL: two ledgers race on one stream from several threads; ever
         auto r = ledger.decide("race", store_test::numbered("id", n), p[n]);
         if (!r.ok()) {
           ++failures;
-          MESSAGE(r.error().message);
+          continue;
         }
         // The same id again through the other ledger: the stored decision, not a new one.
         if (i % 5 == 0) {
@@ -226,7 +226,8 @@ TEST_CASE("PostgreSQL: verify reports a decisions or streams row edited by hand,
   CHECK(clean->ok);
   // An analyst's query reads the decisions (the values the ledger returned).
   CHECK(pg_value(db.uri(), "SELECT id FROM alphaledger.decisions WHERE stream = 'x' AND step = 3") == "t3");
-  CHECK(pg_value(db.uri(), "SELECT rejected FROM alphaledger.decisions WHERE stream = 'x' AND step = 1") == "t");
+  CHECK(pg_value(db.uri(), "SELECT rejected FROM alphaledger.decisions WHERE stream = 'x' AND step = 1") ==
+        "t");
 
   SUBCASE("a level") {
     pg_exec(db.uri(), "UPDATE alphaledger.decisions SET level = 0.9 WHERE stream = 'x' AND step = 3");
@@ -238,7 +239,8 @@ TEST_CASE("PostgreSQL: verify reports a decisions or streams row edited by hand,
     CHECK(v->problem.find("column level") != std::string::npos);
   }
   SUBCASE("a rejection") {
-    pg_exec(db.uri(), "UPDATE alphaledger.decisions SET rejected = NOT rejected WHERE stream = 'x' AND step = 2");
+    pg_exec(db.uri(),
+            "UPDATE alphaledger.decisions SET rejected = NOT rejected WHERE stream = 'x' AND step = 2");
     auto v = ledger->verify("x");
     REQUIRE(v.ok());
     CHECK_FALSE(v->ok);

@@ -213,8 +213,9 @@ TEST_CASE("PostgreSQL: schema creation, no ledger for readers, unknown versions,
   // A user that may not create the schema: a clear storage error (exit 4).
   {
     ScratchDatabase empty(*server);
-    pg_exec(*server, "DO $$ BEGIN IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = 'alphaledger_test_reader') "
-                     "THEN CREATE ROLE alphaledger_test_reader LOGIN; END IF; END $$");
+    pg_exec(*server,
+            "DO $$ BEGIN IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = 'alphaledger_test_reader') "
+            "THEN CREATE ROLE alphaledger_test_reader LOGIN; END IF; END $$");
     pg_exec(*server, "REVOKE CREATE ON DATABASE " + empty.name() + " FROM PUBLIC");
     // The same server and database as the reader role (a query parameter overrides the URI's user).
     const std::string base = test_support::with_database(*server, empty.name());
@@ -232,4 +233,26 @@ TEST_CASE("PostgreSQL: schema creation, no ledger for readers, unknown versions,
   REQUIRE_FALSE(newer.ok());
   CHECK(newer.error().kind == ErrorKind::kCorruption);
   CHECK(newer.error().message.find("version 99") != std::string::npos);
+}
+
+TEST_CASE("PostgreSQL: a refused password is a storage error that does not show the password") {
+  const auto server = test_pg_uri();
+  if (!server) {
+    MESSAGE("skipped: set ALPHALEDGER_TEST_PG to a PostgreSQL server URI to run it");
+    return;
+  }
+  pg_exec(*server,
+          "DO $$ BEGIN IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = 'alphaledger_test_pw') "
+          "THEN CREATE ROLE alphaledger_test_pw LOGIN PASSWORD 'the-right-one'; END IF; END $$");
+  const std::string uri = *server + (server->find('?') == std::string::npos ? "?" : "&") +
+                          "user=alphaledger_test_pw&password=Wr0ngPassw0rd";
+  auto s = open_postgres_store(uri);
+  if (s.ok()) {
+    MESSAGE("skipped: the server lets alphaledger_test_pw in without checking its password (trust)");
+    return;
+  }
+  CHECK(s.error().kind == ErrorKind::kIOError);
+  CHECK(s.error().message.find("Wr0ngPassw0rd") == std::string::npos);
+  CHECK(s.error().message.find("password=***") != std::string::npos);
+  CHECK(s.error().message.find("authentication failed") != std::string::npos);
 }

@@ -55,7 +55,8 @@ inline void pg_exec(const std::string& uri, const std::string& sql) {
     PQfinish(conn);
     throw std::runtime_error("cannot connect to the test server: " + message);
   }
-  PQsetNoticeProcessor(conn, [](void*, const char*) {}, nullptr);
+  PQsetNoticeProcessor(
+      conn, [](void*, const char*) {}, nullptr);
   PGresult* r = PQexec(conn, sql.c_str());
   const auto status = PQresultStatus(r);
   const std::string message = PQresultErrorMessage(r);
