@@ -14,7 +14,7 @@
 #
 # Roles and databases made by `start` (passwords are random, written only into DIR/env.sh):
 #   alphaledger_test  password login over TCP, owns database alphaledger_test, may create databases
-#                     (a test makes a fresh database of its own for each run)
+#                     and roles (tests make fresh databases, and roles with fewer rights)
 #   alphaledger_ro    password login, may read every table and schema alphaledger_test creates
 #                     (default privileges, set in template1 so every new database has them too)
 # The `export` lines: ALPHALEDGER_TEST_PG (URI of alphaledger_test), ALPHALEDGER_TEST_PG_RO (URI
@@ -123,7 +123,7 @@ EOF
   pw=$(random_password)
   ro_pw=$(random_password)
   psql_super -d postgres <<EOF
-CREATE ROLE alphaledger_test LOGIN CREATEDB PASSWORD '$pw';
+CREATE ROLE alphaledger_test LOGIN CREATEDB CREATEROLE PASSWORD '$pw';
 CREATE ROLE alphaledger_ro LOGIN PASSWORD '$ro_pw';
 EOF
   psql_super -d template1 <<EOF
