@@ -92,7 +92,8 @@ std::string slurp(const std::string& path) {
 
 // Runs a command to its end; dies with its stderr (which must not hold the password) on failure.
 void run(const std::vector<std::string>& args, const std::string& dir, const std::string& what) {
-  if (wait_exit(spawn(args, dir + "/run.out", dir + "/run.err")) != 0) die(what + " failed: " + slurp(dir + "/run.err"));
+  if (wait_exit(spawn(args, dir + "/run.out", dir + "/run.err")) != 0)
+    die(what + " failed: " + slurp(dir + "/run.err"));
 }
 
 std::string with_database(const std::string& uri, const std::string& db) {
@@ -106,7 +107,8 @@ std::string with_database(const std::string& uri, const std::string& db) {
 
 class Server {
  public:
-  Server(const Options& o, const std::string& ledger, const std::string& log, std::size_t threads) : log_(log) {
+  Server(const Options& o, const std::string& ledger, const std::string& log, std::size_t threads)
+      : log_(log) {
     pid_ = spawn({o.binary, "--ledger", ledger, "serve", "--listen", "127.0.0.1:0", "--access-log", "off",
                   "--threads", std::to_string(threads)},
                  log + ".out", log_);
@@ -147,7 +149,8 @@ std::unique_ptr<httplib::Client> client(int port) {
 
 double percentile(const std::vector<double>& sorted, double q) {
   if (sorted.empty()) return 0;
-  return sorted[std::min(sorted.size() - 1, static_cast<std::size_t>(q * static_cast<double>(sorted.size() - 1) + 0.5))];
+  return sorted[std::min(sorted.size() - 1,
+                         static_cast<std::size_t>(q * static_cast<double>(sorted.size() - 1) + 0.5))];
 }
 
 struct Scenario {
@@ -163,16 +166,19 @@ void run_scenario(const Options& o, const Scenario& s, int round) {
   const bool pg = std::string(s.backend) == "postgresql";
   const std::string dbname = "pg_load_" + std::to_string(::getpid()) + "_" + std::to_string(round);
   const std::string ledger = pg ? with_database(o.pg, dbname) : dir + "/db";
-  if (pg) run({o.psql, "-X", "-q", "-d", o.pg, "-c", "CREATE DATABASE " + dbname}, dir, "creating a database");
+  if (pg)
+    run({o.psql, "-X", "-q", "-d", o.pg, "-c", "CREATE DATABASE " + dbname}, dir, "creating a database");
   // The streams, made with the CLI before the servers start (the first also creates the schema).
   const int streams = s.shared ? 1 : s.clients;
   for (int k = 0; k < streams; ++k) {
-    run({o.binary, "--ledger", ledger, "new", "s" + std::to_string(k), "--rule", "lord++"}, dir, "alphaledger new");
+    run({o.binary, "--ledger", ledger, "new", "s" + std::to_string(k), "--rule", "lord++"}, dir,
+        "alphaledger new");
   }
   std::vector<std::unique_ptr<Server>> servers;
   const auto threads = static_cast<std::size_t>(s.clients) + 4;
   for (int r = 0; r < s.replicas; ++r) {
-    servers.push_back(std::make_unique<Server>(o, ledger, dir + "/server" + std::to_string(r) + ".log", threads));
+    servers.push_back(
+        std::make_unique<Server>(o, ledger, dir + "/server" + std::to_string(r) + ".log", threads));
   }
   const std::size_t per_client = std::max<std::size_t>(1, o.decisions / static_cast<std::size_t>(s.clients));
   std::vector<std::vector<double>> latency(static_cast<std::size_t>(s.clients));
@@ -188,7 +194,8 @@ void run_scenario(const Options& o, const Scenario& s, int round) {
       auto& lat = latency[static_cast<std::size_t>(c)];
       while (!go.load()) std::this_thread::yield();
       for (std::size_t n = 0; n < per_client; ++n) {
-        nlohmann::json body = {{"id", "c" + std::to_string(c) + "-" + std::to_string(n)}, {"p_value", unif(rng)}};
+        nlohmann::json body = {{"id", "c" + std::to_string(c) + "-" + std::to_string(n)},
+                               {"p_value", unif(rng)}};
         const auto t0 = SteadyClock::now();
         auto r = cli->Post(path.c_str(), body.dump(), "application/json");
         lat.push_back(std::chrono::duration<double, std::milli>(SteadyClock::now() - t0).count());
@@ -205,10 +212,12 @@ void run_scenario(const Options& o, const Scenario& s, int round) {
   for (auto& l : latency) all.insert(all.end(), l.begin(), l.end());
   std::sort(all.begin(), all.end());
   std::printf("%-11s %8d %-9s %7d %9zu %8.2f %12.0f %9.2f %9.2f %9.2f %6d\n", s.backend, s.replicas,
-              s.shared ? "shared" : "distinct", s.clients, all.size(), secs, static_cast<double>(all.size()) / secs,
-              percentile(all, 0.5), percentile(all, 0.99), all.empty() ? 0.0 : all.back(), failures.load());
+              s.shared ? "shared" : "distinct", s.clients, all.size(), secs,
+              static_cast<double>(all.size()) / secs, percentile(all, 0.5), percentile(all, 0.99),
+              all.empty() ? 0.0 : all.back(), failures.load());
   std::fflush(stdout);
-  if (pg) run({o.psql, "-X", "-q", "-d", o.pg, "-c", "DROP DATABASE " + dbname + " WITH (FORCE)"}, dir, "dropping");
+  if (pg)
+    run({o.psql, "-X", "-q", "-d", o.pg, "-c", "DROP DATABASE " + dbname + " WITH (FORCE)"}, dir, "dropping");
 }
 
 std::vector<int> parse_list(const std::string& text) {
@@ -254,8 +263,8 @@ int main(int argc, char** argv) {
   std::filesystem::create_directories(o.folder);
   std::printf("pg_load: %zu decisions per scenario, %u hardware threads\n", o.decisions,
               std::thread::hardware_concurrency());
-  std::printf("%-11s %8s %-9s %7s %9s %8s %12s %9s %9s %9s %6s\n", "backend", "replicas", "streams", "clients",
-              "decisions", "seconds", "decisions/s", "p50 ms", "p99 ms", "max ms", "failed");
+  std::printf("%-11s %8s %-9s %7s %9s %8s %12s %9s %9s %9s %6s\n", "backend", "replicas", "streams",
+              "clients", "decisions", "seconds", "decisions/s", "p50 ms", "p99 ms", "max ms", "failed");
   int round = 0;
   for (const bool shared : {false, true}) {
     for (const int c : o.clients) {

@@ -3,9 +3,10 @@
 // Store interface is used, so it works between any two stores.
 //
 // Example (compiled only):
-//   auto from = open_rocksdb_store("old.db", RocksStoreOptions{.create_if_missing = false, .read_only = true});
+//   RocksStoreOptions reading{.create_if_missing = false, .read_only = true};
+//   auto from = open_rocksdb_store("old.db", reading);
 //   auto to = open_rocksdb_store("new.db");
-//   auto copied = copy_stream(**from, **to, "checkout");  // CopySummary: records, keys, writes
+//   auto copied = copy_stream(**from, **to, "checkout");  // records, keys, writes
 //
 // Thread-safety: as the stores underneath; a writer on `from` during the copy makes it fail (below).
 #pragma once
@@ -24,9 +25,9 @@ struct CopyOptions {
 };
 
 struct CopySummary {
-  std::uint64_t records = 0;        // chain entries (r/ keys) copied
-  std::uint64_t keys = 0;           // every key copied, the configuration and the head included
-  std::uint64_t writes = 0;         // write() calls on the target, the cleanup of leftovers included
+  std::uint64_t records = 0;            // chain entries (r/ keys) copied
+  std::uint64_t keys = 0;               // every key copied, the configuration and the head included
+  std::uint64_t writes = 0;             // write() calls on the target, the cleanup of leftovers included
   std::uint64_t leftovers_removed = 0;  // keys of an earlier copy that stopped half-way, removed first
 };
 

@@ -19,7 +19,8 @@ struct CopyCommandOptions {
 
 // The store at a ledger location (a folder or a PostgreSQL URI), as the other commands open it.
 Result<std::unique_ptr<Store>> open_location(const std::string& location, bool for_reading) {
-  if (for_reading) return open_store_at(location, RocksStoreOptions{.create_if_missing = false, .read_only = true});
+  if (for_reading)
+    return open_store_at(location, RocksStoreOptions{.create_if_missing = false, .read_only = true});
   return open_store_at(location, RocksStoreOptions{.create_if_missing = true});
 }
 
@@ -43,9 +44,9 @@ void print_copied(const CopyCommandOptions& o, const std::string& from, const Co
     out << json_text(j) << '\n';
     return;
   }
-  out << "copied stream " << o.stream << " from " << shown(from) << " to " << shown(o.to) << ": " << copied.records
-      << " records, " << copied.keys << " keys in " << copied.writes << " writes; verify ok: " << report.steps
-      << " steps, chain hash " << report.chain_hash << "\n";
+  out << "copied stream " << o.stream << " from " << shown(from) << " to " << shown(o.to) << ": "
+      << copied.records << " records, " << copied.keys << " keys in " << copied.writes
+      << " writes; verify ok: " << report.steps << " steps, chain hash " << report.chain_hash << "\n";
 }
 
 Status run_copy(const CopyCommandOptions& o, const GlobalOptions& g, std::ostream& out) {
@@ -87,7 +88,8 @@ void add_copy_command(CLI::App& app, CommandContext& ctx) {
       "copy one stream (its whole history) from --ledger into another ledger location, then verify the copy; "
       "the source is only read");
   sub->add_option("stream", o->stream, "stream name")->required();
-  sub->add_option("--to", o->to, "the ledger location to copy into; it must not have the stream yet")->required();
+  sub->add_option("--to", o->to, "the ledger location to copy into; it must not have the stream yet")
+      ->required();
   sub->callback([&ctx, o] { ctx.run = [&ctx, o] { return run_copy(*o, ctx.global, std::cout); }; });
 }
 

@@ -26,7 +26,8 @@ std::array<std::string, 4> family_prefixes(std::string_view stream) {
 // Collects ops and writes them to `to` every `limit` ops.
 class BatchWriter {
  public:
-  BatchWriter(Store& to, std::size_t limit, CopySummary& summary) : to_(to), limit_(limit), summary_(summary) {}
+  BatchWriter(Store& to, std::size_t limit, CopySummary& summary)
+      : to_(to), limit_(limit), summary_(summary) {}
 
   Status add_put(std::string_view key, std::string_view value) {
     batch_.put(std::string(key), std::string(value));
@@ -82,8 +83,9 @@ Status check_formats(Store& from, Store& to, BatchWriter& writer) {
   auto scanned = to.scan("", [&](std::string_view, std::string_view) { return empty = false; });
   if (!scanned) return from_store(scanned.error(), "reading", to);
   if (!empty) {
-    return conflict(to.describe() + " holds data but no ledger format version: not a ledger; copy into "
-                                    "a ledger or an empty location",
+    return conflict(to.describe() +
+                        " holds data but no ledger format version: not a ledger; copy into "
+                        "a ledger or an empty location",
                     "not_a_ledger");
   }
   if (auto s = writer.add_put(store::kFormatKey, **from_format); !s) return s;
@@ -103,7 +105,8 @@ Result<CopySummary> copy_stream(Store& from, Store& to, std::string_view stream,
   auto head = from.get(head_key);
   if (!head) return from_store(head.error(), "reading", from);
   if (!*config || !*head) {
-    return not_found("no stream named " + in_quotes(stream) + " in ledger " + from.describe(), "unknown_stream");
+    return not_found("no stream named " + in_quotes(stream) + " in ledger " + from.describe(),
+                     "unknown_stream");
   }
   for (const auto* key : {&config_key, &head_key}) {
     auto there = to.get(*key);

@@ -30,25 +30,33 @@ void make_source(const std::string& db) {
   std::string lines;
   for (int i = 0; i < 30; ++i) {
     lines += alphaledger::test_support::concat(R"({"id":"t)", std::to_string(i), R"(","p_value":)",
-                                                std::to_string((i * 37 % 101) / 1000.0), "}\n");
+                                               std::to_string((i * 37 % 101) / 1000.0), "}\n");
   }
-  lines += R"({"event":"launch","id":"w"})" "\n";
-  lines += R"({"event":"look","id":"w","control":{"n":8000,"conversions":400},"treatment":{"n":8000,"conversions":430},"mixture_sd":0.005})" "\n";
-  lines += R"({"event":"launch","id":"gone"})" "\n";
-  lines += R"({"event":"abandon","id":"gone"})" "\n";
-  lines += R"({"event":"launch","id":"still"})" "\n";
+  lines += R"({"event":"launch","id":"w"})"
+           "\n";
+  lines +=
+      R"({"event":"look","id":"w","control":{"n":8000,"conversions":400},"treatment":{"n":8000,"conversions":430},"mixture_sd":0.005})"
+      "\n";
+  lines += R"({"event":"launch","id":"gone"})"
+           "\n";
+  lines += R"({"event":"abandon","id":"gone"})"
+           "\n";
+  lines += R"({"event":"launch","id":"still"})"
+           "\n";
   auto piped = run_alphaledger(with_ledger(db, {"pipe", "s"}), lines);
   INFO(piped.out << piped.err);
   REQUIRE(piped.exit_code == 0);
-  REQUIRE(run_alphaledger(with_ledger(db, {"pipe", "s.b"}), R"({"id":"x","p_value":0.2})" "\n").exit_code == 0);
+  REQUIRE(run_alphaledger(with_ledger(db, {"pipe", "s.b"}), R"({"id":"x","p_value":0.2})"
+                                                            "\n")
+              .exit_code == 0);
 }
 
 // What a reader sees of stream s: history, the running tests, status without times.
 std::string view_of(const std::string& location, const std::string& stream) {
   std::string out;
-  for (std::vector<std::string> args : {std::vector<std::string>{"history", stream, "--format", "jsonl"},
-                                        std::vector<std::string>{"running", stream},
-                                        std::vector<std::string>{"verify", stream}}) {
+  for (std::vector<std::string> args :
+       {std::vector<std::string>{"history", stream, "--format", "jsonl"},
+        std::vector<std::string>{"running", stream}, std::vector<std::string>{"verify", stream}}) {
     auto r = run_alphaledger(with_ledger(location, args));
     INFO(args[0] << ": " << r.err);
     CHECK(r.exit_code == 0);
@@ -66,7 +74,8 @@ TEST_CASE("CopyCli: folder to folder, the copy reads and verifies as the source;
   auto copied = run_alphaledger(with_ledger(from, {"copy", "s", "--to", to}));
   INFO(copied.err);
   REQUIRE(copied.exit_code == 0);
-  CHECK(copied.out.find(alphaledger::test_support::concat("copied stream s from ", from, " to ", to, ": 35 records")) == 0);
+  CHECK(copied.out.find(alphaledger::test_support::concat("copied stream s from ", from, " to ", to,
+                                                          ": 35 records")) == 0);
   CHECK(copied.out.find("verify ok: 35 steps, chain hash ") != std::string::npos);
   CHECK(view_of(to, "s") == view_of(from, "s"));
   auto streams = run_alphaledger(with_ledger(to, {"streams"}));
@@ -142,8 +151,9 @@ TEST_CASE("CopyCli: an e-LOND stream into PostgreSQL verifies there, rows and al
   TempDir dir;
   const std::string from = dir.sub("from");
   REQUIRE(run_alphaledger(with_ledger(from, {"new", "e", "--rule", "e-lond"})).exit_code == 0);
-  auto piped = run_alphaledger(with_ledger(from, {"pipe", "e"}),
-                               "{\"id\":\"a\",\"e_value\":3.5}\n{\"id\":\"b\",\"e_value\":120}\n{\"id\":\"c\",\"e_value\":0.2}\n");
+  auto piped = run_alphaledger(
+      with_ledger(from, {"pipe", "e"}),
+      "{\"id\":\"a\",\"e_value\":3.5}\n{\"id\":\"b\",\"e_value\":120}\n{\"id\":\"c\",\"e_value\":0.2}\n");
   INFO(piped.out << piped.err);
   REQUIRE(piped.exit_code == 0);
   PgDatabase db(*admin);

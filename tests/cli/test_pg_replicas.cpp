@@ -27,9 +27,9 @@
 namespace alphaledger {
 namespace {
 
+using test_support::BackgroundProcess;
 using test_support::PgDatabase;
 using test_support::run_alphaledger;
-using test_support::BackgroundProcess;
 using test_support::TempDir;
 
 constexpr int kClients = 8;
@@ -105,13 +105,15 @@ class Replicas {
   }
   std::string logs() const {
     std::string out;
-    for (const auto& f : log_files_) out += test_support::concat(f, ":\n", test_support::read_file(f).substr(0, 4000), "\n");
+    for (const auto& f : log_files_)
+      out += test_support::concat(f, ":\n", test_support::read_file(f).substr(0, 4000), "\n");
     return out;
   }
 
  private:
   void start(int r) {
-    const std::string log = dir_.file(test_support::concat(test_support::tag("replica-", r), "-", std::to_string(starts_++), ".log"));
+    const std::string log = dir_.file(
+        test_support::concat(test_support::tag("replica-", r), "-", std::to_string(starts_++), ".log"));
     log_files_.push_back(log);
     servers_[r] = std::make_unique<ServeProcess>(
         ledger_, log, std::vector<std::string>{"--token-file", token_file_, "--access-log", "off"});
@@ -132,7 +134,7 @@ struct Run {
   std::vector<std::string> problems;
   std::atomic<int> acked{0};
   std::atomic<int> retries{0};
-  std::atomic<int> unavailable{0};  // 503 answers
+  std::atomic<int> unavailable{0};                    // 503 answers
   std::map<std::string, std::set<std::string>> sent;  // stream -> ids sent
 
   void problem(std::string text) {
@@ -143,8 +145,8 @@ struct Run {
 
 // Sends one decision until a replica acknowledges it (201 new, 200 repeat), trying the replicas
 // in turn. Connection errors and 5xx answers are retried; anything else is a problem.
-std::optional<nlohmann::json> decide(Replicas& replicas, Run& run, int first_replica, const std::string& stream,
-                                     const std::string& id, double p) {
+std::optional<nlohmann::json> decide(Replicas& replicas, Run& run, int first_replica,
+                                     const std::string& stream, const std::string& id, double p) {
   nlohmann::json body = {{"id", id}, {"p_value", p}};
   const auto deadline = std::chrono::steady_clock::now() + kRequestDeadline;
   for (int attempt = 0; std::chrono::steady_clock::now() < deadline; ++attempt) {
@@ -154,12 +156,14 @@ std::optional<nlohmann::json> decide(Replicas& replicas, Run& run, int first_rep
     }
     const int port = replicas.port((first_replica + attempt) % 2);
     if (port == 0) continue;  // being restarted
-    const auto res = test_support::http_post(port, test_support::concat("/v1/streams/", stream, "/tests"), body.dump(), kToken);
+    const auto res = test_support::http_post(port, test_support::concat("/v1/streams/", stream, "/tests"),
+                                             body.dump(), kToken);
     if (res.status == 0) continue;  // refused, reset: the decision may or may not be made; resending is safe
     if (res.status == 503) ++run.unavailable;
     if (res.status >= 500) continue;
     if (res.status != 200 && res.status != 201) {
-      run.problem(test_support::concat(stream, "/", id, ": HTTP ", std::to_string(res.status), " ", res.body.substr(0, 300)));
+      run.problem(test_support::concat(stream, "/", id, ": HTTP ", std::to_string(res.status), " ",
+                                       res.body.substr(0, 300)));
       return std::nullopt;
     }
     auto j = nlohmann::json::parse(res.body, nullptr, false);
@@ -189,13 +193,18 @@ void client_loop(Replicas& replicas, Run& run, int client) {
     }
     auto answer = decide(replicas, run, client + i, stream, id, p);
     if (!answer) continue;
-    Ack ack{stream, id, p, (*answer)["step"].get<std::uint64_t>(), (*answer)["level"].get<double>(),
+    Ack ack{stream,
+            id,
+            p,
+            (*answer)["step"].get<std::uint64_t>(),
+            (*answer)["level"].get<double>(),
             (*answer)["rejected"].get<int>()};
     if (i % 4 == 1) {  // the same id again, through the other replica first: the same answer
       auto again = decide(replicas, run, client + i + 1, stream, id, p);
       if (again && ((*again)["repeat"] != true || (*again)["step"] != ack.step ||
                     (*again)["level"].get<double>() != ack.level || (*again)["rejected"] != ack.rejected)) {
-        run.problem(test_support::concat(stream, "/", id, ": the resend answered ", again->dump(), ", first ", answer->dump()));
+        run.problem(test_support::concat(stream, "/", id, ": the resend answered ", again->dump(), ", first ",
+                                         answer->dump()));
       }
     }
     std::lock_guard lock(run.mu);
@@ -207,7 +216,9 @@ void client_loop(Replicas& replicas, Run& run, int client) {
 // Every stream's history holds each sent id exactly once, each acknowledged one at the step and
 // level it was answered with; steps are 1..n; verify passes.
 void check_ledger(const std::string& ledger, Run& run) {
-  INFO("problems: " << run.problems.size() << (run.problems.empty() ? std::string() : test_support::concat(", first: ", run.problems[0])));
+  INFO("problems: " << run.problems.size()
+                    << (run.problems.empty() ? std::string()
+                                             : test_support::concat(", first: ", run.problems[0])));
   CHECK(run.problems.empty());
   CHECK(run.acked.load() == kClients * kRequestsPerClient);
   std::map<std::string, std::map<std::string, nlohmann::json>> stored;  // stream -> id -> row
@@ -338,7 +349,8 @@ TEST_CASE("PgReplicas: bad connections give clear errors and exit codes, never t
   SUBCASE("an unreachable server (a closed port): storage error, exit 4") {
     const auto at = db.uri().find('@');
     const auto slash = db.uri().find('/', at);
-    const std::string closed = test_support::concat(db.uri().substr(0, at + 1), "127.0.0.1:1", db.uri().substr(slash));
+    const std::string closed =
+        test_support::concat(db.uri().substr(0, at + 1), "127.0.0.1:1", db.uri().substr(slash));
     auto status = run_alphaledger(with_ledger(closed, {"status", "s"}));
     INFO(status.err);
     CHECK(status.exit_code == 4);

@@ -47,7 +47,8 @@ void fill(Ledger& ledger) {
 }
 
 // Every key of `m` whose key names stream `stream` (family letter, '/', stream, then '/' or end).
-std::map<std::string, std::string> keys_of(const std::map<std::string, std::string>& m, const std::string& stream) {
+std::map<std::string, std::string> keys_of(const std::map<std::string, std::string>& m,
+                                           const std::string& stream) {
   std::map<std::string, std::string> out;
   for (const auto& [k, v] : m) {
     if (k.size() < 2 + stream.size() || k.compare(2, stream.size(), stream) != 0) continue;
@@ -87,7 +88,7 @@ TEST_CASE("copy_stream: every key of the stream, byte for byte, in small writes;
   const auto target = copy_contents(to_mem);
   auto expected = keys_of(source, "s");
   expected.emplace("m/format", source.at("m/format"));
-  CHECK(target == expected);  // nothing of "s.b" or "s2", nothing else
+  CHECK(target == expected);         // nothing of "s.b" or "s2", nothing else
   CHECK(copied->records == 40 + 3);  // 40 decisions, 2 launches, 1 look
   CHECK(copied->keys == expected.size() - 1);
   // The format key alone, then ceil(families' keys / 7), then the configuration and head.
@@ -127,8 +128,8 @@ TEST_CASE("copy_stream: into a ledger that has other streams; refused when the s
     REQUIRE_FALSE(again.ok());
     CHECK(again.error().kind == ErrorKind::kConflict);
     CHECK(again.error().code == "stream_exists");
-    CHECK(again.error().message.find(alphaledger::test_support::concat("already has a stream named '", name, "'")) !=
-          std::string::npos);
+    CHECK(again.error().message.find(alphaledger::test_support::concat("already has a stream named '", name,
+                                                                       "'")) != std::string::npos);
     CHECK(copy_contents(to_mem) == before);
   }
   CHECK(open_over(to_mem)->verify("s")->ok);
@@ -165,7 +166,8 @@ TEST_CASE("copy_stream: a copy that stops half-way leaves no stream, and a secon
   FaultyStore faulty(to_mem);
   SUBCASE("fails in the middle") { faulty.fail_write_in(4); }
   SUBCASE("fails at the last write, the configuration and head") {
-    auto dry = copy_stream(from_mem, *std::make_unique<MemoryStore>(), "s", CopyOptions{.keys_per_write = 10});
+    auto dry =
+        copy_stream(from_mem, *std::make_unique<MemoryStore>(), "s", CopyOptions{.keys_per_write = 10});
     REQUIRE(dry.ok());
     faulty.fail_write_in(dry->writes);
   }

@@ -43,7 +43,8 @@ inline HttpReply http_post(int port, const std::string& path, const std::string&
   if (::connect(fd, reinterpret_cast<sockaddr*>(&a), sizeof a) != 0) return done();
   std::string request = concat("POST ", path, " HTTP/1.1\r\nHost: 127.0.0.1\r\nConnection: close\r\n");
   if (!bearer_token.empty()) request += concat("Authorization: Bearer ", bearer_token, "\r\n");
-  request += concat("Content-Type: application/json\r\nContent-Length: ", std::to_string(body.size()), "\r\n\r\n", body);
+  request += concat("Content-Type: application/json\r\nContent-Length: ", std::to_string(body.size()),
+                    "\r\n\r\n", body);
   for (std::size_t sent = 0; sent < request.size();) {
     const ssize_t n = ::send(fd, request.data() + sent, request.size() - sent, MSG_NOSIGNAL);
     if (n <= 0) return done();

@@ -4,8 +4,8 @@
 // runs never see each other's streams.
 #pragma once
 
-#include <doctest/doctest.h>
 #include <arpa/inet.h>
+#include <doctest/doctest.h>
 #include <netinet/in.h>
 #include <sys/socket.h>
 #include <unistd.h>
@@ -32,8 +32,9 @@ inline std::string env_or_empty(const char* name) {
 inline std::optional<std::string> test_pg_uri() {
   std::string uri = env_or_empty("ALPHALEDGER_TEST_PG");
   if (uri.empty()) {
-    MESSAGE("skipped: no PostgreSQL for the tests; start one with scripts/pg_cluster.sh start DIR and "
-            "eval its output (docs/testing.md, \"PostgreSQL\")");
+    MESSAGE(
+        "skipped: no PostgreSQL for the tests; start one with scripts/pg_cluster.sh start DIR and "
+        "eval its output (docs/testing.md, \"PostgreSQL\")");
     return std::nullopt;
   }
   return uri;
@@ -90,7 +91,8 @@ class PgDatabase {
   }
   ~PgDatabase() {
     try {
-      run_process(psql_program(), {"-X", "-q", "-d", admin_uri_, "-c", concat("DROP DATABASE IF EXISTS ", name_, " WITH (FORCE)")});
+      run_process(psql_program(), {"-X", "-q", "-d", admin_uri_, "-c",
+                                   concat("DROP DATABASE IF EXISTS ", name_, " WITH (FORCE)")});
     } catch (...) {
     }
   }
@@ -117,13 +119,15 @@ class PrivateCluster {
     const std::string port = std::to_string(free_port());
     auto r = run_process("/bin/bash", {script(), "start", dir_, port});
     if (r.exit_code != 0) throw std::runtime_error(concat("pg_cluster.sh start failed: ", r.err));
-    for (std::size_t at = r.out.find("export "); at != std::string::npos; at = r.out.find("export ", at + 1)) {
+    for (std::size_t at = r.out.find("export "); at != std::string::npos;
+         at = r.out.find("export ", at + 1)) {
       const auto eq = r.out.find('=', at);
       const auto nl = r.out.find('\n', at);
       const std::string name = r.out.substr(at + 7, eq - at - 7);
       if (name == "ALPHALEDGER_TEST_PG") uri_ = r.out.substr(eq + 1, nl - eq - 1);
     }
-    if (uri_.empty()) throw std::runtime_error(concat("pg_cluster.sh printed no ALPHALEDGER_TEST_PG: ", r.out));
+    if (uri_.empty())
+      throw std::runtime_error(concat("pg_cluster.sh printed no ALPHALEDGER_TEST_PG: ", r.out));
   }
   ~PrivateCluster() {
     try {
