@@ -112,10 +112,13 @@ show_ratio "256 per synced write" "$(ops_per_s "$out/ledger.txt" "decide_batch, 
   "$(per_s "$out/sqlite.txt" 256)" sqlite
 show_ratio "4096 per synced write ($group_total decisions)" \
   "$(ops_per_s "$out/ledger-group.txt" "decide_batch, 4096 per synced write")" "$(per_s "$out/sqlite.txt" 4096)" sqlite
-if command -v pg_isready >/dev/null && pg_isready -q -h 127.0.0.1 2>/dev/null; then
-  echo "note: a PostgreSQL server answers on 127.0.0.1, but this script has no PostgreSQL client loop yet"
+# The PostgreSQL ledger backend through `serve` (bench/pg_bench.sh starts a throwaway cluster).
+if compgen -G "/usr/lib/postgresql/*/bin/initdb" >/dev/null || [[ -n "${ALPHALEDGER_PG_BIN:-}" ]]; then
+  echo "== serve on RocksDB against PostgreSQL, one and two replicas (bench/pg_bench.sh)"
+  cmake --build "$bdir" -j2 --target pg_load >/dev/null
+  ALPHALEDGER_BENCH_BUILD="$bdir" bench/pg_bench.sh --decisions "$([[ $quick == 1 ]] && echo 500 || echo 2000)"
 else
-  echo "note: no PostgreSQL server answers on 127.0.0.1 (pg_isready): PostgreSQL comparison skipped"
+  echo "note: no PostgreSQL server programs (Debian package postgresql): PostgreSQL comparison skipped"
 fi
 
 echo "== reading a log: replay against awk, $rows rows"

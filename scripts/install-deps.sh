@@ -10,7 +10,9 @@ packages=(g++ cmake ninja-build libboost-math-dev libspdlog-dev libcli11-dev lib
           python3-pip python3-setuptools python3-wheel python3-venv  # the offline pip install (ctest python_install)
           libjs-chart.js                # Chart.js, embedded into the HTML reports (docs/reports.md)
           chromium                      # a real browser for the report tests (tests/cli/test_report_cli.cpp)
-          firefox-esr)                  # the second browser the reports are rendered in (same tests)
+          firefox-esr                   # the second browser the reports are rendered in (same tests)
+          libpq-dev                     # the PostgreSQL ledger backend (docs/postgresql.md)
+          postgresql)                   # the throwaway cluster of the PostgreSQL tests (scripts/pg_cluster.sh)
 if [ "${1:-}" = "--with-references" ]; then
   # Only to regenerate reference values in tests/data (R's stats, SciPy).
   packages+=(r-base-core python3-scipy)

@@ -244,12 +244,14 @@ struct HistoryPage {
 
 class Ledger {
  public:
-  // Opens (creating if absent) the RocksDB ledger in folder `path`.
+  // Opens (creating if absent) the ledger at `path`: a RocksDB folder, or the PostgreSQL database a
+  // postgresql:// or postgres:// URI names (open_store_at in store.hpp; docs/postgresql.md).
   // Errors: locked by another process (kBusy, names the lock), corrupt (kCorruption), newer format,
-  // unwritable folder.
+  // unwritable folder; for PostgreSQL: server unreachable or login refused (kIOError).
   static Result<std::unique_ptr<Ledger>> open(const std::string& path, Clock clock = system_clock_ms);
-  // The same with store options; with create_if_missing == false a folder holding no ledger is
-  // kNotFound ("no ledger at ...", code no_ledger) and nothing is created (read-only commands use this).
+  // The same with store options; with create_if_missing == false a folder (or database) holding no
+  // ledger is kNotFound ("no ledger at ...", code no_ledger) and nothing is created (read-only
+  // commands use this). For PostgreSQL only create_if_missing and read_only apply.
   static Result<std::unique_ptr<Ledger>> open(const std::string& path, const RocksStoreOptions& options,
                                               Clock clock = system_clock_ms);
   // Over any Store (tests: in-memory or fault-injecting). An empty store gets the format version

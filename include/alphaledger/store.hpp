@@ -1,6 +1,7 @@
 // The narrow storage interface under the ledger: ordered keys and values, atomic write batches,
-// prefix scans. Two implementations: RocksDB (a folder on disk, the real ledger) and an in-memory
-// store (tests, examples). A library user may implement Store over any ordered key-value store.
+// prefix scans. Three implementations: RocksDB (a folder on disk, the default ledger), PostgreSQL
+// (a database several processes share; docs/postgresql.md) and an in-memory store (tests,
+// examples). A library user may implement Store over any ordered key-value store.
 //
 // The ledger's key layout and value grammar are in docs/ledger-format.md; nothing here knows
 // about streams or records.
@@ -72,7 +73,36 @@ class Store {
   // Why the last write failed, if it did and no write has succeeded since; std::nullopt when
   // storage is healthy as far as this store knows (the HTTP health route reports it).
   virtual std::optional<std::string> failing() const { return std::nullopt; }
+
+  // Applies `batch` as write() does, but only if the value at `key` is still `expected`
+  // (std::nullopt: `key` is still absent), checked and written atomically. Otherwise nothing is
+  // written and the error is kConflict with code "head_moved" (another writer got there first:
+  // read again and redo). The ledger calls it only on a shared() store, once per write, with the
+  // stream's head key. The default implementation is correct for a store that only this object
+  // writes; the shipped stores override it.
+  virtual Status write_if(const WriteBatch& batch, std::string_view key,
+                          const std::optional<std::string>& expected, bool sync = true);
+
+  // True when other processes may write this store while it is open (PostgreSQL): the ledger
+  // then re-reads each stream's head before using its cached state and writes with write_if().
+  // False (the default) for a store this process owns alone (RocksDB, memory).
+  virtual bool shared() const { return false; }
+
+  // For stores that keep a readable copy of the ledger beside its bytes (PostgreSQL's decisions
+  // and streams tables): the first row of `stream` that differs from what its entries decode to,
+  // or std::nullopt when all agree (and always for stores without such a copy). verify reports it.
+  struct ProjectionProblem {
+    std::uint64_t step = 0;  // the chain entry whose row differs; 0 for the stream's own row
+    std::string problem;     // names the table, the stream, the step and the column
+  };
+  virtual Result<std::optional<ProjectionProblem>> check_projection(std::string_view /*stream*/) {
+    return std::optional<ProjectionProblem>{};
+  }
 };
+
+// The error write_if() returns when the value at its key moved (kConflict, code "head_moved").
+Error head_moved(std::string_view key);
+inline bool is_head_moved(const Error& e) { return e.kind == ErrorKind::kConflict && e.code == "head_moved"; }
 
 struct RocksStoreOptions {
   bool create_if_missing = true;  // Default: true (the default ledger location needs no set-up)
@@ -104,11 +134,49 @@ struct RocksStoreOptions {
 Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path,
                                                   const RocksStoreOptions& options = {});
 
+// Options of open_postgres_store().
+struct PostgresStoreOptions {
+  // Create the schema (tables alphaledger.*) when the database has none. Default: true. False: a
+  // database without it is kNotFound (code no_ledger).
+  bool create_if_missing = true;
+  // Every transaction read-only (SET default_transaction_read_only); the schema is never
+  // created; write() fails with kIOError. Default: false.
+  bool read_only = false;
+  // Seconds to wait for a connection (libpq connect_timeout) unless the URI sets it. Default: 10.
+  int connect_timeout_s = 10;
+  // Idle connections kept for reuse; more are opened while more threads use the store at once.
+  // Default: 4.
+  std::size_t idle_connections = 4;
+};
+
+// True when `location` is a PostgreSQL connection URI (starts with postgresql:// or postgres://).
+bool is_postgres_uri(std::string_view location);
+
+// `uri` with its password (user:PASSWORD@ or a password= parameter) replaced by ***, for
+// messages and logs. Anything else is returned as it is.
+std::string redact_uri(std::string_view uri);
+
+// Opens a ledger store in the PostgreSQL database named by `uri` (a libpq connection URI;
+// credentials also come from PGPASSWORD and ~/.pgpass as libpq reads them), creating the schema
+// on first read-write use (docs/postgresql.md). The store is shared(): several processes may use
+// one database at once. describe() is the URI with its password hidden.
+// Errors: kIOError (server unreachable, authentication refused, a user not allowed to create the
+// schema, server gone: retry later), kNotFound code no_ledger (no schema and create_if_missing
+// false or read_only), kCorruption (a schema version this build does not know).
+Result<std::unique_ptr<Store>> open_postgres_store(const std::string& uri,
+                                                   const PostgresStoreOptions& options = {});
+
+// Opens the store at a ledger location: PostgreSQL when is_postgres_uri(location) (create_if_missing
+// and read_only carried over; the other options are RocksDB's), else a RocksDB folder.
+Result<std::unique_ptr<Store>> open_store_at(const std::string& location, const RocksStoreOptions& options = {});
+
 // An in-memory store: a std::map under a mutex. write() is atomic; sync is a no-op.
 class MemoryStore final : public Store {
  public:
   Result<std::optional<std::string>> get(std::string_view key) override;
   Status write(const WriteBatch& batch, bool sync = true) override;
+  Status write_if(const WriteBatch& batch, std::string_view key, const std::optional<std::string>& expected,
+                  bool sync = true) override;
   Status scan(std::string_view prefix, const Visitor& visit) override;
   std::string describe() const override { return "memory store"; }
 

@@ -24,6 +24,7 @@ void add_ledger_commands(CLI::App& app, CommandContext& ctx) {
   add_verify_command(app, ctx);
   add_close_command(app, ctx);
   add_launch_commands(app, ctx);
+  add_copy_command(app, ctx);
 }
 
 }  // namespace alphaledger::cli

@@ -100,6 +100,11 @@ void print_summary(std::ostream& out, const RecoveryReport& report, bool json) {
 
 Status run_recover(const RecoverOptions& o, const GlobalOptions& g, std::ostream& out) {
   const std::string source = ledger_path(g);
+  if (is_postgres_uri(source)) {
+    return invalid_input("recover works on a ledger folder; a PostgreSQL ledger (" + redact_uri(source) +
+                         ") has its own recovery: restore the database from its backups or replicas "
+                         "(docs/postgresql.md)");
+  }
   auto report = recover_ledger(source, o.to);
   if (!report) {
     // The library names the folder; the command line names the flag that gave it.

@@ -176,7 +176,7 @@ Status run_serve_command(const ServeOptions& o, const GlobalOptions& g) {
   if (!service) return service.error();
   auto port = (*service)->bind();
   if (!port) return port.error();
-  log_start(log, o, *options, *port, ledger_path(g));
+  log_start(log, o, *options, *port, (*ledger)->location());  // a URI with its password hidden
   const Status ran = run_until_stopped(**service, **signals, log);
   service->reset();  // every in-flight request has been answered
   ledger->reset();   // closes the ledger cleanly

@@ -27,5 +27,6 @@ void add_history_command(CLI::App& app, CommandContext& ctx);
 void add_verify_command(CLI::App& app, CommandContext& ctx);
 void add_close_command(CLI::App& app, CommandContext& ctx);
 void add_launch_commands(CLI::App& app, CommandContext& ctx);  // launch, abandon, running
+void add_copy_command(CLI::App& app, CommandContext& ctx);     // copy (cmd_copy.cpp)
 
 }  // namespace alphaledger::cli

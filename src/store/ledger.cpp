@@ -64,8 +64,8 @@ Result<Ledger::Created> StoreLedger::create_stream(std::string_view name, const 
   return create_stream_directed(name, config, Alternative::kTwoSided);
 }
 
-Result<Ledger::Created> StoreLedger::create_stream_directed(std::string_view name, const RuleConfig& config,
-                                                            Alternative alternative) {
+Result<Ledger::Created> StoreLedger::create_stream_once(std::string_view name, const RuleConfig& config,
+                                                        Alternative alternative) {
   if (auto s = store::validate_stream_name(name); !s) return s.error();
   // The configuration must be one resolve_config() produces (a Rule is only defined for those).
   StoredConfig candidate{std::string(name), config, 0, alternative};
@@ -95,7 +95,7 @@ Result<Ledger::Created> StoreLedger::create_stream_directed(std::string_view nam
   WriteBatch batch;
   batch.put(store::config_key(name), encoded);
   batch.put(store::head_key(name), store::encode_head(head));
-  if (auto s = store_->write(batch, true); !s) {
+  if (auto s = commit(name, *slot, batch); !s) {
     slot->loaded = false;
     return s.error();
   }
@@ -108,7 +108,7 @@ Result<Ledger::Created> StoreLedger::create_stream_directed(std::string_view nam
   return Created{info_of(*slot), true};
 }
 
-Result<Ledger::Closing> StoreLedger::close_stream(std::string_view stream) {
+Result<Ledger::Closing> StoreLedger::close_stream_once(std::string_view stream) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   SlotGuard slot(*this, stream);
   if (auto s = load(stream, *slot); !s) return s.error();
@@ -121,7 +121,7 @@ Result<Ledger::Closing> StoreLedger::close_stream(std::string_view stream) {
   head.last_hash = store::closing_hash(head.steps, *head.closed_at_ms, slot->head.last_hash);
   WriteBatch batch;
   batch.put(store::head_key(stream), store::encode_head(head));
-  if (auto s = store_->write(batch, true); !s) {
+  if (auto s = commit(stream, *slot, batch); !s) {
     slot->loaded = false;  // the write may have reached the disk: reload on next use
     return s.error();
   }
@@ -223,7 +223,21 @@ Status StoreLedger::for_each_decision(std::string_view stream, std::uint64_t fro
 }
 
 Result<VerifyReport> StoreLedger::verify(std::string_view stream, const std::vector<Anchor>& anchors) {
-  return store::verify_stream(*store_, location(), stream, anchors);
+  auto report = store::verify_stream(*store_, location(), stream, anchors);
+  if (!report || !report->ok) return report;
+  // A store that keeps a readable copy (PostgreSQL's tables) checks it against the entries just verified.
+  auto problem = store_->check_projection(stream);
+  if (!problem) return problem.error();
+  if (*problem) {
+    report->ok = false;
+    report->first_bad_step = (*problem)->step;
+    report->problem = (*problem)->problem;
+    report->chain_hash.clear();
+    report->closed_at_ms.reset();
+    report->closing_hash.clear();
+    report->anchors_checked = 0;
+  }
+  return report;
 }
 
 Result<std::string> StoreLedger::chain_hash_at(std::string_view stream, std::uint64_t step) {
@@ -287,8 +301,7 @@ std::shared_ptr<StreamSlot> StoreLedger::slot_for(std::string_view name) {
 }
 
 // REQUIRES: slot.mu held.
-Status StoreLedger::load(std::string_view name, StreamSlot& slot) {
-  if (slot.loaded) return {};
+Status StoreLedger::load_now(std::string_view name, StreamSlot& slot) {
   auto config_bytes = store_->get(store::config_key(name));
   if (!config_bytes) return config_bytes.error();
   if (!*config_bytes) {
@@ -302,6 +315,7 @@ Status StoreLedger::load(std::string_view name, StreamSlot& slot) {
   auto head_bytes = store_->get(store::head_key(name));
   if (!head_bytes) return head_bytes.error();
   if (!*head_bytes) return corruption(where + "the head record is missing");
+  slot.head_bytes = **head_bytes;
   auto head = store::decode_head(**head_bytes);
   if (!head) return corruption(where + head.error().message);
   Rule rule(config->config);
@@ -371,7 +385,7 @@ Result<std::unique_ptr<Ledger>> Ledger::open(std::unique_ptr<Store> store, Clock
 
 Result<std::unique_ptr<Ledger>> Ledger::open(const std::string& path, const RocksStoreOptions& options,
                                              Clock clock) {
-  auto store = open_rocksdb_store(path, options);
+  auto store = open_store_at(path, options);  // a PostgreSQL URI or a RocksDB folder
   if (!store) return store.error();
   return open(std::move(*store), std::move(clock));
 }

@@ -37,8 +37,8 @@ Result<DecideResult> StoreLedger::decide_e(std::string_view stream, std::string_
   return r;
 }
 
-Result<DecideResult> StoreLedger::decide_value(std::string_view stream, std::string_view id, double p_value,
-                                               bool e_value) {
+Result<DecideResult> StoreLedger::decide_value_once(std::string_view stream, std::string_view id, double p_value,
+                                                    bool e_value) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_test_id(id); !s) return s.error();
   if (auto s = e_value ? validate_e_value(p_value) : validate_p_value(p_value); !s)
@@ -53,7 +53,7 @@ Result<DecideResult> StoreLedger::decide_value(std::string_view stream, std::str
   auto result = decide_event_into(stream, *slot, id, p_value, e_value, batch, nullptr);
   if (!result || batch.empty()) return result;
   put_head(stream, *slot, batch);
-  if (auto s = store_->write(batch, true); !s) return s.error();
+  if (auto s = commit(stream, *slot, batch); !s) return s.error();
   slot->loaded = true;
   return result;
 }
@@ -216,7 +216,7 @@ void StoreLedger::write_batch_groups(std::string_view stream, StreamSlot& slot,
   auto flush = [&]() -> bool {
     if (!batch.empty()) {
       put_head(stream, slot, batch);
-      if (auto s = store_->write(batch, true); !s) {
+      if (auto s = commit(stream, slot, batch); !s) {
         out.error = s.error();
         out.stopped_at = group_start;
         return false;  // the slot stays not loaded: the next call reloads from the store
@@ -269,10 +269,9 @@ void StoreLedger::write_batch_groups(std::string_view stream, StreamSlot& slot,
   flush();
 }
 
-Result<Ledger::BatchResult> StoreLedger::decide_batch_streamed(std::string_view stream,
-                                                               std::span<const TestView> tests,
-                                                               std::size_t group_size,
-                                                               const GroupCallback& on_durable) {
+Result<Ledger::BatchResult> StoreLedger::decide_batch_once(std::string_view stream,
+                                                           std::span<const TestView> tests, std::size_t group_size,
+                                                           const GroupCallback& on_durable) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_batch(tests); !s) return s.error();
   if (group_size == 0) group_size = 1;

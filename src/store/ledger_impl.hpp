@@ -7,6 +7,13 @@
 // again; if the write fails, the copy is marked stale and the stream is reloaded from the store
 // on next use, so the store is always the truth. Only streams that exist keep a copy: a name that
 // turns out not to exist is dropped from the cache before the call returns (SlotGuard).
+//
+// On a shared store (Store::shared(): PostgreSQL, where other processes write too) the copy is
+// only a cache: every call re-reads the stream's head under the stream's mutex and reloads when
+// its bytes differ from the cached ones, and every write is a Store::write_if() on the head read.
+// A write that loses the race (head_moved) reloads and redoes the whole call, up to
+// kSharedAttempts times (ledger_shared.cpp). On a store this process owns alone, none of this
+// happens: no extra read, no conditional write.
 #pragma once
 
 #include <cstdint>
@@ -38,6 +45,8 @@ struct StreamSlot {
   std::string encoded_config;
   std::optional<Rule> rule;
   StoredHead head;
+  // The head's bytes as last read or written (what a shared store's write_if expects).
+  std::string head_bytes;
   // A head of the older form (running tests listed inside its rule state, no running keys): the
   // running tests read from the chain at load, written under their own keys by the next write
   // (StoreLedger::put_head). Empty otherwise.
@@ -49,7 +58,13 @@ class StoreLedger final : public Ledger {
   using Ledger::verify;
 
   StoreLedger(std::unique_ptr<Store> store, Clock clock)
-      : store_(std::move(store)), clock_(std::move(clock)) {}
+      : store_(std::move(store)), clock_(std::move(clock)), shared_(store_->shared()) {}
+
+  // How many times a call on a shared store is made before a race lost each time is reported
+  // (as kBusy: retry later).
+  static constexpr int kSharedAttempts = 50;
+  // Sleeps a little before attempt `attempt` + 1 (randomised, growing), so racing writers spread.
+  static void pause_before_retry(int attempt);
 
   std::string location() const override { return store_->describe(); }
 
@@ -111,6 +126,24 @@ class StoreLedger final : public Ledger {
   Status check_format();
 
  private:
+  // The public calls that write, made once; the public ones retry them on a shared store
+  // (ledger_shared.cpp).
+  Result<Created> create_stream_once(std::string_view name, const RuleConfig& config, Alternative alternative);
+  Result<Closing> close_stream_once(std::string_view stream);
+  Result<DecideResult> decide_value_once(std::string_view stream, std::string_view id, double p_value,
+                                         bool e_value);
+  Result<BatchResult> decide_batch_once(std::string_view stream, std::span<const TestView> tests,
+                                        std::size_t group_size, const GroupCallback& on_durable);
+  Result<LaunchResult> launch_once(std::string_view stream, std::string_view id);
+  Result<AbandonResult> abandon_once(std::string_view stream, std::string_view id);
+  std::vector<Result<EventOutcome>> apply_events_once(std::string_view stream, std::span<const EventInput> events);
+  Result<LookResult> look_once(std::string_view stream, std::string_view id, const LookData& data);
+
+  // Writes `batch`, which holds the stream's new head: a plain synced write, or on a shared store
+  // a write_if() against the head the slot was loaded with (absent for a stream not yet created).
+  // On a shared store a failed write leaves the slot not loaded. REQUIRES: slot.mu held.
+  Status commit(std::string_view stream, StreamSlot& slot, const WriteBatch& batch);
+
   // The locked slot of one stream: while it is held, no other call works on the stream. On
   // release, a slot that does not hold an existing stream (an unknown name, a failed load or
   // create) is dropped from the cache and retired, so names that do not exist never stay in
@@ -147,8 +180,11 @@ class StoreLedger final : public Ledger {
 
   std::shared_ptr<StreamSlot> slot_for(std::string_view name);
 
-  // REQUIRES: slot.mu held.
+  // Makes the slot hold the stream as stored: reads it when not loaded, and on a shared store
+  // also when the stored head differs from the cached one (ledger_shared.cpp). REQUIRES: slot.mu held.
   Status load(std::string_view name, StreamSlot& slot);
+  // Reads the stream from the store into the slot. REQUIRES: slot.mu held.
+  Status load_now(std::string_view name, StreamSlot& slot);
 
   StreamInfo info_of(const StreamSlot& slot) const;
 
@@ -235,6 +271,7 @@ class StoreLedger final : public Ledger {
 
   std::unique_ptr<Store> store_;
   Clock clock_;
+  const bool shared_;  // store_->shared()
   mutable std::mutex slots_mu_;
   std::map<std::string, std::shared_ptr<StreamSlot>, std::less<>> slots_;
 };

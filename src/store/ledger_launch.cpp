@@ -258,7 +258,7 @@ bool store_failed(const Result<T>& r) {
 
 }  // namespace
 
-Result<LaunchResult> StoreLedger::launch(std::string_view stream, std::string_view id) {
+Result<LaunchResult> StoreLedger::launch_once(std::string_view stream, std::string_view id) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_test_id(id); !s) return s.error();
   SlotGuard slot(*this, stream);
@@ -269,12 +269,12 @@ Result<LaunchResult> StoreLedger::launch(std::string_view stream, std::string_vi
   auto out = launch_into(stream, *slot, id, batch, nullptr);
   if (!out || batch.empty()) return out;
   put_head(stream, *slot, batch);
-  if (auto s = store_->write(batch, true); !s) return s.error();
+  if (auto s = commit(stream, *slot, batch); !s) return s.error();
   slot->loaded = true;
   return out;
 }
 
-Result<AbandonResult> StoreLedger::abandon(std::string_view stream, std::string_view id) {
+Result<AbandonResult> StoreLedger::abandon_once(std::string_view stream, std::string_view id) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_test_id(id); !s) return s.error();
   SlotGuard slot(*this, stream);
@@ -285,13 +285,13 @@ Result<AbandonResult> StoreLedger::abandon(std::string_view stream, std::string_
   auto out = abandon_into(stream, *slot, id, batch, nullptr);
   if (!out || batch.empty()) return out;
   put_head(stream, *slot, batch);
-  if (auto s = store_->write(batch, true); !s) return s.error();
+  if (auto s = commit(stream, *slot, batch); !s) return s.error();
   slot->loaded = true;
   return out;
 }
 
-std::vector<Result<EventOutcome>> StoreLedger::apply_events(std::string_view stream,
-                                                            std::span<const EventInput> events) {
+std::vector<Result<EventOutcome>> StoreLedger::apply_events_once(std::string_view stream,
+                                                                 std::span<const EventInput> events) {
   std::vector<Result<EventOutcome>> out;
   out.reserve(events.size());
   // Checks of each input on its own, as the single calls make them before touching the stream.
@@ -356,7 +356,7 @@ std::vector<Result<EventOutcome>> StoreLedger::apply_events(std::string_view str
   }
   if (batch.empty()) return out;
   put_head(stream, *slot, batch);
-  if (auto s = store_->write(batch, true); !s) return answer_all(s.error());
+  if (auto s = commit(stream, *slot, batch); !s) return answer_all(s.error());
   slot->loaded = true;
   return out;
 }

@@ -197,7 +197,7 @@ Result<LookResult> StoreLedger::write_look(std::string_view stream, StreamSlot& 
     out.decision->e_value = rule_takes_e_values(slot.config.config.kind);
   }
   put_head(stream, slot, batch);
-  if (auto s = store_->write(batch, true); !s) return s.error();
+  if (auto s = commit(stream, slot, batch); !s) return s.error();
   slot.loaded = true;
   return out;
 }
@@ -240,7 +240,7 @@ Status fit_previous(std::string_view id, LookData& data, const LookResult& last)
 
 }  // namespace
 
-Result<LookResult> StoreLedger::look(std::string_view stream, std::string_view id, const LookData& input) {
+Result<LookResult> StoreLedger::look_once(std::string_view stream, std::string_view id, const LookData& input) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_test_id(id); !s) return s.error();
   if (auto s = check_look_input(id, input); !s)

@@ -23,6 +23,22 @@ Status MemoryStore::write(const WriteBatch& batch, bool /*sync*/) {
   return {};
 }
 
+Status MemoryStore::write_if(const WriteBatch& batch, std::string_view key,
+                             const std::optional<std::string>& expected, bool /*sync*/) {
+  std::lock_guard lock(mu_);
+  auto it = data_.find(key);
+  const bool same = it == data_.end() ? !expected : (expected && *expected == it->second);
+  if (!same) return head_moved(key);
+  for (const auto& op : batch.ops) {
+    if (op.erase) {
+      if (auto at = data_.find(op.key); at != data_.end()) data_.erase(at);
+    } else {
+      data_.insert_or_assign(op.key, op.value);
+    }
+  }
+  return {};
+}
+
 Status MemoryStore::scan(std::string_view prefix, const Visitor& visit) {
   // Copy the matching range first: one consistent snapshot, and visit() may call back into us.
   std::vector<std::pair<std::string, std::string>> snapshot;

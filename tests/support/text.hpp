@@ -17,6 +17,15 @@ inline std::string tag(std::string_view prefix, long long n) {
   return out;
 }
 
+// The pieces one after another, built by append: GCC 12's -Wrestrict misfires on "literal" +
+// std::string (GCC PR 105651).
+template <typename... Parts>
+std::string concat(const Parts&... parts) {
+  std::string out;
+  (out.append(std::string_view(parts)), ...);
+  return out;
+}
+
 // The whole file as bytes ("" if it cannot be read).
 inline std::string read_file(const std::string& path) {
   std::ifstream in(path, std::ios::binary);
