@@ -86,7 +86,7 @@ alphaledger::Error with_flag_hint(alphaledger::Error error, const CLI::App& app)
     const auto parsed = app.get_subcommands();
     const bool recover = !parsed.empty() && parsed.front()->get_name() == "recover";
     error.message += recover ? " (give the damaged ledger folder with --ledger DIR)"
-                             : " (create a stream first, or give the ledger folder with --ledger DIR)";
+                             : " (create a stream first, or give the ledger folder or URI with --ledger)";
   }
   return error;
 }
@@ -107,7 +107,7 @@ void add_global_flags(CLI::App& app, CommandContext& ctx) {
   app.fallthrough();
   app.set_version_flag("--version", ALPHALEDGER_VERSION);
   app.add_option("--ledger", ctx.global.ledger,
-                 "ledger folder; default $ALPHALEDGER_LEDGER, else ./alphaledger.db");
+                 "ledger folder or postgresql:// URI; default $ALPHALEDGER_LEDGER, else ./alphaledger.db");
   app.add_flag("--json", ctx.global.json,
                "machine-readable output, one JSON object per line; errors too, as one JSON object on stderr");
   app.add_option("--log-level", ctx.global.log_level, "trace|debug|info|warn|error|off; default warn")
@@ -145,6 +145,7 @@ constexpr Registration kRegistrations[] = {
     {"history", add_history_command},     {"verify", add_verify_command},
     {"close", add_close_command},         {"launch", add_launch_commands},
     {"abandon", add_launch_commands},     {"running", add_launch_commands},
+    {"copy", add_copy_command},
     {"simulate", add_simulate_command},   {"pvalue", add_stats_commands},
     {"plan", add_stats_commands},         {"pipe", add_service_commands},
     {"serve", add_service_commands},      {"recover", add_recover_command},

@@ -151,6 +151,13 @@ Status append_projection(std::string& sql, const WriteBatch& batch, const EValue
     sql +=
         ", 0, NULL) ON CONFLICT (stream) DO UPDATE SET rule = EXCLUDED.rule, alpha = EXCLUDED.alpha, "
         "alternative = EXCLUDED.alternative, created_at = EXCLUDED.created_at;\n";
+    // Records may be written before their configuration (`copy` writes it last, with the head):
+    // they went in as p-values, as a stream without a configuration is read as one. Move them.
+    if (rule_takes_e_values(config->config.kind)) {
+      sql += "UPDATE alphaledger.decisions SET e_value = p_value, p_value = NULL WHERE stream = ";
+      append_text(sql, *stream);
+      sql += " AND e_value IS NULL AND p_value IS NOT NULL;\n";
+    }
   }
   for (const auto& op : batch.ops) {
     if (auto stream = stream_of(op.key, "r/")) {

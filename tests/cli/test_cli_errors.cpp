@@ -107,7 +107,7 @@ TEST_CASE("CliErrors: refusals exit 3 as no_ledger, unknown_stream and conflict"
   const auto none = expect_failure({"--ledger", db, "next", "checkout"}, 3, "no_ledger");
   CHECK(message_of(none).find("no ledger at") != std::string::npos);
   // The store says what happened; the command line adds the flag that names a ledger.
-  CHECK(message_of(none).find("--ledger DIR") != std::string::npos);
+  CHECK(message_of(none).find("give the ledger folder or URI with --ledger") != std::string::npos);
   const auto none_recover = expect_failure({"--ledger", db, "recover", "--to", s.sub("copy")}, 3, "no_ledger");
   CHECK(message_of(none_recover).find("give the damaged ledger folder with --ledger DIR") != std::string::npos);
   REQUIRE(run_alphaledger({"--ledger", db, "new", "checkout", "--rule", "lord++"}).exit_code == 0);

@@ -43,7 +43,7 @@ const char* const kFooter =
 
 const char* const kCommands =
     "replay, new, decide, next, status, streams, history, verify, close, launch, abandon, running, "
-    "simulate, pvalue, plan, pipe, serve, recover, report, explain, look, looks";
+    "copy, simulate, pvalue, plan, pipe, serve, recover, report, explain, look, looks";
 
 }  // namespace
 
@@ -58,7 +58,8 @@ TEST_CASE("the top-level help is the whole app's, byte for byte") {
       "Options:\n"
       "  -h,--help                   Print this help message and exit\n"
       "  --version                   Display program version information and exit\n"
-      "  --ledger TEXT               ledger folder; default $ALPHALEDGER_LEDGER, else ./alphaledger.db\n"
+      "  --ledger TEXT               ledger folder or postgresql:// URI; default $ALPHALEDGER_LEDGER, "
+      "else ./alphaledger.db\n"
       "  --json                      machine-readable output, one JSON object per line; errors too, as one "
       "JSON object on stderr\n"
       "  --log-level TEXT:{trace,debug,info,warn,error,off}\n"
@@ -86,6 +87,8 @@ TEST_CASE("the top-level help is the whole app's, byte for byte") {
       "not refunded\n"
       "  running                     the tests of a stream launched and not yet decided: id, launch, level, "
       "launched_at\n"
+      "  copy                        copy one stream (its whole history) from --ledger into another ledger "
+      "location, then verify the copy; the source is only read\n"
       "  simulate                    decide many simulated streams of one-sided z-tests with each rule: "
       "realized FDR, mFDR, FWER and power\n"
       "  pvalue                      a p-value, estimate and confidence interval from experiment summaries\n"
@@ -203,5 +206,5 @@ TEST_CASE("the missing-ledger hint still names the right flag for recover and fo
   r = run_alphaledger({"--ledger", missing, "status", "S"});
   CHECK(r.exit_code == 3);
   CHECK(r.err == "alphaledger: error: no ledger at " + missing +
-                     " (create a stream first, or give the ledger folder with --ledger DIR)\n");
+                     " (create a stream first, or give the ledger folder or URI with --ledger)\n");
 }
