@@ -145,8 +145,9 @@ struct PostgresStoreOptions {
   // Seconds to wait for a connection (libpq connect_timeout) unless the URI sets it. Default: 10.
   int connect_timeout_s = 10;
   // Idle connections kept for reuse; more are opened while more threads use the store at once.
-  // Default: 4.
-  std::size_t idle_connections = 4;
+  // Default: 32 (a busy `serve` has a worker thread per client; a call that finds no idle
+  // connection opens one, which costs a server process and a password exchange).
+  std::size_t idle_connections = 32;
 };
 
 // True when `location` is a PostgreSQL connection URI (starts with postgresql:// or postgres://).
