@@ -6,6 +6,7 @@
 #include <bit>
 #include <charconv>
 #include <cstring>
+#include <functional>
 #include <optional>
 #include <string>
 #include <vector>
@@ -269,116 +270,140 @@ ResultPtr run(PGconn* conn, const char* sql, const std::string& param, const std
 
 }  // namespace
 
-Result<std::optional<Store::ProjectionProblem>> check_projection(PGconn* conn, std::string_view stream,
-                                                                 const std::string& where,
-                                                                 std::string_view secret) {
-  using Problem = Store::ProjectionProblem;
-  const std::string what = "cannot verify ledger " + where;
+namespace {
+
+using Problem = Store::ProjectionProblem;
+
+// What check_projection reads, in one read-only snapshot: the stream's record entries, its
+// decisions rows, its configuration and head entries, and its streams row.
+struct ProjectionSnapshot {
+  ResultPtr entries, rows, config, head, stream_row;
+};
+
+Result<ProjectionSnapshot> read_snapshot(PGconn* conn, std::string_view stream,
+                                         const std::function<Error(const PGresult*)>& fail) {
   const std::string name(stream);
-  const auto fail = [&](const PGresult* r) -> Error { return translate(conn, r, what, secret); };
   ResultPtr begin(PQexec(conn, "BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY"));
   if (PQresultStatus(begin.get()) != PGRES_COMMAND_OK) return fail(begin.get());
-
   const std::string lo = record_prefix(stream);
   std::string hi = lo;
   hi.back() = static_cast<char>('/' + 1);
-  ResultPtr entries(run(
+  ProjectionSnapshot snap;
+  snap.entries = run(
       conn, "SELECT value FROM alphaledger.entries WHERE key >= $1::bytea AND key < $2::bytea ORDER BY key",
-      lo, hi, 2));
-  if (PQresultStatus(entries.get()) != PGRES_TUPLES_OK) return fail(entries.get());
-  ResultPtr rows(run(conn,
-                     "SELECT step, id, kind, launch, p_value, e_value, level, rejected, wealth, "
-                     "(extract(epoch FROM decided_at) * 1000)::bigint, hash FROM alphaledger.decisions "
-                     "WHERE stream = $1::text ORDER BY step",
-                     name));
-  if (PQresultStatus(rows.get()) != PGRES_TUPLES_OK) return fail(rows.get());
-  ResultPtr config(
-      run(conn, "SELECT value FROM alphaledger.entries WHERE key = $1::bytea", config_key(stream)));
-  if (PQresultStatus(config.get()) != PGRES_TUPLES_OK) return fail(config.get());
-  ResultPtr head(run(conn, "SELECT value FROM alphaledger.entries WHERE key = $1::bytea", head_key(stream)));
-  if (PQresultStatus(head.get()) != PGRES_TUPLES_OK) return fail(head.get());
-  ResultPtr srow(run(conn,
-                     "SELECT rule, alpha, alternative, (extract(epoch FROM created_at) * 1000)::bigint, "
-                     "record_count, (extract(epoch FROM closed_at) * 1000)::bigint FROM alphaledger.streams "
-                     "WHERE stream = $1::text",
-                     name));
-  if (PQresultStatus(srow.get()) != PGRES_TUPLES_OK) return fail(srow.get());
-  ResultPtr end(PQexec(conn, "COMMIT"));
-
-  const std::string table_row = "alphaledger.streams row of stream " + in_quotes(stream);
-  if (PQntuples(config.get()) != 1 || PQntuples(head.get()) != 1) return std::optional<Problem>{};
-  auto cfg = decode_config(Fields(config.get(), 0).bytes(0));
-  auto hd = decode_head(Fields(head.get(), 0).bytes(0));
-  if (!cfg || !hd) return std::optional<Problem>{};  // the chain check reports these
-  if (PQntuples(srow.get()) != 1) return std::optional<Problem>{Problem{0, table_row + " is missing"}};
-  {
-    const Fields f(srow.get(), 0);
-    StreamRow expected{std::string(rule_name(cfg->config.kind)),
-                       cfg->config.alpha,
-                       std::string(alternative_name(cfg->alternative)),
-                       cfg->created_at_ms,
-                       hd->steps,
-                       hd->closed_at_ms};
-    const auto differs = [&](std::string_view column, const std::string& is, const std::string& says) {
-      return std::optional<Problem>{Problem{0, table_row + ": column " + std::string(column) + " is " + is +
-                                                   ", the ledger entries say " + says}};
-    };
-    if (f.bytes(0) != expected.rule) return differs("rule", excerpt(f.bytes(0)), expected.rule);
-    if (!same_bits(f.float8(1), expected.alpha))
-      return differs("alpha", readable_number(f.float8(1)), readable_number(expected.alpha));
-    if (f.bytes(2) != expected.alternative)
-      return differs("alternative", excerpt(f.bytes(2)), expected.alternative);
-    if (f.int64(3) != expected.created_at_ms)
-      return differs("created_at", format_timestamp(f.int64(3)), format_timestamp(expected.created_at_ms));
-    if (static_cast<std::uint64_t>(f.int64(4)) != expected.record_count)
-      return differs("record_count", std::to_string(f.int64(4)), std::to_string(expected.record_count));
-    const std::optional<std::int64_t> closed = f.null(5) ? std::nullopt : std::optional(f.int64(5));
-    if (closed != expected.closed_at_ms)
-      return differs("closed_at", shown_time(closed), shown_time(expected.closed_at_ms));
+      lo, hi, 2);
+  snap.rows = run(conn,
+                  "SELECT step, id, kind, launch, p_value, e_value, level, rejected, wealth, "
+                  "(extract(epoch FROM decided_at) * 1000)::bigint, hash FROM alphaledger.decisions "
+                  "WHERE stream = $1::text ORDER BY step",
+                  name);
+  snap.config = run(conn, "SELECT value FROM alphaledger.entries WHERE key = $1::bytea", config_key(stream));
+  snap.head = run(conn, "SELECT value FROM alphaledger.entries WHERE key = $1::bytea", head_key(stream));
+  snap.stream_row = run(conn,
+                        "SELECT rule, alpha, alternative, (extract(epoch FROM created_at) * 1000)::bigint, "
+                        "record_count, (extract(epoch FROM closed_at) * 1000)::bigint FROM "
+                        "alphaledger.streams WHERE stream = $1::text",
+                        name);
+  for (const ResultPtr* r : {&snap.entries, &snap.rows, &snap.config, &snap.head, &snap.stream_row}) {
+    if (PQresultStatus(r->get()) != PGRES_TUPLES_OK) return fail(r->get());
   }
+  ResultPtr end(PQexec(conn, "COMMIT"));
+  return snap;
+}
 
-  const bool e_values = rule_takes_e_values(cfg->config.kind);
-  const int n_entries = PQntuples(entries.get());
-  const int n_rows = PQntuples(rows.get());
-  int j = 0;
+// The streams row against the configuration and head entries.
+std::optional<Problem> check_stream_row(const PGresult* stream_row, std::string_view stream,
+                                        const StoredConfig& cfg, const StoredHead& hd) {
+  const std::string table_row = "alphaledger.streams row of stream " + in_quotes(stream);
+  if (PQntuples(stream_row) != 1) return Problem{0, table_row + " is missing"};
+  const Fields f(stream_row, 0);
+  StreamRow expected{std::string(rule_name(cfg.config.kind)),
+                     cfg.config.alpha,
+                     std::string(alternative_name(cfg.alternative)),
+                     cfg.created_at_ms,
+                     hd.steps,
+                     hd.closed_at_ms};
+  const auto differs = [&](std::string_view column, const std::string& is, const std::string& says) {
+    return std::optional<Problem>{Problem{
+        0, table_row + ": column " + std::string(column) + " is " + is + ", the ledger entries say " + says}};
+  };
+  if (f.bytes(0) != expected.rule) return differs("rule", excerpt(f.bytes(0)), expected.rule);
+  if (!same_bits(f.float8(1), expected.alpha))
+    return differs("alpha", readable_number(f.float8(1)), readable_number(expected.alpha));
+  if (f.bytes(2) != expected.alternative)
+    return differs("alternative", excerpt(f.bytes(2)), expected.alternative);
+  if (f.int64(3) != expected.created_at_ms)
+    return differs("created_at", format_timestamp(f.int64(3)), format_timestamp(expected.created_at_ms));
+  if (static_cast<std::uint64_t>(f.int64(4)) != expected.record_count)
+    return differs("record_count", std::to_string(f.int64(4)), std::to_string(expected.record_count));
+  const std::optional<std::int64_t> closed = f.null(5) ? std::nullopt : std::optional(f.int64(5));
+  if (closed != expected.closed_at_ms)
+    return differs("closed_at", shown_time(closed), shown_time(expected.closed_at_ms));
+  return std::nullopt;
+}
+
+DecisionRow stored_row(const Fields& f) {
+  DecisionRow stored;
+  stored.step = static_cast<std::uint64_t>(f.int64(0));
+  stored.id = std::string(f.bytes(1));
+  stored.kind = std::string(f.bytes(2));
+  stored.launch = static_cast<std::uint64_t>(f.int64(3));
+  stored.p_value = f.opt_float8(4);
+  stored.e_value = f.opt_float8(5);
+  stored.level = f.float8(6);
+  if (!f.null(7)) stored.rejected = f.boolean(7);
+  stored.wealth = f.float8(8);
+  stored.decided_at_ms = f.int64(9);
+  stored.hash = std::string(f.bytes(10));
+  return stored;
+}
+
+// The decisions rows against the record entries, both in step order: a row missing, a row
+// without an entry, or the first column that differs.
+std::optional<Problem> check_decision_rows(const PGresult* entries, const PGresult* rows,
+                                           std::string_view stream, bool e_values) {
+  const int n_entries = PQntuples(entries);
+  const int n_rows = PQntuples(rows);
   const std::string table = "alphaledger.decisions row of stream " + in_quotes(stream) + " step ";
+  const auto unmatched = [&](std::uint64_t step) {
+    return Problem{step, table + std::to_string(step) + " has no ledger entry (a row added by hand?)"};
+  };
+  int j = 0;
   for (int i = 0; i < n_entries; ++i) {
-    auto entry = decode_entry(Fields(entries.get(), i).bytes(0));
+    auto entry = decode_entry(Fields(entries, i).bytes(0));
     if (!entry) continue;  // the chain check reports it
     const DecisionRow expected = row_of(*entry, e_values);
-    if (j >= n_rows || static_cast<std::uint64_t>(Fields(rows.get(), j).int64(0)) > expected.step) {
-      return std::optional<Problem>{Problem{
-          expected.step, table + std::to_string(expected.step) + " is missing (the ledger has that entry)"}};
+    if (j >= n_rows || static_cast<std::uint64_t>(Fields(rows, j).int64(0)) > expected.step) {
+      return Problem{expected.step,
+                     table + std::to_string(expected.step) + " is missing (the ledger has that entry)"};
     }
-    const Fields f(rows.get(), j);
-    const auto step = static_cast<std::uint64_t>(f.int64(0));
-    if (step < expected.step) {
-      return std::optional<Problem>{
-          Problem{step, table + std::to_string(step) + " has no ledger entry (a row added by hand?)"}};
-    }
-    DecisionRow stored;
-    stored.step = step;
-    stored.id = std::string(f.bytes(1));
-    stored.kind = std::string(f.bytes(2));
-    stored.launch = static_cast<std::uint64_t>(f.int64(3));
-    stored.p_value = f.opt_float8(4);
-    stored.e_value = f.opt_float8(5);
-    stored.level = f.float8(6);
-    if (!f.null(7)) stored.rejected = f.boolean(7);
-    stored.wealth = f.float8(8);
-    stored.decided_at_ms = f.int64(9);
-    stored.hash = std::string(f.bytes(10));
+    const DecisionRow stored = stored_row(Fields(rows, j));
+    if (stored.step < expected.step) return unmatched(stored.step);
     if (auto d = first_difference(stored, expected)) {
-      return std::optional<Problem>{Problem{step, table + std::to_string(step) + ": " + *d}};
+      return Problem{stored.step, table + std::to_string(stored.step) + ": " + *d};
     }
     ++j;
   }
-  if (j < n_rows) {
-    const auto step = static_cast<std::uint64_t>(Fields(rows.get(), j).int64(0));
-    return std::optional<Problem>{
-        Problem{step, table + std::to_string(step) + " has no ledger entry (a row added by hand?)"}};
-  }
-  return std::optional<Problem>{};
+  if (j < n_rows) return unmatched(static_cast<std::uint64_t>(Fields(rows, j).int64(0)));
+  return std::nullopt;
+}
+
+}  // namespace
+
+Result<std::optional<Store::ProjectionProblem>> check_projection(PGconn* conn, std::string_view stream,
+                                                                 const std::string& where,
+                                                                 std::string_view secret) {
+  const std::string what = "cannot verify ledger " + where;
+  auto snap =
+      read_snapshot(conn, stream, [&](const PGresult* r) { return translate(conn, r, what, secret); });
+  if (!snap) return snap.error();
+  if (PQntuples(snap->config.get()) != 1 || PQntuples(snap->head.get()) != 1) return std::optional<Problem>{};
+  auto cfg = decode_config(Fields(snap->config.get(), 0).bytes(0));
+  auto hd = decode_head(Fields(snap->head.get(), 0).bytes(0));
+  if (!cfg || !hd) return std::optional<Problem>{};  // the chain check reports these
+  if (auto problem = check_stream_row(snap->stream_row.get(), stream, *cfg, *hd)) return problem;
+  return check_decision_rows(snap->entries.get(), snap->rows.get(), stream,
+                             rule_takes_e_values(cfg->config.kind));
 }
 
 }  // namespace alphaledger::store::pg
