@@ -43,9 +43,16 @@
 #include <vector>
 
 #include "alphaledger/ledger.hpp"
+#include "serve_process.hpp"
 
 namespace {
 
+using alphaledger_bench::client;
+using alphaledger_bench::die;
+using alphaledger_bench::ServeProcess;
+using alphaledger_bench::slurp;
+using alphaledger_bench::spawn;
+using alphaledger_bench::wait_exit;
 using SteadyClock = std::chrono::steady_clock;
 
 struct Options {
@@ -57,89 +64,13 @@ struct Options {
   std::size_t cli = 200;
 };
 
-[[noreturn]] void die(const std::string& message) {
-  std::fprintf(stderr, "load_http: %s\n", message.c_str());
-  std::exit(1);
-}
-
 bool progress_on() { return ::isatty(2) != 0; }
 
-pid_t spawn(const std::vector<std::string>& args, const std::string& out, const std::string& err) {
-  const pid_t pid = ::fork();
-  if (pid < 0) die("fork failed");
-  if (pid == 0) {
-    const int in = ::open("/dev/null", O_RDONLY);
-    const int o = ::open(out.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-    const int e = ::open(err.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-    if (in < 0 || o < 0 || e < 0) ::_exit(127);
-    ::dup2(in, 0);
-    ::dup2(o, 1);
-    ::dup2(e, 2);
-    std::vector<std::string> copy = args;
-    std::vector<char*> argv;
-    for (auto& a : copy) argv.push_back(a.data());
-    argv.push_back(nullptr);
-    ::execv(argv[0], argv.data());
-    ::_exit(127);
-  }
-  return pid;
-}
-
-int wait_exit(pid_t pid) {
-  int status = 0;
-  ::waitpid(pid, &status, 0);
-  return WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
-}
-
-std::string slurp(const std::string& path) {
-  std::ifstream in(path);
-  std::stringstream ss;
-  ss << in.rdbuf();
-  return ss.str();
-}
-
 // A server on a fresh ledger; stopped with SIGTERM by stop().
-class Server {
- public:
-  Server(const Options& o, const std::string& dir, std::size_t threads) : log_(dir + "/server.log") {
-    // `serve` opens an existing ledger only: make the empty one first (closed again at once).
-    if (!alphaledger::Ledger::open(dir + "/db").ok()) die("cannot create the ledger in " + dir + "/db");
-    pid_ = spawn({o.binary, "--ledger", dir + "/db", "serve", "--listen", "127.0.0.1:0", "--access-log",
-                  "off", "--threads", std::to_string(threads)},
-                 dir + "/server.out", log_);
-    const auto deadline = SteadyClock::now() + std::chrono::seconds(20);
-    while (port_ == 0 && SteadyClock::now() < deadline) {
-      std::istringstream lines(slurp(log_));
-      std::string line;
-      while (std::getline(lines, line)) {
-        auto j = nlohmann::json::parse(line, nullptr, false);
-        if (!j.is_discarded() && j.is_object() && j.value("event", "") == "listening") {
-          const std::string a = j.value("address", "");
-          port_ = std::stoi(a.substr(a.rfind(':') + 1));
-        }
-      }
-      std::this_thread::sleep_for(std::chrono::milliseconds(10));
-    }
-    if (port_ == 0) die("the server did not start: " + slurp(log_));
-  }
-  int port() const { return port_; }
-  void stop() {
-    ::kill(pid_, SIGTERM);
-    if (wait_exit(pid_) != 0) die("the server did not stop cleanly: " + slurp(log_));
-  }
-
- private:
-  std::string log_;
-  pid_t pid_ = -1;
-  int port_ = 0;
-};
-
-std::unique_ptr<httplib::Client> client(int port) {
-  auto c = std::make_unique<httplib::Client>("127.0.0.1", port);
-  c->set_keep_alive(true);
-  c->set_tcp_nodelay(true);
-  c->set_read_timeout(60, 0);
-  return c;
+ServeProcess start_server(const Options& o, const std::string& dir, std::size_t threads) {
+  // `serve` opens an existing ledger only: make the empty one first (closed again at once).
+  if (!alphaledger::Ledger::open(dir + "/db").ok()) die("cannot create the ledger in " + dir + "/db");
+  return ServeProcess(o.binary, dir + "/db", dir + "/server.out", dir + "/server.log", threads, 20);
 }
 
 void create_stream(int port, const std::string& name) {
@@ -169,7 +100,7 @@ void print_row(const char* what, int clients, std::size_t n, double secs, std::v
 void http_scenario(const Options& o, int clients, bool one_stream, int round) {
   const std::string dir = o.folder + "/http-" + std::to_string(round);
   std::filesystem::create_directories(dir);
-  Server server(o, dir, static_cast<std::size_t>(std::max(clients, 8)) + 4);
+  ServeProcess server = start_server(o, dir, static_cast<std::size_t>(std::max(clients, 8)) + 4);
   if (one_stream) {
     create_stream(server.port(), "shared");
   } else {

@@ -38,8 +38,16 @@
 #include <thread>
 #include <vector>
 
+#include "serve_process.hpp"
+
 namespace {
 
+using alphaledger_bench::client;
+using alphaledger_bench::die;
+using alphaledger_bench::ServeProcess;
+using alphaledger_bench::slurp;
+using alphaledger_bench::spawn;
+using alphaledger_bench::wait_exit;
 using SteadyClock = std::chrono::steady_clock;
 
 struct Options {
@@ -50,45 +58,6 @@ struct Options {
   std::size_t decisions = 2000;
   std::vector<int> clients = {1, 8, 32};
 };
-
-[[noreturn]] void die(const std::string& message) {
-  std::fprintf(stderr, "pg_load: %s\n", message.c_str());
-  std::exit(1);
-}
-
-pid_t spawn(const std::vector<std::string>& args, const std::string& out, const std::string& err) {
-  const pid_t pid = ::fork();
-  if (pid < 0) die("fork failed");
-  if (pid == 0) {
-    const int in = ::open("/dev/null", O_RDONLY);
-    const int o = ::open(out.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-    const int e = ::open(err.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-    if (in < 0 || o < 0 || e < 0) ::_exit(127);
-    ::dup2(in, 0);
-    ::dup2(o, 1);
-    ::dup2(e, 2);
-    std::vector<std::string> copy = args;
-    std::vector<char*> argv;
-    for (auto& a : copy) argv.push_back(a.data());
-    argv.push_back(nullptr);
-    ::execvp(argv[0], argv.data());
-    ::_exit(127);
-  }
-  return pid;
-}
-
-int wait_exit(pid_t pid) {
-  int status = 0;
-  ::waitpid(pid, &status, 0);
-  return WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
-}
-
-std::string slurp(const std::string& path) {
-  std::ifstream in(path);
-  std::stringstream ss;
-  ss << in.rdbuf();
-  return ss.str();
-}
 
 // Runs a command to its end; dies with its stderr (which must not hold the password) on failure.
 void run(const std::vector<std::string>& args, const std::string& dir, const std::string& what) {
@@ -103,48 +72,6 @@ std::string with_database(const std::string& uri, const std::string& db) {
   std::string out = uri.substr(0, path == std::string::npos ? query : path) + "/" + db;
   if (query != std::string::npos) out += uri.substr(query);
   return out;
-}
-
-class Server {
- public:
-  Server(const Options& o, const std::string& ledger, const std::string& log, std::size_t threads)
-      : log_(log) {
-    pid_ = spawn({o.binary, "--ledger", ledger, "serve", "--listen", "127.0.0.1:0", "--access-log", "off",
-                  "--threads", std::to_string(threads)},
-                 log + ".out", log_);
-    const auto deadline = SteadyClock::now() + std::chrono::seconds(30);
-    while (port_ == 0 && SteadyClock::now() < deadline) {
-      std::istringstream lines(slurp(log_));
-      std::string line;
-      while (std::getline(lines, line)) {
-        auto j = nlohmann::json::parse(line, nullptr, false);
-        if (!j.is_discarded() && j.is_object() && j.value("event", "") == "listening") {
-          const std::string a = j.value("address", "");
-          port_ = std::stoi(a.substr(a.rfind(':') + 1));
-        }
-      }
-      std::this_thread::sleep_for(std::chrono::milliseconds(10));
-    }
-    if (port_ == 0) die("the server did not start: " + slurp(log_));
-  }
-  int port() const { return port_; }
-  void stop() {
-    ::kill(pid_, SIGTERM);
-    if (wait_exit(pid_) != 0) die("the server did not stop cleanly: " + slurp(log_));
-  }
-
- private:
-  std::string log_;
-  pid_t pid_ = -1;
-  int port_ = 0;
-};
-
-std::unique_ptr<httplib::Client> client(int port) {
-  auto c = std::make_unique<httplib::Client>("127.0.0.1", port);
-  c->set_keep_alive(true);
-  c->set_tcp_nodelay(true);
-  c->set_read_timeout(60, 0);
-  return c;
 }
 
 double percentile(const std::vector<double>& sorted, double q) {
@@ -174,11 +101,11 @@ void run_scenario(const Options& o, const Scenario& s, int round) {
     run({o.binary, "--ledger", ledger, "new", "s" + std::to_string(k), "--rule", "lord++"}, dir,
         "alphaledger new");
   }
-  std::vector<std::unique_ptr<Server>> servers;
+  std::vector<std::unique_ptr<ServeProcess>> servers;
   const auto threads = static_cast<std::size_t>(s.clients) + 4;
   for (int r = 0; r < s.replicas; ++r) {
-    servers.push_back(
-        std::make_unique<Server>(o, ledger, dir + "/server" + std::to_string(r) + ".log", threads));
+    const std::string log = dir + "/server" + std::to_string(r) + ".log";
+    servers.push_back(std::make_unique<ServeProcess>(o.binary, ledger, log + ".out", log, threads, 30));
   }
   const std::size_t per_client = std::max<std::size_t>(1, o.decisions / static_cast<std::size_t>(s.clients));
   std::vector<std::vector<double>> latency(static_cast<std::size_t>(s.clients));
