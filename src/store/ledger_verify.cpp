@@ -1,13 +1,12 @@
 // Ledger::verify: one pass over a stream's records, replaying them through the rule, holding one
 // record at a time; then the head, the closing entry, the id index and the anchors.
 #include <algorithm>
-#include <map>
 #include <optional>
 
 #include "alphaledger/text.hpp"
 #include "store/codec.hpp"
 #include "store/ledger_internal.hpp"
-#include "store/ledger_look.hpp"
+#include "store/verify_replay.hpp"
 
 namespace alphaledger {
 
@@ -58,11 +57,6 @@ namespace store {
 
 namespace {
 
-std::string mismatch(const char* what, double got, double stored) {
-  return "replaying the rule gives " + std::string(what) + " " + readable_number(got) + " but the record has " +
-         readable_number(stored);
-}
-
 std::string index_target(const std::optional<std::uint64_t>& indexed) {
   return indexed ? "step " + std::to_string(*indexed) : std::string("no valid step");
 }
@@ -95,8 +89,7 @@ class StreamVerifier {
     auto head = decode_head(**head_bytes);
     if (!head) return fail(0, "the head cannot be read: " + head.error().message);
 
-    rule_.emplace(config->config);
-    alternative_ = config->alternative;
+    replay_.emplace(store_, stream_, config->config, config->alternative);
     prev_ = genesis_hash(**config_bytes);
     if (auto p = anchor_problem(0, prev_)) return fail(0, *p);
     expected_key_ = record_key(stream_, 1);
@@ -125,16 +118,7 @@ class StreamVerifier {
   }
 
  private:
-  // Tests launched and not yet finished or abandoned in the walk: their id, launch entry and time,
-  // and where the id index points (memory: the running tests, not the history).
-  struct Launched {
-    std::string id;
-    std::uint64_t entry = 0;
-    std::int64_t at_ms = 0;
-    std::optional<std::uint64_t> indexed;
-    std::optional<LookPayload> last_look;  // the test's last look so far, and its entry
-    std::uint64_t last_look_entry = 0;
-  };
+  using Launched = ChainReplay::Launched;
 
   VerifyReport fail(std::uint64_t step, std::string problem) {
     report_.ok = false;
@@ -157,163 +141,6 @@ class StreamVerifier {
       }
     }
     return std::nullopt;
-  }
-
-  // The stored p-value (or e-value, for a rule that takes e-values) of a decision or finish.
-  std::optional<std::string> evidence_problem(double x) const {
-    auto v = rule_takes_e_values(rule_->config().kind) ? validate_e_value(x) : validate_p_value(x);
-    if (!v) return "the stored " + v.error().message;
-    return std::nullopt;
-  }
-
-  // A look event: recomputed from its stored summaries and the test's look before it.
-  std::optional<std::string> replay_look(const EventRecord& ev, Launched& t) {
-    const LookPayload& stored = ev.look;
-    if (!same_bits(ev.level, running_level(ev.launch)))
-      return mismatch("the reserved level", running_level(ev.launch), ev.level);
-    if (!same_bits(rule_->wealth(), ev.wealth)) return mismatch("wealth", rule_->wealth(), ev.wealth);
-    if (stored.previous_look != t.last_look_entry) {
-      return "look " + std::to_string(stored.look) + " links to the look at step " +
-             std::to_string(stored.previous_look) + " but the test's look before it is at step " +
-             std::to_string(t.last_look_entry);
-    }
-    if (!stored.data.mixture_sd) return "the look has no mixing scale";
-    if (t.last_look) {
-      if (t.last_look->data.summary != stored.data.summary ||
-          !same_bits(*t.last_look->data.mixture_sd, *stored.data.mixture_sd))
-        return "the look changes the kind of summary or the mixing scale of the test's first look";
-    }
-    auto again = compute_look(rule_->config(), alternative_, ev.level, stored.data,
-                              t.last_look ? &*t.last_look : nullptr);
-    if (!again) return "the look's stored summaries are refused: " + again.error().message;
-    again->previous_look = stored.previous_look;
-    if (!(*again == stored)) {
-      return "recomputing the look from its stored summaries gives anytime p-value " +
-             readable_number(again->anytime_p_value) + ", running minimum " + readable_number(again->running_min) +
-             ", " + (again->stop ? "stop" : "continue") + ", but the entry has " +
-             readable_number(stored.anytime_p_value) + ", " + readable_number(stored.running_min) + ", " +
-             (stored.stop ? "stop" : "continue") + " (the look was changed)";
-    }
-    t.last_look = stored;
-    t.last_look_entry = ev.entry;
-    if (stored.stop) {
-      pending_stop_ = ev.launch;
-      pending_value_ = rule_takes_e_values(rule_->config().kind) ? stored.e_value : stored.running_min;
-    }
-    return std::nullopt;
-  }
-
-  double running_level(std::uint64_t launch) const {
-    for (const auto& t : rule_->running())
-      if (t.launch == launch) return t.level;
-    return 0.0;
-  }
-
-  // The look state key of a test that was looked at must point to its last look.
-  std::optional<std::string> look_state_problem(const Launched& t) {
-    if (t.last_look_entry == 0) return std::nullopt;
-    auto state = store_.get(look_key(stream_, t.id));
-    if (!state) {
-      io_error_ = state.error();
-      return "the look state cannot be read";
-    }
-    auto entry = *state ? decode_step(**state) : Result<std::uint64_t>(corruption("absent"));
-    if (!entry || *entry != t.last_look_entry) {
-      return "the look state of test " + in_quotes(excerpt(t.id)) + " does not point to its last look (step " +
-             std::to_string(t.last_look_entry) + ")";
-    }
-    return std::nullopt;
-  }
-
-  // A version-1 decision record: a launch and a finish at once.
-  std::optional<std::string> replay_decision(const DecisionRecord& r) {
-    if (auto v = evidence_problem(r.p_value)) return v;
-    const Outcome o = rule_->record(r.p_value);
-    ++launches_;
-    if (o.step != r.step) {
-      return "a decision record at step " + std::to_string(r.step) + " is launch " + std::to_string(o.step) +
-             "; decision records are only written while each step is a launch";
-    }
-    if (!same_bits(o.level, r.level) || o.rejected != r.rejected || !same_bits(o.wealth, r.wealth)) {
-      return "replaying the rule gives level " + readable_number(o.level) + ", rejected " +
-             (o.rejected ? "1" : "0") + ", wealth " + readable_number(o.wealth) + " but the record has level " +
-             readable_number(r.level) + ", rejected " + (r.rejected ? "1" : "0") + ", wealth " +
-             readable_number(r.wealth);
-    }
-    return std::nullopt;
-  }
-
-  std::optional<std::string> replay_launch(const EventRecord& ev) {
-    const Reservation r = rule_->launch();
-    ++launches_;
-    if (r.launch != ev.launch) {
-      return "the launch event says launch " + std::to_string(ev.launch) + " but it is launch " +
-             std::to_string(r.launch);
-    }
-    if (!same_bits(r.level, ev.level)) return mismatch("the reserved level", r.level, ev.level);
-    if (!same_bits(r.wealth, ev.wealth)) return mismatch("wealth", r.wealth, ev.wealth);
-    running_ids_.emplace(ev.launch, Launched{ev.id, ev.entry, ev.at_ms, std::nullopt, std::nullopt, 0});
-    return std::nullopt;
-  }
-
-  std::optional<std::string> replay_finish(const EventRecord& ev) {
-    Rule& rule = *rule_;
-    if (auto v = evidence_problem(ev.p_value)) return v;
-    auto o = rule_takes_e_values(rule.config().kind) ? rule.finish_e(ev.launch, ev.p_value)
-                                                     : rule.finish(ev.launch, ev.p_value);
-    if (!o) return "the rule refuses the finish: " + o.error().message;
-    if (!same_bits(o->level, ev.level) || o->rejected != ev.rejected || !same_bits(o->wealth, ev.wealth)) {
-      return "replaying the rule gives reserved level " + readable_number(o->level) + ", rejected " +
-             (o->rejected ? "1" : "0") + ", wealth " + readable_number(o->wealth) +
-             " but the finish event has level " + readable_number(ev.level) + ", rejected " +
-             (ev.rejected ? "1" : "0") + ", wealth " + readable_number(ev.wealth);
-    }
-    return std::nullopt;
-  }
-
-  std::optional<std::string> replay_abandon(const EventRecord& ev) {
-    Rule& rule = *rule_;
-    double reserved = 0.0;
-    for (const auto& t : rule.running()) {
-      if (t.launch == ev.launch) reserved = t.level;
-    }
-    if (auto st = rule.abandon(ev.launch); !st) return "the rule refuses the abandon: " + st.error().message;
-    if (!same_bits(reserved, ev.level)) return mismatch("the reserved level", reserved, ev.level);
-    if (!same_bits(rule.wealth(), ev.wealth)) return mismatch("wealth", rule.wealth(), ev.wealth);
-    return std::nullopt;
-  }
-
-  // Replays one entry through the rule; the problem text when it disagrees.
-  std::optional<std::string> replay_entry(const ChainEntry& e) {
-    if (pending_stop_) {  // a look said stop: the next entry is that test's finish with its value
-      const bool finishes = e.is_event && e.event.event.kind == EventKind::kFinish &&
-                            e.event.event.launch == *pending_stop_ && same_bits(e.event.event.p_value, pending_value_);
-      pending_stop_.reset();
-      if (!finishes)
-        return "the look before this entry said stop, but this entry is not that test's finish with its value";
-    }
-    if (!e.is_event) return replay_decision(e.record.record);
-    const EventRecord& ev = e.event.event;
-    if (ev.kind == EventKind::kLaunch) return replay_launch(ev);
-    const std::string what(event_kind_name(ev.kind));
-    auto it = running_ids_.find(ev.launch);
-    if (it == running_ids_.end()) {
-      return "the " + what + " event names launch " + std::to_string(ev.launch) +
-             ", which is not a running launch event before it";
-    }
-    if (it->second.id != ev.id) {
-      return "the " + what + " event names test " + in_quotes(excerpt(ev.id)) + " but launch " +
-             std::to_string(ev.launch) + " is test " + in_quotes(excerpt(it->second.id));
-    }
-    if (ev.launched_at_ms != it->second.at_ms) {
-      return "the " + what + " event says the test was launched at " + format_timestamp(ev.launched_at_ms) +
-             " but its launch event says " + format_timestamp(it->second.at_ms);
-    }
-    if (ev.kind == EventKind::kLook) return replay_look(ev, it->second);
-    auto problem = ev.kind == EventKind::kFinish ? replay_finish(ev) : replay_abandon(ev);
-    if (!problem) problem = look_state_problem(it->second);
-    if (!problem) running_ids_.erase(it);
-    return problem;
   }
 
   // The stored record at the expected step: its key, hash, link and replay. False stops the walk
@@ -348,12 +175,15 @@ class StreamVerifier {
                                                       std::to_string(expected_ - 1) + " was replaced)");
       return false;
     }
-    if (auto problem = replay_entry(*rec)) {
-      bad_ = fail(expected_, *problem);
+    if (auto problem = replay_->replay(*rec)) {
+      if (replay_->io_error()) {
+        io_error_ = replay_->io_error();
+      } else {
+        bad_ = fail(expected_, *problem);
+      }
       return false;
     }
     const bool is_look = rec->is_event && rec->event.event.kind == EventKind::kLook;
-    if (io_error_) return false;
     if (!is_look && !check_index_entry(*rec)) return false;
     if (auto p = anchor_problem(expected_, rec->hash())) {
       bad_ = fail(expected_, *p);
@@ -381,7 +211,7 @@ class StreamVerifier {
       if (auto st = decode_step(**index); st) indexed = *st;
     }
     const bool is_launch = rec.is_event && rec.event.event.kind == EventKind::kLaunch;
-    if (is_launch) running_ids_.at(rec.event.event.launch).indexed = indexed;
+    if (is_launch) replay_->running().at(rec.event.event.launch).indexed = indexed;
     if (indexed && (is_launch ? *indexed >= expected_ : *indexed == expected_)) return true;
     std::string twice;
     if (indexed && *indexed < expected_) {  // is it an earlier record with the same id?
@@ -418,13 +248,14 @@ class StreamVerifier {
                                     : "the last record does not match the hash in the head (it was replaced, "
                                       "or a closing was removed from the head)");
     }
-    if (head.rule_state !=
-        (head.running_apart ? rule_->encode_state_without_running() : rule_->encode_state())) {
+    const Rule& rule = replay_->rule();
+    if (head.rule_state != (head.running_apart ? rule.encode_state_without_running() : rule.encode_state())) {
       return fail(steps, "the stored rule state does not equal the state replayed from the history");
     }
-    if (pending_stop_) return fail(steps, "the last look said stop, but the test's finish is missing");
-    for (const auto& [launch, t] : running_ids_) {
-      if (auto p = look_state_problem(t)) return fail(t.last_look_entry, *p);
+    if (replay_->stop_pending())
+      return fail(steps, "the last look said stop, but the test's finish is missing");
+    for (const auto& [launch, t] : replay_->running()) {
+      if (auto p = replay_->look_state_problem(t)) return fail(t.last_look_entry, *p);
       if (t.indexed != t.entry) {
         return fail(t.entry, "the test id index for running test " + in_quotes(excerpt(t.id)) + " points to " +
                                  index_target(t.indexed) + ", not to its launch");
@@ -438,8 +269,8 @@ class StreamVerifier {
   Result<std::optional<VerifyReport>> check_running_keys(const StoredHead& head, std::uint64_t steps) {
     std::vector<StoredRunning> expected;
     if (head.running_apart) {
-      for (const auto& t : rule_->running()) {
-        const Launched& l = running_ids_.at(t.launch);
+      for (const auto& t : replay_->rule().running()) {
+        const Launched& l = replay_->running().at(t.launch);
         expected.push_back({t.launch, t.level, l.at_ms, l.id});
       }
     }
@@ -459,7 +290,7 @@ class StreamVerifier {
       return true;
     });
     if (!s) return s.error();
-    if (entries == launches_) return std::optional<VerifyReport>{};
+    if (entries == replay_->launches()) return std::optional<VerifyReport>{};
     // Find the entry without a record, to name it.
     std::optional<VerifyReport> index_bad;
     s = store_.scan(prefix, [&](std::string_view key, std::string_view value) {
@@ -487,7 +318,8 @@ class StreamVerifier {
     if (io_error_) return *io_error_;
     if (index_bad) return index_bad;
     return std::optional<VerifyReport>{fail(0, "the test id index holds " + std::to_string(entries) +
-                                                   " entries for " + std::to_string(launches_) + " tests")};
+                                                   " entries for " + std::to_string(replay_->launches()) +
+                                                   " tests")};
   }
 
   // Step anchors past the last record (the ledger lost its tail, or the anchor is not from here),
@@ -522,17 +354,12 @@ class StreamVerifier {
   VerifyReport report_;
   std::vector<const Anchor*> step_anchors_, closing_anchors_;
   std::size_t next_anchor_ = 0;
-  std::optional<Rule> rule_;
+  std::optional<ChainReplay> replay_;
   Digest prev_{};
   std::uint64_t expected_ = 1;
   std::string expected_key_;  // rewritten in place for each next step
   std::optional<VerifyReport> bad_;
   std::optional<Error> io_error_;
-  std::map<std::uint64_t, Launched> running_ids_;
-  Alternative alternative_ = Alternative::kTwoSided;
-  std::optional<std::uint64_t> pending_stop_;  // a look said stop: its launch, and the value to finish with
-  double pending_value_ = 0;
-  std::uint64_t launches_ = 0;  // tests launched: decision records and launch events (one id each)
 };
 
 }  // namespace
