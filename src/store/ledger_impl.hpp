@@ -210,6 +210,13 @@ class StoreLedger final : public Ledger {
                                    WriteBatch& batch, Touched* touched);
   Result<AbandonResult> abandon_into(std::string_view stream, StreamSlot& slot, std::string_view id,
                                      WriteBatch& batch, Touched* touched);
+  // launch_once and abandon_once: the checks, the slot, the event through `into`, one write
+  // (none when the event changes nothing, as a repeated launch). ledger_launch.cpp.
+  template <typename R>
+  using EventInto = Result<R> (StoreLedger::*)(std::string_view, StreamSlot&, std::string_view, WriteBatch&,
+                                               Touched*);
+  template <typename R>
+  Result<R> one_event_once(std::string_view stream, std::string_view id, EventInto<R> into);
   // With e_value the number is an e-value (e-lond streams; the caller has checked that it fits).
   Result<DecideResult> decide_event_into(std::string_view stream, StreamSlot& slot, std::string_view id,
                                          double p_value, bool e_value, WriteBatch& batch, Touched* touched);
