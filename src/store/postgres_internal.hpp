@@ -6,8 +6,6 @@
 // each out to one caller).
 #pragma once
 
-#include <libpq-fe.h>
-
 #include <cstdint>
 #include <functional>
 #include <memory>
@@ -17,6 +15,7 @@
 
 #include "alphaledger/result.hpp"
 #include "alphaledger/store.hpp"
+#include "store/postgres_lib.hpp"
 
 namespace alphaledger::store::pg {
 
@@ -27,7 +26,7 @@ inline constexpr int kSchemaVersion = 1;
 inline constexpr std::string_view kMovedState = "AL001";
 
 struct ResultDeleter {
-  void operator()(PGresult* r) const { PQclear(r); }
+  void operator()(PGresult* r) const { pq().PQclear(r); }
 };
 using ResultPtr = std::unique_ptr<PGresult, ResultDeleter>;
 
@@ -57,6 +56,12 @@ std::string clean_message(std::string_view message, std::string_view secret);
 // takes e-values (its decisions row fills e_value rather than p_value); it may read the store.
 using EValuesOf = std::function<Result<bool>(std::string_view stream)>;
 Status append_projection(std::string& sql, const WriteBatch& batch, const EValuesOf& e_values);
+
+// Checks the schema on `conn` (and creates it when absent and `may_create`): the not_found
+// "no_ledger" error when absent and not to be made, corruption for an unknown version, else what
+// translate() says (postgres_schema.cpp). `what` starts each message, `where` is the redacted URI.
+Status prepare_schema(PGconn* conn, const std::string& what, const std::string& where, bool may_create,
+                      std::string_view secret);
 
 // The first row of stream's projection that differs from its entries, read in one snapshot on
 // `conn` (postgres_projection.cpp).

@@ -1,8 +1,6 @@
 // The readable copy of a PostgreSQL ledger: the rows of alphaledger.streams and
 // alphaledger.decisions that each batch's entries decode to (written in the batch's transaction),
 // and the check that every row still equals them (verify). docs/postgresql.md lists the columns.
-#include <libpq-fe.h>
-
 #include <bit>
 #include <charconv>
 #include <cstring>
@@ -209,13 +207,13 @@ std::uint64_t be64(const char* p) {
 class Fields {
  public:
   Fields(const PGresult* r, int row) : r_(r), row_(row) {}
-  bool null(int col) const { return PQgetisnull(r_, row_, col) != 0; }
+  bool null(int col) const { return pq().PQgetisnull(r_, row_, col) != 0; }
   std::string_view bytes(int col) const {
-    return {PQgetvalue(r_, row_, col), static_cast<std::size_t>(PQgetlength(r_, row_, col))};
+    return {pq().PQgetvalue(r_, row_, col), static_cast<std::size_t>(pq().PQgetlength(r_, row_, col))};
   }
-  std::int64_t int64(int col) const { return static_cast<std::int64_t>(be64(PQgetvalue(r_, row_, col))); }
-  double float8(int col) const { return std::bit_cast<double>(be64(PQgetvalue(r_, row_, col))); }
-  bool boolean(int col) const { return PQgetvalue(r_, row_, col)[0] != 0; }
+  std::int64_t int64(int col) const { return static_cast<std::int64_t>(be64(pq().PQgetvalue(r_, row_, col))); }
+  double float8(int col) const { return std::bit_cast<double>(be64(pq().PQgetvalue(r_, row_, col))); }
+  bool boolean(int col) const { return pq().PQgetvalue(r_, row_, col)[0] != 0; }
   std::optional<double> opt_float8(int col) const {
     return null(col) ? std::nullopt : std::optional(float8(col));
   }
@@ -265,7 +263,7 @@ ResultPtr run(PGconn* conn, const char* sql, const std::string& param, const std
   const char* values[] = {param.data(), param2.data()};
   const int lengths[] = {static_cast<int>(param.size()), static_cast<int>(param2.size())};
   const int formats[] = {1, 1};
-  return ResultPtr(PQexecParams(conn, sql, nparams, nullptr, values, lengths, formats, 1));
+  return ResultPtr(pq().PQexecParams(conn, sql, nparams, nullptr, values, lengths, formats, 1));
 }
 
 }  // namespace
@@ -283,8 +281,8 @@ struct ProjectionSnapshot {
 Result<ProjectionSnapshot> read_snapshot(PGconn* conn, std::string_view stream,
                                          const std::function<Error(const PGresult*)>& fail) {
   const std::string name(stream);
-  ResultPtr begin(PQexec(conn, "BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY"));
-  if (PQresultStatus(begin.get()) != PGRES_COMMAND_OK) return fail(begin.get());
+  ResultPtr begin(pq().PQexec(conn, "BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY"));
+  if (pq().PQresultStatus(begin.get()) != PGRES_COMMAND_OK) return fail(begin.get());
   const std::string lo = record_prefix(stream);
   std::string hi = lo;
   hi.back() = static_cast<char>('/' + 1);
@@ -305,9 +303,9 @@ Result<ProjectionSnapshot> read_snapshot(PGconn* conn, std::string_view stream,
                         "alphaledger.streams WHERE stream = $1::text",
                         name);
   for (const ResultPtr* r : {&snap.entries, &snap.rows, &snap.config, &snap.head, &snap.stream_row}) {
-    if (PQresultStatus(r->get()) != PGRES_TUPLES_OK) return fail(r->get());
+    if (pq().PQresultStatus(r->get()) != PGRES_TUPLES_OK) return fail(r->get());
   }
-  ResultPtr end(PQexec(conn, "COMMIT"));
+  ResultPtr end(pq().PQexec(conn, "COMMIT"));
   return snap;
 }
 
@@ -315,7 +313,7 @@ Result<ProjectionSnapshot> read_snapshot(PGconn* conn, std::string_view stream,
 std::optional<Problem> check_stream_row(const PGresult* stream_row, std::string_view stream,
                                         const StoredConfig& cfg, const StoredHead& hd) {
   const std::string table_row = "alphaledger.streams row of stream " + in_quotes(stream);
-  if (PQntuples(stream_row) != 1) return Problem{0, table_row + " is missing"};
+  if (pq().PQntuples(stream_row) != 1) return Problem{0, table_row + " is missing"};
   const Fields f(stream_row, 0);
   StreamRow expected{std::string(rule_name(cfg.config.kind)),
                      cfg.config.alpha,
@@ -362,8 +360,8 @@ DecisionRow stored_row(const Fields& f) {
 // without an entry, or the first column that differs.
 std::optional<Problem> check_decision_rows(const PGresult* entries, const PGresult* rows,
                                            std::string_view stream, bool e_values) {
-  const int n_entries = PQntuples(entries);
-  const int n_rows = PQntuples(rows);
+  const int n_entries = pq().PQntuples(entries);
+  const int n_rows = pq().PQntuples(rows);
   const std::string table = "alphaledger.decisions row of stream " + in_quotes(stream) + " step ";
   const auto unmatched = [&](std::uint64_t step) {
     return Problem{step, table + std::to_string(step) + " has no ledger entry (a row added by hand?)"};
@@ -397,7 +395,7 @@ Result<std::optional<Store::ProjectionProblem>> check_projection(PGconn* conn, s
   auto snap =
       read_snapshot(conn, stream, [&](const PGresult* r) { return translate(conn, r, what, secret); });
   if (!snap) return snap.error();
-  if (PQntuples(snap->config.get()) != 1 || PQntuples(snap->head.get()) != 1) return std::optional<Problem>{};
+  if (pq().PQntuples(snap->config.get()) != 1 || pq().PQntuples(snap->head.get()) != 1) return std::optional<Problem>{};
   auto cfg = decode_config(Fields(snap->config.get(), 0).bytes(0));
   auto hd = decode_head(Fields(snap->head.get(), 0).bytes(0));
   if (!cfg || !hd) return std::optional<Problem>{};  // the chain check reports these

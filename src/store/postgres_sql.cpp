@@ -108,22 +108,22 @@ std::string clean_message(std::string_view message, std::string_view secret) {
 }
 
 bool connection_lost(PGconn* conn, const PGresult* result) {
-  if (conn == nullptr || PQstatus(conn) == CONNECTION_BAD) return true;
-  const char* state = result ? PQresultErrorField(result, PG_DIAG_SQLSTATE) : nullptr;
+  if (conn == nullptr || pq().PQstatus(conn) == CONNECTION_BAD) return true;
+  const char* state = result ? pq().PQresultErrorField(result, PG_DIAG_SQLSTATE) : nullptr;
   if (state == nullptr) return true;  // libpq's own failure: nothing came back from the server
   const std::string_view s(state);
   return s.starts_with("08") || s.starts_with("57P");
 }
 
 Error translate(PGconn* conn, const PGresult* result, const std::string& what, std::string_view secret) {
-  const char* raw = result ? PQresultErrorMessage(result) : nullptr;
-  if (raw == nullptr || *raw == '\0') raw = conn ? PQerrorMessage(conn) : "no connection";
+  const char* raw = result ? pq().PQresultErrorMessage(result) : nullptr;
+  if (raw == nullptr || *raw == '\0') raw = conn ? pq().PQerrorMessage(conn) : "no connection";
   const std::string message = clean_message(raw, secret);
   if (connection_lost(conn, result)) {
     return io_error(what + ": the PostgreSQL server is not reachable (" + message +
                     "); nothing was changed unless the server had committed it: retry when it is back");
   }
-  const std::string_view state(PQresultErrorField(result, PG_DIAG_SQLSTATE));
+  const std::string_view state(pq().PQresultErrorField(result, PG_DIAG_SQLSTATE));
   if (state == kMovedState || state == "40001" || state == "40P01" || state == "23505") {
     Error e = head_moved("the stream's head");
     e.message =

@@ -11,8 +11,6 @@
 // Every write is one round trip: the statements of the batch sent as one query string, which
 // PostgreSQL runs as one transaction (all or nothing), committed with the server's
 // synchronous_commit (default on: durable when it returns).
-#include <libpq-fe.h>
-
 #include <map>
 #include <mutex>
 #include <vector>
@@ -26,54 +24,11 @@ namespace alphaledger {
 
 namespace {
 
+using store::pg::pq;
 using store::pg::ResultPtr;
 
-// The schema, made in one transaction under an advisory lock (its key is a fixed number of our
-// own), so that two processes creating it at once take turns.
-constexpr const char* kCreateSchema = R"sql(
-BEGIN;
-SELECT pg_advisory_xact_lock(7022652150046074228);
-CREATE SCHEMA IF NOT EXISTS alphaledger;
-CREATE TABLE IF NOT EXISTS alphaledger.schema_version (version integer NOT NULL);
-CREATE TABLE IF NOT EXISTS alphaledger.entries (key bytea PRIMARY KEY, value bytea NOT NULL);
-CREATE TABLE IF NOT EXISTS alphaledger.streams (
-  stream text PRIMARY KEY,
-  rule text NOT NULL,
-  alpha float8 NOT NULL,
-  alternative text NOT NULL,
-  created_at timestamptz NOT NULL,
-  record_count bigint NOT NULL,
-  closed_at timestamptz);
-CREATE TABLE IF NOT EXISTS alphaledger.decisions (
-  stream text NOT NULL,
-  step bigint NOT NULL,
-  id text NOT NULL,
-  kind text NOT NULL,
-  launch bigint NOT NULL,
-  p_value float8,
-  e_value float8,
-  level float8 NOT NULL,
-  rejected boolean,
-  wealth float8 NOT NULL,
-  decided_at timestamptz NOT NULL,
-  hash bytea NOT NULL,
-  PRIMARY KEY (stream, step));
-CREATE OR REPLACE FUNCTION alphaledger.expect_value(k bytea, expected bytea) RETURNS void
-LANGUAGE plpgsql AS $body$
-BEGIN
-  PERFORM 1 FROM alphaledger.entries WHERE key = k AND value = expected FOR UPDATE;
-  IF NOT FOUND THEN
-    RAISE EXCEPTION 'the value at the key moved' USING ERRCODE = 'AL001';
-  END IF;
-END
-$body$;
-INSERT INTO alphaledger.schema_version (version)
-  SELECT 1 WHERE NOT EXISTS (SELECT 1 FROM alphaledger.schema_version);
-COMMIT;
-)sql";
-
 struct ConnDeleter {
-  void operator()(PGconn* c) const { PQfinish(c); }
+  void operator()(PGconn* c) const { pq().PQfinish(c); }
 };
 using ConnPtr = std::unique_ptr<PGconn, ConnDeleter>;
 
@@ -87,14 +42,14 @@ Status as_status(const Result<std::monostate>& r) {
 // The password the URI holds (as libpq reads it), so that no message shows it.
 std::string password_of(const std::string& uri) {
   char* err = nullptr;
-  PQconninfoOption* opts = PQconninfoParse(uri.c_str(), &err);
-  if (err) PQfreemem(err);
+  PQconninfoOption* opts = pq().PQconninfoParse(uri.c_str(), &err);
+  if (err) pq().PQfreemem(err);
   if (!opts) return {};
   std::string out;
   for (PQconninfoOption* o = opts; o->keyword; ++o) {
     if (std::string_view(o->keyword) == "password" && o->val) out = o->val;
   }
-  PQconninfoFree(opts);
+  pq().PQconninfoFree(opts);
   return out;
 }
 
@@ -128,18 +83,18 @@ class PostgresStore final : public Store {
     const char* keywords[] = {"connect_timeout", "fallback_application_name", "client_encoding", "dbname",
                               nullptr};
     const char* values[] = {timeout.c_str(), "alphaledger", "UTF8", uri_.c_str(), nullptr};
-    ConnPtr conn(PQconnectdbParams(keywords, values, 1));
+    ConnPtr conn(pq().PQconnectdbParams(keywords, values, 1));
     if (!conn) return io_error(what + ": cannot connect to the PostgreSQL server: out of memory");
-    if (PQstatus(conn.get()) != CONNECTION_OK) {
+    if (pq().PQstatus(conn.get()) != CONNECTION_OK) {
       return io_error(
           what + ": cannot connect to the PostgreSQL server: " +
-          store::pg::clean_message(PQerrorMessage(conn.get()), secret_) +
+          store::pg::clean_message(pq().PQerrorMessage(conn.get()), secret_) +
           " (check the URI, the server, and the credentials in the URI, PGPASSWORD or ~/.pgpass)");
     }
-    PQsetNoticeProcessor(conn.get(), ignore_notice, nullptr);
+    pq().PQsetNoticeProcessor(conn.get(), ignore_notice, nullptr);
     if (options_.read_only) {
-      ResultPtr r(PQexec(conn.get(), "SET default_transaction_read_only = on"));
-      if (PQresultStatus(r.get()) != PGRES_COMMAND_OK)
+      ResultPtr r(pq().PQexec(conn.get(), "SET default_transaction_read_only = on"));
+      if (pq().PQresultStatus(r.get()) != PGRES_COMMAND_OK)
         return store::pg::translate(conn.get(), r.get(), what, secret_);
     }
     return conn;
@@ -160,10 +115,10 @@ class PostgresStore final : public Store {
   }
 
   void give_back(ConnPtr conn) {
-    if (!conn || PQstatus(conn.get()) != CONNECTION_OK) return;
-    if (PQtransactionStatus(conn.get()) != PQTRANS_IDLE) {
-      ResultPtr r(PQexec(conn.get(), "ROLLBACK"));
-      if (PQtransactionStatus(conn.get()) != PQTRANS_IDLE) return;
+    if (!conn || pq().PQstatus(conn.get()) != CONNECTION_OK) return;
+    if (pq().PQtransactionStatus(conn.get()) != PQTRANS_IDLE) {
+      ResultPtr r(pq().PQexec(conn.get(), "ROLLBACK"));
+      if (pq().PQtransactionStatus(conn.get()) != PQTRANS_IDLE) return;
     }
     std::lock_guard lock(mu_);
     if (idle_.size() < options_.idle_connections) idle_.push_back(std::move(conn));
@@ -190,15 +145,15 @@ class PostgresStore final : public Store {
           const int lengths[] = {static_cast<int>(key.size())};
           const int formats[] = {1};
           const Oid types[] = {17};  // bytea
-          ResultPtr r(PQexecParams(conn, "SELECT value FROM alphaledger.entries WHERE key = $1", 1, types,
+          ResultPtr r(pq().PQexecParams(conn, "SELECT value FROM alphaledger.entries WHERE key = $1", 1, types,
                                    values, lengths, formats, 1));
-          if (PQresultStatus(r.get()) != PGRES_TUPLES_OK) {
+          if (pq().PQresultStatus(r.get()) != PGRES_TUPLES_OK) {
             lost = store::pg::connection_lost(conn, r.get());
             return store::pg::translate(conn, r.get(), what, secret_);
           }
-          if (PQntuples(r.get()) == 0) return std::optional<std::string>{};
+          if (pq().PQntuples(r.get()) == 0) return std::optional<std::string>{};
           return std::optional<std::string>{
-              std::string(PQgetvalue(r.get(), 0, 0), PQgetlength(r.get(), 0, 0))};
+              std::string(pq().PQgetvalue(r.get(), 0, 0), pq().PQgetlength(r.get(), 0, 0))};
         });
   }
 
@@ -222,8 +177,8 @@ class PostgresStore final : public Store {
     return as_status(
         with_connection<std::monostate>(what, [&](PGconn* conn, bool& lost) -> Result<std::monostate> {
           // One snapshot over all pages.
-          ResultPtr begin(PQexec(conn, "BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY"));
-          if (PQresultStatus(begin.get()) != PGRES_COMMAND_OK) {
+          ResultPtr begin(pq().PQexec(conn, "BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY"));
+          if (pq().PQresultStatus(begin.get()) != PGRES_COMMAND_OK) {
             lost = store::pg::connection_lost(conn, begin.get());
             return store::pg::translate(conn, begin.get(), what, secret_);
           }
@@ -240,18 +195,18 @@ class PostgresStore final : public Store {
             const int formats[] = {1, 1};
             const Oid types[] = {17, 17};
             ResultPtr r(
-                PQexecParams(conn, sql.c_str(), upper.empty() ? 1 : 2, types, values, lengths, formats, 1));
-            if (PQresultStatus(r.get()) != PGRES_TUPLES_OK) {
+                pq().PQexecParams(conn, sql.c_str(), upper.empty() ? 1 : 2, types, values, lengths, formats, 1));
+            if (pq().PQresultStatus(r.get()) != PGRES_TUPLES_OK) {
               lost = !visited && store::pg::connection_lost(conn, r.get());
               return store::pg::translate(conn, r.get(), what, secret_);
             }
-            const int rows = PQntuples(r.get());
+            const int rows = pq().PQntuples(r.get());
             if (rows > 0) visited = true;
             for (int i = 0; i < rows; ++i) {
-              const std::string_view k(PQgetvalue(r.get(), i, 0), PQgetlength(r.get(), i, 0));
-              const std::string_view v(PQgetvalue(r.get(), i, 1), PQgetlength(r.get(), i, 1));
+              const std::string_view k(pq().PQgetvalue(r.get(), i, 0), pq().PQgetlength(r.get(), i, 0));
+              const std::string_view v(pq().PQgetvalue(r.get(), i, 1), pq().PQgetlength(r.get(), i, 1));
               if (!visit(k, v)) {
-                ResultPtr end(PQexec(conn, "COMMIT"));
+                ResultPtr end(pq().PQexec(conn, "COMMIT"));
                 return std::monostate{};
               }
               if (i + 1 == rows) from.assign(k);
@@ -260,8 +215,8 @@ class PostgresStore final : public Store {
             first = false;
             limit = std::min(limit * 4, 4096);
           }
-          ResultPtr end(PQexec(conn, "COMMIT"));
-          if (PQresultStatus(end.get()) != PGRES_COMMAND_OK) {
+          ResultPtr end(pq().PQexec(conn, "COMMIT"));
+          if (pq().PQresultStatus(end.get()) != PGRES_COMMAND_OK) {
             lost = !visited && store::pg::connection_lost(conn, end.get());
             return store::pg::translate(conn, end.get(), what, secret_);
           }
@@ -283,7 +238,7 @@ class PostgresStore final : public Store {
     return with_connection<std::optional<ProjectionProblem>>(
         what, [&](PGconn* conn, bool& lost) -> Result<std::optional<ProjectionProblem>> {
           auto r = store::pg::check_projection(conn, stream, where_, secret_);
-          if (!r) lost = store::pg::connection_lost(conn, nullptr) && PQstatus(conn) == CONNECTION_BAD;
+          if (!r) lost = store::pg::connection_lost(conn, nullptr) && pq().PQstatus(conn) == CONNECTION_BAD;
           return r;
         });
   }
@@ -293,40 +248,8 @@ class PostgresStore final : public Store {
     const std::string what = "cannot open ledger " + where_;
     auto lease = take(what);
     if (!lease) return lease.error();
-    PGconn* conn = (*lease)->get();
-    ResultPtr found(PQexec(conn, "SELECT to_regclass('alphaledger.schema_version') IS NOT NULL"));
-    if (PQresultStatus(found.get()) != PGRES_TUPLES_OK)
-      return store::pg::translate(conn, found.get(), what, secret_);
-    const bool exists = std::string_view(PQgetvalue(found.get(), 0, 0)) == "t";
-    if (!exists) {
-      if (options_.read_only || !options_.create_if_missing) {
-        return not_found(
-            "no ledger at " + where_ + " (the database has no alphaledger schema; `new` creates it)",
-            "no_ledger");
-      }
-      ResultPtr made(PQexec(conn, kCreateSchema));
-      if (PQresultStatus(made.get()) != PGRES_COMMAND_OK) {
-        Error e =
-            store::pg::translate(conn, made.get(), what + ": cannot create the alphaledger schema", secret_);
-        return e;
-      }
-    }
-    ResultPtr version(PQexec(conn, "SELECT version FROM alphaledger.schema_version"));
-    if (PQresultStatus(version.get()) != PGRES_TUPLES_OK)
-      return store::pg::translate(conn, version.get(), what, secret_);
-    if (PQntuples(version.get()) != 1) {
-      return corruption(what + ": alphaledger.schema_version holds " +
-                        std::to_string(PQntuples(version.get())) +
-                        " rows, not 1: the schema is damaged or was not made by alphaledger");
-    }
-    const std::string v = PQgetvalue(version.get(), 0, 0);
-    if (v != std::to_string(store::pg::kSchemaVersion)) {
-      return corruption(what + ": its schema has version " + excerpt(v, 20) +
-                        ", which this build of alphaledger " + "does not know (it reads version " +
-                        std::to_string(store::pg::kSchemaVersion) +
-                        "); use the alphaledger that made it, or a newer one");
-    }
-    return {};
+    return store::pg::prepare_schema((*lease)->get(), what, where_,
+                                     !options_.read_only && options_.create_if_missing, secret_);
   }
 
  private:
@@ -372,8 +295,8 @@ class PostgresStore final : public Store {
       // Tried again on a fresh connection when a connection from the pool had lost its server. Safe
       // even if the first try had committed: a write_if then finds the head moved (the ledger's
       // redo finds what was written), and the ledger's plain writes are idempotent puts.
-      ResultPtr res(PQexec(conn, sql.c_str()));
-      const auto status = PQresultStatus(res.get());
+      ResultPtr res(pq().PQexec(conn, sql.c_str()));
+      const auto status = pq().PQresultStatus(res.get());
       if (status != PGRES_COMMAND_OK && status != PGRES_TUPLES_OK) {
         lost = store::pg::connection_lost(conn, res.get());
         return store::pg::translate(conn, res.get(), what, secret_);
@@ -439,6 +362,7 @@ Result<std::unique_ptr<Store>> open_postgres_store(const std::string& uri,
     return invalid_input("a PostgreSQL ledger location starts with postgresql:// or postgres://, got " +
                          excerpt(redact_uri(uri)));
   }
+  if (auto lib = store::pg::load_libpq("cannot open ledger " + redact_uri(uri)); !lib) return lib.error();
   auto store = std::make_unique<PostgresStore>(uri, options);
   if (auto s = store->start(); !s) return s.error();
   return std::unique_ptr<Store>(std::move(store));

@@ -1,7 +1,7 @@
 // Running one test body on every ledger backend: the in-memory store, a RocksDB folder and, when
 // $ALPHALEDGER_TEST_PG holds a PostgreSQL URI (postgresql://USER@HOST:PORT/DB), a scratch database
 // made on that server for the test and dropped after it. Header-only, for test binaries that link
-// the store (which links libpq).
+// the store and libpq (the store itself loads libpq only when it opens a PostgreSQL ledger).
 //
 // Example:
 //   for (auto& backend : test_support::ledger_backends()) {
