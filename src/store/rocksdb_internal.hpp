@@ -1,5 +1,6 @@
 // Internals of the RocksDB store, shared by its files (not installed, store layer only):
-//   rocksdb_store.cpp     the store itself (reads, writes, close) and open_rocksdb_store()
+//   rocksdb_store.cpp     the store itself (reads, writes, close)
+//   rocksdb_open.cpp      open_rocksdb_store(): the folder, the lock, then the checked open
 //   rocksdb_checks.cpp    the seal file and the strict read-only open that runs before every open
 //   rocksdb_salvage.cpp   opening a copy of a damaged ledger for `recover`
 //   rocksdb_messages.cpp  rocksdb::Status and lock holders in our words
@@ -184,6 +185,19 @@ bool held_here(const std::string& path);
 rocksdb::Options base_options(bool read_only);
 // A store over a database opened by the salvage path (read-write, no seal).
 std::unique_ptr<Store> make_salvage_store(std::unique_ptr<rocksdb::DB> db, const std::string& path);
+// A store over a database opened read-only (checked by open_checked).
+std::unique_ptr<Store> make_reader_store(std::unique_ptr<rocksdb::DB> db, const std::string& path);
+// A store over a database just opened read-write with `options`, whose listener feeds `keeper`:
+// the seal started (an error when it cannot be written).
+Result<std::unique_ptr<Store>> make_writer_store(std::unique_ptr<rocksdb::DB> db, const std::string& path,
+                                                 std::shared_ptr<SealKeeper> keeper,
+                                                 const rocksdb::Options& options);
+
+// ---- opening (rocksdb_open.cpp) ----------------------------------------------------------------
+
+// The refusal for a ledger whose LOCK file is held: by this process through another open ledger
+// (`here`), else by `holder` (empty: another process).
+Error in_use(const std::string& path, const std::string& lock_file, bool here, std::string holder = {});
 
 // ---- recover's copy (rocksdb_salvage.cpp) --------------------------------------------------
 

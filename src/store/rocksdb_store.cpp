@@ -335,90 +335,17 @@ std::unique_ptr<Store> make_salvage_store(std::unique_ptr<rocksdb::DB> db, const
   return std::make_unique<RocksStore>(std::move(db), path, false);
 }
 
-}  // namespace alphaledger::rocks
+std::unique_ptr<Store> make_reader_store(std::unique_ptr<rocksdb::DB> db, const std::string& path) {
+  return std::make_unique<RocksStore>(std::move(db), path, true);
+}
 
-namespace alphaledger {
-
-Result<std::unique_ptr<Store>> open_rocksdb_store(const std::string& path, const RocksStoreOptions& options) {
-  using namespace rocks;  // NOLINT(google-build-using-namespace): the store's own internals
-  if (options.salvage_copy) return open_salvage_copy(path);
-  std::error_code ec;
-  const bool exists = fs::exists(path, ec);
-  if (exists && !fs::is_directory(path, ec)) {
-    return io_error("cannot open ledger " + path +
-                         ": it exists and is not a folder (a ledger is a folder; give a folder path)");
-  }
-  const bool has_current = exists && fs::exists(fs::path(path) / "CURRENT", ec);
-  if (exists && !has_current && has_ledger_files(path)) {
-    return damaged(path,
-                   "file " + (fs::path(path) / "CURRENT").string() + " (the pointer to the MANIFEST) is missing");
-  }
-  if (!has_current) {
-    if (!options.create_if_missing || options.read_only) {
-      return not_found("no ledger at " + path, "no_ledger");  // the CLI adds how to make or name one
-    }
-    if (exists && !folder_is_empty(path)) {
-      return io_error("cannot create a ledger in " + path +
-                           ": the folder holds other files and no ledger (give an empty or new folder)");
-    }
-  }
-
-  const std::string lock_file = (fs::path(path) / "LOCK").string();
-  if (has_current && !options.read_only) {
-    // In use: say so before the checks, which could meet a write in progress.
-    if (held_here(path)) {
-      return busy("ledger " + path + " is in use: its lock file " + lock_file +
-                           " is held by this process (pid " + std::to_string(::getpid()) +
-                           ") through another open ledger");
-    }
-    if (std::string holder = lock_holder(lock_file); !holder.empty()) {
-      return busy(
-          "ledger " + path + " is in use: its lock file " + lock_file + " is held by " + holder +
-          "; wait for it to finish, or stop it (alphaledger serve holds the ledger while it runs)");
-    }
-  }
-  if (has_current) {
-    auto checked = open_checked(path, options.check_all_files);
-    if (!checked) return checked.error();
-    if (options.read_only) {
-      return std::unique_ptr<Store>(std::make_unique<RocksStore>(std::move(*checked), path, true));
-    }
-  }
-
-  rocksdb::Options o = base_options(/*read_only=*/false);
-  o.create_if_missing = !has_current;
-  auto keeper = std::make_shared<SealKeeper>();
-  o.listeners.push_back(std::make_shared<SealListener>(keeper));
-  if (!has_current) {
-    fs::create_directories(path, ec);
-    if (ec) {
-      return io_error("cannot create ledger folder " + path + ": " + ec.message() +
-                           " (check that the parent folder exists and is writable)");
-    }
-  }
-  rocksdb::DB* raw = nullptr;
-  const auto s = rocksdb::DB::Open(o, path, &raw);
-  if (!s.ok()) {
-    const std::string text = s.ToString();
-    if (text.find("lock hold by current process") != std::string::npos) {
-      return busy("ledger " + path + " is in use: its lock file " + lock_file +
-                           " is held by this process (pid " + std::to_string(::getpid()) +
-                           ") through another open ledger");
-    }
-    if (text.find("While lock file") != std::string::npos) {
-      std::string holder = lock_holder(lock_file);
-      if (holder.empty()) holder = "another process";
-      return busy(
-          "ledger " + path + " is in use: its lock file " + lock_file + " is held by " + holder +
-          "; wait for it to finish, or stop it (alphaledger serve holds the ledger while it runs)");
-    }
-    if (s.IsCorruption()) return damaged(path, cause_of(s, path));
-    return translate(s, "cannot open ledger " + path, path);
-  }
-  auto store = std::make_unique<RocksStore>(std::unique_ptr<rocksdb::DB>(raw), path, false);
-  if (auto st = store->start_seal(keeper); !st) return st.error();
-  store->set_reopen_options(o);
+Result<std::unique_ptr<Store>> make_writer_store(std::unique_ptr<rocksdb::DB> db, const std::string& path,
+                                                 std::shared_ptr<SealKeeper> keeper,
+                                                 const rocksdb::Options& options) {
+  auto store = std::make_unique<RocksStore>(std::move(db), path, false);
+  if (auto st = store->start_seal(std::move(keeper)); !st) return st.error();
+  store->set_reopen_options(options);
   return std::unique_ptr<Store>(std::move(store));
 }
 
-}  // namespace alphaledger
+}  // namespace alphaledger::rocks
