@@ -134,6 +134,15 @@ Status validate_batch(std::span<const TestView> tests) {
   return {};
 }
 
+// The rows of a batch that a later row repeats (plan_batch's first_row points to them).
+std::vector<bool> rows_repeated_later(const std::vector<std::uint32_t>& first_row) {
+  std::vector<bool> out(first_row.size(), false);
+  for (std::size_t i = 0; i < first_row.size(); ++i) {
+    if (first_row[i] != kStoredRow && first_row[i] != i) out[first_row[i]] = true;
+  }
+  return out;
+}
+
 }  // namespace
 
 Result<bool> StoreLedger::plan_batch(std::string_view stream, std::span<const TestView> tests,
@@ -195,13 +204,7 @@ void StoreLedger::write_batch_groups(std::string_view stream, StreamSlot& slot,
   // points to are kept (in `kept`): a 10^6-row batch does not hold 10^6 results at once.
   const bool keep_all = !on_durable;
   std::unordered_map<std::size_t, DecisionRecord> kept;  // row -> record, rows repeated later
-  std::vector<bool> repeated_later;
-  if (!keep_all) {
-    repeated_later.assign(tests.size(), false);
-    for (std::size_t i = 0; i < tests.size(); ++i) {
-      if (first_row[i] != kStoredRow && first_row[i] != i) repeated_later[first_row[i]] = true;
-    }
-  }
+  const std::vector<bool> repeated_later = keep_all ? std::vector<bool>{} : rows_repeated_later(first_row);
   const std::size_t group_capacity = std::min(group_size, tests.size());
   WriteBatch batch;
   batch.ops.reserve(2 * group_capacity + 1);
