@@ -91,8 +91,7 @@ class SpendingSequence {
   std::string spec_;
   double closed_form(std::uint64_t j) const;  // gamma_j from the formula, j >= 1
 
-  std::shared_ptr<const std::vector<double>> table_;  // gamma_j for j <= 65536, precomputed
-  struct GrowingTable;                                // longer tables, grown on demand, thread-safe
+  struct GrowingTable;  // the tables, grown on demand, thread-safe
   std::shared_ptr<GrowingTable> grown_;
   struct LazyMixture;  // fitted on first use, once, thread-safe
   std::shared_ptr<LazyMixture> mixture_;

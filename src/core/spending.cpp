@@ -18,14 +18,15 @@ namespace alphaledger {
 namespace {
 
 // gamma_j is read from a table for j <= kTableSize and computed from the formula past it (the same
-// bits either way: the table holds the formula's values). Only the first kEagerTableSize values are
-// computed when shared() makes a sequence (parse() alone computes none); the rest of the table is
-// filled on the first gamma_j past them (after kLazyMisses calls that compute gamma_j directly). A read command decides nothing and
-// needs a handful of values, and filling 65,536 values was 10-20% of its CPU time
-// (docs/benchmarks.md "CLI fixed cost").
+// bits either way: the table holds the formula's values). No value is computed when a sequence is
+// made: the table is filled on the first gamma_j after kLazyMisses calls that computed gamma_j
+// directly, and table() (exact evaluation) grows its own in steps of kTableStep values. A read
+// command decides nothing and needs a handful of values: filling 65,536 values was 10-20% of its
+// CPU time, and the 4,096 made eagerly after that still 19% of its instructions (docs/benchmarks.md
+// "CLI fixed cost", "libpq loaded on demand").
 constexpr std::size_t kTableSize = 65536;
-constexpr std::size_t kEagerTableSize = 4096;
-constexpr std::uint32_t kLazyMisses = 1024;  // formula calls past the eager part before filling
+constexpr std::uint32_t kLazyMisses = 1024;  // formula calls before the table is filled
+constexpr std::uint64_t kTableStep = 512;    // table() sizes are multiples of this
 
 double jm_shape(double j) {
   const double l = std::log(j);
@@ -74,7 +75,7 @@ double jm_shape_sum() {
 struct SpendingSequence::GrowingTable {
   std::mutex mutex;
   std::shared_ptr<const std::vector<double>> current;
-  // gamma_j for j <= kTableSize, filled once on first use (see kEagerTableSize).
+  // gamma_j for j <= kTableSize, filled once after kLazyMisses calls of gamma().
   std::atomic<bool> full_ready{false};
   std::vector<double> full;
   // gamma_j past the eager part computed from the formula before the table is filled: a few
@@ -131,12 +132,9 @@ Result<SpendingSequence> SpendingSequence::parse(std::string_view spec) {
   } else {
     return invalid_input("unknown spending sequence '" + std::string(spec) + "'; " + kAccepted);
   }
-  // No table yet: parse() also serves to check a specification (resolve_config), which then drops
-  // the sequence; shared(), where Rules get theirs, fills the first kEagerTableSize values. Without
-  // them gamma_j and table() give the same bits, computed when first asked for.
-  seq.table_ = std::make_shared<const std::vector<double>>();
+  // No table yet: gamma_j and table() give the same bits, computed when first asked for.
   seq.grown_ = std::make_shared<GrowingTable>();
-  seq.grown_->current = seq.table_;
+  seq.grown_->current = std::make_shared<const std::vector<double>>();
   seq.mixture_ = std::make_shared<LazyMixture>();
   return seq;
 }
@@ -156,7 +154,6 @@ double SpendingSequence::closed_form(std::uint64_t j) const {
 
 double SpendingSequence::gamma(std::uint64_t j) const {
   if (j == 0) return 0.0;
-  if (j <= table_->size()) return (*table_)[j - 1];
   if (j > kTableSize) return closed_form(j);
   GrowingTable& g = *grown_;
   if (!g.full_ready.load(std::memory_order_acquire)) {
@@ -164,7 +161,6 @@ double SpendingSequence::gamma(std::uint64_t j) const {
     std::lock_guard lock(g.mutex);
     if (!g.full_ready.load(std::memory_order_relaxed)) {
       g.full.reserve(kTableSize);
-      g.full.assign(table_->begin(), table_->end());
       for (std::uint64_t i = g.full.size() + 1; i <= kTableSize; ++i) g.full.push_back(closed_form(i));
       g.full_ready.store(true, std::memory_order_release);
     }
@@ -176,9 +172,9 @@ std::shared_ptr<const std::vector<double>> SpendingSequence::table(std::uint64_t
   std::lock_guard lock(grown_->mutex);
   const auto& current = grown_->current;
   if (current->size() >= at_least) return current;
-  // At least double, in whole pages of 4,096 values, so a growing stream grows the table rarely.
+  // At least double, in whole steps, so a growing stream grows the table rarely.
   std::uint64_t n = std::max<std::uint64_t>(at_least, 2 * current->size());
-  n = (n + 4095) / 4096 * 4096;
+  n = (n + kTableStep - 1) / kTableStep * kTableStep;
   std::vector<double> next;
   next.reserve(n);
   next.assign(current->begin(), current->end());
@@ -197,11 +193,6 @@ Result<std::shared_ptr<const SpendingSequence>> SpendingSequence::shared(std::st
   }
   auto seq = parse(spec);
   if (!seq) return seq.error();
-  std::vector<double> table;
-  table.reserve(kEagerTableSize);
-  for (std::uint64_t j = 1; j <= kEagerTableSize; ++j) table.push_back(seq->closed_form(j));
-  seq->table_ = std::make_shared<const std::vector<double>>(std::move(table));
-  seq->grown_->current = seq->table_;
   auto made = std::make_shared<const SpendingSequence>(std::move(seq).value());
   if (known->size() >= 64) std::erase_if(*known, [](const auto& e) { return e.second.expired(); });
   (*known)[std::string(spec)] = made;
