@@ -111,8 +111,7 @@ Result<Ledger::Created> StoreLedger::create_stream_once(std::string_view name, c
 Result<Ledger::Closing> StoreLedger::close_stream_once(std::string_view stream) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = load_existing(stream, *slot); !s) return s.error();
   if (slot->head.closed_at_ms) return Closing{info_of(*slot), false, store::to_hex(slot->head.last_hash)};
   // The closing entry links to the last record and becomes the chain's last link: the head
   // carries its hash from now on (docs/ledger-format.md "Closing").
@@ -132,8 +131,7 @@ Result<Ledger::Closing> StoreLedger::close_stream_once(std::string_view stream) 
 Result<double> StoreLedger::next_level(std::string_view stream) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = load_existing(stream, *slot); !s) return s.error();
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
   return slot->rule->next_level();
 }
@@ -141,8 +139,7 @@ Result<double> StoreLedger::next_level(std::string_view stream) {
 Result<StreamInfo> StoreLedger::status(std::string_view stream) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = load_existing(stream, *slot); !s) return s.error();
   return info_of(*slot);
 }
 
@@ -171,8 +168,7 @@ Result<std::vector<StreamInfo>> StoreLedger::streams() {
 Result<std::uint64_t> StoreLedger::entries(std::string_view stream) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = load_existing(stream, *slot); !s) return s.error();
   return slot->head.steps;
 }
 

@@ -44,8 +44,7 @@ Result<DecideResult> StoreLedger::decide_value_once(std::string_view stream, std
   if (auto s = e_value ? validate_e_value(p_value) : validate_p_value(p_value); !s)
     return invalid_input("test " + in_quotes(id) + ": " + s.error().message);
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = load_existing(stream, *slot); !s) return s.error();
   if (auto s = evidence_fits(stream, slot->config.config, e_value, "test " + in_quotes(id)); !s)
     return s.error();
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
@@ -279,8 +278,7 @@ Result<Ledger::BatchResult> StoreLedger::decide_batch_once(std::string_view stre
   if (auto s = validate_batch(tests); !s) return s.error();
   if (group_size == 0) group_size = 1;
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = load_existing(stream, *slot); !s) return s.error();
   for (std::size_t i = 0; i < tests.size(); ++i) {
     auto s =
         evidence_fits(stream, slot->config.config, tests[i].e_value,

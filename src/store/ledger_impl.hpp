@@ -185,6 +185,8 @@ class StoreLedger final : public Ledger {
   Status load(std::string_view name, StreamSlot& slot);
   // Reads the stream from the store into the slot. REQUIRES: slot.mu held.
   Status load_now(std::string_view name, StreamSlot& slot);
+  // load(), then kNotFound unknown_stream when the stream does not exist. REQUIRES: slot.mu held.
+  Status load_existing(std::string_view name, StreamSlot& slot);
 
   StreamInfo info_of(const StreamSlot& slot) const;
 
@@ -198,6 +200,9 @@ class StoreLedger final : public Ledger {
     EventRecord event;   // kRunning: the launch event; kAbandoned: the abandon event
   };
   Result<TestLookup> look_up(std::string_view stream, std::string_view id, std::string& key);
+  // Where a test that was launched stands (running, decided or abandoned) in a loaded, existing
+  // stream; kNotFound not_launched for an id never launched there. REQUIRES: slot.mu held.
+  Result<TestLookup> launched_test(std::string_view stream, std::string_view id, StreamSlot& slot);
   // Ids changed earlier in the same group of events (apply_events), not yet in the store.
   using Touched = std::map<std::string, TestLookup, std::less<>>;
   // look_up(), seeing the group's earlier events first when `touched` is set.

@@ -264,8 +264,7 @@ Result<R> StoreLedger::one_event_once(std::string_view stream, std::string_view 
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_test_id(id); !s) return s.error();
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = load_existing(stream, *slot); !s) return s.error();
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
   WriteBatch batch;
   auto out = (this->*into)(stream, *slot, id, batch, nullptr);

@@ -246,8 +246,7 @@ Result<LookResult> StoreLedger::look_once(std::string_view stream, std::string_v
   if (auto s = check_look_input(id, input); !s)
     return with_message(s.error(), s.error().message + " (the ledger is unchanged)");
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = load_existing(stream, *slot); !s) return s.error();
   if (slot->head.closed_at_ms) return closed_stream(stream, *slot->head.closed_at_ms);
   std::string key;
   auto found = look_up(stream, id, key);
@@ -295,17 +294,7 @@ Result<std::vector<LookResult>> StoreLedger::looks(std::string_view stream, std:
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_test_id(id); !s) return s.error();
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
-  std::string key;
-  auto found = look_up(stream, id, key);
-  if (!found) return found.error();
-  if (found->phase == TestLookup::Phase::kNone) {
-    return with_reason(
-        not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream),
-                  "unknown_test"),
-        "not_launched", std::string(stream));
-  }
+  if (auto found = launched_test(stream, id, *slot); !found) return found.error();
   std::vector<LookResult> out;
   auto last = last_look(stream, id);
   if (!last) return last.error();

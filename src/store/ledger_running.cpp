@@ -65,8 +65,7 @@ Result<std::vector<StoredRunning>> StoreLedger::running_from_chain(std::string_v
 Result<std::vector<RunningEntry>> StoreLedger::running(std::string_view stream) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
+  if (auto s = load_existing(stream, *slot); !s) return s.error();
   std::vector<RunningEntry> out;
   const std::size_t count = slot->rule->running_count();
   if (count == 0) return out;
@@ -94,27 +93,28 @@ Result<std::vector<RunningEntry>> StoreLedger::running(std::string_view stream) 
   return out;
 }
 
+Result<StoreLedger::TestLookup> StoreLedger::launched_test(std::string_view stream, std::string_view id,
+                                                           StreamSlot& slot) {
+  if (auto s = load_existing(stream, slot); !s) return s.error();
+  std::string key;
+  auto found = look_up(stream, id, key);
+  if (!found) return found.error();
+  if (found->phase == TestLookup::Phase::kNone) {
+    return with_reason(
+        not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream), "unknown_test"),
+        "not_launched", std::string(stream));
+  }
+  return found;
+}
+
 Result<RunningEntry> StoreLedger::running_test(std::string_view stream, std::string_view id) {
   if (auto s = store::validate_stream_name(stream); !s) return s.error();
   if (auto s = validate_test_id(id); !s) return s.error();
   SlotGuard slot(*this, stream);
-  if (auto s = load(stream, *slot); !s) return s.error();
-  if (!slot->exists) return unknown_stream(stream, location());
-  std::string key;
-  auto found = look_up(stream, id, key);
+  auto found = launched_test(stream, id, *slot);
   if (!found) return found.error();
-  switch (found->phase) {
-    case TestLookup::Phase::kNone:
-      return with_reason(
-          not_found("test " + in_quotes(id) + " was never launched in stream " + in_quotes(stream),
-                    "unknown_test"),
-          "not_launched", std::string(stream));
-    case TestLookup::Phase::kRunning:
-      return RunningEntry{found->event.id, found->event.launch, found->event.level, found->event.at_ms};
-    case TestLookup::Phase::kDecided:
-    case TestLookup::Phase::kAbandoned:
-      break;
-  }
+  if (found->phase == TestLookup::Phase::kRunning)
+    return RunningEntry{found->event.id, found->event.launch, found->event.level, found->event.at_ms};
   const DecisionRecord& r = found->row;
   return conflict("test " + in_quotes(id) + " in stream " + in_quotes(stream) + " is not running: it was " +
                       (r.abandoned ? "abandoned" : "decided") + " at " + format_timestamp(r.decided_at_ms) +

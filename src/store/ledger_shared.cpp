@@ -38,6 +38,12 @@ void StoreLedger::pause_before_retry(int attempt) {
   std::this_thread::sleep_for(std::chrono::microseconds(pick(random)));
 }
 
+Status StoreLedger::load_existing(std::string_view name, StreamSlot& slot) {
+  if (auto s = load(name, slot); !s) return s;
+  if (!slot.exists) return unknown_stream(name, location());
+  return {};
+}
+
 Status StoreLedger::load(std::string_view name, StreamSlot& slot) {
   if (!shared_) return slot.loaded ? Status{} : load_now(name, slot);
   const std::string key = head_key(name);
