@@ -12,6 +12,7 @@
 #include <functional>
 #include <optional>
 #include <string>
+#include <string_view>
 #include <variant>
 #include <vector>
 
@@ -97,5 +98,14 @@ void replay_each(const CompactLog& log, const Procedure& procedure,
                  const std::function<void(std::size_t, const Decision&)>& each);
 // summarize(replay(log, procedures), log) for a compact log, one procedure at a time.
 std::vector<ReplaySummary> summarize(const CompactLog& log, const std::vector<Procedure>& procedures);
+
+// The CSV form of replay's decisions (docs/formats.md, "replay"), as `replay` prints it and the
+// Python binding returns it: the header line for `log` (a launch column after step when the log
+// has launch times; an e_value column after p_value when it has e-values), and the row of
+// decision `d` of `rule` on record `k` of `log` (p_value empty when the log has none; launch and
+// wealth empty when the rule gives none). Both end with a line end.
+std::string replay_csv_header(const CompactLog& log);
+void append_replay_csv_row(std::string& out, std::string_view rule, const CompactLog& log, std::size_t k,
+                           const Decision& d);
 
 }  // namespace alphaledger

@@ -221,42 +221,18 @@ py::object replay_native(const std::optional<std::string>& path, const std::opti
       launches = log->has_launch;
       e_values = log->has_e_values;
       p_values = log->has_p_values;
-      if (csv) {
-        out = launches ? "rule,step,launch,id,p_value," : "rule,step,id,p_value,";
-        out += e_values ? "e_value,level,rejected,wealth\n" : "level,rejected,wealth\n";
-      }
+      if (csv) out = replay_csv_header(*log);
       for (const Procedure& proc : procs) {
         replay_each(*log, proc, [&](std::size_t k, const Decision& d) {
-          const CompactRecord& r = log->records[k];
-          const std::string_view id = log->id(r);
           if (csv) {
-            out += proc.name;
-            out += ',';
-            out += std::to_string(d.step);
-            out += ',';
-            if (launches) {
-              if (d.launch > 0) out += std::to_string(d.launch);
-              out += ',';
-            }
-            if (id.find_first_of(",\"\n\r") == std::string_view::npos)
-              out += id;
-            else
-              out += csv_field(id);
-            out += ',';
-            if (p_values) append_number_text(out, r.p_value);
-            out += ',';
-            if (e_values) {
-              append_number_text(out, r.e_value);
-              out += ',';
-            }
-            append_number_text(out, d.level);
-            out += d.rejected ? ",1," : ",0,";
-            if (d.wealth) append_number_text(out, *d.wealth);
-            out += '\n';
+            append_replay_csv_row(out, proc.name, *log, k, d);
           } else {
+            const CompactRecord& r = log->records[k];
+            const std::string_view id = log->id(r);
             cols.rule.push_back(proc.name);
             cols.step.push_back(d.step);
-            if (launches) cols.launch.push_back(d.launch > 0 ? std::optional<std::uint64_t>(d.launch) : std::nullopt);
+            if (launches)
+              cols.launch.push_back(d.launch > 0 ? std::optional<std::uint64_t>(d.launch) : std::nullopt);
             cols.id.emplace_back(id);
             cols.p_value.push_back(p_values ? std::optional<double>(r.p_value) : std::nullopt);
             if (e_values) cols.e_value.push_back(r.e_value);

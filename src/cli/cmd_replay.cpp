@@ -195,10 +195,7 @@ void print_decisions(const ReplayOptions& o, const GlobalOptions& g, const Compa
   const bool launches = log.has_launch;
   const bool e_values = log.has_e_values;
   const bool p_values = log.has_p_values;
-  if (!g.json) {
-    out << (launches ? "rule,step,launch,id,p_value," : "rule,step,id,p_value,")
-        << (e_values ? "e_value,level,rejected,wealth\n" : "level,rejected,wealth\n");
-  }
+  if (!g.json) out << replay_csv_header(log);
   std::string row;
   Progress progress(log.size(), procs.size());
   for (const Procedure& proc : procs) {
@@ -219,30 +216,7 @@ void print_decisions(const ReplayOptions& o, const GlobalOptions& g, const Compa
         j["wealth"] = d.wealth ? nlohmann::ordered_json(*d.wealth) : nlohmann::ordered_json(nullptr);
         row += json_line(j);
       } else {
-        row += name;
-        row += ',';
-        append_number(row, d.step);
-        row += ',';
-        if (launches) {
-          if (d.launch > 0) append_number(row, d.launch);  // empty for bh / storey-bh
-          row += ',';
-        }
-        const std::string_view id = log.id(r);
-        if (id.find_first_of(",\"\n\r") == std::string_view::npos)
-          row += id;
-        else
-          row += csv_field(std::string(id));
-        row += ',';
-        if (p_values) append_double(row, r.p_value);
-        row += ',';
-        if (e_values) {
-          append_double(row, r.e_value);
-          row += ',';
-        }
-        append_double(row, d.level);
-        row += d.rejected ? ",1," : ",0,";
-        if (d.wealth) append_double(row, *d.wealth);
-        row += '\n';
+        append_replay_csv_row(row, name, log, k, d);
       }
       if (row.size() >= (1 << 16)) {  // written in blocks: one call per row would dominate
         out << row;
