@@ -680,10 +680,8 @@ PlanRequest plan_request(double level, const std::string& alternative, const std
   return r;
 }
 
-}  // namespace
-
-PYBIND11_MODULE(_native, m) {
-  m.doc() = "alphaledger's C++ core (private; use the alphaledger package)";
+// The exception classes, each a subclass of alphaledger.Error.
+void bind_errors(py::module_& m) {
   g_error = PyErr_NewExceptionWithDoc("alphaledger.Error", "Every error alphaledger raises.", PyExc_Exception, nullptr);
   g_invalid = PyErr_NewExceptionWithDoc("alphaledger.InvalidInput",
                                         "The input or a parameter is wrong; nothing was changed.", g_error, nullptr);
@@ -696,7 +694,10 @@ PYBIND11_MODULE(_native, m) {
   m.attr("InvalidInput") = py::handle(g_invalid);
   m.attr("Refused") = py::handle(g_refused);
   m.attr("StorageError") = py::handle(g_storage);
+}
 
+// The small value types the rule and the ledger return.
+void bind_values(py::module_& m) {
   py::class_<Outcome>(m, "Outcome", "The decision of one test.")
       .def_readonly("step", &Outcome::step, "the test's launch number (1-based)")
       .def_readonly("level", &Outcome::level, "the level granted, fixed before the p-value was read")
@@ -720,7 +721,10 @@ PYBIND11_MODULE(_native, m) {
       .def("__repr__", [](const RunningTest& r) {
         return "RunningTest(launch=" + std::to_string(r.launch) + ", level=" + format_number(r.level) + ")";
       });
+}
 
+// The rule and the ledger.
+void bind_objects(py::module_& m) {
   py::class_<PyRule>(m, "NativeRule")
       .def(py::init<const std::string&, const py::dict&>())
       .def("next_level", &PyRule::next_level)
@@ -757,7 +761,10 @@ PYBIND11_MODULE(_native, m) {
       .def("look", &PyLedger::look)
       .def("looks", &PyLedger::looks)
       .def("report", &PyLedger::report);
+}
 
+// replay, explain, simulate, the p-value and sample-size helpers.
+void bind_functions(py::module_& m) {
   m.def("replay", &replay_native);
   m.def("explain", &explain_rule);
   m.def("simulate", &simulate_native);
@@ -774,4 +781,14 @@ PYBIND11_MODULE(_native, m) {
     return plan_dict(take(plan_means(sd, plan_request(level, alternative, min_effect, power, n_per_arm))));
   });
   m.def("format_number", [](double v) { return format_number(v); });
+}
+
+}  // namespace
+
+PYBIND11_MODULE(_native, m) {
+  m.doc() = "alphaledger's C++ core (private; use the alphaledger package)";
+  bind_errors(m);
+  bind_values(m);
+  bind_objects(m);
+  bind_functions(m);
 }
