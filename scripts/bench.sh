@@ -2,6 +2,7 @@
 # Builds the benchmarks (build-bench/, Release) and runs every benchmark beside what a user would
 # use instead, on the same data in the same run, printing the ratios:
 #   - exact and fast evaluation against the NumPy loop (bench/exact_numpy.py);
+#   - the service with 1 to 64 HTTP clients (bench/load_http.cpp): failed requests, stalls, rates;
 #   - durable decisions (ledger_bench) against SQLite, one row per decision, WAL, synchronous=FULL,
 #     in groups of 1, 256 and 4,096 (bench/sqlite_ledger.py); PostgreSQL only if a server answers
 #     on 127.0.0.1 (pg_isready), else a note;
@@ -120,6 +121,13 @@ if compgen -G "/usr/lib/postgresql/*/bin/initdb" >/dev/null || [[ -n "${ALPHALED
 else
   echo "note: no PostgreSQL server programs (Debian package postgresql): PostgreSQL comparison skipped"
 fi
+
+# The service under many clients (target: no failed request, no connection stall, 32 clients at
+# least as fast as 8): bench/load_http.cpp stops with an error on the first failed request.
+echo "== serve: durable decisions over HTTP with 1, 8, 32 and 64 clients (load_http)"
+cmake --build "$bdir" -j2 --target load_http >/dev/null
+"$bdir"/bench/load_http --binary "$bin" --folder "$scratch/http" --cli 0 --clients 1,8,32,64 \
+  --decisions "$([[ $quick == 1 ]] && echo 1000 || echo 4000)" | tee "$out/http.txt"
 
 echo "== reading a log: replay against awk, $rows rows"
 awk -v n="$rows" 'BEGIN { print "id,p_value,finished_at"; srand(7);
