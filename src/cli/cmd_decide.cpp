@@ -130,12 +130,24 @@ Result<BatchInput> read_batch(const DecideOptions& o, const StreamInfo& info) {
   for (std::size_t i = 0; i < records.size() && in_file_order; ++i) {
     in_file_order = records[i].line == b.first_line + i;
   }
-  b.tests.reserve(records.size());
+  // What the views need is taken first (16 bytes a row) and the log's rows (48) are released
+  // before the views (32) are made, so that rows and views are never held together: at 10^6 rows
+  // the peak is 64 MB of these instead of 80.
+  struct Taken {
+    std::uint64_t id_offset : 48;
+    std::uint64_t id_size : 16;
+    double value;
+  };
+  std::vector<Taken> taken;
+  taken.reserve(records.size());
   if (!in_file_order) b.lines.reserve(records.size());
   for (const auto& r : records) {
-    b.tests.push_back({ids.substr(r.id_offset, r.id_size), e_values ? r.e_value : r.p_value, e_values});
+    taken.push_back({r.id_offset, r.id_size, e_values ? r.e_value : r.p_value});
     if (!in_file_order) b.lines.push_back(r.line);
   }
+  std::vector<CompactRecord>().swap(log->records);
+  b.tests.reserve(taken.size());
+  for (const auto& t : taken) b.tests.push_back({ids.substr(t.id_offset, t.id_size), t.value, e_values});
   return b;
 }
 

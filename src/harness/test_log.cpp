@@ -6,11 +6,13 @@
 #include <charconv>
 #include <cmath>
 #include <cstring>
+#include <filesystem>
 #include <fstream>
 #include <iostream>
 #include <nlohmann/json.hpp>
 #include <set>
 #include <sstream>
+#include <vector>
 
 #include "alphaledger/stats.hpp"
 #include "alphaledger/text.hpp"
@@ -267,10 +269,34 @@ Status read_csv_header(const std::vector<std::string_view>& cells, std::string_v
 
 }  // namespace
 
-Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, LogFormat format,
-                                    const ReadOptions& options) {
+namespace {
+
+// The line ends in a regular file, counted in blocks before it is parsed, so that the row table is
+// sized once: a table grown by doubling holds the old and the new copy while it moves, 1.5 times
+// the rows (84 MB instead of 56 at 10^6 rows). The stream is rewound; 0 when it cannot be.
+std::size_t count_line_ends(std::istream& in) {
+  std::streambuf* buf = in.rdbuf();
+  if (buf == nullptr) return 0;
+  std::vector<char> block(1 << 16);
+  std::size_t ends = 0;
+  for (std::streamsize got; (got = buf->sgetn(block.data(), static_cast<std::streamsize>(block.size()))) > 0;)
+    ends += static_cast<std::size_t>(std::count(block.data(), block.data() + got, '\n'));
+  if (buf->pubseekpos(0, std::ios::in) != std::streampos(0)) return 0;
+  return ends;
+}
+
+// read_compact_log with room for `rows` rows made first (a hint: 0 or too many is harmless).
+Result<CompactLog> read_compact(std::istream& in, std::string_view source, LogFormat format,
+                                const ReadOptions& options, std::size_t rows) {
   CompactLog log;
   log.source = std::string(source);
+  if (rows > 0) {
+    try {
+      log.records.reserve(rows + 1);  // + 1: a last line without a line end
+    } catch (const std::exception&) {
+      // more than the memory allows: grow as the rows come, as without a hint
+    }
+  }
   std::streambuf* buf = in.rdbuf();
   if (buf == nullptr) return invalid_input(std::string(source) + ": cannot read");
   LineReader reader(*buf);
@@ -330,6 +356,13 @@ Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, L
   return log;
 }
 
+}  // namespace
+
+Result<CompactLog> read_compact_log(std::istream& in, std::string_view source, LogFormat format,
+                                    const ReadOptions& options) {
+  return read_compact(in, source, format, options, 0);
+}
+
 Result<CompactLog> read_compact_log_file(const std::string& path,
                                          std::optional<std::string_view> forced_format,
                                          const ReadOptions& options) {
@@ -338,7 +371,10 @@ Result<CompactLog> read_compact_log_file(const std::string& path,
   if (path == "-") return read_compact_log(std::cin, "stdin", *format, options);
   std::ifstream in(path, std::ios::binary);
   if (!in) return invalid_input(path + ": cannot open the file (does it exist, can it be read?)");
-  return read_compact_log(in, path, *format, options);
+  // Only a regular file is read twice: a pipe or a device given by name is read once, as it comes.
+  std::error_code ec;
+  const bool regular = std::filesystem::is_regular_file(path, ec);
+  return read_compact(in, path, *format, options, regular ? count_line_ends(in) : 0);
 }
 
 namespace {

@@ -1,12 +1,16 @@
 // The log reader (docs/formats.md): CSV quoting, ordering by finished_at, ISO 8601 dates.
 #include <doctest/doctest.h>
+#include <sys/stat.h>
 
 #include <cmath>
+#include <fstream>
 #include <iostream>
 #include <sstream>
+#include <thread>
 
 #include "alphaledger/test_log.hpp"
 #include "harness/json_input.hpp"
+#include "support/temp_dir.hpp"
 
 using namespace alphaledger;
 
@@ -296,7 +300,8 @@ TEST_CASE("TestLog: '-' reads standard input, and needs its format given") {
   CHECK(log->records[0].id == "a");
 }
 
-TEST_CASE("TestLog: a summary whose arithmetic overflows is refused, not decided as NaN (fuzz_summary finding)") {
+TEST_CASE(
+    "TestLog: a summary whose arithmetic overflows is refused, not decided as NaN (fuzz_summary finding)") {
   // Found by fuzz_summary (docs/fuzzing.md): Welch's test with sd 8e131 squares past the largest
   // double, and the p-value came back NaN (outside [0, 1]) instead of an error.
   auto log = read_csv(
@@ -396,7 +401,8 @@ TEST_CASE("CompactLog: a duplicate far from its first row is named with both lin
   text += "t123,0.5\n";  // line 50002 repeats line 125
   auto log = read_compact_csv(text);
   REQUIRE_FALSE(log.ok());
-  CHECK(log.error().message == "t.csv:50002: duplicate id 't123' (first at line 125); ids must be unique in a log");
+  CHECK(log.error().message ==
+        "t.csv:50002: duplicate id 't123' (first at line 125); ids must be unique in a log");
   auto retries = read_compact_csv(text, {.allow_duplicate_ids = true});
   REQUIRE(retries.ok());
   CHECK(retries->size() == 50001);
@@ -413,4 +419,34 @@ TEST_CASE("CompactLog: a log already in time order keeps its order; ties keep fi
   order.clear();
   for (std::size_t i = 0; i < back->size(); ++i) order += back->id(i);
   CHECK(order == "cdab");  // c and d (time 1) in file order, then a with b carried at time 5
+}
+
+// read_compact_log_file counts a regular file's line ends before it parses, to size its row table
+// once; the rows must be the same whether the last line has a line end or not, and a named pipe
+// (which cannot be read twice) must be read once, as it comes.
+TEST_CASE("CompactLog: a file is read the same with or without a last line end, and a pipe is read once") {
+  test_support::TempDir dir;
+  const std::string rows = "id,p_value\na,0.1\nb,0.2\nc,0.3";
+  for (const std::string& text :
+       {rows, rows + "\n", rows + "\r\n", std::string("id,p_value\ra,0.1\rb,0.2\rc,0.3\r")}) {
+    const std::string path = dir.write("log.csv", text);
+    auto log = read_compact_log_file(path, std::nullopt, ReadOptions{});
+    REQUIRE(log.ok());
+    REQUIRE(log->size() == 3);
+    CHECK(log->id(0) == "a");
+    CHECK(log->id(2) == "c");
+    CHECK(log->records[2].p_value == 0.3);
+    CHECK(log->records[2].line == 4);
+  }
+  const std::string fifo = dir.sub("pipe.csv");
+  REQUIRE(::mkfifo(fifo.c_str(), 0600) == 0);
+  std::thread writer([&] {
+    std::ofstream out(fifo, std::ios::binary);
+    out << rows << "\n";
+  });
+  auto piped = read_compact_log_file(fifo, std::nullopt, ReadOptions{});
+  writer.join();
+  REQUIRE(piped.ok());
+  CHECK(piped->size() == 3);
+  CHECK(piped->id(1) == "b");
 }
