@@ -76,6 +76,23 @@ py::dict running_dict(const RunningEntry& r) {
   return d;
 }
 
+// A launch or an abandon as `launch --json` / `abandon --json` give it; `abandoned_at_ms` only for
+// an abandon.
+template <typename EventResult>
+py::dict event_dict(const EventResult& res, const std::int64_t* abandoned_at_ms) {
+  py::dict d;
+  d["stream"] = res.stream;
+  d["id"] = res.id;
+  d["launch"] = res.launch;
+  d["level"] = res.level;
+  d["wealth"] = res.wealth;
+  d["launched_at"] = format_timestamp(res.launched_at_ms);
+  if (abandoned_at_ms != nullptr) d["abandoned_at"] = format_timestamp(*abandoned_at_ms);
+  d["step"] = res.step;
+  d["repeat"] = res.repeat;
+  return d;
+}
+
 class PyLedger {
  public:
   explicit PyLedger(const std::string& path) : path_(path) {
@@ -152,17 +169,7 @@ class PyLedger {
       py::gil_scoped_release release;
       r = l.launch(stream, id);
     }
-    auto res = take(std::move(r));
-    py::dict d;
-    d["stream"] = res.stream;
-    d["id"] = res.id;
-    d["launch"] = res.launch;
-    d["level"] = res.level;
-    d["wealth"] = res.wealth;
-    d["launched_at"] = format_timestamp(res.launched_at_ms);
-    d["step"] = res.step;
-    d["repeat"] = res.repeat;
-    return d;
+    return event_dict(take(std::move(r)), nullptr);
   }
   py::dict abandon(const std::string& stream, const std::string& id) {
     Result<AbandonResult> r = invalid_input("not abandoned");
@@ -171,18 +178,8 @@ class PyLedger {
       py::gil_scoped_release release;
       r = l.abandon(stream, id);
     }
-    auto res = take(std::move(r));
-    py::dict d;
-    d["stream"] = res.stream;
-    d["id"] = res.id;
-    d["launch"] = res.launch;
-    d["level"] = res.level;
-    d["wealth"] = res.wealth;
-    d["launched_at"] = format_timestamp(res.launched_at_ms);
-    d["abandoned_at"] = format_timestamp(res.abandoned_at_ms);
-    d["step"] = res.step;
-    d["repeat"] = res.repeat;
-    return d;
+    const auto res = take(std::move(r));
+    return event_dict(res, &res.abandoned_at_ms);
   }
   py::list running(const std::string& stream) {
     py::list rows;
