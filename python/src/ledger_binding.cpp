@@ -33,35 +33,33 @@ py::dict stream_dict(const StreamInfo& s) {
   return d;
 }
 
-// A decided test as `decide --json` gives it (launch, launched_at).
-py::dict decision_dict(const DecisionRecord& r) {
+// The keys a decision and a history row share, in their order; the number is named e_value on
+// a stream whose rule takes e-values (e-lond), as in the CLI.
+py::dict decided_fields(const DecisionRecord& r, bool e_value) {
   py::dict d;
   d["step"] = r.step;
   d["id"] = r.id;
-  d[r.e_value ? "e_value" : "p_value"] = r.p_value;
+  d[e_value ? "e_value" : "p_value"] = r.p_value;
   d["level"] = r.level;
   d["rejected"] = r.rejected ? 1 : 0;
   d["wealth"] = r.wealth;
   d["decided_at"] = format_timestamp(r.decided_at_ms);
   d["launch"] = r.launch;
+  return d;
+}
+
+// A decided test as `decide --json` gives it (launch, launched_at).
+py::dict decision_dict(const DecisionRecord& r) {
+  py::dict d = decided_fields(r, r.e_value);
   d["launched_at"] = format_timestamp(r.launched_at_ms);
   return d;
 }
 
 // A row of `history`: the launch time is `reserved_at` there, as in the CLI's history (a column
 // named launched_at would be read as launch times if the table were replayed); `abandoned` marks a
-// test that was abandoned (p_value 0, rejected 0, decided_at when it was abandoned). On a stream
-// whose rule takes e-values (e-lond) the number is named e_value, as in the CLI's history.
+// test that was abandoned (p_value 0, rejected 0, decided_at when it was abandoned).
 py::dict history_dict(const DecisionRecord& r, bool e_values) {
-  py::dict d;
-  d["step"] = r.step;
-  d["id"] = r.id;
-  d[e_values ? "e_value" : "p_value"] = r.p_value;
-  d["level"] = r.level;
-  d["rejected"] = r.rejected ? 1 : 0;
-  d["wealth"] = r.wealth;
-  d["decided_at"] = format_timestamp(r.decided_at_ms);
-  d["launch"] = r.launch;
+  py::dict d = decided_fields(r, e_values);
   d["reserved_at"] = format_timestamp(r.launched_at_ms);
   d["abandoned"] = r.abandoned;
   return d;
