@@ -24,12 +24,14 @@
 // record(p) is exactly launch() followed by finish() of that launch.
 //
 // Thread-safety: a Rule is a value; distinct Rules may be used from distinct threads. Copying a
-// Rule is cheap (the spending sequence and its mixture are shared, immutable).
+// Rule is cheap (the spending sequence and its mixture are shared, immutable; a fast-mode Rule
+// carries a copy of the mixture's arrays, 1-2 KB).
 #pragma once
 
 #include <cstdint>
 #include <map>
 #include <memory>
+#include <new>
 #include <optional>
 #include <span>
 #include <string>
@@ -121,6 +123,27 @@ struct RunningTest {
   friend bool operator==(const RunningTest&, const RunningTest&) = default;
 };
 
+namespace internal {
+
+// Memory for a Rule's fast-mode buffer, on 64-byte (cache line) boundaries: the sums read and
+// write it in 32-byte vectors, and a vector that straddles two lines costs two accesses.
+template <class T>
+struct LineAlignedAllocator {
+  using value_type = T;
+  static constexpr std::align_val_t kAlign{64};
+  LineAlignedAllocator() = default;
+  template <class U>
+  LineAlignedAllocator(const LineAlignedAllocator<U>&) noexcept {}
+  T* allocate(std::size_t n) { return static_cast<T*>(::operator new(n * sizeof(T), kAlign)); }
+  void deallocate(T* p, std::size_t) noexcept { ::operator delete(p, kAlign); }
+  template <class U>
+  bool operator==(const LineAlignedAllocator<U>&) const noexcept {
+    return true;
+  }
+};
+
+}  // namespace internal
+
 class Rule {
  public:
   // REQUIRES: config came from resolve_config().
@@ -134,7 +157,10 @@ class Rule {
 
   // Decides a test with p-value p and advances the state: launch() then finish() of that launch.
   // REQUIRES: 0 <= p <= 1 (callers validate input; see validate_p_value()).
-  Outcome record(double p);
+  Outcome record(double p) {
+    if (fast_step_ != nullptr && running_.empty()) return fast_step_(*this, p);  // the hot path
+    return record_any(p);
+  }
   // The same for a rule that takes e-values (e-lond): rejected iff e >= 1 / level.
   // REQUIRES: rule_takes_e_values(kind); e finite and >= 0 (see validate_e_value()).
   Outcome record_e(double e);
@@ -190,11 +216,18 @@ class Rule {
   double exact_sum() const;    // over the deposit list with the published gamma
   double mixture_sum() const;  // over the head slots and accumulators, fixed order
   void advance(bool tick, bool rejected);
+  void advance_fast(bool tick, bool rejected, double c_new);  // advance() in fast mode
+  // record() in fast mode with no running test: the same operations as record(), in one
+  // function per rule and mixture shape, with an AVX2 version picked once (rules_deposit.cpp);
+  // tests/core/test_levels_golden.cpp pins the bits. fast_step_ is null in exact mode.
+  struct FastKernel;
+  using FastStep = Outcome (*)(Rule&, double);
+  Outcome record_any(double p);  // record() on every other path
   // Whether evidence x (a p-value, or an e-value for e-lond) rejects at `level`.
   bool rejects(double x, double level) const {
     return config_.kind == RuleKind::kELond ? x >= 1.0 / level : x <= level;
   }
-  void set_head_mask();              // fast mode: head_mask_ from head_
+  void set_head_mask();              // fast mode: head_mask_ from the head slots
   void fill_window();                // exact mode: window_ for the clocks from clock_ on
   void add_to_window(double c_new);  // exact mode: a deposit made at clock_
   void ensure_window();              // exact mode: a window covering clock_
@@ -225,10 +258,25 @@ class Rule {
   std::uint64_t last_rejection_ = 0;          // alpha-investing: k*
   std::uint64_t clock_ = 0;                   // deposit rules: ticks so far
   std::vector<std::uint64_t> deposit_clock_;  // exact mode: clock at each deposit (index 0: W0)
-  std::vector<double> head_;                  // fast mode: coefficient at each head index 1..L
-  std::vector<double> accumulator_;           // fast mode: A_k
+  // Fast mode's one buffer (rules_deposit.cpp, init_fast()): the head slots (the coefficient at
+  // each head index 1..L), the accumulators A_k, then copies of the mixture's head weights,
+  // coefficients, ratios r_k and r_k^L; each part padded with +0 to whole vectors of four, so
+  // no 32-byte access straddles two cache lines.
+  std::vector<double, internal::LineAlignedAllocator<double>> fast_;
+  std::size_t head_slots_ = 0;  // the head part's padded size (0 without a head)
+  std::size_t acc_slots_ = 0;   // the accumulator part's padded size
+  double* head_at() { return fast_.data(); }
+  const double* head_at() const { return fast_.data(); }
+  double* acc_at() { return fast_.data() + head_slots_; }
+  const double* acc_at() const { return fast_.data() + head_slots_; }
+  const double* weight_at() const { return acc_at() + acc_slots_; }      // head weights
+  const double* coefficient_at() const { return weight_at() + head_slots_; }
+  const double* ratio_at() const { return coefficient_at() + acc_slots_; }
+  const double* ratio_head_at() const { return ratio_at() + acc_slots_; }
+  void init_fast();  // fast_ for mixture_, every head slot and accumulator +0
+  FastStep fast_step_ = nullptr;  // set by init_fast()
   double fast_sum_ = 0;                       // fast mode: mixture_sum() of the current state
-  std::uint64_t head_mask_ = 0;  // fast mode: bit i set iff head_[i] != 0 (every bit for heads of 64+)
+  std::uint64_t head_mask_ = 0;  // fast mode: bit i set iff head slot i != 0 (every bit for heads of 64+)
   std::map<std::uint64_t, Running> running_;  // launched, not finished or abandoned
   double investing_reserved_ = 0;             // alpha-investing: sum of level/(1-level) over running tests
 

@@ -32,12 +32,11 @@ Rule::Rule(const RuleConfig& config) : config_(config) {
     default:
       wealth_ = config_.initial_wealth;
       if (mixture_ != nullptr) {
-        head_.assign(mixture_->head.size(), 0.0);
-        accumulator_.assign(mixture_->weight.size(), 0.0);
-        if (head_.empty()) {
-          std::fill(accumulator_.begin(), accumulator_.end(), config_.initial_wealth);
+        init_fast();
+        if (head_slots_ == 0) {
+          std::fill_n(acc_at(), mixture_->weight.size(), config_.initial_wealth);
         } else {
-          head_[0] = config_.initial_wealth;
+          head_at()[0] = config_.initial_wealth;
           set_head_mask();
         }
         fast_sum_ = mixture_sum();
@@ -88,13 +87,14 @@ double Rule::next_level() const {
 
 Outcome Rule::record_e(double e) { return record(e); }  // rejects() reads e as an e-value
 
-Outcome Rule::record(double p) {
+Outcome Rule::record_any(double p) {
   if (!running_.empty()) {
     // Tests are running: the general path (rules_launch.cpp). Without running tests the code
     // below is the same sequence of operations, fused; tests/core/test_launch.cpp compares bits.
     const Reservation r = launch();
     return finish_running(r.launch, p);
   }
+  if (mixture_ != nullptr) return fast_step_(*this, p);  // record() takes it directly
   ensure_window();
   Outcome o;
   o.level = level_now();

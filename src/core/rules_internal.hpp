@@ -20,4 +20,11 @@ inline bool is_deposit_rule(RuleKind k) {
 inline constexpr std::size_t kMinLanes = 8;
 inline constexpr std::size_t kMaxLanes = 1024;
 
+// Fast mode sums whole vectors of four terms (rules_deposit.cpp): n rounded up to them.
+inline constexpr std::size_t whole_vectors(std::size_t n) { return (n + 3) / 4 * 4; }
+
+// For tests: fast-mode Rules made while this is on, and fast-mode sums done while it is on, use
+// the baseline kernels even where the processor has AVX2, so a test can compare their bits.
+void use_baseline_kernels(bool on);
+
 }  // namespace alphaledger::rules_detail

@@ -74,10 +74,13 @@ void Rule::encode_counters(std::string& out, std::uint8_t version) const {
   put_u64(out, clock_);
   put_u64(out, deposit_clock_.size());
   for (auto c : deposit_clock_) put_u64(out, c);
-  put_u64(out, head_.size());
-  for (double h : head_) put_f64(out, h);
-  put_u64(out, accumulator_.size());
-  for (double a : accumulator_) put_f64(out, a);
+  // The mixture's sizes: the slots that fill the last block are always +0 and not stored.
+  const std::size_t nh = mixture_ != nullptr ? mixture_->head.size() : 0;
+  const std::size_t na = mixture_ != nullptr ? mixture_->weight.size() : 0;
+  put_u64(out, nh);
+  for (std::size_t i = 0; i < nh; ++i) put_f64(out, head_at()[i]);
+  put_u64(out, na);
+  for (std::size_t k = 0; k < na; ++k) put_f64(out, acc_at()[k]);
 }
 
 std::string Rule::encode_state() const {
@@ -184,12 +187,15 @@ Status Rule::restore_any(std::string_view bytes, const std::span<const RunningTe
   if (!r.ok || nd > r.in.size() / 8) return corruption("rule state is truncated (deposits)");
   next.deposit_clock_.assign(nd, 0);
   for (auto& c : next.deposit_clock_) c = r.u64();
+  // The mixture's sizes; the slots past them stay +0 (encode_state()).
   const std::uint64_t nh = r.u64();
-  if (!r.ok || nh != head_.size()) return corruption("rule state has the wrong head size");
-  for (auto& h : next.head_) h = r.f64();
+  if (!r.ok || nh != (mixture_ != nullptr ? mixture_->head.size() : 0))
+    return corruption("rule state has the wrong head size");
+  for (std::size_t i = 0; i < nh; ++i) next.head_at()[i] = r.f64();
   const std::uint64_t na = r.u64();
-  if (!r.ok || na != accumulator_.size()) return corruption("rule state has the wrong accumulator count");
-  for (auto& a : next.accumulator_) a = r.f64();
+  if (!r.ok || na != (mixture_ != nullptr ? mixture_->weight.size() : 0))
+    return corruption("rule state has the wrong accumulator count");
+  for (std::size_t k = 0; k < na; ++k) next.acc_at()[k] = r.f64();
   next.running_.clear();
   next.investing_reserved_ = 0;
   if (version == kStateVersion) {

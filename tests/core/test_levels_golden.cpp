@@ -26,6 +26,7 @@
 #include <vector>
 
 #include "alphaledger/rules.hpp"
+#include "core/rules_internal.hpp"
 
 using namespace alphaledger;
 
@@ -162,15 +163,9 @@ std::vector<std::string> all_lines() {
 
 }  // namespace
 
-TEST_CASE("Levels golden: every rule and evaluation is bit-identical to the recorded levels") {
-  const auto lines = all_lines();
-  if (const char* out = std::getenv("ALPHALEDGER_WRITE_GOLDEN"); out != nullptr) {
-    std::ofstream f(out);
-    f << "# written by tests/core/test_levels_golden.cpp; see its header\n";
-    for (const auto& l : lines) f << l << '\n';
-    MESSAGE("wrote " << lines.size() << " lines to " << std::string(out));
-    return;
-  }
+namespace {
+
+void check_against_golden(const std::vector<std::string>& lines) {
   std::ifstream in(std::string(ALPHALEDGER_TEST_DATA) + "/levels_golden.txt");
   REQUIRE(in.good());
   std::map<std::string, std::string> want;  // "configuration stream" -> whole line
@@ -193,4 +188,28 @@ TEST_CASE("Levels golden: every rule and evaluation is bit-identical to the reco
     REQUIRE(it != want.end());
     CHECK(got == it->second);
   }
+}
+
+}  // namespace
+
+TEST_CASE("Levels golden: every rule and evaluation is bit-identical to the recorded levels") {
+  const auto lines = all_lines();
+  if (const char* out = std::getenv("ALPHALEDGER_WRITE_GOLDEN"); out != nullptr) {
+    std::ofstream f(out);
+    f << "# written by tests/core/test_levels_golden.cpp; see its header\n";
+    for (const auto& l : lines) f << l << '\n';
+    MESSAGE("wrote " << lines.size() << " lines to " << std::string(out));
+    return;
+  }
+  check_against_golden(lines);
+}
+
+// Fast mode's kernels come in a baseline and an AVX2 version, picked by the processor. Both must
+// give the recorded bits, so that a stream verifies on any x86-64 machine (and elsewhere). On a
+// machine without AVX2 both runs take the baseline kernels.
+TEST_CASE("Levels golden: the baseline fast kernels give the recorded bits too") {
+  rules_detail::use_baseline_kernels(true);
+  const auto lines = all_lines();
+  rules_detail::use_baseline_kernels(false);
+  check_against_golden(lines);
 }
