@@ -324,10 +324,10 @@ void Rule::init_fast() {
   head_slots_ = whole_vectors(m.head.size());
   acc_slots_ = whole_vectors(m.weight.size());
   fast_.assign(2 * head_slots_ + 4 * acc_slots_, 0.0);
-  std::copy(m.head.begin(), m.head.end(), fast_.begin() + static_cast<std::ptrdiff_t>(weight_at() - fast_.data()));
   auto put = [&](const std::vector<double>& from, const double* to) {
     std::copy(from.begin(), from.end(), fast_.begin() + (to - fast_.data()));
   };
+  put(m.head, weight_at());
   put(m.coefficient, coefficient_at());
   put(m.ratio, ratio_at());
   put(m.ratio_head, ratio_head_at());
