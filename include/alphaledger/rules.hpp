@@ -222,7 +222,7 @@ class Rule {
   // tests/core/test_levels_golden.cpp pins the bits. fast_step_ is null in exact mode.
   struct FastKernel;
   using FastStep = Outcome (*)(Rule&, double);
-  Outcome record_any(double p);  // record() on every other path
+  Outcome record_any(double p);  // record() on every other path (exact mode, running tests)
   // Whether evidence x (a p-value, or an e-value for e-lond) rejects at `level`.
   bool rejects(double x, double level) const {
     return config_.kind == RuleKind::kELond ? x >= 1.0 / level : x <= level;
@@ -232,6 +232,11 @@ class Rule {
   void add_to_window(double c_new);  // exact mode: a deposit made at clock_
   void ensure_window();              // exact mode: a window covering clock_
   double level_now() const;          // the level at the current state (no pending clock advance)
+  // The deposit the next rejection makes (lord++, saffron, addis): alpha - W0 for the first,
+  // alpha after it.
+  double next_deposit() const {
+    return rejections_ == 0 ? config_.alpha - config_.initial_wealth : config_.alpha;
+  }
   Status check_running(std::uint64_t launch, std::string_view event) const;
   Outcome finish_running(std::uint64_t launch, double p);  // REQUIRES: launch is running
   void clock_advance_for(double level);                    // saffron/addis: one test advances the clock

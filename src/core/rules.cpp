@@ -94,7 +94,6 @@ Outcome Rule::record_any(double p) {
     const Reservation r = launch();
     return finish_running(r.launch, p);
   }
-  if (mixture_ != nullptr) return fast_step_(*this, p);  // record() takes it directly
   ensure_window();
   Outcome o;
   o.level = level_now();

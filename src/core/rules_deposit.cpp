@@ -248,7 +248,7 @@ struct Rule::FastKernel {
         r.wealth_ -= o.level;
       }
     }
-    const double c_new = r.rejections_ == 0 ? r.config_.alpha - r.config_.initial_wealth : r.config_.alpha;
+    const double c_new = r.next_deposit();
     advance<S>(r, tick, o.rejected, c_new);
     if (o.rejected) {
       r.wealth_ += c_new;
@@ -384,7 +384,7 @@ void Rule::add_to_window(double c_new) {
 }
 
 void Rule::advance(bool tick, bool rejected) {
-  const double c_new = rejections_ == 0 ? config_.alpha - config_.initial_wealth : config_.alpha;
+  const double c_new = next_deposit();
   if (mixture_ != nullptr) {
     advance_fast(tick, rejected, c_new);
   } else {
