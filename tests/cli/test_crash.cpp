@@ -4,6 +4,8 @@
 // history equals `replay` of the same file, and `verify` passes.
 #include <doctest/doctest.h>
 
+#include <algorithm>
+#include <chrono>
 #include <cmath>
 #include <map>
 #include <nlohmann/json.hpp>
@@ -50,6 +52,27 @@ std::string make_log(std::uint64_t seed, std::size_t n) {
   return out;
 }
 
+// Kill delays, uniform over [0, window). The window starts at `initial` and, after each run that
+// finished before its kill, becomes 1.25 times that run's duration. Once every answer is stored, a
+// restart only repeats them and ends within a few ms on a fast machine; with a fixed window most
+// kills would come too late, and the run would need an unbounded number of restarts to collect
+// its kills (the cause of a CI failure, 2026-12-04: 200 restarts gave fewer than 15 kills).
+class KillDelays {
+ public:
+  explicit KillDelays(std::chrono::microseconds initial) : window_(initial) {}
+  std::chrono::microseconds next(std::mt19937_64& gen) const {
+    return std::chrono::microseconds(gen() % static_cast<std::uint64_t>(window_.count()));
+  }
+  void finished_in(std::chrono::steady_clock::duration took) {
+    const auto us = std::chrono::duration_cast<std::chrono::microseconds>(took);
+    window_ = std::max(std::chrono::microseconds(1000), us * 5 / 4);
+  }
+  std::chrono::microseconds window() const { return window_; }
+
+ private:
+  std::chrono::microseconds window_;
+};
+
 }  // namespace
 
 TEST_CASE("Crash: decide --file killed 50 times at random moments loses and doubles nothing") {
@@ -62,13 +85,15 @@ TEST_CASE("Crash: decide --file killed 50 times at random moments loses and doub
   const std::string log = dir.write("tests.csv", make_log(seed, kTests));
   REQUIRE(run_alphaledger({"--ledger", db, "new", "crash", "--rule", "lord++"}).exit_code == 0);
 
-  // Kill delays: uniform over [0, 400 ms]. Opening the ledger takes roughly 50-200 ms, so some kills
-  // land while RocksDB opens or recovers, most while decisions are being written. Small groups
+  // Kill delays: uniform over [0, 400 ms] while runs are still deciding (KillDelays above). Opening
+  // the ledger takes a few to 200 ms, so some kills land while RocksDB opens or recovers, most while
+  // decisions are being written. Small groups
   // (--sync-every 4) make many synced writes per run, so kills fall between and inside them.
   // After each kill, before the restart, the history must already hold every decision printed so
   // far, with the same decided_at: a decision printed before it was durable would be missing
   // here (after a restart it would be decided again, identically but for decided_at).
   std::mt19937_64 gen(seed);
+  KillDelays delays(std::chrono::milliseconds(400));
   std::map<std::string, nlohmann::json> printed;  // id -> printed decision
   int kills = 0, attempts = 0, completed_early = 0;
   auto check_printed_are_stored = [&] {
@@ -95,12 +120,14 @@ TEST_CASE("Crash: decide --file killed 50 times at random moments loses and doub
     CHECK(different == 0);
   };
   while (kills < kKills) {
+    CAPTURE(delays.window().count());
     REQUIRE(++attempts < 400);
-    const auto delay = std::chrono::microseconds(gen() % 400000);
     alphaledger::test_support::RunOptions kill_later;
-    kill_later.kill_after = delay;
+    kill_later.kill_after = delays.next(gen);
+    const auto started = std::chrono::steady_clock::now();
     auto run = run_alphaledger(
         {"--ledger", db, "--json", "decide", "crash", "--file", log, "--sync-every", "4"}, kill_later);
+    if (!run.killed) delays.finished_in(std::chrono::steady_clock::now() - started);
     for (const auto& line : complete_lines(run.out)) {
       auto j = nlohmann::json::parse(line);
       auto [it, fresh] = printed.emplace(j["id"].get<std::string>(), j);
@@ -257,12 +284,16 @@ TEST_CASE("Crash: pipe with launches and decisions killed at random moments lose
     CHECK(lost == 0);
   };
   int kills = 0, attempts = 0;
+  KillDelays delays(std::chrono::milliseconds(300));
   while (kills < kKills) {
+    CAPTURE(delays.window().count());
     REQUIRE(++attempts < 200);
     alphaledger::test_support::RunOptions kill_later;
     kill_later.stdin_text = input;
-    kill_later.kill_after = std::chrono::microseconds(gen() % 300000);
+    kill_later.kill_after = delays.next(gen);
+    const auto started = std::chrono::steady_clock::now();
     auto run = run_alphaledger({"--ledger", db, "pipe", "mix"}, kill_later);
+    if (!run.killed) delays.finished_in(std::chrono::steady_clock::now() - started);
     for (const auto& line : complete_lines(run.out)) {
       auto j = nlohmann::json::parse(line);
       if (j.contains("line")) continue;  // a refusal (a launch retried after its decision)
@@ -279,6 +310,7 @@ TEST_CASE("Crash: pipe with launches and decisions killed at random moments lose
       check_printed_are_stored();
     }
   }
+  MESSAGE("kills: " << kills << " in " << attempts << " runs");
   auto last = run_alphaledger({"--ledger", db, "pipe", "mix"}, whole);
   CHECK(last.exit_code != 4);
   check_printed_are_stored();
